@@ -1,0 +1,7 @@
+//! Least-squares fits: the weighted straight line and the broken stick with an unknown break.
+
+pub mod broken;
+pub mod line;
+
+pub use broken::{Base, BreakSolution, Workspace};
+pub use line::{fit_line, LineFit};

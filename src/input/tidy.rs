@@ -1,0 +1,348 @@
+//! The tidy campaign CSV: one row per (sample, tw, t).
+//!
+//! Columns (names can be mapped): `sample`, `tw`, `t`, `corr`, `resp`, and optionally
+//! `corr_eq` for `C(t,t)`. Rows may come in any order; other columns are ignored;
+//! lines starting with `#` are comments; a UTF-8 byte-order mark and Windows line ends
+//! are accepted.
+
+use crate::campaign::{Campaign, GridPoint};
+use crate::error::{Error, Result};
+use ndarray::Array2;
+use std::collections::HashMap;
+use std::io::Read;
+use std::path::Path;
+
+/// The header names fdtemp looks for, one per role.
+#[derive(Debug, Clone, PartialEq, Eq, serde::Serialize)]
+pub struct ColumnNames {
+    /// Sample (run, realization) identifier.
+    pub sample: String,
+    /// Waiting time.
+    pub tw: String,
+    /// Later time.
+    pub t: String,
+    /// Two-time correlation `C(t,tw)`.
+    pub corr: String,
+    /// Integrated response `chi(t,tw)`.
+    pub resp: String,
+    /// Optional equal-time correlation `C(t,t)`.
+    pub corr_eq: String,
+}
+
+impl Default for ColumnNames {
+    fn default() -> Self {
+        ColumnNames {
+            sample: "sample".into(),
+            tw: "tw".into(),
+            t: "t".into(),
+            corr: "corr".into(),
+            resp: "resp".into(),
+            corr_eq: "corr_eq".into(),
+        }
+    }
+}
+
+impl ColumnNames {
+    /// Applies one mapping `ROLE=NAME` (for example `resp=chi_zfc`).
+    ///
+    /// # Errors
+    /// [`Error::Setting`] when the text has no `=` or names an unknown role.
+    pub fn apply(&mut self, mapping: &str) -> Result<()> {
+        let (role, name) = mapping.split_once('=').ok_or_else(|| {
+            Error::Setting(format!(
+                "column mapping '{mapping}' is not ROLE=NAME (for example resp=chi_zfc)"
+            ))
+        })?;
+        let slot = match role.trim() {
+            "sample" => &mut self.sample,
+            "tw" => &mut self.tw,
+            "t" => &mut self.t,
+            "corr" => &mut self.corr,
+            "resp" => &mut self.resp,
+            "corr_eq" => &mut self.corr_eq,
+            other => {
+                return Err(Error::Setting(format!(
+                    "column mapping '{mapping}': unknown role '{other}', expected one of \
+                     sample, tw, t, corr, resp, corr_eq"
+                )));
+            }
+        };
+        *slot = name.trim().to_string();
+        Ok(())
+    }
+
+    fn required(&self) -> [&str; 5] {
+        [&self.sample, &self.tw, &self.t, &self.corr, &self.resp]
+    }
+}
+
+/// Reads and validates a campaign file.
+///
+/// # Errors
+/// [`Error::Io`] when the file cannot be read; [`Error::Input`] naming the line and
+/// column for every content problem (missing column, non-number, NaN or inf, duplicate
+/// `(sample, tw, t)`, a sample missing points that others have, `t <= tw`, fewer than
+/// two samples).
+pub fn read_campaign(path: &Path, names: &ColumnNames) -> Result<Campaign> {
+    let file = std::fs::File::open(path).map_err(|source| Error::Io {
+        path: path.to_path_buf(),
+        action: "cannot read",
+        source,
+    })?;
+    parse_campaign(std::io::BufReader::new(file), path, names)
+}
+
+struct Row {
+    sample: usize,
+    point: usize,
+    corr: f64,
+    resp: f64,
+    corr_eq: Option<f64>,
+    line: u64,
+}
+
+/// Parses a campaign from any reader; `file` is used in error messages only.
+///
+/// # Errors
+/// As [`read_campaign`].
+pub fn parse_campaign<R: Read>(reader: R, file: &Path, names: &ColumnNames) -> Result<Campaign> {
+    let err = |line: Option<u64>, col: Option<u64>, msg: String| Error::input(file, line, col, msg);
+    let mut rdr = csv::ReaderBuilder::new()
+        .has_headers(false)
+        .flexible(true)
+        .comment(Some(b'#'))
+        .trim(csv::Trim::All)
+        .from_reader(reader);
+    let mut records = rdr.records();
+    let csv_err = |e: csv::Error| {
+        let line = e.position().map(|p| p.line());
+        let what = match e.kind() {
+            csv::ErrorKind::Utf8 { .. } => "the file is not valid UTF-8 text".to_string(),
+            csv::ErrorKind::Io(io) => format!("read failed: {io}"),
+            _ => e.to_string(),
+        };
+        err(line, None, what)
+    };
+
+    // Header.
+    let header = match records.next() {
+        None => {
+            return Err(err(
+                None,
+                None,
+                format!(
+                    "the file is empty; expected a header line with columns {}",
+                    names.required().join(", ")
+                ),
+            ));
+        }
+        Some(r) => r.map_err(csv_err)?,
+    };
+    let header_line = header.position().map_or(1, |p| p.line());
+    let fields: Vec<String> = header
+        .iter()
+        .enumerate()
+        .map(|(i, h)| if i == 0 { h.trim_start_matches('\u{feff}').to_string() } else { h.to_string() })
+        .collect();
+    let mut seen: HashMap<&str, usize> = HashMap::new();
+    for (i, h) in fields.iter().enumerate() {
+        if let Some(first) = seen.insert(h.as_str(), i) {
+            return Err(err(
+                Some(header_line),
+                Some(i as u64 + 1),
+                format!(
+                    "column '{h}' appears twice in the header (columns {} and {}); expected \
+                     each name once",
+                    first + 1,
+                    i + 1
+                ),
+            ));
+        }
+    }
+    let find = |name: &str| fields.iter().position(|h| h == name);
+    let mut idx = [0usize; 5];
+    for (slot, name) in idx.iter_mut().zip(names.required()) {
+        *slot = find(name).ok_or_else(|| {
+            let hint = if fields.len() == 1 && (fields[0].contains(';') || fields[0].contains('\t')) {
+                " (the header has a single column: fdtemp reads comma-separated files)"
+            } else {
+                ""
+            };
+            err(
+                Some(header_line),
+                None,
+                format!(
+                    "no column '{name}' in the header (found: {}); expected columns {}{hint}",
+                    fields.join(", "),
+                    names.required().join(", ")
+                ),
+            )
+        })?;
+    }
+    let [i_sample, i_tw, i_t, i_corr, i_resp] = idx;
+    let i_eq = find(&names.corr_eq);
+    let n_fields = fields.len();
+
+    let mut sample_index: HashMap<String, usize> = HashMap::new();
+    let mut sample_ids: Vec<String> = Vec::new();
+    let mut point_index: HashMap<(u64, u64), usize> = HashMap::new();
+    let mut points: Vec<GridPoint> = Vec::new();
+    let mut rows: Vec<Row> = Vec::new();
+
+    for rec in records {
+        let rec = rec.map_err(csv_err)?;
+        let line = rec.position().map_or(0, |p| p.line());
+        if rec.len() == 1 && rec[0].is_empty() {
+            continue; // blank line
+        }
+        if rec.len() != n_fields {
+            return Err(err(
+                Some(line),
+                None,
+                format!(
+                    "the line has {} fields, expected {n_fields} as in the header (a cut-off \
+                     line or a stray delimiter?)",
+                    rec.len()
+                ),
+            ));
+        }
+        let num = |i: usize, name: &str| {
+            crate::input::parse_number(&rec[i], name).map_err(|m| err(Some(line), Some(i as u64 + 1), m))
+        };
+        let sample = &rec[i_sample];
+        if sample.is_empty() {
+            return Err(err(
+                Some(line),
+                Some(i_sample as u64 + 1),
+                format!("column '{}' is empty, expected a sample name", names.sample),
+            ));
+        }
+        let tw = num(i_tw, &names.tw)?;
+        let t = num(i_t, &names.t)?;
+        if !(t > tw) {
+            return Err(err(
+                Some(line),
+                Some(i_t as u64 + 1),
+                format!("{} = {t} is not later than {} = {tw}; expected t > tw", names.t, names.tw),
+            ));
+        }
+        let corr = num(i_corr, &names.corr)?;
+        let resp = num(i_resp, &names.resp)?;
+        let corr_eq = match i_eq {
+            Some(i) => {
+                let v = num(i, &names.corr_eq)?;
+                if v <= 0.0 {
+                    return Err(err(
+                        Some(line),
+                        Some(i as u64 + 1),
+                        format!(
+                            "column '{}' is {v}, expected a positive number (it normalizes C and chi)",
+                            names.corr_eq
+                        ),
+                    ));
+                }
+                Some(v)
+            }
+            None => None,
+        };
+        let s = *sample_index.entry(sample.to_string()).or_insert_with(|| {
+            sample_ids.push(sample.to_string());
+            sample_ids.len() - 1
+        });
+        let key = (normalize_zero(tw).to_bits(), normalize_zero(t).to_bits());
+        let p = *point_index.entry(key).or_insert_with(|| {
+            points.push(GridPoint { tw, t });
+            points.len() - 1
+        });
+        rows.push(Row { sample: s, point: p, corr, resp, corr_eq, line });
+    }
+
+    if rows.is_empty() {
+        return Err(err(None, None, "no data rows after the header".into()));
+    }
+    let n = sample_ids.len();
+    if n < 2 {
+        return Err(err(
+            None,
+            None,
+            format!(
+                "only 1 sample ('{}') in the file; at least 2 independent samples are needed \
+                 to estimate errors",
+                sample_ids[0]
+            ),
+        ));
+    }
+    let np = points.len();
+    let mut seen_at: Vec<u64> = vec![0; n * np];
+    let mut corr = Array2::<f64>::zeros((n, np));
+    let mut resp = Array2::<f64>::zeros((n, np));
+    let mut corr_eq = i_eq.map(|_| Array2::<f64>::zeros((n, np)));
+    for r in &rows {
+        let slot = &mut seen_at[r.sample * np + r.point];
+        if *slot != 0 {
+            let g = points[r.point];
+            return Err(err(
+                Some(r.line),
+                None,
+                format!(
+                    "sample '{}' at tw = {}, t = {} appears again (first on line {}); expected \
+                     one row per (sample, tw, t)",
+                    sample_ids[r.sample], g.tw, g.t, slot
+                ),
+            ));
+        }
+        *slot = r.line;
+        corr[[r.sample, r.point]] = r.corr;
+        resp[[r.sample, r.point]] = r.resp;
+        if let (Some(ce), Some(v)) = (corr_eq.as_mut(), r.corr_eq) {
+            ce[[r.sample, r.point]] = v;
+        }
+    }
+    for s in 0..n {
+        if let Some(p) = (0..np).find(|&p| seen_at[s * np + p] == 0) {
+            let g = points[p];
+            let (other, line) = (0..n)
+                .find_map(|o| {
+                    let l = seen_at[o * np + p];
+                    (l != 0).then(|| (&sample_ids[o], l))
+                })
+                .unwrap_or((&sample_ids[0], 0));
+            return Err(err(
+                None,
+                None,
+                format!(
+                    "sample '{}' has no row for tw = {}, t = {}, which sample '{other}' has on \
+                     line {line}; every sample needs the same (tw, t) points",
+                    sample_ids[s], g.tw, g.t
+                ),
+            ));
+        }
+    }
+    Campaign::new(sample_ids, points, corr, resp, corr_eq).map_err(|e| err(None, None, e.to_string()))
+}
+
+/// Maps -0.0 to 0.0 so that both spellings name the same grid point.
+fn normalize_zero(v: f64) -> f64 {
+    if v == 0.0 { 0.0 } else { v }
+}
+
+/// Writes a campaign in the tidy format that [`read_campaign`] reads.
+pub fn write_campaign(campaign: &Campaign) -> Vec<u8> {
+    use std::fmt::Write;
+    let mut s = String::from("sample,tw,t,corr,resp");
+    let eq = campaign.corr_eq();
+    if eq.is_some() {
+        s.push_str(",corr_eq");
+    }
+    s.push('\n');
+    for (i, id) in campaign.sample_ids().iter().enumerate() {
+        for (j, g) in campaign.points().iter().enumerate() {
+            let _ = write!(s, "{id},{},{},{},{}", g.tw, g.t, campaign.corr()[[i, j]], campaign.resp()[[i, j]]);
+            if let Some(eq) = eq {
+                let _ = write!(s, ",{}", eq[[i, j]]);
+            }
+            s.push('\n');
+        }
+    }
+    s.into_bytes()
+}

@@ -1,0 +1,41 @@
+//! fdtemp: fluctuation–dissipation ratios and effective temperatures of aging systems,
+//! with confidence intervals that resample independent samples.
+#![deny(clippy::float_cmp)]
+#![warn(missing_docs)]
+
+pub mod campaign;
+pub mod error;
+pub mod fit;
+pub mod input;
+pub mod resample;
+
+pub use campaign::{Campaign, GridPoint};
+pub use error::{Error, Result};
+pub mod analysis;
+pub mod fdplot;
+pub mod settings;
+
+pub use analysis::{analyze, FitReport};
+pub use settings::FitSettings;
+pub mod synth;
+pub mod output;
+pub mod report;
+pub mod demo;
+
+/// Runs `f` on a pool of `threads` worker threads (all cores when `None`).
+///
+/// # Errors
+/// [`Error::Setting`] when `threads` is 0 or the pool cannot be built.
+pub fn with_threads<T>(threads: Option<usize>, f: impl FnOnce() -> Result<T> + Send) -> Result<T>
+where
+    T: Send,
+{
+    if threads == Some(0) {
+        return Err(Error::Setting("--threads is 0, expected at least 1".into()));
+    }
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(threads.unwrap_or(0))
+        .build()
+        .map_err(|e| Error::Setting(format!("cannot start worker threads: {e}")))?;
+    pool.install(f)
+}

@@ -1,0 +1,209 @@
+//! The text report: a table per fit, the verdict, cautions, and a methods paragraph.
+
+use super::sig;
+use crate::analysis::{fmt_num, fmt_p, Estimate, FitReport, GroupFit};
+use crate::fdplot::Axes;
+use crate::settings::{Model, Units, Weighting};
+use std::fmt::Write;
+
+fn est(e: &Estimate) -> String {
+    match e.estimate {
+        None => "—".into(),
+        Some(v) => {
+            let end = |x: Option<f64>| x.map_or_else(|| "unbounded".into(), |x| sig(x, 4));
+            if e.low.is_none() && e.high.is_none() && e.note.as_deref().is_none_or(|n| !n.starts_with("unbounded")) {
+                sig(v, 4)
+            } else {
+                format!("{} [{}, {}]", sig(v, 4), end(e.low), end(e.high))
+            }
+        }
+    }
+}
+
+fn label(f: &GroupFit) -> String {
+    f.tw.map_or_else(|| "all".into(), fmt_num)
+}
+
+/// The human-readable report.
+pub fn render(r: &FitReport) -> Vec<u8> {
+    let s = &r.settings;
+    let g = &s.given;
+    let mut o = String::new();
+    let _ = writeln!(o, "fdtemp {} · fluctuation–dissipation fit in the time domain", r.tool.version);
+    let tws: Vec<String> = r.waiting_times.iter().map(|&t| fmt_num(t)).collect();
+    let _ = writeln!(
+        o,
+        "data       {}{} samples, {} waiting time{} ({}), {} points",
+        r.input.as_ref().map_or(String::new(), |f| format!("{f}: ")),
+        r.n_samples,
+        tws.len(),
+        if tws.len() == 1 { "" } else { "s" },
+        tws.join(", "),
+        r.points.len()
+    );
+    let units = match g.units {
+        Units::Reduced => "k = 1, reduced units".to_string(),
+        Units::Si => format!("k = {} J/K, SI", s.k),
+    };
+    let axes = match s.axes_used {
+        Axes::Normalized => "x = C/C(t,t), y = k·T·chi/C(t,t)",
+        _ => "x = C, y = k·T·chi",
+    };
+    let _ = writeln!(o, "axes       {axes}; T = {} ({units})", fmt_num(g.temperature));
+    let weights = match g.weights {
+        Weighting::InverseVariance => "inverse-variance weights",
+        Weighting::Uniform => "uniform weights",
+    };
+    let _ = writeln!(
+        o,
+        "model      {}; {weights}; at least {} points per branch",
+        g.model.describe(),
+        g.min_branch
+    );
+    let _ = writeln!(
+        o,
+        "intervals  {:.0}% {} from {} resamples of whole samples (seed {})",
+        100.0 * g.level,
+        g.interval.label(),
+        g.resamples,
+        g.seed
+    );
+    let _ = writeln!(o);
+    let _ = writeln!(
+        o,
+        "{:<8} {:>6}  {:<26} {:<26} {:<30} {:<26} {:>9}",
+        "tw", "points", "break q", "X", "T_eff", "slope above break", "p(equil.)"
+    );
+    for f in &r.fits {
+        let fast = if g.model == Model::Broken && f.fast_slope.estimate.is_some() {
+            format!("{} (check)", est(&f.fast_slope))
+        } else {
+            est(&f.fast_slope)
+        };
+        let _ = writeln!(
+            o,
+            "{:<8} {:>6}  {:<26} {:<26} {:<30} {:<26} {:>9}",
+            label(f),
+            f.n_points,
+            est(&f.brk),
+            est(&f.ratio),
+            est(&f.t_eff),
+            fast,
+            f.equilibrium_p.map_or("—".into(), fmt_p)
+        );
+    }
+    let _ = writeln!(o);
+    let _ = writeln!(o, "verdict    {}", r.verdict);
+    for f in r.fits.iter().skip(1) {
+        let _ = writeln!(o, "  tw = {:<6} {}", label(f), f.verdict);
+    }
+    if let Some(a) = &r.aging {
+        let _ = writeln!(
+            o,
+            "aging      X(tw = {}) − X(tw = {}) = {} (percentile interval)",
+            fmt_num(a.tw_last),
+            fmt_num(a.tw_first),
+            est(&a.ratio_change)
+        );
+    }
+
+    let mut cautions: Vec<String> = r.warnings.clone();
+    for f in &r.fits {
+        let who = f.tw.map_or_else(|| "all waiting times".into(), |t| format!("tw = {}", fmt_num(t)));
+        cautions.extend(f.warnings.iter().map(|w| format!("{who}: {w}")));
+        for (what, e) in [("break q", &f.brk), ("X", &f.ratio), ("T_eff", &f.t_eff)] {
+            if let Some(n) = &e.note
+                && f.ratio.estimate.is_some()
+            {
+                cautions.push(format!("{who}: {what}: {n}"));
+            }
+        }
+    }
+    cautions.dedup();
+    if !cautions.is_empty() {
+        let _ = writeln!(o);
+        let _ = writeln!(o, "cautions");
+        for c in &cautions {
+            let _ = writeln!(o, "  - {c}");
+        }
+    }
+    let _ = writeln!(o);
+    let _ = writeln!(o, "methods");
+    let _ = writeln!(o, "{}", wrap(&methods(r), 92, "  "));
+    o.into_bytes()
+}
+
+/// A methods paragraph that states how the numbers were made.
+pub fn methods(r: &FitReport) -> String {
+    let g = &r.settings.given;
+    let kt = match g.units {
+        Units::Reduced => format!("T = {} in units with k = 1", fmt_num(g.temperature)),
+        Units::Si => format!("T = {} K and k = 1.380649e-23 J/K", fmt_num(g.temperature)),
+    };
+    let axes = match r.settings.axes_used {
+        Axes::Normalized => "(C/C(t,t), k·T·chi/C(t,t)), ratios of sample means",
+        _ => "(C, k·T·chi) from sample means",
+    };
+    let model = match g.model {
+        Model::Broken => "a two-segment line with slope -1 above a break q and slope -X below it",
+        Model::Free => "a two-segment line with free slopes above and below a break q (X = minus the lower slope)",
+    };
+    let weights = match (g.weights, g.model) {
+        (Weighting::Uniform, _) => "with uniform weights",
+        (Weighting::InverseVariance, Model::Broken) => {
+            "weighted by the inverse sample variance of k·T·chi + C at each point"
+        }
+        (Weighting::InverseVariance, Model::Free) => {
+            "weighted by the inverse sample variance of k·T·chi at each point"
+        }
+    };
+    let interval = match g.interval {
+        crate::resample::IntervalMethod::Bca => {
+            "BCa intervals (acceleration from the leave-one-sample-out jackknife)"
+        }
+        crate::resample::IntervalMethod::Percentile => "percentile intervals",
+        crate::resample::IntervalMethod::Basic => "basic (reflected percentile) intervals",
+    };
+    let p = r.fits[0].equilibrium_p.map_or("not computed".into(), fmt_p);
+    format!(
+        "Fluctuation–dissipation ratios were estimated with fdtemp {ver}. For each of {n} \
+         independent samples, the correlation C(t,tw) and the integrated response chi(t,tw) \
+         were taken at {ntw} waiting time(s) ({np} (tw, t) points), and parametric points \
+         {axes} were formed with {kt}. We fitted {model} by least squares, {weights}, \
+         minimizing exactly over q with at least {m} points on each segment; T_eff = T/X. \
+         Fits were made jointly over all waiting times and for each waiting time separately. \
+         Uncertainties are {lvl:.0}% {interval} from {b} bootstrap resamples of whole \
+         samples, so that the correlations between the points of one sample are kept (seed \
+         {seed}). The hypothesis of no break (equilibrium) was tested with the statistic \
+         SSE(no break) − SSE(two segments), calibrated by the same resamples moved onto the \
+         fitted no-break model, because the break is not identified under that hypothesis; \
+         for the joint fit p = {p}.",
+        ver = r.tool.version,
+        n = r.n_samples,
+        ntw = r.waiting_times.len(),
+        np = r.points.len(),
+        m = g.min_branch,
+        lvl = 100.0 * g.level,
+        b = g.resamples,
+        seed = g.seed,
+    )
+}
+
+/// Wraps text at `width` columns with an indent.
+pub fn wrap(text: &str, width: usize, indent: &str) -> String {
+    let mut out = String::new();
+    let mut line = String::from(indent);
+    for word in text.split_whitespace() {
+        if line.len() > indent.len() && line.chars().count() + 1 + word.chars().count() > width {
+            out.push_str(&line);
+            out.push('\n');
+            line = String::from(indent);
+        }
+        if line.len() > indent.len() {
+            line.push(' ');
+        }
+        line.push_str(word);
+    }
+    out.push_str(&line);
+    out
+}

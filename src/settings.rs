@@ -1,0 +1,135 @@
+//! The settings of a time-domain fit: every choice an enum, every field documented.
+
+use crate::error::{Error, Result};
+use crate::fdplot::Axes;
+use crate::resample::IntervalMethod;
+
+/// Boltzmann's constant in J/K (exact in the SI since 2019).
+pub const BOLTZMANN_SI: f64 = 1.380649e-23;
+
+/// Energy units: decides the value of Boltzmann's constant `k`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, clap::ValueEnum)]
+#[serde(rename_all = "lowercase")]
+pub enum Units {
+    /// Reduced units, `k = 1`: temperatures are energies.
+    Reduced,
+    /// SI, `k = 1.380649e-23 J/K`: temperatures in kelvin.
+    Si,
+}
+
+impl Units {
+    /// Boltzmann's constant in these units.
+    pub fn boltzmann(self) -> f64 {
+        match self {
+            Units::Reduced => 1.0,
+            Units::Si => BOLTZMANN_SI,
+        }
+    }
+}
+
+/// Which broken-stick model is fitted.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, clap::ValueEnum)]
+#[serde(rename_all = "lowercase")]
+pub enum Model {
+    /// Slope −1 above the break (quasi-equilibrium), slope −X below; null: the line of slope −1.
+    Broken,
+    /// Both slopes free; the first is reported against −1 as a thermometer check; null:
+    /// one straight line of free slope.
+    Free,
+}
+
+impl Model {
+    /// Words for reports.
+    pub fn describe(self) -> &'static str {
+        match self {
+            Model::Broken => "broken stick, first slope fixed at -1",
+            Model::Free => "broken stick, both slopes free",
+        }
+    }
+}
+
+/// How the points are weighted in the least-squares fits.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, clap::ValueEnum)]
+#[serde(rename_all = "kebab-case")]
+pub enum Weighting {
+    /// Inverse of the sample variance of the fitted quantity at each point.
+    InverseVariance,
+    /// All points alike.
+    Uniform,
+}
+
+/// Everything that shapes a time-domain result.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct FitSettings {
+    /// Bath temperature `T` (in energy units when `units` is reduced, kelvin in SI).
+    pub temperature: f64,
+    /// Reduced (`k = 1`) or SI units.
+    pub units: Units,
+    /// Plain or normalized parametric axes.
+    pub axes: Axes,
+    /// The fitted model.
+    pub model: Model,
+    /// Point weights in the fits.
+    pub weights: Weighting,
+    /// Number of bootstrap resamples `B`.
+    pub resamples: usize,
+    /// Seed of the random streams.
+    pub seed: u64,
+    /// Confidence level of the intervals, in (0, 1).
+    pub level: f64,
+    /// How intervals are formed.
+    pub interval: IntervalMethod,
+    /// Least number of points on each side of the break.
+    pub min_branch: usize,
+}
+
+impl Default for FitSettings {
+    fn default() -> Self {
+        FitSettings {
+            temperature: 1.0,
+            units: Units::Reduced,
+            axes: Axes::Auto,
+            model: Model::Broken,
+            weights: Weighting::InverseVariance,
+            resamples: 2000,
+            seed: 1,
+            level: 0.95,
+            interval: IntervalMethod::Bca,
+            min_branch: 5,
+        }
+    }
+}
+
+impl FitSettings {
+    /// Checks every field's range.
+    ///
+    /// # Errors
+    /// [`Error::Setting`] naming the option and the value.
+    pub fn validate(&self) -> Result<()> {
+        if !(self.temperature > 0.0 && self.temperature.is_finite()) {
+            return Err(Error::Setting(format!(
+                "--temperature is {}, expected a positive number",
+                self.temperature
+            )));
+        }
+        if !(self.level > 0.0 && self.level < 1.0) {
+            return Err(Error::Setting(format!(
+                "--level is {}, expected a number between 0 and 1 (for example 0.95)",
+                self.level
+            )));
+        }
+        if self.resamples < 100 {
+            return Err(Error::Setting(format!(
+                "--resamples is {}, expected at least 100 (2000 or more for intervals a paper can quote)",
+                self.resamples
+            )));
+        }
+        if self.min_branch < 2 {
+            return Err(Error::Setting(format!(
+                "--min-branch is {}, expected at least 2 points per branch",
+                self.min_branch
+            )));
+        }
+        Ok(())
+    }
+}
