@@ -465,7 +465,13 @@ pub fn analyze(
         let series: Vec<Option<(Values, f64)>> = reps.iter().map(|r| r[gi]).collect();
         let jk: Vec<Option<Values>> = jack.iter().map(|r| r[gi]).collect();
         fits.push(assemble(
-            g, est[gi], &series, &jk, &profiles[gi], settings, n, campaign, &pm,
+            g,
+            est[gi],
+            &series,
+            &jk,
+            &profiles[gi],
+            settings,
+            n,
         ));
     }
 
@@ -573,8 +579,6 @@ fn assemble(
     profile: &[(f64, f64)],
     s: &FitSettings,
     n: usize,
-    campaign: &Campaign,
-    pm: &Parametric,
 ) -> GroupFit {
     let mut fit = GroupFit {
         tw: g.tw,
@@ -632,11 +636,7 @@ fn assemble(
         Model::Broken => (-1.0, -e.ratio),
         Model::Free => (e.sol.b, e.sol.b - e.sol.c),
     };
-    let intercept = match s.model {
-        Model::Broken => e.sol.a,
-        Model::Free => e.sol.a,
-    };
-    fit.curve = Some(Curve { q: e.q, intercept, slope_above, slope_below });
+    fit.curve = Some(Curve { q: e.q, intercept: e.sol.a, slope_above, slope_below });
 
     // Equilibrium test.
     let stat = e.sol.sse_null - e.sol.sse;
@@ -707,8 +707,12 @@ fn assemble(
             ));
         }
     }
-    if let (Some(lo), Some(hi)) = (fit.fast_slope.low, fit.fast_slope.high)
+    // The slope check warns on the joint fit, or on one waiting time when the departure
+    // is also large (one of several per-tw checks misses -1 by chance 5% of the time).
+    if let (Some(v), Some(lo), Some(hi)) =
+        (fit.fast_slope.estimate, fit.fast_slope.low, fit.fast_slope.high)
         && (hi < -1.0 || lo > -1.0)
+        && (g.tw.is_none() || (v + 1.0).abs() > 0.1)
     {
         w.push(format!(
             "the slope above the break is {:.3} [{:.3}, {:.3}], not -1: the thermometer or the \
@@ -733,7 +737,6 @@ fn assemble(
             ));
         }
     }
-    let _ = (campaign, pm);
     fit.verdict = verdict(&fit, violated, pval, alpha);
     fit
 }

@@ -228,3 +228,103 @@ fn projected(s: &[f64; 5], sw: f64, sxx: f64, sxr: f64, line: bool) -> [f64; 5] 
     }
     out
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use rand::{RngExt, SeedableRng};
+
+    /// Brute force: for a given q, ordinary weighted least squares on [1, (x), h_q].
+    fn sse_at(x: &[f64], r: &[f64], w: &[f64], q: f64, line: bool) -> f64 {
+        let cols: Vec<Vec<f64>> = {
+            let mut c = vec![vec![1.0; x.len()]];
+            if line {
+                c.push(x.to_vec());
+            }
+            c.push(x.iter().map(|&x| (q - x).max(0.0)).collect());
+            c
+        };
+        let k = cols.len();
+        let mut a = vec![vec![0.0; k + 1]; k];
+        for i in 0..k {
+            for j in 0..k {
+                a[i][j] = (0..x.len()).map(|p| w[p] * cols[i][p] * cols[j][p]).sum();
+            }
+            a[i][k] = (0..x.len()).map(|p| w[p] * cols[i][p] * r[p]).sum();
+        }
+        for i in 0..k {
+            let piv = a[i][i];
+            for j in i..=k {
+                a[i][j] /= piv;
+            }
+            for l in 0..k {
+                if l != i {
+                    let f = a[l][i];
+                    for j in i..=k {
+                        a[l][j] -= f * a[i][j];
+                    }
+                }
+            }
+        }
+        (0..x.len())
+            .map(|p| {
+                let fit: f64 = (0..k).map(|i| a[i][k] * cols[i][p]).sum();
+                w[p] * (r[p] - fit).powi(2)
+            })
+            .sum()
+    }
+
+    #[test]
+    fn closed_form_optimum_matches_a_dense_brute_force_scan() {
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(11);
+        for trial in 0..40 {
+            let line = trial % 2 == 1;
+            let p = 30;
+            let x: Vec<f64> = (0..p).map(|_| rng.random::<f64>()).collect();
+            let r: Vec<f64> = x
+                .iter()
+                .map(|&x| 0.3 * x - 0.7 * (0.5 - x).max(0.0) + 0.05 * rng.random::<f64>())
+                .collect();
+            let w: Vec<f64> = (0..p).map(|_| 0.5 + rng.random::<f64>()).collect();
+            let base = if line { Base::Line } else { Base::Constant };
+            let mut ws = Workspace::default();
+            let s = search(&x, &r, &w, base, 4, &mut ws, None).unwrap();
+            // The closed form's SSE equals a direct solve at its q ...
+            let direct = sse_at(&x, &r, &w, s.q, line);
+            assert!((s.sse - direct).abs() < 1e-9 * (1.0 + direct), "trial {trial}");
+            // ... and no q on a dense grid inside the allowed range does better.
+            let mut xs = x.clone();
+            xs.sort_by(f64::total_cmp);
+            let (lo, hi) = (xs[3], xs[p - 4]);
+            for i in 0..=4000 {
+                let q = lo + (hi - lo) * i as f64 / 4000.0;
+                assert!(sse_at(&x, &r, &w, q, line) >= s.sse - 1e-9, "trial {trial}, q {q}");
+            }
+            // The coefficients reproduce the fitted values' SSE.
+            let sse_coef: f64 = (0..p).map(|i| w[i] * (r[i] - s.eval(x[i])).powi(2)).sum();
+            assert!((sse_coef - s.sse).abs() < 1e-9 * (1.0 + s.sse), "trial {trial}");
+        }
+    }
+
+    #[test]
+    fn exact_broken_stick_data_give_back_the_break_and_slopes() {
+        let x: Vec<f64> = (0..50).map(|i| i as f64 / 49.0).collect();
+        let r: Vec<f64> = x.iter().map(|&x| 2.0 - 0.8 * x + 0.55 * (0.37 - x).max(0.0)).collect();
+        let w = vec![1.0; 50];
+        let s = search(&x, &r, &w, Base::Line, 5, &mut Workspace::default(), None).unwrap();
+        assert!((s.q - 0.37).abs() < 1e-9, "{s:?}");
+        assert!((s.b + 0.8).abs() < 1e-9 && (s.c - 0.55).abs() < 1e-9 && (s.a - 2.0).abs() < 1e-9);
+        assert!(s.sse < 1e-12, "{s:?}");
+    }
+
+    #[test]
+    fn too_few_points_or_no_spread_give_none() {
+        let mut ws = Workspace::default();
+        let x = [0.1, 0.2, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9];
+        let r = [0.0; 9];
+        let w = [1.0; 9];
+        assert!(search(&x, &r, &w, Base::Constant, 5, &mut ws, None).is_none());
+        let flat = [0.5; 12];
+        assert!(search(&flat, &[0.0; 12], &[1.0; 12], Base::Constant, 3, &mut ws, None).is_none());
+    }
+}

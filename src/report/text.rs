@@ -69,27 +69,31 @@ pub fn render(r: &FitReport) -> Vec<u8> {
         g.seed
     );
     let _ = writeln!(o);
-    let _ = writeln!(
-        o,
-        "{:<8} {:>6}  {:<26} {:<26} {:<30} {:<26} {:>9}",
-        "tw", "points", "break q", "X", "T_eff", "slope above break", "p(equil.)"
-    );
+    let mut rows: Vec<[String; 7]> = vec![[
+        "tw".into(),
+        "points".into(),
+        "break q".into(),
+        "X".into(),
+        "T_eff".into(),
+        "slope above q".into(),
+        "p(equilibrium)".into(),
+    ]];
     for f in &r.fits {
-        let fast = if g.model == Model::Broken && f.fast_slope.estimate.is_some() {
-            format!("{} (check)", est(&f.fast_slope))
-        } else {
-            est(&f.fast_slope)
-        };
-        let _ = writeln!(
-            o,
-            "{:<8} {:>6}  {:<26} {:<26} {:<30} {:<26} {:>9}",
+        rows.push([
             label(f),
-            f.n_points,
+            f.n_points.to_string(),
             est(&f.brk),
             est(&f.ratio),
             est(&f.t_eff),
-            fast,
-            f.equilibrium_p.map_or("—".into(), fmt_p)
+            est(&f.fast_slope),
+            f.equilibrium_p.map_or("—".into(), fmt_p),
+        ]);
+    }
+    o.push_str(&table(&rows));
+    if g.model == Model::Broken {
+        let _ = writeln!(
+            o,
+            "(slope above q: a free line through the points above the break, a check of the fixed -1)"
         );
     }
     let _ = writeln!(o);
@@ -206,4 +210,36 @@ pub fn wrap(text: &str, width: usize, indent: &str) -> String {
     }
     out.push_str(&line);
     out
+}
+
+/// Lays out rows in columns two spaces apart (the second column right-aligned).
+fn table<const N: usize>(rows: &[[String; N]]) -> String {
+    let mut width = [0usize; N];
+    for r in rows {
+        for (w, c) in width.iter_mut().zip(r) {
+            *w = (*w).max(c.chars().count());
+        }
+    }
+    let mut o = String::new();
+    for r in rows {
+        let mut line = String::new();
+        for (i, (c, w)) in r.iter().zip(width).enumerate() {
+            let pad = w - c.chars().count();
+            if i == 1 {
+                line.push_str(&" ".repeat(pad));
+                line.push_str(c);
+            } else {
+                line.push_str(c);
+                if i + 1 < N {
+                    line.push_str(&" ".repeat(pad));
+                }
+            }
+            if i + 1 < N {
+                line.push_str("  ");
+            }
+        }
+        o.push_str(line.trim_end());
+        o.push('\n');
+    }
+    o
 }
