@@ -19,9 +19,9 @@
 
 use crate::campaign::Campaign;
 use crate::error::{Error, Result};
-use crate::fdplot::{data_matrix, Axes, Parametric, Transform};
-use crate::fit::{broken, fit_line, Base, Workspace};
-use crate::resample::{self, interval, IntervalMethod};
+use crate::fdplot::{Axes, Parametric, Transform, data_matrix};
+use crate::fit::{Base, Workspace, broken, fit_line};
+use crate::resample::{self, IntervalMethod, interval};
 use crate::settings::{FitSettings, Model, Weighting};
 use ndarray::Array2;
 use rayon::prelude::*;
@@ -72,7 +72,10 @@ impl Estimate {
         }
     }
     fn none(note: impl Into<String>) -> Self {
-        Estimate { note: Some(note.into()), ..Default::default() }
+        Estimate {
+            note: Some(note.into()),
+            ..Default::default()
+        }
     }
 }
 
@@ -94,7 +97,11 @@ impl Curve {
     /// The curve's y at x.
     pub fn eval(&self, x: f64) -> f64 {
         let y_q = self.intercept + self.slope_above * self.q;
-        if x >= self.q { self.intercept + self.slope_above * x } else { y_q + self.slope_below * (x - self.q) }
+        if x >= self.q {
+            self.intercept + self.slope_above * x
+        } else {
+            y_q + self.slope_below * (x - self.q)
+        }
     }
 }
 
@@ -121,6 +128,8 @@ pub struct GroupFit {
     pub fast_slope: Estimate,
     /// The p-value of the test of no break (equilibrium), calibrated by resampling.
     pub equilibrium_p: Option<f64>,
+    /// Resamples that calibrated the test (the p-value's floor is `1/(this + 1)`).
+    pub null_resamples: usize,
     /// The test statistic `SSE(no break) − SSE(broken stick)`.
     pub equilibrium_stat: Option<f64>,
     /// The break's profile interval: breaks whose SSE lies within the χ²₁ threshold of
@@ -191,7 +200,10 @@ pub struct ToolInfo {
 
 impl Default for ToolInfo {
     fn default() -> Self {
-        ToolInfo { name: "fdtemp", version: env!("CARGO_PKG_VERSION") }
+        ToolInfo {
+            name: "fdtemp",
+            version: env!("CARGO_PKG_VERSION"),
+        }
     }
 }
 
@@ -229,6 +241,16 @@ struct Values {
     q: f64,
     fast: f64,
     sol: broken::BreakSolution,
+}
+
+/// One replicate's fit of one group and its null-imposed test statistic.
+type Replicate = Option<(Values, f64)>;
+
+/// What every fit of a group shares: the model and the least points per branch.
+#[derive(Clone, Copy)]
+struct Spec {
+    model: Model,
+    min_branch: usize,
 }
 
 /// A group of points and what its fits need.
@@ -277,12 +299,12 @@ fn fit_group(
     g: &Group,
     x: &[f64],
     y: &[f64],
-    model: Model,
-    min_branch: usize,
+    spec: Spec,
     sc: &mut Scratch,
     r_shift: Option<&[f64]>,
     profile: Option<&mut Vec<(f64, f64)>>,
 ) -> Option<Values> {
+    let model = spec.model;
     sc.x.clear();
     sc.y.clear();
     sc.r.clear();
@@ -295,7 +317,15 @@ fn fit_group(
         };
         sc.r.push(r - r_shift.map_or(0.0, |s| s[k]));
     }
-    let sol = broken::search(&sc.x, &sc.r, &g.w, base_of(model), min_branch, &mut sc.ws, profile)?;
+    let sol = broken::search(
+        &sc.x,
+        &sc.r,
+        &g.w,
+        base_of(model),
+        spec.min_branch,
+        &mut sc.ws,
+        profile,
+    )?;
     let (ratio, fast) = match model {
         Model::Broken => {
             sc.fx.clear();
@@ -313,7 +343,12 @@ fn fit_group(
         }
         Model::Free => (sol.c - sol.b, sol.b),
     };
-    Some(Values { ratio, q: sol.q, fast, sol })
+    Some(Values {
+        ratio,
+        q: sol.q,
+        fast,
+        sol,
+    })
 }
 
 /// Runs the whole time-domain analysis.
@@ -342,11 +377,19 @@ pub fn analyze(
     let k = settings.units.boltzmann();
     let n = campaign.n_samples();
     let p = campaign.n_points();
-    let tf = Transform { kt: k * settings.temperature, normalized, points: p };
+    let tf = Transform {
+        kt: k * settings.temperature,
+        normalized,
+        points: p,
+    };
     let data = data_matrix(campaign, normalized);
     let pm = Parametric::new(&data, tf);
     let m = settings.min_branch;
     let model = settings.model;
+    let spec = Spec {
+        model,
+        min_branch: m,
+    };
     let mut warnings = Vec::new();
 
     // Weights from the sample spread of the fitted quantity.
@@ -360,13 +403,22 @@ pub fn analyze(
 
     // Groups: all points, then one per waiting time.
     let tws = campaign.waiting_times();
-    let mut groups = vec![Group { tw: None, idx: (0..p).collect(), w: weights.clone() }];
+    let mut groups = vec![Group {
+        tw: None,
+        idx: (0..p).collect(),
+        w: weights.clone(),
+    }];
     if tws.len() > 1 {
         for &tw in &tws {
-            let idx: Vec<usize> =
-                (0..p).filter(|&j| campaign.points()[j].tw.total_cmp(&tw).is_eq()).collect();
+            let idx: Vec<usize> = (0..p)
+                .filter(|&j| campaign.points()[j].tw.total_cmp(&tw).is_eq())
+                .collect();
             let w = idx.iter().map(|&j| weights[j]).collect();
-            groups.push(Group { tw: Some(tw), idx, w });
+            groups.push(Group {
+                tw: Some(tw),
+                idx,
+                w,
+            });
         }
     }
 
@@ -378,9 +430,25 @@ pub fn analyze(
         let gx: Vec<f64> = g.idx.iter().map(|&j| pm.x[j]).collect();
         let mut sc = Scratch::new(&gx);
         let mut prof = Vec::new();
-        est.push(fit_group(g, &pm.x, &pm.y, model, m, &mut sc, None, Some(&mut prof)));
+        est.push(fit_group(
+            g,
+            &pm.x,
+            &pm.y,
+            spec,
+            &mut sc,
+            None,
+            Some(&mut prof),
+        ));
         profiles.push(prof);
         scratch.push(sc);
+    }
+    let spread = pm.x.iter().copied().fold(f64::NEG_INFINITY, f64::max)
+        - pm.x.iter().copied().fold(f64::INFINITY, f64::min);
+    if !(spread > 0.0) {
+        return Err(Error::Analysis(format!(
+            "the mean correlation is {} at every point; the parametric plot needs C to vary",
+            fmt_num(pm.x[0])
+        )));
     }
     if est[0].is_none() {
         return Err(Error::Analysis(format!(
@@ -409,7 +477,7 @@ pub fn analyze(
                     .iter()
                     .zip(sc.iter_mut())
                     .zip(&est)
-                    .map(|((g, s), e)| e.and_then(|_| fit_group(g, xr, yr, model, m, s, None, None)))
+                    .map(|((g, s), e)| e.and_then(|_| fit_group(g, xr, yr, spec, s, None, None)))
                     .collect()
             },
         )
@@ -419,7 +487,7 @@ pub fn analyze(
     let b_total = settings.resamples;
     progress.start(b_total as u64);
     let n_chunks = b_total.div_ceil(CHUNK);
-    let chunk_out: Vec<Vec<Vec<Option<(Values, f64)>>>> = (0..n_chunks)
+    let chunk_out: Vec<Vec<Vec<Replicate>>> = (0..n_chunks)
         .into_par_iter()
         .map_init(
             || (scratch.clone(), vec![0u32; n], vec![0.0; p], vec![0.0; p]),
@@ -443,8 +511,8 @@ pub fn analyze(
                             .zip(&shifts)
                             .map(|((g, s), shift)| {
                                 let shift = shift.as_deref()?;
-                                let v = fit_group(g, x, y, model, m, s, None, None)?;
-                                let null = fit_group(g, x, y, model, m, s, Some(shift), None)
+                                let v = fit_group(g, x, y, spec, s, None, None)?;
+                                let null = fit_group(g, x, y, spec, s, Some(shift), None)
                                     .map_or(f64::NAN, |nv| nv.sol.sse_null - nv.sol.sse);
                                 Some((v, null))
                             })
@@ -457,12 +525,12 @@ pub fn analyze(
         )
         .collect();
     progress.finish();
-    let reps: Vec<&Vec<Option<(Values, f64)>>> = chunk_out.iter().flatten().collect();
+    let reps: Vec<&Vec<Replicate>> = chunk_out.iter().flatten().collect();
 
     // Assemble per-group results.
     let mut fits = Vec::new();
     for (gi, g) in groups.iter().enumerate() {
-        let series: Vec<Option<(Values, f64)>> = reps.iter().map(|r| r[gi]).collect();
+        let series: Vec<Replicate> = reps.iter().map(|r| r[gi]).collect();
         let jk: Vec<Option<Values>> = jack.iter().map(|r| r[gi]).collect();
         fits.push(assemble(
             g,
@@ -515,7 +583,11 @@ pub fn analyze(
         settings: SettingsRecord {
             given: settings.clone(),
             k,
-            axes_used: if normalized { Axes::Normalized } else { Axes::Plain },
+            axes_used: if normalized {
+                Axes::Normalized
+            } else {
+                Axes::Plain
+            },
         },
         n_samples: n,
         waiting_times: tws,
@@ -531,7 +603,11 @@ fn point_weights(var: &[f64], weighting: Weighting, warnings: &mut Vec<String>) 
     if weighting == Weighting::Uniform {
         return vec![1.0; var.len()];
     }
-    let mut pos: Vec<f64> = var.iter().copied().filter(|v| *v > 0.0 && v.is_finite()).collect();
+    let mut pos: Vec<f64> = var
+        .iter()
+        .copied()
+        .filter(|v| *v > 0.0 && v.is_finite())
+        .collect();
     if pos.is_empty() {
         warnings.push(
             "every point has zero spread over samples, so inverse-variance weights are \
@@ -564,7 +640,11 @@ fn null_shift(g: &Group, x: &[f64], y: &[f64], model: Model) -> Vec<f64> {
             r.iter().map(|r| r - c0).collect()
         }
         Model::Free => match fit_line(&gx, &gy, Some(&g.w)) {
-            Some(l) => gx.iter().zip(&gy).map(|(x, y)| y - l.intercept - l.slope * x).collect(),
+            Some(l) => gx
+                .iter()
+                .zip(&gy)
+                .map(|(x, y)| y - l.intercept - l.slope * x)
+                .collect(),
             None => vec![0.0; gx.len()],
         },
     }
@@ -574,7 +654,7 @@ fn null_shift(g: &Group, x: &[f64], y: &[f64], model: Model) -> Vec<f64> {
 fn assemble(
     g: &Group,
     est: Option<Values>,
-    reps: &[Option<(Values, f64)>],
+    reps: &[Replicate],
     jack: &[Option<Values>],
     profile: &[(f64, f64)],
     s: &FitSettings,
@@ -590,6 +670,7 @@ fn assemble(
         brk: Estimate::default(),
         fast_slope: Estimate::default(),
         equilibrium_p: None,
+        null_resamples: 0,
         equilibrium_stat: None,
         break_profile: None,
         curve: None,
@@ -628,7 +709,9 @@ fn assemble(
     fit.t_eff = t_eff_estimate(s.temperature, &fit.ratio);
     let q_iv = iv(e.q, |v| v.q);
     fit.fast_slope = match s.model {
-        Model::Broken if e.fast.is_finite() => Estimate::with(e.fast, iv(e.fast, |v| v.fast).as_ref()),
+        Model::Broken if e.fast.is_finite() => {
+            Estimate::with(e.fast, iv(e.fast, |v| v.fast).as_ref())
+        }
         Model::Broken => Estimate::none("fewer than 3 points above the break"),
         Model::Free => Estimate::with(e.fast, iv(e.fast, |v| v.fast).as_ref()),
     };
@@ -636,15 +719,25 @@ fn assemble(
         Model::Broken => (-1.0, -e.ratio),
         Model::Free => (e.sol.b, e.sol.b - e.sol.c),
     };
-    fit.curve = Some(Curve { q: e.q, intercept: e.sol.a, slope_above, slope_below });
+    fit.curve = Some(Curve {
+        q: e.q,
+        intercept: e.sol.a,
+        slope_above,
+        slope_below,
+    });
 
     // Equilibrium test.
     let stat = e.sol.sse_null - e.sol.sse;
-    let nulls: Vec<f64> = ok.iter().map(|(_, d)| *d).filter(|d| d.is_finite()).collect();
+    let nulls: Vec<f64> = ok
+        .iter()
+        .map(|(_, d)| *d)
+        .filter(|d| d.is_finite())
+        .collect();
     let exceed = nulls.iter().filter(|&&d| d >= stat).count();
     let pval = (1 + exceed) as f64 / (nulls.len() + 1) as f64;
     fit.equilibrium_stat = Some(stat);
     fit.equilibrium_p = Some(pval);
+    fit.null_resamples = nulls.len();
     let alpha = 1.0 - s.level;
     let violated = pval < alpha;
 
@@ -665,7 +758,11 @@ fn assemble(
             .map(|d| statrs::distribution::ContinuousCDF::inverse_cdf(&d, s.level))
             .unwrap_or(3.84);
         let thr = e.sol.sse * (1.0 + chi / dof);
-        let inside: Vec<f64> = profile.iter().filter(|(_, sse)| *sse <= thr).map(|(q, _)| *q).collect();
+        let inside: Vec<f64> = profile
+            .iter()
+            .filter(|(_, sse)| *sse <= thr)
+            .map(|(q, _)| *q)
+            .collect();
         if let (Some(lo), Some(hi)) = (
             inside.iter().copied().reduce(f64::min),
             inside.iter().copied().reduce(f64::max),
@@ -709,9 +806,11 @@ fn assemble(
     }
     // The slope check warns on the joint fit, or on one waiting time when the departure
     // is also large (one of several per-tw checks misses -1 by chance 5% of the time).
-    if let (Some(v), Some(lo), Some(hi)) =
-        (fit.fast_slope.estimate, fit.fast_slope.low, fit.fast_slope.high)
-        && (hi < -1.0 || lo > -1.0)
+    if let (Some(v), Some(lo), Some(hi)) = (
+        fit.fast_slope.estimate,
+        fit.fast_slope.low,
+        fit.fast_slope.high,
+    ) && (hi < -1.0 || lo > -1.0)
         && (g.tw.is_none() || (v + 1.0).abs() > 0.1)
     {
         w.push(format!(
@@ -737,7 +836,7 @@ fn assemble(
             ));
         }
     }
-    fit.verdict = verdict(&fit, violated, pval, alpha);
+    fit.verdict = verdict(&fit, violated, &fmt_p_resampled(pval, nulls.len()), alpha);
     fit
 }
 
@@ -758,9 +857,7 @@ fn t_eff_estimate(temperature: f64, ratio: &Estimate) -> Estimate {
             estimate,
             low: Some(temperature / hi),
             high: None,
-            note: Some(
-                "unbounded: X's interval reaches 0, so T_eff has no upper limit".into(),
-            ),
+            note: Some("unbounded: X's interval reaches 0, so T_eff has no upper limit".into()),
         },
         (Some(_), Some(_)) => Estimate {
             estimate,
@@ -768,11 +865,16 @@ fn t_eff_estimate(temperature: f64, ratio: &Estimate) -> Estimate {
             high: None,
             note: Some("unbounded: X's interval reaches 0".into()),
         },
-        _ => Estimate { estimate, low: None, high: None, note: Some("no interval".into()) },
+        _ => Estimate {
+            estimate,
+            low: None,
+            high: None,
+            note: Some("no interval".into()),
+        },
     }
 }
 
-fn verdict(fit: &GroupFit, violated: bool, p: f64, alpha: f64) -> String {
+fn verdict(fit: &GroupFit, violated: bool, p: &str, alpha: f64) -> String {
     let (x, lo, hi) = match (fit.ratio.estimate, fit.ratio.low, fit.ratio.high) {
         (Some(x), Some(lo), Some(hi)) => (x, lo, hi),
         _ => return "no interval for X could be formed".into(),
@@ -783,7 +885,7 @@ fn verdict(fit: &GroupFit, violated: bool, p: f64, alpha: f64) -> String {
             "equilibrium: no violation of the fluctuation–dissipation relation at the {:.0}% level \
              (p = {}); X = {x:.3} [{lo:.3}, {hi:.3}]",
             100.0 * alpha,
-            fmt_p(p)
+            p
         );
     }
     let q = fit.brk.estimate.unwrap_or(f64::NAN);
@@ -791,39 +893,35 @@ fn verdict(fit: &GroupFit, violated: bool, p: f64, alpha: f64) -> String {
         format!(
             "no response in the slow regime: below C = {q:.3} the response stays flat within \
              errors (X compatible with 0, T_eff unbounded), as in coarsening (p = {})",
-            fmt_p(p)
+            p
         )
     } else if lo <= 1.0 && hi >= 1.0 {
         format!(
             "a break is detected (p = {}) but X = {x:.3} [{lo:.3}, {hi:.3}] is compatible with 1: \
              the violation is weak at this precision",
-            fmt_p(p)
+            p
         )
     } else if hi < 1.0 && lo > 0.0 {
         format!(
             "one break: slope -1 down to C = {q:.3}, then X = {x:.3} [{lo:.3}, {hi:.3}] at the \
              {pct:.0}% level (p = {} for equilibrium)",
-            fmt_p(p)
+            p
         )
     } else if lo > 1.0 {
         format!(
             "one break with X = {x:.3} [{lo:.3}, {hi:.3}] above 1: the slow modes look colder \
              than the bath (p = {})",
-            fmt_p(p)
+            p
         )
     } else {
         format!(
             "one break with negative X = {x:.3} [{lo:.3}, {hi:.3}] (p = {})",
-            fmt_p(p)
+            p
         )
     }
 }
 
-fn aging_check(
-    groups: &[Group],
-    reps: &[&Vec<Option<(Values, f64)>>],
-    s: &FitSettings,
-) -> Option<AgingCheck> {
+fn aging_check(groups: &[Group], reps: &[&Vec<Replicate>], s: &FitSettings) -> Option<AgingCheck> {
     if groups.len() < 3 {
         return None;
     }
@@ -879,7 +977,22 @@ fn split_groups(values: &[f64]) -> Option<(f64, f64)> {
 
 /// Formats a p-value for reports.
 pub fn fmt_p(p: f64) -> String {
-    if p < 0.001 { format!("{p:.1e}") } else { format!("{p:.3}") }
+    if p < 0.001 {
+        format!("{p:.1e}")
+    } else {
+        format!("{p:.3}")
+    }
+}
+
+/// Formats a resampling p-value: at its floor `1/(B+1)` (no null resample reached the
+/// observed statistic) it is only an upper bound, written "≤".
+pub fn fmt_p_resampled(p: f64, resamples: usize) -> String {
+    let floor = 1.0 / (resamples as f64 + 1.0);
+    if p <= floor * (1.0 + 1e-9) {
+        format!("≤ {}", fmt_p(p))
+    } else {
+        fmt_p(p)
+    }
 }
 
 /// Formats a number compactly for reports.

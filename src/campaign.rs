@@ -54,13 +54,16 @@ impl Campaign {
             return Err(Error::Analysis("the campaign has no points".into()));
         }
         let shape_ok = |a: &Array2<f64>| a.dim() == (n, p);
-        if !shape_ok(&corr) || !shape_ok(&resp) || corr_eq.as_ref().is_some_and(|a| !shape_ok(a))
-        {
+        if !shape_ok(&corr) || !shape_ok(&resp) || corr_eq.as_ref().is_some_and(|a| !shape_ok(a)) {
             return Err(Error::Analysis(format!(
                 "data arrays must be {n} samples × {p} points"
             )));
         }
-        for (name, a) in [("corr", Some(&corr)), ("resp", Some(&resp)), ("corr_eq", corr_eq.as_ref())] {
+        for (name, a) in [
+            ("corr", Some(&corr)),
+            ("resp", Some(&resp)),
+            ("corr_eq", corr_eq.as_ref()),
+        ] {
             if let Some(a) = a
                 && let Some(((i, j), v)) = a.indexed_iter().find(|(_, v)| !v.is_finite())
             {

@@ -7,11 +7,11 @@
 //! mean lies on slope −1 down to q = 0.6 and on slope −X = −0.45 below it, i.e.
 //! T_eff = 0.6 / 0.45 ≈ 1.333.
 
-use crate::analysis::{analyze, FitReport, Progress};
+use crate::analysis::{FitReport, Progress, analyze};
 use crate::error::{Error, Result};
 use crate::output::Output;
 use crate::settings::FitSettings;
-use crate::synth::{generate, SynthSpec};
+use crate::synth::{SynthSpec, generate};
 use std::fmt::Write;
 use std::path::Path;
 
@@ -38,7 +38,10 @@ pub fn run(dir: &Path, progress: &dyn Progress) -> Result<Demo> {
     let spec = scenario();
     let campaign = generate(&spec)?;
     let campaign_path = dir.join("campaign.csv");
-    let settings = FitSettings { temperature: spec.temperature, ..FitSettings::default() };
+    let settings = FitSettings {
+        temperature: spec.temperature,
+        ..FitSettings::default()
+    };
     let report = analyze(
         &campaign,
         &settings,
@@ -56,12 +59,28 @@ pub fn run(dir: &Path, progress: &dyn Progress) -> Result<Demo> {
                    broken stick by construction",
     });
     let outputs = vec![
-        Output { path: campaign_path, bytes: crate::input::write_campaign(&campaign) },
-        Output { path: dir.join("truth.json"), bytes: crate::report::json::to_json(&truth) },
-        Output { path: dir.join("fit.json"), bytes: crate::report::json::to_json(&report) },
-        Output { path: dir.join("points.csv"), bytes: crate::report::csv::points_csv(&report) },
+        Output {
+            path: campaign_path,
+            bytes: crate::input::write_campaign(&campaign),
+        },
+        Output {
+            path: dir.join("truth.json"),
+            bytes: crate::report::json::to_json(&truth),
+        },
+        Output {
+            path: dir.join("fit.json"),
+            bytes: crate::report::json::to_json(&report),
+        },
+        Output {
+            path: dir.join("points.csv"),
+            bytes: crate::report::csv::points_csv(&report),
+        },
     ];
-    Ok(Demo { outputs, report, spec })
+    Ok(Demo {
+        outputs,
+        report,
+        spec,
+    })
 }
 
 /// Lines that compare the joint estimates with the truth.

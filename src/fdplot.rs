@@ -41,7 +41,11 @@ impl Transform {
     pub fn apply(&self, means: ArrayView1<'_, f64>, x: &mut [f64], y: &mut [f64]) {
         let p = self.points;
         for j in 0..p {
-            let norm = if self.normalized { means[2 * p + j] } else { 1.0 };
+            let norm = if self.normalized {
+                means[2 * p + j]
+            } else {
+                1.0
+            };
             x[j] = means[j] / norm;
             y[j] = self.kt * means[p + j] / norm;
         }
@@ -89,7 +93,7 @@ impl Parametric {
         let nf = n as f64;
         let mut loo = means.clone();
         for i in 0..n {
-            loo.assign(&((&means * nf - &data.row(i)) / (nf - 1.0)));
+            loo.assign(&((&means * nf - data.row(i)) / (nf - 1.0)));
             let (xr, yr) = (x_jack.row_mut(i), y_jack.row_mut(i));
             tf.apply(
                 loo.view(),
@@ -113,6 +117,14 @@ impl Parametric {
             y_se[j] = (scale * syy).sqrt();
             xy_cov[j] = scale * sxy;
         }
-        Parametric { x, y, x_se, y_se, xy_cov, x_jack, y_jack }
+        Parametric {
+            x,
+            y,
+            x_se,
+            y_se,
+            xy_cov,
+            x_jack,
+            y_jack,
+        }
     }
 }

@@ -2,6 +2,8 @@
 //! with confidence intervals that resample independent samples.
 #![deny(clippy::float_cmp)]
 #![warn(missing_docs)]
+// `!(v > 0.0)` is used on purpose: unlike `v <= 0.0` it also rejects NaN.
+#![allow(clippy::neg_cmp_op_on_partial_ord)]
 
 pub mod campaign;
 pub mod error;
@@ -15,12 +17,12 @@ pub mod analysis;
 pub mod fdplot;
 pub mod settings;
 
-pub use analysis::{analyze, FitReport};
+pub use analysis::{FitReport, analyze};
 pub use settings::FitSettings;
-pub mod synth;
+pub mod demo;
 pub mod output;
 pub mod report;
-pub mod demo;
+pub mod synth;
 
 /// Runs `f` on a pool of `threads` worker threads (all cores when `None`).
 ///
@@ -39,3 +41,8 @@ where
         .map_err(|e| Error::Setting(format!("cannot start worker threads: {e}")))?;
     pool.install(f)
 }
+
+/// The user guide's examples, compiled and run as doctests.
+#[cfg(doctest)]
+#[doc = include_str!("../docs/example.md")]
+pub struct DocExamples;

@@ -12,7 +12,11 @@ use std::path::PathBuf;
 use std::process::ExitCode;
 
 #[derive(Parser)]
-#[command(name = "fdtemp", version, about = "Fluctuation–dissipation ratios and effective temperatures of aging systems")]
+#[command(
+    name = "fdtemp",
+    version,
+    about = "Fluctuation–dissipation ratios and effective temperatures of aging systems"
+)]
 struct Cli {
     #[command(subcommand)]
     command: Command,
@@ -31,7 +35,7 @@ struct FitArgs {
     /// Tidy CSV: one row per (sample, tw, t) with columns sample, tw, t, corr, resp [, corr_eq].
     file: PathBuf,
     /// Bath temperature T (energy units with --units reduced, kelvin with --units si).
-    #[arg(long, short = 'T')]
+    #[arg(long, short = 'T', allow_negative_numbers = true)]
     temperature: f64,
     /// Units: reduced (k = 1) or si (k = 1.380649e-23 J/K).
     #[arg(long, value_enum, default_value_t = Units::Reduced)]
@@ -52,7 +56,7 @@ struct FitArgs {
     #[arg(long, default_value_t = 1)]
     seed: u64,
     /// Confidence level of the intervals.
-    #[arg(long, default_value_t = 0.95)]
+    #[arg(long, default_value_t = 0.95, allow_negative_numbers = true)]
     level: f64,
     /// Interval method.
     #[arg(long, value_enum, default_value_t = IntervalMethod::Bca)]
@@ -99,7 +103,9 @@ struct Bar(Option<indicatif::ProgressBar>);
 
 impl Bar {
     fn new() -> Self {
-        Bar(std::io::stderr().is_terminal().then(indicatif::ProgressBar::hidden))
+        Bar(std::io::stderr()
+            .is_terminal()
+            .then(indicatif::ProgressBar::hidden))
     }
 }
 
@@ -166,17 +172,35 @@ fn fit(a: FitArgs) -> fdtemp::Result<()> {
     let planned: Vec<Output> = [&a.json, &a.points]
         .into_iter()
         .flatten()
-        .map(|p| Output { path: p.clone(), bytes: Vec::new() })
+        .map(|p| Output {
+            path: p.clone(),
+            bytes: Vec::new(),
+        })
         .collect();
     output::check(&planned, &[a.file.as_path()], a.overwrite)?;
     let campaign = fdtemp::input::read_campaign(&a.file, &names)?;
-    let report = fdtemp::analyze(&campaign, &settings, Some(a.file.display().to_string()), &Bar::new())?;
+    let report = fdtemp::analyze(
+        &campaign,
+        &settings,
+        Some(a.file.display().to_string()),
+        &Bar::new(),
+    )
+    .map_err(|e| match e {
+        fdtemp::Error::Analysis(m) => fdtemp::Error::input(&a.file, None, None, m),
+        e => e,
+    })?;
     let mut outputs = Vec::new();
     if let Some(p) = a.json {
-        outputs.push(Output { path: p, bytes: fdtemp::report::json::to_json(&report) });
+        outputs.push(Output {
+            path: p,
+            bytes: fdtemp::report::json::to_json(&report),
+        });
     }
     if let Some(p) = a.points {
-        outputs.push(Output { path: p, bytes: fdtemp::report::csv::points_csv(&report) });
+        outputs.push(Output {
+            path: p,
+            bytes: fdtemp::report::csv::points_csv(&report),
+        });
     }
     output::write_all(&outputs, a.overwrite)?;
     print(&fdtemp::report::text::render(&report));

@@ -24,7 +24,10 @@ pub fn check(outputs: &[Output], inputs: &[&Path], overwrite: bool) -> Result<()
     for (i, o) in outputs.iter().enumerate() {
         let p = &o.path;
         if outputs[..i].iter().any(|q| q.path == *p) {
-            return Err(Error::Setting(format!("{} is named for two outputs", p.display())));
+            return Err(Error::Setting(format!(
+                "{} is named for two outputs",
+                p.display()
+            )));
         }
         if inputs.iter().any(|inp| same_file(inp, p)) {
             return Err(Error::Setting(format!(
@@ -57,7 +60,11 @@ pub fn check(outputs: &[Output], inputs: &[&Path], overwrite: bool) -> Result<()
 /// that appeared meanwhile is not replaced unless `overwrite` is set.
 pub fn write_all(outputs: &[Output], overwrite: bool) -> Result<()> {
     for o in outputs {
-        let io = |source| Error::Io { path: o.path.clone(), action: "cannot write", source };
+        let io = |source| Error::Io {
+            path: o.path.clone(),
+            action: "cannot write",
+            source,
+        };
         let mut tmp = tempfile::Builder::new()
             .prefix(".fdtemp-")
             .tempfile_in(parent_of(&o.path))

@@ -127,7 +127,11 @@ pub fn acceleration(jackknife: &[f64]) -> f64 {
         s2 += d * d;
         s3 += d * d * d;
     }
-    if s2 > 0.0 { s3 / (6.0 * s2.powf(1.5)) } else { 0.0 }
+    if s2 > 0.0 {
+        s3 / (6.0 * s2.powf(1.5))
+    } else {
+        0.0
+    }
 }
 
 /// The `prob` quantile of sorted values, linear between order statistics
@@ -173,7 +177,11 @@ pub fn interval(
     method: IntervalMethod,
     level: f64,
 ) -> Option<Interval> {
-    let mut sorted: Vec<f64> = replicates.iter().copied().filter(|v| v.is_finite()).collect();
+    let mut sorted: Vec<f64> = replicates
+        .iter()
+        .copied()
+        .filter(|v| v.is_finite())
+        .collect();
     if sorted.len() < 2 {
         return None;
     }
@@ -190,7 +198,11 @@ pub fn interval(
         IntervalMethod::Percentile => Some(pct(None)),
         IntervalMethod::Basic => {
             let p = pct(None);
-            Some(Interval { low: 2.0 * estimate - p.high, high: 2.0 * estimate - p.low, ..p })
+            Some(Interval {
+                low: 2.0 * estimate - p.high,
+                high: 2.0 * estimate - p.low,
+                ..p
+            })
         }
         IntervalMethod::Bca => {
             let Some(jk) = jackknife.filter(|jk| jk.iter().all(|v| v.is_finite())) else {

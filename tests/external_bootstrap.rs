@@ -56,7 +56,10 @@ fn law_school_bootstrap_standard_error_is_in_the_published_range() {
     for seed in [1, 2, 3] {
         let reps = resample::bootstrap(law.len(), 4000, seed, |idx| correlation(&law, idx));
         let se = resample::bootstrap_se(&reps);
-        assert!((0.12..=0.15).contains(&se), "seed {seed}: bootstrap SE {se}");
+        assert!(
+            (0.12..=0.15).contains(&se),
+            "seed {seed}: bootstrap SE {se}"
+        );
     }
 }
 

@@ -6,11 +6,17 @@ fn norris() -> (Vec<f64>, Vec<f64>) {
     let text = std::fs::read_to_string("fixtures/Norris.dat").unwrap();
     // The data block follows the last line that starts with "Data:" (its column heading).
     let all: Vec<&str> = text.lines().collect();
-    let start = all.iter().rposition(|l| l.trim_start().starts_with("Data:")).unwrap();
+    let start = all
+        .iter()
+        .rposition(|l| l.trim_start().starts_with("Data:"))
+        .unwrap();
     let lines = text.lines().skip(start + 1);
     let (mut x, mut y) = (Vec::new(), Vec::new());
     for l in lines {
-        let v: Vec<f64> = l.split_whitespace().filter_map(|s| s.parse().ok()).collect();
+        let v: Vec<f64> = l
+            .split_whitespace()
+            .filter_map(|s| s.parse().ok())
+            .collect();
         if v.len() == 2 {
             y.push(v[0]);
             x.push(v[1]);
@@ -30,7 +36,11 @@ fn norris_line_matches_nist_certified_values() {
     assert_eq!(x.len(), 36, "{x:?}");
     let f = fit_line(&x, &y, None).unwrap();
     // Source: NIST StRD, Norris (Norris.dat header), certified values.
-    assert!(rel(f.intercept, -0.262323073774029) < 1e-9, "B0 {}", f.intercept);
+    assert!(
+        rel(f.intercept, -0.262323073774029) < 1e-9,
+        "B0 {}",
+        f.intercept
+    );
     assert!(rel(f.slope, 1.00211681802045) < 1e-12, "B1 {}", f.slope);
     assert!(rel(f.intercept_sd, 0.232818234301152) < 1e-9);
     assert!(rel(f.slope_sd, 0.429796848199937e-3) < 1e-9);

@@ -3,9 +3,9 @@
 //! Each campaign's sample means lie exactly on a broken stick with known X and q
 //! (`fdtemp::synth`), so a correct estimator with correct intervals recovers them.
 
-use fdtemp::analysis::{analyze, Silent};
-use fdtemp::synth::{generate, SynthSpec};
 use fdtemp::FitSettings;
+use fdtemp::analysis::{Silent, analyze};
+use fdtemp::synth::{SynthSpec, generate};
 
 fn fit(spec: &SynthSpec, resamples: usize) -> fdtemp::FitReport {
     let campaign = generate(spec).unwrap();
@@ -24,15 +24,25 @@ fn recovers_the_ratio_and_break_of_a_two_line_campaign() {
     let mut mean_x = 0.0;
     let seeds = 10;
     for seed in 0..seeds {
-        let spec = SynthSpec { seed, ..SynthSpec::default() };
+        let spec = SynthSpec {
+            seed,
+            ..SynthSpec::default()
+        };
         let r = fit(&spec, 1000);
         let f = &r.fits[0];
-        let (x, lo, hi) = (f.ratio.estimate.unwrap(), f.ratio.low.unwrap(), f.ratio.high.unwrap());
+        let (x, lo, hi) = (
+            f.ratio.estimate.unwrap(),
+            f.ratio.low.unwrap(),
+            f.ratio.high.unwrap(),
+        );
         covered += usize::from(lo <= spec.ratio && spec.ratio <= hi);
         mean_x += x / seeds as f64;
         // The break is detected and located near the truth.
         assert!(f.equilibrium_p.unwrap() < 0.01, "seed {seed}");
-        assert!((f.brk.estimate.unwrap() - spec.plateau).abs() < 0.03, "seed {seed}");
+        assert!(
+            (f.brk.estimate.unwrap() - spec.plateau).abs() < 0.03,
+            "seed {seed}"
+        );
         // T_eff's interval is the image of X's.
         let t = spec.temperature;
         assert!((f.t_eff.low.unwrap() - t / hi).abs() < 1e-12);
@@ -49,13 +59,20 @@ fn an_equilibrium_campaign_is_rarely_flagged() {
     // reject in about 1 of 20 seeds; more than 4 has probability 0.003.
     let mut flagged = 0;
     for seed in 100..120 {
-        let spec = SynthSpec { ratio: 1.0, seed, ..SynthSpec::default() };
+        let spec = SynthSpec {
+            ratio: 1.0,
+            seed,
+            ..SynthSpec::default()
+        };
         let r = fit(&spec, 500);
         let f = &r.fits[0];
         if f.equilibrium_p.unwrap() < 0.05 {
             flagged += 1;
         } else {
-            assert!(f.brk.estimate.is_none(), "no break is reported under equilibrium");
+            assert!(
+                f.brk.estimate.is_none(),
+                "no break is reported under equilibrium"
+            );
             assert!(r.verdict.starts_with("equilibrium"), "{}", r.verdict);
         }
     }
@@ -66,7 +83,11 @@ fn an_equilibrium_campaign_is_rarely_flagged() {
 fn a_coarsening_campaign_reports_an_unbounded_effective_temperature() {
     let mut unbounded = 0;
     for seed in 200..210 {
-        let spec = SynthSpec { ratio: 0.0, seed, ..SynthSpec::default() };
+        let spec = SynthSpec {
+            ratio: 0.0,
+            seed,
+            ..SynthSpec::default()
+        };
         let r = fit(&spec, 500);
         let f = &r.fits[0];
         let (lo, hi) = (f.ratio.low.unwrap(), f.ratio.high.unwrap());
@@ -74,16 +95,29 @@ fn a_coarsening_campaign_reports_an_unbounded_effective_temperature() {
             unbounded += 1;
             assert!(f.t_eff.high.is_none(), "unbounded end is null");
             assert!(f.t_eff.note.as_deref().unwrap().contains("unbounded"));
-            assert!(r.verdict.contains("no response in the slow regime"), "{}", r.verdict);
+            assert!(
+                r.verdict.contains("no response in the slow regime"),
+                "{}",
+                r.verdict
+            );
         }
         assert!(f.ratio.estimate.unwrap().abs() < 0.05);
     }
-    assert!(unbounded >= 8, "X's interval reached 0 in {unbounded} of 10");
+    assert!(
+        unbounded >= 8,
+        "X's interval reached 0 in {unbounded} of 10"
+    );
 }
 
 #[test]
 fn json_has_the_documented_shape_and_no_nan() {
-    let r = fit(&SynthSpec { ratio: 0.0, ..SynthSpec::default() }, 200);
+    let r = fit(
+        &SynthSpec {
+            ratio: 0.0,
+            ..SynthSpec::default()
+        },
+        200,
+    );
     let text = String::from_utf8(fdtemp::report::json::to_json(&r)).unwrap();
     assert!(!text.contains("NaN") && !text.contains("inf"));
     let v: serde_json::Value = serde_json::from_str(&text).unwrap();

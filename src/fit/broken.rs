@@ -230,6 +230,7 @@ fn projected(s: &[f64; 5], sw: f64, sxx: f64, sxr: f64, line: bool) -> [f64; 5] 
 }
 
 #[cfg(test)]
+#[allow(clippy::needless_range_loop)]
 mod tests {
     use super::*;
     use rand::{RngExt, SeedableRng};
@@ -291,25 +292,37 @@ mod tests {
             let s = search(&x, &r, &w, base, 4, &mut ws, None).unwrap();
             // The closed form's SSE equals a direct solve at its q ...
             let direct = sse_at(&x, &r, &w, s.q, line);
-            assert!((s.sse - direct).abs() < 1e-9 * (1.0 + direct), "trial {trial}");
+            assert!(
+                (s.sse - direct).abs() < 1e-9 * (1.0 + direct),
+                "trial {trial}"
+            );
             // ... and no q on a dense grid inside the allowed range does better.
             let mut xs = x.clone();
             xs.sort_by(f64::total_cmp);
             let (lo, hi) = (xs[3], xs[p - 4]);
             for i in 0..=4000 {
                 let q = lo + (hi - lo) * i as f64 / 4000.0;
-                assert!(sse_at(&x, &r, &w, q, line) >= s.sse - 1e-9, "trial {trial}, q {q}");
+                assert!(
+                    sse_at(&x, &r, &w, q, line) >= s.sse - 1e-9,
+                    "trial {trial}, q {q}"
+                );
             }
             // The coefficients reproduce the fitted values' SSE.
             let sse_coef: f64 = (0..p).map(|i| w[i] * (r[i] - s.eval(x[i])).powi(2)).sum();
-            assert!((sse_coef - s.sse).abs() < 1e-9 * (1.0 + s.sse), "trial {trial}");
+            assert!(
+                (sse_coef - s.sse).abs() < 1e-9 * (1.0 + s.sse),
+                "trial {trial}"
+            );
         }
     }
 
     #[test]
     fn exact_broken_stick_data_give_back_the_break_and_slopes() {
         let x: Vec<f64> = (0..50).map(|i| i as f64 / 49.0).collect();
-        let r: Vec<f64> = x.iter().map(|&x| 2.0 - 0.8 * x + 0.55 * (0.37 - x).max(0.0)).collect();
+        let r: Vec<f64> = x
+            .iter()
+            .map(|&x| 2.0 - 0.8 * x + 0.55 * (0.37 - x).max(0.0))
+            .collect();
         let w = vec![1.0; 50];
         let s = search(&x, &r, &w, Base::Line, 5, &mut Workspace::default(), None).unwrap();
         assert!((s.q - 0.37).abs() < 1e-9, "{s:?}");
@@ -325,6 +338,17 @@ mod tests {
         let w = [1.0; 9];
         assert!(search(&x, &r, &w, Base::Constant, 5, &mut ws, None).is_none());
         let flat = [0.5; 12];
-        assert!(search(&flat, &[0.0; 12], &[1.0; 12], Base::Constant, 3, &mut ws, None).is_none());
+        assert!(
+            search(
+                &flat,
+                &[0.0; 12],
+                &[1.0; 12],
+                Base::Constant,
+                3,
+                &mut ws,
+                None
+            )
+            .is_none()
+        );
     }
 }

@@ -4,4 +4,4 @@ pub mod broken;
 pub mod line;
 
 pub use broken::{Base, BreakSolution, Workspace};
-pub use line::{fit_line, LineFit};
+pub use line::{LineFit, fit_line};

@@ -2,7 +2,7 @@
 
 pub mod tidy;
 
-pub use tidy::{read_campaign, write_campaign, ColumnNames};
+pub use tidy::{ColumnNames, read_campaign, write_campaign};
 
 /// Parses one numeric CSV field, naming the column and expecting a finite number.
 pub(crate) fn parse_number(field: &str, column: &str) -> Result<f64, String> {

@@ -142,7 +142,13 @@ pub fn parse_campaign<R: Read>(reader: R, file: &Path, names: &ColumnNames) -> R
     let fields: Vec<String> = header
         .iter()
         .enumerate()
-        .map(|(i, h)| if i == 0 { h.trim_start_matches('\u{feff}').to_string() } else { h.to_string() })
+        .map(|(i, h)| {
+            if i == 0 {
+                h.trim_start_matches('\u{feff}').to_string()
+            } else {
+                h.to_string()
+            }
+        })
         .collect();
     let mut seen: HashMap<&str, usize> = HashMap::new();
     for (i, h) in fields.iter().enumerate() {
@@ -163,7 +169,8 @@ pub fn parse_campaign<R: Read>(reader: R, file: &Path, names: &ColumnNames) -> R
     let mut idx = [0usize; 5];
     for (slot, name) in idx.iter_mut().zip(names.required()) {
         *slot = find(name).ok_or_else(|| {
-            let hint = if fields.len() == 1 && (fields[0].contains(';') || fields[0].contains('\t')) {
+            let hint = if fields.len() == 1 && (fields[0].contains(';') || fields[0].contains('\t'))
+            {
                 " (the header has a single column: fdtemp reads comma-separated files)"
             } else {
                 ""
@@ -207,7 +214,8 @@ pub fn parse_campaign<R: Read>(reader: R, file: &Path, names: &ColumnNames) -> R
             ));
         }
         let num = |i: usize, name: &str| {
-            crate::input::parse_number(&rec[i], name).map_err(|m| err(Some(line), Some(i as u64 + 1), m))
+            crate::input::parse_number(&rec[i], name)
+                .map_err(|m| err(Some(line), Some(i as u64 + 1), m))
         };
         let sample = &rec[i_sample];
         if sample.is_empty() {
@@ -223,7 +231,10 @@ pub fn parse_campaign<R: Read>(reader: R, file: &Path, names: &ColumnNames) -> R
             return Err(err(
                 Some(line),
                 Some(i_t as u64 + 1),
-                format!("{} = {t} is not later than {} = {tw}; expected t > tw", names.t, names.tw),
+                format!(
+                    "{} = {t} is not later than {} = {tw}; expected t > tw",
+                    names.t, names.tw
+                ),
             ));
         }
         let corr = num(i_corr, &names.corr)?;
@@ -254,7 +265,14 @@ pub fn parse_campaign<R: Read>(reader: R, file: &Path, names: &ColumnNames) -> R
             points.push(GridPoint { tw, t });
             points.len() - 1
         });
-        rows.push(Row { sample: s, point: p, corr, resp, corr_eq, line });
+        rows.push(Row {
+            sample: s,
+            point: p,
+            corr,
+            resp,
+            corr_eq,
+            line,
+        });
     }
 
     if rows.is_empty() {
@@ -318,7 +336,8 @@ pub fn parse_campaign<R: Read>(reader: R, file: &Path, names: &ColumnNames) -> R
             ));
         }
     }
-    Campaign::new(sample_ids, points, corr, resp, corr_eq).map_err(|e| err(None, None, e.to_string()))
+    Campaign::new(sample_ids, points, corr, resp, corr_eq)
+        .map_err(|e| err(None, None, e.to_string()))
 }
 
 /// Maps -0.0 to 0.0 so that both spellings name the same grid point.
@@ -337,7 +356,14 @@ pub fn write_campaign(campaign: &Campaign) -> Vec<u8> {
     s.push('\n');
     for (i, id) in campaign.sample_ids().iter().enumerate() {
         for (j, g) in campaign.points().iter().enumerate() {
-            let _ = write!(s, "{id},{},{},{},{}", g.tw, g.t, campaign.corr()[[i, j]], campaign.resp()[[i, j]]);
+            let _ = write!(
+                s,
+                "{id},{},{},{},{}",
+                g.tw,
+                g.t,
+                campaign.corr()[[i, j]],
+                campaign.resp()[[i, j]]
+            );
             if let Some(eq) = eq {
                 let _ = write!(s, ",{}", eq[[i, j]]);
             }

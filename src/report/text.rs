@@ -1,7 +1,7 @@
 //! The text report: a table per fit, the verdict, cautions, and a methods paragraph.
 
 use super::sig;
-use crate::analysis::{fmt_num, fmt_p, Estimate, FitReport, GroupFit};
+use crate::analysis::{Estimate, FitReport, GroupFit, fmt_num, fmt_p_resampled};
 use crate::fdplot::Axes;
 use crate::settings::{Model, Units, Weighting};
 use std::fmt::Write;
@@ -11,7 +11,12 @@ fn est(e: &Estimate) -> String {
         None => "—".into(),
         Some(v) => {
             let end = |x: Option<f64>| x.map_or_else(|| "unbounded".into(), |x| sig(x, 4));
-            if e.low.is_none() && e.high.is_none() && e.note.as_deref().is_none_or(|n| !n.starts_with("unbounded")) {
+            if e.low.is_none()
+                && e.high.is_none()
+                && e.note
+                    .as_deref()
+                    .is_none_or(|n| !n.starts_with("unbounded"))
+            {
                 sig(v, 4)
             } else {
                 format!("{} [{}, {}]", sig(v, 4), end(e.low), end(e.high))
@@ -29,7 +34,11 @@ pub fn render(r: &FitReport) -> Vec<u8> {
     let s = &r.settings;
     let g = &s.given;
     let mut o = String::new();
-    let _ = writeln!(o, "fdtemp {} · fluctuation–dissipation fit in the time domain", r.tool.version);
+    let _ = writeln!(
+        o,
+        "fdtemp {} · fluctuation–dissipation fit in the time domain",
+        r.tool.version
+    );
     let tws: Vec<String> = r.waiting_times.iter().map(|&t| fmt_num(t)).collect();
     let _ = writeln!(
         o,
@@ -49,7 +58,11 @@ pub fn render(r: &FitReport) -> Vec<u8> {
         Axes::Normalized => "x = C/C(t,t), y = k·T·chi/C(t,t)",
         _ => "x = C, y = k·T·chi",
     };
-    let _ = writeln!(o, "axes       {axes}; T = {} ({units})", fmt_num(g.temperature));
+    let _ = writeln!(
+        o,
+        "axes       {axes}; T = {} ({units})",
+        fmt_num(g.temperature)
+    );
     let weights = match g.weights {
         Weighting::InverseVariance => "inverse-variance weights",
         Weighting::Uniform => "uniform weights",
@@ -86,7 +99,8 @@ pub fn render(r: &FitReport) -> Vec<u8> {
             est(&f.ratio),
             est(&f.t_eff),
             est(&f.fast_slope),
-            f.equilibrium_p.map_or("—".into(), fmt_p),
+            f.equilibrium_p
+                .map_or("—".into(), |p| fmt_p_resampled(p, f.null_resamples)),
         ]);
     }
     o.push_str(&table(&rows));
@@ -113,7 +127,10 @@ pub fn render(r: &FitReport) -> Vec<u8> {
 
     let mut cautions: Vec<String> = r.warnings.clone();
     for f in &r.fits {
-        let who = f.tw.map_or_else(|| "all waiting times".into(), |t| format!("tw = {}", fmt_num(t)));
+        let who = f.tw.map_or_else(
+            || "all waiting times".into(),
+            |t| format!("tw = {}", fmt_num(t)),
+        );
         cautions.extend(f.warnings.iter().map(|w| format!("{who}: {w}")));
         for (what, e) in [("break q", &f.brk), ("X", &f.ratio), ("T_eff", &f.t_eff)] {
             if let Some(n) = &e.note
@@ -150,7 +167,9 @@ pub fn methods(r: &FitReport) -> String {
     };
     let model = match g.model {
         Model::Broken => "a two-segment line with slope -1 above a break q and slope -X below it",
-        Model::Free => "a two-segment line with free slopes above and below a break q (X = minus the lower slope)",
+        Model::Free => {
+            "a two-segment line with free slopes above and below a break q (X = minus the lower slope)"
+        }
     };
     let weights = match (g.weights, g.model) {
         (Weighting::Uniform, _) => "with uniform weights",
@@ -168,7 +187,9 @@ pub fn methods(r: &FitReport) -> String {
         crate::resample::IntervalMethod::Percentile => "percentile intervals",
         crate::resample::IntervalMethod::Basic => "basic (reflected percentile) intervals",
     };
-    let p = r.fits[0].equilibrium_p.map_or("not computed".into(), fmt_p);
+    let p = r.fits[0].equilibrium_p.map_or("not computed".into(), |p| {
+        fmt_p_resampled(p, r.fits[0].null_resamples)
+    });
     format!(
         "Fluctuation–dissipation ratios were estimated with fdtemp {ver}. For each of {n} \
          independent samples, the correlation C(t,tw) and the integrated response chi(t,tw) \
