@@ -327,6 +327,8 @@ fn fit_group(
         profile,
     )?;
     let (ratio, fast) = match model {
+        // The null-imposed refit only needs the SSEs.
+        Model::Broken if r_shift.is_some() => (1.0 + sol.c, f64::NAN),
         Model::Broken => {
             sc.fx.clear();
             sc.fy.clear();
@@ -543,7 +545,7 @@ pub fn analyze(
         ));
     }
 
-    let aging = aging_check(&groups, &reps, settings);
+    let aging = aging_check(&groups, &est, &reps, settings);
     if let Some(a) = &aging
         && let (Some(lo), Some(hi)) = (a.ratio_change.low, a.ratio_change.high)
         && (lo > 0.0 || hi < 0.0)
@@ -921,7 +923,12 @@ fn verdict(fit: &GroupFit, violated: bool, p: &str, alpha: f64) -> String {
     }
 }
 
-fn aging_check(groups: &[Group], reps: &[&Vec<Replicate>], s: &FitSettings) -> Option<AgingCheck> {
+fn aging_check(
+    groups: &[Group],
+    est: &[Option<Values>],
+    reps: &[&Vec<Replicate>],
+    s: &FitSettings,
+) -> Option<AgingCheck> {
     if groups.len() < 3 {
         return None;
     }
@@ -930,15 +937,7 @@ fn aging_check(groups: &[Group], reps: &[&Vec<Replicate>], s: &FitSettings) -> O
         .iter()
         .filter_map(|r| Some(r[last]?.0.ratio - r[first]?.0.ratio))
         .collect();
-    let estimate = {
-        // The replicate median is a robust centre; the point estimates are in the fits.
-        let mut d = diffs.clone();
-        if d.len() < 2 {
-            return None;
-        }
-        d.sort_by(f64::total_cmp);
-        resample::quantile_sorted(&d, 0.5)
-    };
+    let estimate = est[last]?.ratio - est[first]?.ratio;
     let iv = interval(estimate, &diffs, None, IntervalMethod::Percentile, s.level)?;
     Some(AgingCheck {
         tw_first: groups[first].tw.unwrap_or(f64::NAN),

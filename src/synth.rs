@@ -26,6 +26,9 @@ pub struct SynthSpec {
     pub points_per_tw: usize,
     /// The true fluctuation–dissipation ratio below the plateau.
     pub ratio: f64,
+    /// Change of the true ratio per decade of waiting time, counted from the first one
+    /// (0: the same X at every age).
+    pub ratio_per_decade: f64,
     /// The true plateau (break) `q`.
     pub plateau: f64,
     /// Bath temperature (y = k T χ with k = 1).
@@ -47,6 +50,7 @@ impl Default for SynthSpec {
             waiting_times: vec![100.0, 1000.0, 10000.0],
             points_per_tw: 40,
             ratio: 0.45,
+            ratio_per_decade: 0.0,
             plateau: 0.6,
             temperature: 0.6,
             noise: 0.03,
@@ -65,12 +69,18 @@ impl SynthSpec {
         fast + slow
     }
 
-    /// The true `k T χ` as a function of the mean correlation.
-    pub fn response(&self, c: f64) -> f64 {
+    /// The true ratio at waiting time `tw`.
+    pub fn ratio_at(&self, tw: f64) -> f64 {
+        let tw0 = self.waiting_times.first().copied().unwrap_or(tw);
+        self.ratio + self.ratio_per_decade * (tw / tw0).log10()
+    }
+
+    /// The true `k T χ` at waiting time `tw` as a function of the mean correlation.
+    pub fn response(&self, tw: f64, c: f64) -> f64 {
         if c >= self.plateau {
             1.0 - c
         } else {
-            1.0 - self.plateau + self.ratio * (self.plateau - c)
+            1.0 - self.plateau + self.ratio_at(tw) * (self.plateau - c)
         }
     }
 
@@ -114,7 +124,7 @@ pub fn generate(spec: &SynthSpec) -> Result<Campaign> {
                 e2 = rho * e2 + innov * z2;
             }
             let c = spec.correlation(g.tw, g.t);
-            let y = spec.response(c);
+            let y = spec.response(g.tw, c);
             let nc = spec.noise * e1;
             let ny = spec.noise * (spec.cross * e1 + cross_c * e2);
             corr[[i, j]] = c + nc;

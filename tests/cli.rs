@@ -26,6 +26,16 @@ fn user_campaign(dir: &Path) -> std::path::PathBuf {
     path
 }
 
+/// `fdtemp fit FILE` with the column mapping of [`user_campaign`] and `-T 0.6`.
+fn fit_user(input: &Path) -> Command {
+    let mut cmd = fdtemp();
+    cmd.arg("fit").arg(input).args(["-T", "0.6"]);
+    for m in ["sample=run", "tw=age", "t=time", "corr=C", "resp=chi"] {
+        cmd.args(["--column", m]);
+    }
+    cmd
+}
+
 #[test]
 fn demo_writes_its_files_and_says_how_close_it_came() {
     let dir = tempfile::tempdir().unwrap();
@@ -69,19 +79,8 @@ fn fit_reads_a_user_file_with_mapped_columns_and_writes_json_and_points() {
     let input = user_campaign(dir.path());
     let json = dir.path().join("fit.json");
     let points = dir.path().join("points.csv");
-    fdtemp()
-        .arg("fit")
-        .arg(&input)
-        .args(["-T", "0.6", "-B", "400", "--seed", "5"])
-        .args([
-            "--column",
-            "sample=run",
-            "--column",
-            "tw=age",
-            "--column",
-            "t=time",
-        ])
-        .args(["--column", "corr=C", "--column", "resp=chi", "--json"])
+    fit_user(&input)
+        .args(["-B", "400", "--seed", "5", "--json"])
         .arg(&json)
         .arg("--points")
         .arg(&points)
@@ -121,12 +120,8 @@ fn fit_never_overwrites_an_existing_output_or_its_input() {
         "--column",
         "resp=chi",
     ];
-    fdtemp()
-        .arg("fit")
-        .arg(&input)
-        .args(["-T", "0.6", "-B", "200"])
-        .args(map)
-        .arg("--json")
+    fit_user(&input)
+        .args(["-B", "200", "--json"])
         .arg(&json)
         .assert()
         .code(2)
@@ -134,24 +129,16 @@ fn fit_never_overwrites_an_existing_output_or_its_input() {
             "old.json: exists already; pass --overwrite to replace it",
         ));
     assert_eq!(std::fs::read_to_string(&json).unwrap(), "keep me");
-    fdtemp()
-        .arg("fit")
-        .arg(&input)
-        .args(["-T", "0.6", "-B", "200", "--overwrite"])
-        .args(map)
-        .arg("--json")
+    fit_user(&input)
+        .args(["-B", "200", "--overwrite", "--json"])
         .arg(&input)
         .assert()
         .code(2)
         .stderr(predicate::str::contains(
             "is an input file; refusing to write over it",
         ));
-    fdtemp()
-        .arg("fit")
-        .arg(&input)
-        .args(["-T", "0.6", "-B", "200"])
-        .args(map)
-        .arg("--json")
+    fit_user(&input)
+        .args(["-B", "200", "--json"])
         .arg(dir.path().join("no/such/folder/out.json"))
         .assert()
         .code(2)
@@ -176,28 +163,8 @@ fn the_same_seed_gives_byte_identical_json_at_one_and_two_threads() {
     let input = user_campaign(dir.path());
     let run = |threads: &str, name: &str| {
         let out = dir.path().join(name);
-        fdtemp()
-            .arg("fit")
-            .arg(&input)
-            .args([
-                "-T",
-                "0.6",
-                "-B",
-                "500",
-                "--seed",
-                "42",
-                "--threads",
-                threads,
-            ])
-            .args([
-                "--column",
-                "sample=run",
-                "--column",
-                "tw=age",
-                "--column",
-                "t=time",
-            ])
-            .args(["--column", "corr=C", "--column", "resp=chi", "--json"])
+        fit_user(&input)
+            .args(["-B", "500", "--seed", "42", "--threads", threads, "--json"])
             .arg(&out)
             .assert()
             .success();

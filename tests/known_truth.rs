@@ -131,3 +131,135 @@ fn json_has_the_documented_shape_and_no_nan() {
     }
     assert!(v["fits"][0]["equilibrium_p"].is_number());
 }
+
+#[test]
+fn a_ratio_that_still_changes_with_age_is_flagged() {
+    // X = 0.35, 0.45, 0.55 at tw = 100, 1000, 10000.
+    let spec = SynthSpec {
+        samples: 100,
+        ratio: 0.35,
+        ratio_per_decade: 0.1,
+        ..SynthSpec::default()
+    };
+    let r = fit(&spec, 1000);
+    let a = r.aging.as_ref().unwrap();
+    let change = a.ratio_change.estimate.unwrap();
+    assert!((change - 0.2).abs() < 0.05, "change {change}");
+    assert!(a.ratio_change.low.unwrap() > 0.0);
+    assert!(
+        r.warnings
+            .iter()
+            .any(|w| w.starts_with("X changes with age")),
+        "{:?}",
+        r.warnings
+    );
+    // Per-tw estimates follow the truth.
+    for f in &r.fits[1..] {
+        let truth = spec.ratio_at(f.tw.unwrap());
+        assert!(
+            (f.ratio.estimate.unwrap() - truth).abs() < 0.04,
+            "tw {:?}",
+            f.tw
+        );
+    }
+    // A campaign aged at every tw gives no such warning.
+    let steady = fit(
+        &SynthSpec {
+            samples: 100,
+            ..SynthSpec::default()
+        },
+        1000,
+    );
+    assert!(
+        !steady
+            .warnings
+            .iter()
+            .any(|w| w.starts_with("X changes with age"))
+    );
+}
+
+#[test]
+fn a_wrong_thermometer_shows_in_the_slope_above_the_break() {
+    // The data are made at T = 0.6 but analysed with T = 0.5: every y shrinks by 5/6, so
+    // the slope above the break is -5/6 and X appears as 5/6 of the truth.
+    let spec = SynthSpec {
+        samples: 60,
+        ..SynthSpec::default()
+    };
+    let campaign = generate(&spec).unwrap();
+    for model in [
+        fdtemp::settings::Model::Broken,
+        fdtemp::settings::Model::Free,
+    ] {
+        let settings = FitSettings {
+            temperature: 0.5,
+            resamples: 1000,
+            model,
+            ..FitSettings::default()
+        };
+        let r = analyze(&campaign, &settings, None, &Silent).unwrap();
+        let f = &r.fits[0];
+        let slope = f.fast_slope.estimate.unwrap();
+        assert!((slope + 5.0 / 6.0).abs() < 0.03, "{model:?}: slope {slope}");
+        assert!(
+            f.warnings
+                .iter()
+                .any(|w| w.contains("not -1: the thermometer")),
+            "{model:?}"
+        );
+        if model == fdtemp::settings::Model::Free {
+            let x = f.ratio.estimate.unwrap();
+            assert!((x - 0.45 * 5.0 / 6.0).abs() < 0.03, "free X {x}");
+        }
+    }
+}
+
+#[test]
+fn normalized_axes_recover_the_ratio_when_c_tt_is_not_one() {
+    // Common practice (continuous variables): with C(t,t) ≠ 1, the plot of
+    // k T chi / C(t,t) against C / C(t,t) has slope -1 in equilibrium. Scale each point's
+    // C and chi by a known C(t,t) and give it as corr_eq.
+    let spec = SynthSpec {
+        samples: 60,
+        ..SynthSpec::default()
+    };
+    let base = generate(&spec).unwrap();
+    let scale: Vec<f64> = base
+        .points()
+        .iter()
+        .map(|g| 2.0 + (g.t / g.tw).ln().sin())
+        .collect();
+    let mut corr = base.corr().clone();
+    let mut resp = base.resp().clone();
+    for (j, s) in scale.iter().enumerate() {
+        corr.column_mut(j).mapv_inplace(|v| v * s);
+        resp.column_mut(j).mapv_inplace(|v| v * s);
+    }
+    let eq = ndarray::Array2::from_shape_fn(corr.dim(), |(_, j)| scale[j]);
+    let c = fdtemp::Campaign::new(
+        base.sample_ids().to_vec(),
+        base.points().to_vec(),
+        corr,
+        resp,
+        Some(eq),
+    )
+    .unwrap();
+    let settings = FitSettings {
+        temperature: 0.6,
+        resamples: 500,
+        ..FitSettings::default()
+    };
+    let r = analyze(&c, &settings, None, &Silent).unwrap();
+    assert_eq!(r.settings.axes_used, fdtemp::fdplot::Axes::Normalized);
+    let x = r.fits[0].ratio.estimate.unwrap();
+    assert!((x - 0.45).abs() < 0.02, "normalized X {x}");
+    let plain = FitSettings {
+        axes: fdtemp::fdplot::Axes::Plain,
+        ..settings
+    };
+    let rp = analyze(&c, &plain, None, &Silent).unwrap();
+    assert!(
+        (rp.fits[0].ratio.estimate.unwrap() - 0.45).abs() > 0.05,
+        "plain axes are off"
+    );
+}
