@@ -108,18 +108,6 @@ fn fit_never_overwrites_an_existing_output_or_its_input() {
     let input = user_campaign(dir.path());
     let json = dir.path().join("old.json");
     std::fs::write(&json, "keep me").unwrap();
-    let map = [
-        "--column",
-        "sample=run",
-        "--column",
-        "tw=age",
-        "--column",
-        "t=time",
-        "--column",
-        "corr=C",
-        "--column",
-        "resp=chi",
-    ];
     fit_user(&input)
         .args(["-B", "200", "--json"])
         .arg(&json)
