@@ -46,3 +46,4 @@ where
 #[cfg(doctest)]
 #[doc = include_str!("../docs/example.md")]
 pub struct DocExamples;
+pub mod spectral;

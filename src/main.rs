@@ -7,6 +7,9 @@ use fdtemp::input::ColumnNames;
 use fdtemp::output::{self, Output};
 use fdtemp::resample::IntervalMethod;
 use fdtemp::settings::{FitSettings, Model, Units, Weighting};
+use fdtemp::spectral::analysis::ErrorModel;
+use fdtemp::spectral::input::Window;
+use fdtemp::spectral::{Convention, SpectrumSettings};
 use std::io::{IsTerminal, Write};
 use std::path::PathBuf;
 use std::process::ExitCode;
@@ -26,8 +29,131 @@ struct Cli {
 enum Command {
     /// Fit X and T_eff from a campaign of C(t,tw) and chi(t,tw) over independent samples.
     Fit(FitArgs),
+    /// T_eff(f) from a noise spectrum and the dissipation (loss, Re Z or Re Y).
+    Spectrum(SpectrumArgs),
+    /// Welch PSD of raw noise records, and T_eff(f) when a dissipation is given.
+    Noise(NoiseArgs),
     /// Generate an invented aging scenario with a known answer, fit it, and compare.
     Demo(DemoArgs),
+}
+
+#[derive(clap::Args)]
+struct SpectrumArgs {
+    /// CSV with columns f, psd, loss and optionally dof, run, tw (one row per frequency).
+    file: PathBuf,
+    /// Bath temperature T (kelvin with SI units): enables the departure test.
+    #[arg(long, short = 'T', allow_negative_numbers = true)]
+    temperature: f64,
+    /// How PSD and dissipation are normalized [default: loss].
+    #[arg(long, value_enum)]
+    convention: Option<Convention>,
+    /// The window the PSD was estimated with (sets the correlation of neighbouring
+    /// frequencies in band averages) [default: as the file's first line says, else none].
+    #[arg(long, value_enum)]
+    window: Option<Window>,
+    #[command(flatten)]
+    common: SpectralArgs,
+}
+
+#[derive(clap::Args)]
+struct NoiseArgs {
+    /// Noise record: one number per line, or one column per run (optional header).
+    file: PathBuf,
+    /// Samples per second.
+    #[arg(long, allow_negative_numbers = true)]
+    sample_rate: f64,
+    /// Segment length of Welch's method (samples).
+    #[arg(long, default_value_t = 4096)]
+    segment: usize,
+    /// Overlap of consecutive segments (samples) [default: half a segment].
+    #[arg(long)]
+    overlap: Option<usize>,
+    /// A resistor's resistance R (ohm): the dissipation of voltage noise, Re Z = R.
+    #[arg(long, conflicts_with = "loss_file", allow_negative_numbers = true)]
+    resistance: Option<f64>,
+    /// CSV of f and the dissipation (loss, Re Z or Re Y per --convention), interpolated.
+    #[arg(long, value_name = "FILE")]
+    loss_file: Option<PathBuf>,
+    /// Bath temperature T: enables the departure test.
+    #[arg(long, short = 'T', allow_negative_numbers = true)]
+    temperature: Option<f64>,
+    /// How PSD and dissipation are normalized [default: voltage with --resistance, else loss].
+    #[arg(long, value_enum)]
+    convention: Option<Convention>,
+    /// Write the PSD as a CSV that `fdtemp spectrum` reads back.
+    #[arg(long, value_name = "FILE")]
+    psd_out: Option<PathBuf>,
+    #[command(flatten)]
+    common: SpectralArgs,
+}
+
+#[derive(clap::Args)]
+struct SpectralArgs {
+    /// Units: si (kelvin, k = 1.380649e-23 J/K) or reduced (k = 1).
+    #[arg(long, value_enum, default_value_t = Units::Si)]
+    units: Units,
+    /// Where intervals come from: auto, chi-square, or runs (bootstrap over runs).
+    #[arg(long, value_enum, default_value_t = ErrorModel::Auto)]
+    errors: ErrorModel,
+    /// Degrees of freedom of every PSD value, when the file has no dof column.
+    #[arg(long, allow_negative_numbers = true)]
+    dof: Option<f64>,
+    /// Band for the average of T_eff, FMIN:FMAX in hertz [default: every frequency].
+    #[arg(long, value_parser = parse_band, value_name = "FMIN:FMAX")]
+    band: Option<[f64; 2]>,
+    /// Log-spaced bands per decade in the departure test.
+    #[arg(long, default_value_t = 5)]
+    bands_per_decade: usize,
+    /// Confidence level.
+    #[arg(long, default_value_t = 0.95, allow_negative_numbers = true)]
+    level: f64,
+    /// Bootstrap resamples (runs model).
+    #[arg(long, short = 'B', default_value_t = 2000)]
+    resamples: usize,
+    /// Seed of the random streams.
+    #[arg(long, default_value_t = 1)]
+    seed: u64,
+    /// Interval method for the runs model.
+    #[arg(long, value_enum, default_value_t = IntervalMethod::Bca)]
+    interval: IntervalMethod,
+    /// Write the full result as JSON to this file.
+    #[arg(long, value_name = "FILE")]
+    json: Option<PathBuf>,
+    /// Replace output files that exist already.
+    #[arg(long)]
+    overwrite: bool,
+    #[command(flatten)]
+    run: RunArgs,
+}
+
+impl SpectralArgs {
+    fn settings(&self, temperature: Option<f64>, convention: Convention) -> SpectrumSettings {
+        SpectrumSettings {
+            temperature,
+            units: self.units,
+            convention,
+            level: self.level,
+            errors: self.errors,
+            resamples: self.resamples,
+            seed: self.seed,
+            interval: self.interval,
+            band: self.band,
+            dof: self.dof,
+            bands_per_decade: self.bands_per_decade,
+        }
+    }
+}
+
+fn parse_band(s: &str) -> Result<[f64; 2], String> {
+    let (a, b) = s
+        .split_once(':')
+        .ok_or_else(|| format!("'{s}' is not FMIN:FMAX"))?;
+    let num = |t: &str| {
+        t.trim()
+            .parse::<f64>()
+            .map_err(|_| format!("'{t}' in '{s}' is not a number"))
+    };
+    Ok([num(a)?, num(b)?])
 }
 
 #[derive(clap::Args)]
@@ -136,10 +262,14 @@ fn main() -> ExitCode {
     let cli = Cli::parse();
     let threads = match &cli.command {
         Command::Fit(a) => a.run.threads,
+        Command::Spectrum(a) => a.common.run.threads,
+        Command::Noise(a) => a.common.run.threads,
         Command::Demo(a) => a.run.threads,
     };
     let result = fdtemp::with_threads(threads, || match cli.command {
         Command::Fit(a) => fit(a),
+        Command::Spectrum(a) => spectrum(a),
+        Command::Noise(a) => noise(a),
         Command::Demo(a) => demo(a),
     });
     match result {
@@ -205,6 +335,174 @@ fn fit(a: FitArgs) -> fdtemp::Result<()> {
     output::write_all(&outputs, a.overwrite)?;
     print(&fdtemp::report::text::render(&report));
     Ok(())
+}
+
+/// Errors of the analysis name the input file.
+fn in_file(file: &std::path::Path) -> impl Fn(fdtemp::Error) -> fdtemp::Error + '_ {
+    move |e| match e {
+        fdtemp::Error::Analysis(m) => fdtemp::Error::input(file, None, None, m),
+        e => e,
+    }
+}
+
+fn spectrum(a: SpectrumArgs) -> fdtemp::Result<()> {
+    let convention = a.convention.unwrap_or(Convention::Loss);
+    let settings = a.common.settings(Some(a.temperature), convention);
+    settings.validate()?;
+    let planned: Vec<Output> = a
+        .common
+        .json
+        .iter()
+        .map(|p| Output {
+            path: p.clone(),
+            bytes: Vec::new(),
+        })
+        .collect();
+    output::check(&planned, &[a.file.as_path()], a.common.overwrite)?;
+    let groups = fdtemp::spectral::input::read_spectra(&a.file)?;
+    let window = match a.window {
+        Some(w) => w,
+        None => fdtemp::spectral::input::window_directive(&a.file)?.unwrap_or(Window::None),
+    };
+    let report = fdtemp::spectral::analyze_spectra(
+        &groups,
+        &window.bin_rho2(),
+        &settings,
+        Some(a.file.display().to_string()),
+    )
+    .map_err(in_file(&a.file))?;
+    let mut outputs = Vec::new();
+    if let Some(p) = &a.common.json {
+        outputs.push(Output {
+            path: p.clone(),
+            bytes: fdtemp::report::json::to_json(&report),
+        });
+    }
+    output::write_all(&outputs, a.common.overwrite)?;
+    let header = vec![
+        format!("data        {}", a.file.display()),
+        format!(
+            "window      {}",
+            match window {
+                Window::Hann => "Hann (neighbouring frequencies correlated: rho^2 = 4/9, 1/36)",
+                Window::None => "none given (neighbouring frequencies taken as independent)",
+            }
+        ),
+    ];
+    print(&fdtemp::report::spectrum::render(&report, &header));
+    Ok(())
+}
+
+fn noise(a: NoiseArgs) -> fdtemp::Result<()> {
+    use fdtemp::spectral::noise::{self, Dissipation};
+    let welch = fdtemp::spectral::welch::WelchSettings {
+        sample_rate: a.sample_rate,
+        segment: a.segment,
+        overlap: a.overlap.unwrap_or(a.segment / 2),
+    };
+    welch.validate()?;
+    if let Some(r) = a.resistance
+        && !(r > 0.0 && r.is_finite())
+    {
+        return Err(fdtemp::Error::Setting(format!(
+            "--resistance is {r}, expected a positive number of ohms"
+        )));
+    }
+    let convention = a.convention.unwrap_or(if a.resistance.is_some() {
+        Convention::Voltage
+    } else {
+        Convention::Loss
+    });
+    let settings = a.common.settings(a.temperature, convention);
+    settings.validate()?;
+    let planned: Vec<Output> = [&a.common.json, &a.psd_out]
+        .into_iter()
+        .flatten()
+        .map(|p| Output {
+            path: p.clone(),
+            bytes: Vec::new(),
+        })
+        .collect();
+    let mut inputs = vec![a.file.as_path()];
+    if let Some(l) = &a.loss_file {
+        inputs.push(l.as_path());
+    }
+    output::check(&planned, &inputs, a.common.overwrite)?;
+    let diss = match (a.resistance, &a.loss_file) {
+        (Some(r), _) => Some(Dissipation::Constant(r)),
+        (None, Some(p)) => Some(noise::read_dissipation(p)?),
+        (None, None) => None,
+    };
+    let rec = noise::welch_records(&a.file, welch)?;
+    let p0 = &rec.psd[0];
+    let mut header = vec![
+        format!(
+            "data        {}: {} run(s) of {} samples at {} Hz",
+            a.file.display(),
+            rec.runs.len(),
+            p0.samples,
+            fmt_num_cli(a.sample_rate)
+        ),
+        format!(
+            "welch       Hann window, {} samples per segment, overlap {}, {} segments per run, {} degrees of freedom per frequency",
+            welch.segment,
+            welch.overlap,
+            p0.segments,
+            fdtemp::report::sig(p0.dof[1.min(p0.dof.len() - 1)], 4)
+        ),
+    ];
+    let mut outputs = Vec::new();
+    if let Some(p) = &a.psd_out {
+        outputs.push(Output {
+            path: p.clone(),
+            bytes: noise::psd_csv(&rec, diss.as_ref()),
+        });
+    }
+    let Some(diss) = diss else {
+        output::write_all(&outputs, a.common.overwrite)?;
+        for h in &header {
+            println!("{h}");
+        }
+        println!(
+            "no dissipation given: the PSD is computed, T_eff is not (give --resistance R or --loss-file FILE)"
+        );
+        if let Some(p) = &a.psd_out {
+            println!("psd         written to {}", p.display());
+        }
+        return Ok(());
+    };
+    let (group, dropped) = noise::to_group(&rec, &diss).map_err(in_file(&a.file))?;
+    let mut report = fdtemp::spectral::analyze_spectra(
+        &[group],
+        &rec.bin_rho2,
+        &settings,
+        Some(a.file.display().to_string()),
+    )
+    .map_err(in_file(&a.file))?;
+    if dropped > 0 {
+        report.warnings.push(format!(
+            "{dropped} frequencies outside the dissipation table's range were left out"
+        ));
+    }
+    if let Some(r) = a.resistance {
+        header.push(format!(
+            "dissipation Re Z = {} ohm at every frequency",
+            fmt_num_cli(r)
+        ));
+    }
+    if let Some(p) = &a.common.json {
+        outputs.push(Output {
+            path: p.clone(),
+            bytes: fdtemp::report::json::to_json(&report),
+        });
+    }
+    output::write_all(&outputs, a.common.overwrite)?;
+    print(&fdtemp::report::spectrum::render(&report, &header));
+    Ok(())
+}
+
+fn fmt_num_cli(v: f64) -> String {
+    fdtemp::analysis::fmt_num(v)
 }
 
 fn demo(a: DemoArgs) -> fdtemp::Result<()> {

@@ -5,6 +5,7 @@
 //! lines starting with `#` are comments; a UTF-8 byte-order mark and Windows line ends
 //! are accepted.
 
+use super::Header;
 use crate::campaign::{Campaign, GridPoint};
 use crate::error::{Error, Result};
 use ndarray::Array2;
@@ -84,12 +85,7 @@ impl ColumnNames {
 /// `(sample, tw, t)`, a sample missing points that others have, `t <= tw`, fewer than
 /// two samples).
 pub fn read_campaign(path: &Path, names: &ColumnNames) -> Result<Campaign> {
-    let file = std::fs::File::open(path).map_err(|source| Error::Io {
-        path: path.to_path_buf(),
-        action: "cannot read",
-        source,
-    })?;
-    parse_campaign(std::io::BufReader::new(file), path, names)
+    parse_campaign(super::open(path)?, path, names)
 }
 
 struct Row {
@@ -107,24 +103,8 @@ struct Row {
 /// As [`read_campaign`].
 pub fn parse_campaign<R: Read>(reader: R, file: &Path, names: &ColumnNames) -> Result<Campaign> {
     let err = |line: Option<u64>, col: Option<u64>, msg: String| Error::input(file, line, col, msg);
-    let mut rdr = csv::ReaderBuilder::new()
-        .has_headers(false)
-        .flexible(true)
-        .comment(Some(b'#'))
-        .trim(csv::Trim::All)
-        .from_reader(reader);
+    let mut rdr = super::csv_reader(reader);
     let mut records = rdr.records();
-    let csv_err = |e: csv::Error| {
-        let line = e.position().map(|p| p.line());
-        let what = match e.kind() {
-            csv::ErrorKind::Utf8 { .. } => "the file is not valid UTF-8 text".to_string(),
-            csv::ErrorKind::Io(io) => format!("read failed: {io}"),
-            _ => e.to_string(),
-        };
-        err(line, None, what)
-    };
-
-    // Header.
     let header = match records.next() {
         None => {
             return Err(err(
@@ -136,59 +116,11 @@ pub fn parse_campaign<R: Read>(reader: R, file: &Path, names: &ColumnNames) -> R
                 ),
             ));
         }
-        Some(r) => r.map_err(csv_err)?,
+        Some(r) => Header::new(file, &r.map_err(|e| super::csv_error(file, e))?)?,
     };
-    let header_line = header.position().map_or(1, |p| p.line());
-    let fields: Vec<String> = header
-        .iter()
-        .enumerate()
-        .map(|(i, h)| {
-            if i == 0 {
-                h.trim_start_matches('\u{feff}').to_string()
-            } else {
-                h.to_string()
-            }
-        })
-        .collect();
-    let mut seen: HashMap<&str, usize> = HashMap::new();
-    for (i, h) in fields.iter().enumerate() {
-        if let Some(first) = seen.insert(h.as_str(), i) {
-            return Err(err(
-                Some(header_line),
-                Some(i as u64 + 1),
-                format!(
-                    "column '{h}' appears twice in the header (columns {} and {}); expected \
-                     each name once",
-                    first + 1,
-                    i + 1
-                ),
-            ));
-        }
-    }
-    let find = |name: &str| fields.iter().position(|h| h == name);
-    let mut idx = [0usize; 5];
-    for (slot, name) in idx.iter_mut().zip(names.required()) {
-        *slot = find(name).ok_or_else(|| {
-            let hint = if fields.len() == 1 && (fields[0].contains(';') || fields[0].contains('\t'))
-            {
-                " (the header has a single column: fdtemp reads comma-separated files)"
-            } else {
-                ""
-            };
-            err(
-                Some(header_line),
-                None,
-                format!(
-                    "no column '{name}' in the header (found: {}); expected columns {}{hint}",
-                    fields.join(", "),
-                    names.required().join(", ")
-                ),
-            )
-        })?;
-    }
-    let [i_sample, i_tw, i_t, i_corr, i_resp] = idx;
-    let i_eq = find(&names.corr_eq);
-    let n_fields = fields.len();
+    let idx = header.require(file, &names.required())?;
+    let [i_sample, i_tw, i_t, i_corr, i_resp] = [idx[0], idx[1], idx[2], idx[3], idx[4]];
+    let i_eq = header.find(&names.corr_eq);
 
     let mut sample_index: HashMap<String, usize> = HashMap::new();
     let mut sample_ids: Vec<String> = Vec::new();
@@ -197,22 +129,12 @@ pub fn parse_campaign<R: Read>(reader: R, file: &Path, names: &ColumnNames) -> R
     let mut rows: Vec<Row> = Vec::new();
 
     for rec in records {
-        let rec = rec.map_err(csv_err)?;
-        let line = rec.position().map_or(0, |p| p.line());
-        if rec.len() == 1 && rec[0].is_empty() {
-            continue; // blank line
+        let rec = rec.map_err(|e| super::csv_error(file, e))?;
+        let line = super::line_of(&rec);
+        if super::is_blank(&rec) {
+            continue;
         }
-        if rec.len() != n_fields {
-            return Err(err(
-                Some(line),
-                None,
-                format!(
-                    "the line has {} fields, expected {n_fields} as in the header (a cut-off \
-                     line or a stray delimiter?)",
-                    rec.len()
-                ),
-            ));
-        }
+        header.check_width(file, &rec)?;
         let num = |i: usize, name: &str| {
             crate::input::parse_number(&rec[i], name)
                 .map_err(|m| err(Some(line), Some(i as u64 + 1), m))
@@ -358,14 +280,14 @@ pub fn write_campaign(campaign: &Campaign) -> Vec<u8> {
         for (j, g) in campaign.points().iter().enumerate() {
             let _ = write!(
                 s,
-                "{id},{},{},{},{}",
+                "{id},{:?},{:?},{:?},{:?}",
                 g.tw,
                 g.t,
                 campaign.corr()[[i, j]],
                 campaign.resp()[[i, j]]
             );
             if let Some(eq) = eq {
-                let _ = write!(s, ",{}", eq[[i, j]]);
+                let _ = write!(s, ",{:?}", eq[[i, j]]);
             }
             s.push('\n');
         }

@@ -7,7 +7,11 @@ use std::fmt::Write;
 pub fn points_csv(report: &FitReport) -> Vec<u8> {
     let mut s = String::from("tw,t,x,x_se,y,y_se\n");
     for p in &report.points {
-        let _ = writeln!(s, "{},{},{},{},{},{}", p.tw, p.t, p.x, p.x_se, p.y, p.y_se);
+        let _ = writeln!(
+            s,
+            "{:?},{:?},{:?},{:?},{:?},{:?}",
+            p.tw, p.t, p.x, p.x_se, p.y, p.y_se
+        );
     }
     s.into_bytes()
 }

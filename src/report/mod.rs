@@ -3,6 +3,7 @@
 
 pub mod csv;
 pub mod json;
+pub mod spectrum;
 pub mod text;
 
 /// Formats a number with `sig` significant digits, switching to scientific notation

@@ -1,0 +1,225 @@
+//! The text report of a spectral analysis.
+
+use super::sig;
+use super::text::wrap;
+use crate::analysis::fmt_num;
+use crate::settings::Units;
+use crate::spectral::analysis::{ErrorModel, SpectrumFit, SpectrumReport};
+use std::fmt::Write;
+
+/// Rows of the per-frequency table shown in text (all are in the JSON).
+const SHOWN: usize = 16;
+
+fn iv(lo: Option<f64>, hi: Option<f64>) -> String {
+    match (lo, hi) {
+        (Some(a), Some(b)) => format!("[{}, {}]", sig(a, 4), sig(b, 4)),
+        _ => "—".into(),
+    }
+}
+
+/// The human-readable report.
+pub fn render(r: &SpectrumReport, extra_header: &[String]) -> Vec<u8> {
+    let s = &r.settings;
+    let unit = if s.units == Units::Si { " K" } else { "" };
+    let mut o = String::new();
+    let _ = writeln!(
+        o,
+        "fdtemp {} · effective temperature from noise and dissipation",
+        r.tool.version
+    );
+    for line in extra_header {
+        let _ = writeln!(o, "{line}");
+    }
+    let _ = writeln!(o, "convention  {}", r.convention_text);
+    let units = match s.units {
+        Units::Si => format!("SI, k = {} J/K", sig(r.k, 7)),
+        Units::Reduced => "reduced, k = 1".into(),
+    };
+    let t = s
+        .temperature
+        .map_or("not given (no departure test)".into(), |t| {
+            format!("{}{unit}", fmt_num(t))
+        });
+    let _ = writeln!(o, "units       {units}; bath temperature {t}");
+    for fit in &r.spectra {
+        section(&mut o, r, fit, unit);
+    }
+    let mut cautions: Vec<String> = r.warnings.clone();
+    for f in &r.spectra {
+        let who =
+            f.tw.map_or_else(String::new, |t| format!("tw = {}: ", fmt_num(t)));
+        cautions.extend(f.warnings.iter().map(|w| format!("{who}{w}")));
+    }
+    if !cautions.is_empty() {
+        let _ = writeln!(o, "\ncautions");
+        for c in &cautions {
+            let _ = writeln!(o, "  - {c}");
+        }
+    }
+    let _ = writeln!(o, "\nmethods\n{}", wrap(&methods(r), 92, "  "));
+    o.into_bytes()
+}
+
+fn section(o: &mut String, r: &SpectrumReport, fit: &SpectrumFit, unit: &str) {
+    let s = &r.settings;
+    let _ = writeln!(o);
+    if let Some(tw) = fit.tw {
+        let _ = writeln!(o, "── tw = {}", fmt_num(tw));
+    }
+    let (f0, f1) = (fit.points[0].f, fit.points[fit.points.len() - 1].f);
+    let _ = writeln!(
+        o,
+        "spectrum    {} run(s), {} frequencies from {} to {} Hz",
+        fit.n_runs,
+        fit.points.len(),
+        sig(f0, 4),
+        sig(f1, 4)
+    );
+    let how = match fit.errors {
+        ErrorModel::Runs => format!(
+            "{:.0}% {} from {} resamples of runs (seed {})",
+            100.0 * s.level,
+            s.interval.label(),
+            s.resamples,
+            s.seed
+        ),
+        _ => format!(
+            "{:.0}% chi-square, from each PSD value's degrees of freedom",
+            100.0 * s.level
+        ),
+    };
+    let _ = writeln!(o, "intervals   {how}");
+    if let Some(b) = &fit.band {
+        let e = &b.t_eff;
+        let dof = b.dof.map_or(String::new(), |d| {
+            format!(", {} degrees of freedom", sig(d, 4))
+        });
+        let _ = writeln!(
+            o,
+            "band        {}–{} Hz ({} frequencies{dof}): T_eff = {}{unit} {}",
+            sig(b.fmin, 4),
+            sig(b.fmax, 4),
+            b.n_freqs,
+            e.estimate.map_or("—".into(), |v| sig(v, 4)),
+            iv(e.low, e.high)
+        );
+    }
+    let _ = writeln!(o, "verdict     {}", fit.verdict);
+    if let Some(lvl) = fit.test_level {
+        let _ = writeln!(
+            o,
+            "\ndeparture test: log bands, each interval at {:.4} = 1 − {:.2}/{} (Bonferroni)",
+            lvl,
+            1.0 - s.level,
+            fit.test_bands.len()
+        );
+        let _ = writeln!(
+            o,
+            "  {:>10}  {:>10}  {:>6}  {:>10}  {:<22}  differs from T",
+            "fmin (Hz)", "fmax (Hz)", "freqs", "T_eff", "interval"
+        );
+        for tb in &fit.test_bands {
+            let b = &tb.band;
+            let _ = writeln!(
+                o,
+                "  {:>10}  {:>10}  {:>6}  {:>10}  {:<22}  {}",
+                sig(b.fmin, 4),
+                sig(b.fmax, 4),
+                b.n_freqs,
+                b.t_eff.estimate.map_or("—".into(), |v| sig(v, 4)),
+                iv(b.t_eff.low, b.t_eff.high),
+                if tb.departs { "yes" } else { "no" }
+            );
+        }
+    }
+    let n = fit.points.len();
+    let rows = log_spaced_rows(fit, SHOWN);
+    let _ = writeln!(
+        o,
+        "\nT_eff(f){}",
+        if rows.len() < n {
+            format!(
+                " ({} of {n} frequencies, log-spaced; all in --json)",
+                rows.len()
+            )
+        } else {
+            String::new()
+        }
+    );
+    let _ = writeln!(
+        o,
+        "  {:>10}  {:>10}  {:<22}  {:>10}  {:>10}",
+        "f (Hz)", "T_eff", "interval", "psd", "loss"
+    );
+    for p in rows.iter().map(|&j| &fit.points[j]) {
+        let _ = writeln!(
+            o,
+            "  {:>10}  {:>10}  {:<22}  {:>10}  {:>10}",
+            sig(p.f, 4),
+            sig(p.t_eff, 4),
+            iv(p.low, p.high),
+            sig(p.psd, 4),
+            sig(p.loss, 4)
+        );
+    }
+}
+
+/// A methods paragraph for the spectral analysis.
+pub fn methods(r: &SpectrumReport) -> String {
+    let s = &r.settings;
+    let errors = if r.spectra.iter().all(|f| f.errors == ErrorModel::Runs) {
+        format!(
+            "{} intervals from {} bootstrap resamples of whole runs (seed {})",
+            s.interval.label(),
+            s.resamples,
+            s.seed
+        )
+    } else {
+        "intervals from the chi-square distribution of an averaged periodogram with the stated \
+         degrees of freedom (the dissipation taken as exact); band averages weight each \
+         frequency by its degrees of freedom, with Satterthwaite's equivalent degrees of freedom \
+         corrected for the correlation of neighbouring bins"
+            .into()
+    };
+    let test = match s.temperature {
+        Some(_) => format!(
+            " Departure from the bath temperature was tested in log-spaced bands ({} per decade), \
+             each at the Bonferroni-corrected level, and the departure frequency is the upper \
+             edge of the highest band that differs.",
+            s.bands_per_decade
+        ),
+        None => String::new(),
+    };
+    format!(
+        "Effective temperatures were computed with fdtemp {} as T_eff(f) = {} — convention: {}. \
+         Uncertainties are {:.0}% {}.{}",
+        r.tool.version,
+        match s.convention {
+            crate::spectral::Convention::Loss => "pi f G(f) / (2 k chi''(f))",
+            crate::spectral::Convention::Angular => "w S(w) / (2 k chi''(w))",
+            crate::spectral::Convention::Voltage => "G_V / (4 k Re Z)",
+            crate::spectral::Convention::Current => "G_I / (4 k Re Y)",
+        },
+        r.convention_text,
+        100.0 * s.level,
+        errors,
+        test
+    )
+}
+
+/// Indices of about `n` points spread evenly in log frequency.
+fn log_spaced_rows(fit: &SpectrumFit, n: usize) -> Vec<usize> {
+    let p = &fit.points;
+    if p.len() <= n {
+        return (0..p.len()).collect();
+    }
+    let (l0, l1) = (p[0].f.ln(), p[p.len() - 1].f.ln());
+    let mut out: Vec<usize> = (0..n)
+        .map(|i| {
+            let target = l0 + (l1 - l0) * i as f64 / (n - 1) as f64;
+            p.partition_point(|q| q.f.ln() < target).min(p.len() - 1)
+        })
+        .collect();
+    out.dedup();
+    out
+}

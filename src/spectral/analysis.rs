@@ -1,0 +1,705 @@
+//! `T_eff(f)` with intervals, its band average, and where it departs from the bath.
+//!
+//! Per frequency, `T_eff(f) = c(f) Ḡ / (k L̄)` with the convention's factor `c(f)` and the
+//! means over runs of the PSD `G` and the dissipation `L`. Intervals:
+//!
+//! - chi-square: `Ĝ ~ G χ²_ν / ν`, so `T_eff ∈ [T̂ ν / χ²_{ν,1−α/2}, T̂ ν / χ²_{ν,α/2}]`;
+//!   the dissipation is taken as exact. A band average weights each frequency by its `ν`;
+//!   its degrees of freedom are `Σν / (1 + 2 Σ_m (1 − m/M) ρ²_m)`, where `ρ²_m` is the
+//!   correlation of PSD values `m` bins apart (zero for independent bins, `4/9` and `1/36`
+//!   for a Hann window) — Satterthwaite's approximation.
+//! - runs: a bootstrap over independent runs (PSD and dissipation of a run travel
+//!   together), computed as `W · D` in frequency chunks so memory stays bounded.
+//!
+//! Departure from the bath temperature: the spectrum is cut into log-spaced bands; each
+//! band's average is compared with `T` at the Bonferroni-corrected level `1 − α/nbands`
+//! (so the chance of any false departure is at most `α`). The departure frequency is the
+//! upper edge of the highest band whose `T_eff` differs from `T`.
+//!
+//! ## Reference
+//! Welch (1967); Percival & Walden, *Spectral Analysis for Physical Applications* (1993),
+//! §6.17 (χ² intervals, equivalent degrees of freedom); Satterthwaite, Biometrics Bull. 2,
+//! 110 (1946).
+
+use super::Convention;
+use super::input::SpectrumGroup;
+use crate::analysis::{Estimate, ToolInfo};
+use crate::error::{Error, Result};
+use crate::resample::{self, IntervalMethod};
+use crate::settings::Units;
+use ndarray::{Array2, Axis, s};
+use rayon::prelude::*;
+use serde::Serialize;
+use statrs::distribution::{ChiSquared, ContinuousCDF, Normal};
+
+/// JSON schema version of [`SpectrumReport`].
+pub const SCHEMA: u32 = 1;
+/// Below this many runs, resampling runs is not the automatic choice.
+pub const FEW_RUNS: usize = 10;
+/// Frequencies per chunk of the resampling product.
+const FREQ_CHUNK: usize = 1024;
+
+/// Where the intervals come from.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, clap::ValueEnum)]
+#[serde(rename_all = "kebab-case")]
+pub enum ErrorModel {
+    /// Resample runs when there are at least 10; otherwise chi-square when the degrees of
+    /// freedom are known; otherwise resample the runs there are (with a caution).
+    Auto,
+    /// The chi-square law of an averaged periodogram (needs degrees of freedom).
+    ChiSquare,
+    /// Bootstrap over independent runs.
+    Runs,
+}
+
+/// Settings of a spectral analysis.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct SpectrumSettings {
+    /// Bath temperature, when known: enables the departure test.
+    pub temperature: Option<f64>,
+    /// SI (kelvin) or reduced units.
+    pub units: Units,
+    /// How PSD and dissipation are normalized.
+    pub convention: Convention,
+    /// Confidence level.
+    pub level: f64,
+    /// Where intervals come from.
+    pub errors: ErrorModel,
+    /// Bootstrap resamples (runs model).
+    pub resamples: usize,
+    /// Seed of the random streams.
+    pub seed: u64,
+    /// Interval method for the runs model.
+    pub interval: IntervalMethod,
+    /// Band `[fmin, fmax]` for the band average (default: every frequency).
+    pub band: Option<[f64; 2]>,
+    /// Degrees of freedom of every PSD value, when the file has no `dof` column.
+    pub dof: Option<f64>,
+    /// Log-spaced bands per decade for the departure test.
+    pub bands_per_decade: usize,
+}
+
+impl Default for SpectrumSettings {
+    fn default() -> Self {
+        SpectrumSettings {
+            temperature: None,
+            units: Units::Si,
+            convention: Convention::Loss,
+            level: 0.95,
+            errors: ErrorModel::Auto,
+            resamples: 2000,
+            seed: 1,
+            interval: IntervalMethod::Bca,
+            band: None,
+            dof: None,
+            bands_per_decade: 5,
+        }
+    }
+}
+
+impl SpectrumSettings {
+    /// Checks the ranges.
+    ///
+    /// # Errors
+    /// [`Error::Setting`] naming the option.
+    pub fn validate(&self) -> Result<()> {
+        if let Some(t) = self.temperature
+            && !(t > 0.0 && t.is_finite())
+        {
+            return Err(Error::Setting(format!(
+                "--temperature is {t}, expected a positive number"
+            )));
+        }
+        if !(self.level > 0.0 && self.level < 1.0) {
+            return Err(Error::Setting(format!(
+                "--level is {}, expected a number between 0 and 1 (for example 0.95)",
+                self.level
+            )));
+        }
+        if self.resamples < 100 {
+            return Err(Error::Setting(format!(
+                "--resamples is {}, expected at least 100 (2000 or more for intervals a paper can quote)",
+                self.resamples
+            )));
+        }
+        if let Some([lo, hi]) = self.band
+            && !(lo >= 0.0 && hi > lo && hi.is_finite())
+        {
+            return Err(Error::Setting(format!(
+                "--band is {lo}:{hi}, expected FMIN:FMAX with 0 <= FMIN < FMAX (hertz)"
+            )));
+        }
+        if let Some(d) = self.dof
+            && !(d > 0.0 && d.is_finite())
+        {
+            return Err(Error::Setting(format!(
+                "--dof is {d}, expected a positive number"
+            )));
+        }
+        if self.bands_per_decade == 0 {
+            return Err(Error::Setting(
+                "--bands-per-decade is 0, expected at least 1".into(),
+            ));
+        }
+        Ok(())
+    }
+}
+
+/// `T_eff` at one frequency.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct SpectrumPoint {
+    /// Frequency (Hz).
+    pub f: f64,
+    /// Effective temperature.
+    pub t_eff: f64,
+    /// Lower end of its interval.
+    pub low: Option<f64>,
+    /// Upper end of its interval.
+    pub high: Option<f64>,
+    /// Mean PSD over runs.
+    pub psd: f64,
+    /// Mean dissipation over runs.
+    pub loss: f64,
+    /// Degrees of freedom of the mean PSD (chi-square model).
+    pub dof: Option<f64>,
+}
+
+/// A band average of `T_eff`.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Band {
+    /// Lower edge (Hz).
+    pub fmin: f64,
+    /// Upper edge (Hz).
+    pub fmax: f64,
+    /// Frequencies inside.
+    pub n_freqs: usize,
+    /// Equivalent degrees of freedom (chi-square model).
+    pub dof: Option<f64>,
+    /// The average with its interval.
+    pub t_eff: Estimate,
+}
+
+/// One log band of the departure test.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct TestBand {
+    /// The band and its average, with the interval at the corrected level.
+    #[serde(flatten)]
+    pub band: Band,
+    /// Whether the corrected interval excludes the bath temperature.
+    pub departs: bool,
+}
+
+/// The analysis of one spectrum (one waiting time).
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct SpectrumFit {
+    /// Waiting time, when the input had one.
+    pub tw: Option<f64>,
+    /// Number of runs.
+    pub n_runs: usize,
+    /// The error model used.
+    pub errors: ErrorModel,
+    /// `T_eff(f)` per frequency.
+    pub points: Vec<SpectrumPoint>,
+    /// The band average.
+    pub band: Option<Band>,
+    /// The frequency below which `T_eff` departs from `T` (`None`: no departure, or no `T`).
+    pub departure_below_hz: Option<f64>,
+    /// The departure test's bands (when `T` is given).
+    pub test_bands: Vec<TestBand>,
+    /// The level of each band's interval in the departure test (Bonferroni-corrected).
+    pub test_level: Option<f64>,
+    /// What the spectrum shows, in words.
+    pub verdict: String,
+    /// Cautions.
+    pub warnings: Vec<String>,
+}
+
+/// The full result; the JSON output.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct SpectrumReport {
+    /// Schema version.
+    pub schema: u32,
+    /// Tool and version.
+    pub tool: ToolInfo,
+    /// Input file.
+    pub input: Option<String>,
+    /// Settings.
+    pub settings: SpectrumSettings,
+    /// Boltzmann's constant used.
+    pub k: f64,
+    /// The convention in words.
+    pub convention_text: &'static str,
+    /// One analysis per waiting time (one in all without a `tw` column), by increasing tw.
+    pub spectra: Vec<SpectrumFit>,
+    /// The last (oldest) spectrum's points, for pipelines that read one spectrum.
+    pub points: Vec<SpectrumPoint>,
+    /// The last spectrum's band average.
+    pub band: Option<Band>,
+    /// The last spectrum's departure frequency.
+    pub departure_below_hz: Option<f64>,
+    /// Cautions about the whole input.
+    pub warnings: Vec<String>,
+}
+
+/// Analyzes every spectrum group.
+///
+/// # Errors
+/// [`Error::Setting`] for settings out of range; [`Error::Analysis`] when a group has no
+/// usable error model (no degrees of freedom and a single run) or no frequency in the band.
+pub fn analyze_spectra(
+    groups: &[SpectrumGroup],
+    bin_rho2: &[f64],
+    settings: &SpectrumSettings,
+    input: Option<String>,
+) -> Result<SpectrumReport> {
+    settings.validate()?;
+    let k = settings.units.boltzmann();
+    let spectra = groups
+        .iter()
+        .map(|g| analyze_group(g, bin_rho2, settings, k))
+        .collect::<Result<Vec<_>>>()?;
+    let last = spectra
+        .last()
+        .ok_or_else(|| Error::Analysis("no spectrum to analyse".into()))?;
+    let mut warnings = Vec::new();
+    if settings.errors != ErrorModel::Runs
+        && spectra.iter().any(|s| s.errors == ErrorModel::ChiSquare)
+    {
+        warnings.push(
+            "chi-square intervals assume Gaussian noise and an exact dissipation; intermittent \
+             noise makes them too narrow (resample runs when you have them)"
+                .into(),
+        );
+    }
+    Ok(SpectrumReport {
+        schema: SCHEMA,
+        tool: ToolInfo::default(),
+        input,
+        settings: settings.clone(),
+        k,
+        convention_text: settings.convention.describe(),
+        points: last.points.clone(),
+        band: last.band.clone(),
+        departure_below_hz: last.departure_below_hz,
+        spectra,
+        warnings,
+    })
+}
+
+/// The bands: the user's (or all frequencies) first, then the log bands of the test.
+fn make_bands(freqs: &[f64], s: &SpectrumSettings) -> (Vec<(f64, f64)>, usize) {
+    let (fmin, fmax) = (freqs[0], freqs[freqs.len() - 1]);
+    let mut bands = vec![s.band.map_or((fmin, fmax), |[a, b]| (a, b))];
+    if s.temperature.is_some() && fmax > fmin {
+        let per = s.bands_per_decade as f64;
+        let (l0, l1) = (fmin.log10(), fmax.log10());
+        let n = ((l1 - l0) * per).ceil().max(1.0) as usize;
+        for i in 0..n {
+            let a = 10f64.powf(l0 + (l1 - l0) * i as f64 / n as f64);
+            let b = 10f64.powf(l0 + (l1 - l0) * (i + 1) as f64 / n as f64);
+            bands.push((a, b));
+        }
+    }
+    let n_test = bands.len() - 1;
+    (bands, n_test)
+}
+
+/// Which bands each frequency belongs to (a log band is half-open, the last one closed).
+fn membership(freqs: &[f64], bands: &[(f64, f64)]) -> Vec<Vec<usize>> {
+    let last = bands.len() - 1;
+    freqs
+        .iter()
+        .map(|&f| {
+            bands
+                .iter()
+                .enumerate()
+                .filter(|&(i, &(a, b))| {
+                    if i == 0 {
+                        f >= a && f <= b
+                    } else {
+                        f >= a && (f < b || (i == last && f <= b))
+                    }
+                })
+                .map(|(i, _)| i)
+                .collect()
+        })
+        .collect()
+}
+
+/// `Σ_m (1 − m/M) ρ²_m` over the correlated bin lags, for `M` adjacent bins.
+fn correlation_sum(bin_rho2: &[f64], m_bins: usize) -> f64 {
+    bin_rho2
+        .iter()
+        .enumerate()
+        .map(|(i, r)| {
+            let lag = (i + 1) as f64;
+            if i + 1 < m_bins {
+                (1.0 - lag / m_bins as f64) * r
+            } else {
+                0.0
+            }
+        })
+        .sum()
+}
+
+fn chi_interval(t: f64, nu: f64, level: f64) -> Option<(f64, f64)> {
+    let d = ChiSquared::new(nu).ok()?;
+    let a = (1.0 - level) / 2.0;
+    Some((t * nu / d.inverse_cdf(1.0 - a), t * nu / d.inverse_cdf(a)))
+}
+
+fn analyze_group(
+    g: &SpectrumGroup,
+    bin_rho2: &[f64],
+    s: &SpectrumSettings,
+    k: f64,
+) -> Result<SpectrumFit> {
+    let who = g.tw.map_or_else(String::new, |t| {
+        format!("tw = {}: ", crate::analysis::fmt_num(t))
+    });
+    let n_runs = g.runs.len();
+    let nf = g.freqs.len();
+    let dof: Option<Vec<f64>> = match (&g.dof, s.dof) {
+        (Some(d), _) => Some(d.sum_axis(Axis(0)).to_vec()),
+        (None, Some(d)) => Some(vec![d * n_runs as f64; nf]),
+        (None, None) => None,
+    };
+    let mut warnings = Vec::new();
+    let errors = match s.errors {
+        ErrorModel::Auto if n_runs >= FEW_RUNS => ErrorModel::Runs,
+        ErrorModel::Auto if dof.is_some() => ErrorModel::ChiSquare,
+        ErrorModel::Auto if n_runs >= 2 => {
+            warnings.push(format!(
+                "only {n_runs} runs and no degrees of freedom: intervals from resampling so few \
+                 runs are unreliable"
+            ));
+            ErrorModel::Runs
+        }
+        ErrorModel::Runs if n_runs < 2 => {
+            return Err(Error::Analysis(format!(
+                "{who}--errors runs needs at least 2 runs (a 'run' column); the input has {n_runs}"
+            )));
+        }
+        ErrorModel::ChiSquare if dof.is_none() => {
+            return Err(Error::Analysis(format!(
+                "{who}chi-square intervals need the degrees of freedom: add a 'dof' column or give --dof"
+            )));
+        }
+        ErrorModel::Auto => {
+            return Err(Error::Analysis(format!(
+                "{who}no way to form intervals: a single run and no degrees of freedom; add a \
+                 'dof' column, give --dof, or give several runs in a 'run' column"
+            )));
+        }
+        e => e,
+    };
+    if errors == ErrorModel::Runs && n_runs < FEW_RUNS && s.errors == ErrorModel::Runs {
+        warnings.push(format!(
+            "only {n_runs} runs: intervals from resampling fewer than {FEW_RUNS} runs are unreliable"
+        ));
+    }
+
+    let gbar = g.psd.mean_axis(Axis(0)).expect("at least one run");
+    let lbar = g.loss.mean_axis(Axis(0)).expect("at least one run");
+    let factor: Vec<f64> = g
+        .freqs
+        .iter()
+        .map(|&f| s.convention.factor(f) / k)
+        .collect();
+    let t_hat: Vec<f64> = (0..nf).map(|j| factor[j] * gbar[j] / lbar[j]).collect();
+
+    let (bands, n_test) = make_bands(&g.freqs, s);
+    let members = membership(&g.freqs, &bands);
+    let count: Vec<usize> = (0..bands.len())
+        .map(|b| members.iter().filter(|m| m.contains(&b)).count())
+        .collect();
+    if count[0] == 0 {
+        return Err(Error::Analysis(format!(
+            "{who}no frequency inside --band {}:{} (the data span {} to {} Hz)",
+            bands[0].0,
+            bands[0].1,
+            g.freqs[0],
+            g.freqs[nf - 1]
+        )));
+    }
+    let alpha = 1.0 - s.level;
+    let test_level = (n_test > 0).then(|| 1.0 - alpha / n_test as f64);
+    let weights: Vec<f64> = dof.clone().unwrap_or_else(|| vec![1.0; nf]);
+    let band_mean = |b: usize, t: &[f64]| {
+        let (mut num, mut den) = (0.0, 0.0);
+        for j in 0..nf {
+            if members[j].contains(&b) {
+                num += weights[j] * t[j];
+                den += weights[j];
+            }
+        }
+        num / den
+    };
+    let band_est: Vec<f64> = (0..bands.len()).map(|b| band_mean(b, &t_hat)).collect();
+
+    // Intervals per frequency and per band: (low, high) at the band's level.
+    let (point_iv, band_iv, band_dof): (
+        Vec<Option<(f64, f64)>>,
+        Vec<Option<(f64, f64)>>,
+        Vec<Option<f64>>,
+    ) = match errors {
+        ErrorModel::ChiSquare => {
+            let nu = dof.as_ref().expect("chi-square has dof");
+            let piv = (0..nf)
+                .map(|j| chi_interval(t_hat[j], nu[j], s.level))
+                .collect();
+            let mut biv = Vec::new();
+            let mut bdof = Vec::new();
+            for b in 0..bands.len() {
+                let m = count[b];
+                let sum_nu: f64 = (0..nf)
+                    .filter(|&j| members[j].contains(&b))
+                    .map(|j| nu[j])
+                    .sum();
+                let nu_b = sum_nu / (1.0 + 2.0 * correlation_sum(bin_rho2, m));
+                let lvl = if b == 0 {
+                    s.level
+                } else {
+                    test_level.unwrap_or(s.level)
+                };
+                biv.push(if m > 0 {
+                    chi_interval(band_est[b], nu_b, lvl)
+                } else {
+                    None
+                });
+                bdof.push((m > 0).then_some(nu_b));
+            }
+            (piv, biv, bdof)
+        }
+        _ => {
+            let (piv, biv) = run_intervals(
+                g, &factor, &members, &weights, &band_est, &t_hat, s, test_level,
+            );
+            (piv, biv, vec![None; bands.len()])
+        }
+    };
+
+    let points = (0..nf)
+        .map(|j| SpectrumPoint {
+            f: g.freqs[j],
+            t_eff: t_hat[j],
+            low: point_iv[j].map(|v| v.0),
+            high: point_iv[j].map(|v| v.1),
+            psd: gbar[j],
+            loss: lbar[j],
+            dof: if errors == ErrorModel::ChiSquare {
+                dof.as_ref().map(|d| d[j])
+            } else {
+                None
+            },
+        })
+        .collect();
+    let make_band = |b: usize| Band {
+        fmin: bands[b].0,
+        fmax: bands[b].1,
+        n_freqs: count[b],
+        dof: band_dof[b],
+        t_eff: Estimate {
+            estimate: Some(band_est[b]),
+            low: band_iv[b].map(|v| v.0),
+            high: band_iv[b].map(|v| v.1),
+            note: None,
+        },
+    };
+    let band = make_band(0);
+    let mut test_bands = Vec::new();
+    let mut departure = None;
+    if let Some(t) = s.temperature {
+        for b in 1..bands.len() {
+            if count[b] == 0 {
+                continue;
+            }
+            let tb = make_band(b);
+            let departs = match (tb.t_eff.low, tb.t_eff.high) {
+                (Some(lo), Some(hi)) => t < lo || t > hi,
+                _ => false,
+            };
+            if departs {
+                departure = Some(tb.fmax);
+            }
+            test_bands.push(TestBand { band: tb, departs });
+        }
+        let flags: Vec<bool> = test_bands.iter().map(|b| b.departs).collect();
+        let first = flags.iter().position(|&d| d);
+        let last = flags.iter().rposition(|&d| d);
+        if let (Some(a), Some(z)) = (first, last)
+            && flags[a..=z].iter().any(|d| !d)
+        {
+            warnings.push(
+                "the bands where T_eff departs from T are not contiguous: look at T_eff(f) \
+                 before quoting one departure frequency"
+                    .into(),
+            );
+        }
+    }
+    let verdict = verdict(&band, s, departure, &test_bands);
+    Ok(SpectrumFit {
+        tw: g.tw,
+        n_runs,
+        errors,
+        points,
+        band: Some(band),
+        departure_below_hz: departure,
+        test_bands,
+        test_level,
+        verdict,
+        warnings,
+    })
+}
+
+/// Bootstrap over runs: per-frequency intervals and band intervals, in frequency chunks.
+#[allow(clippy::too_many_arguments)]
+fn run_intervals(
+    g: &SpectrumGroup,
+    factor: &[f64],
+    members: &[Vec<usize>],
+    weights: &[f64],
+    band_est: &[f64],
+    t_hat: &[f64],
+    s: &SpectrumSettings,
+    test_level: Option<f64>,
+) -> (Vec<Option<(f64, f64)>>, Vec<Option<(f64, f64)>>) {
+    let r = g.runs.len();
+    let nf = g.freqs.len();
+    let nb = band_est.len();
+    let b_total = s.resamples;
+    let mut w = Array2::<f64>::zeros((b_total, r));
+    let mut counts = vec![0u32; r];
+    for b in 0..b_total {
+        resample::draw_counts(s.seed, b as u64, r, &mut counts);
+        for (i, &c) in counts.iter().enumerate() {
+            w[[b, i]] = f64::from(c) / r as f64;
+        }
+    }
+    let rf = r as f64;
+    let n_chunks = nf.div_ceil(FREQ_CHUNK);
+    // Per chunk: per-frequency intervals, and per-replicate band sums (num) for each band.
+    let parts: Vec<(Vec<Option<(f64, f64)>>, Array2<f64>, Array2<f64>)> = (0..n_chunks)
+        .into_par_iter()
+        .map(|c| {
+            let (j0, j1) = (c * FREQ_CHUNK, ((c + 1) * FREQ_CHUNK).min(nf));
+            let gp = w.dot(&g.psd.slice(s![.., j0..j1]));
+            let gl = w.dot(&g.loss.slice(s![.., j0..j1]));
+            let gsum = g.psd.slice(s![.., j0..j1]).sum_axis(Axis(0));
+            let lsum = g.loss.slice(s![.., j0..j1]).sum_axis(Axis(0));
+            let mut band_num = Array2::<f64>::zeros((b_total, nb));
+            let mut jack_num = Array2::<f64>::zeros((r, nb));
+            let mut ivs = Vec::with_capacity(j1 - j0);
+            let mut reps = vec![0.0; b_total];
+            let mut jack = vec![0.0; r];
+            for (jj, j) in (j0..j1).enumerate() {
+                for b in 0..b_total {
+                    reps[b] = factor[j] * gp[[b, jj]] / gl[[b, jj]];
+                    for &bi in &members[j] {
+                        band_num[[b, bi]] += weights[j] * reps[b];
+                    }
+                }
+                for i in 0..r {
+                    let gi = (gsum[jj] - g.psd[[i, j]]) / (rf - 1.0);
+                    let li = (lsum[jj] - g.loss[[i, j]]) / (rf - 1.0);
+                    jack[i] = factor[j] * gi / li;
+                    for &bi in &members[j] {
+                        jack_num[[i, bi]] += weights[j] * jack[i];
+                    }
+                }
+                ivs.push(
+                    resample::interval(t_hat[j], &reps, Some(&jack), s.interval, s.level)
+                        .map(|iv| (iv.low, iv.high)),
+                );
+            }
+            (ivs, band_num, jack_num)
+        })
+        .collect();
+    let mut point_iv = Vec::with_capacity(nf);
+    let mut band_num = Array2::<f64>::zeros((b_total, nb));
+    let mut jack_num = Array2::<f64>::zeros((r, nb));
+    for (ivs, bn, jn) in parts {
+        point_iv.extend(ivs);
+        band_num += &bn;
+        jack_num += &jn;
+    }
+    let wsum: Vec<f64> = (0..nb)
+        .map(|b| {
+            (0..nf)
+                .filter(|&j| members[j].contains(&b))
+                .map(|j| weights[j])
+                .sum()
+        })
+        .collect();
+    let normal = Normal::standard();
+    let band_iv = (0..nb)
+        .map(|b| {
+            if !(wsum[b] > 0.0) {
+                return None;
+            }
+            let reps: Vec<f64> = band_num.column(b).iter().map(|v| v / wsum[b]).collect();
+            let jack: Vec<f64> = jack_num.column(b).iter().map(|v| v / wsum[b]).collect();
+            if b == 0 {
+                resample::interval(band_est[b], &reps, Some(&jack), s.interval, s.level)
+                    .map(|iv| (iv.low, iv.high))
+            } else {
+                // Corrected levels reach far into the tails: use the bootstrap standard error
+                // with the normal quantile there, which is stable for any B.
+                let se = resample::bootstrap_se(&reps);
+                let z = normal.inverse_cdf(0.5 + test_level.unwrap_or(s.level) / 2.0);
+                Some((band_est[b] - z * se, band_est[b] + z * se))
+            }
+        })
+        .collect();
+    (point_iv, band_iv)
+}
+
+fn verdict(
+    band: &Band,
+    s: &SpectrumSettings,
+    departure: Option<f64>,
+    tests: &[TestBand],
+) -> String {
+    let fmt = |v: f64| crate::report::sig(v, 4);
+    let e = &band.t_eff;
+    let (Some(v), Some(lo), Some(hi)) = (e.estimate, e.low, e.high) else {
+        return "no interval could be formed".into();
+    };
+    let unit = if s.units == Units::Si { " K" } else { "" };
+    let mut out = format!(
+        "T_eff over {}–{} Hz = {}{unit} [{}, {}]",
+        fmt(band.fmin),
+        fmt(band.fmax),
+        fmt(v),
+        fmt(lo),
+        fmt(hi)
+    );
+    if let Some(t) = s.temperature {
+        if lo <= t && t <= hi {
+            out.push_str(&format!(
+                ": equal to the bath temperature {}{unit} within errors",
+                fmt(t)
+            ));
+        } else if lo > t {
+            out.push_str(&format!(": above the bath temperature {}{unit}", fmt(t)));
+        } else {
+            out.push_str(&format!(": below the bath temperature {}{unit}", fmt(t)));
+        }
+        match departure {
+            Some(fd) => {
+                let b = tests.iter().rev().find(|b| b.departs).map(|b| &b.band);
+                if let Some(b) = b {
+                    out.push_str(&format!(
+                        "; T_eff departs from T below {} Hz (band {}–{} Hz: {}{unit})",
+                        fmt(fd),
+                        fmt(b.fmin),
+                        fmt(b.fmax),
+                        fmt(b.t_eff.estimate.unwrap_or(f64::NAN))
+                    ));
+                }
+            }
+            None => out.push_str("; no band departs from T at the corrected level"),
+        }
+    }
+    out
+}

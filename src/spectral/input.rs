@@ -1,0 +1,354 @@
+//! Readers for the frequency domain: spectrum tables and raw noise records.
+//!
+//! Spectrum table: columns `f`, `psd`, `loss`, optionally `dof`, `run`, `tw`; one row per
+//! frequency (per run, per waiting time), frequencies increasing within each run.
+//!
+//! Noise record: one number per line (one record), or one column per run; an optional
+//! header names the runs. Read as a stream, one line at a time.
+
+use crate::error::{Error, Result};
+use crate::input::{Header, csv_error, csv_reader, is_blank, line_of, open, parse_number};
+use ndarray::Array2;
+use std::collections::HashMap;
+use std::io::Read;
+use std::path::Path;
+
+/// The spectra of one waiting time (or of the whole file when there is no `tw` column).
+#[derive(Debug, Clone, PartialEq)]
+pub struct SpectrumGroup {
+    /// The waiting time, when the file has a `tw` column.
+    pub tw: Option<f64>,
+    /// Run names, in order of first appearance.
+    pub runs: Vec<String>,
+    /// Frequencies in hertz, increasing.
+    pub freqs: Vec<f64>,
+    /// PSD, runs × frequencies.
+    pub psd: Array2<f64>,
+    /// Dissipation (loss, Re Z or Re Y), runs × frequencies.
+    pub loss: Array2<f64>,
+    /// Degrees of freedom of each PSD value, when given.
+    pub dof: Option<Array2<f64>>,
+}
+
+struct Row {
+    f: f64,
+    psd: f64,
+    loss: f64,
+    dof: Option<f64>,
+    line: u64,
+}
+
+/// The window a PSD table was estimated with, as far as fdtemp knows.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, clap::ValueEnum)]
+#[serde(rename_all = "lowercase")]
+pub enum Window {
+    /// Neighbouring frequencies are independent (a rectangular window without overlap of
+    /// bins, or a spectrum from elsewhere).
+    None,
+    /// Welch with a Hann window: PSD values 1 and 2 bins apart are correlated.
+    Hann,
+}
+
+impl Window {
+    /// Squared correlations of PSD values 1, 2, … bins apart.
+    pub fn bin_rho2(self) -> Vec<f64> {
+        match self {
+            Window::None => Vec::new(),
+            Window::Hann => vec![4.0 / 9.0, 1.0 / 36.0],
+        }
+    }
+}
+
+/// The first-line directive that `fdtemp noise --psd-out` writes, e.g.
+/// `# fdtemp psd: window=hann`.
+pub const DIRECTIVE: &str = "# fdtemp psd:";
+
+/// Reads the window named by a file's first-line directive, if any.
+///
+/// # Errors
+/// [`Error::Io`] when the file cannot be read.
+pub fn window_directive(path: &Path) -> Result<Option<Window>> {
+    use std::io::BufRead;
+    let mut first = String::new();
+    open(path)?
+        .read_line(&mut first)
+        .map_err(|source| Error::Io {
+            path: path.to_path_buf(),
+            action: "cannot read",
+            source,
+        })?;
+    let Some(rest) = first.trim_start_matches('\u{feff}').strip_prefix(DIRECTIVE) else {
+        return Ok(None);
+    };
+    Ok(rest.split_whitespace().find_map(|kv| match kv {
+        "window=hann" => Some(Window::Hann),
+        "window=none" => Some(Window::None),
+        _ => None,
+    }))
+}
+
+/// Reads a spectrum table.
+///
+/// # Errors
+/// [`Error::Input`] with line and column for a missing column, a non-number, a frequency
+/// that is not positive, a negative PSD, a loss that is not positive, a non-positive dof,
+/// frequencies that do not increase within a run, or runs whose frequencies differ.
+pub fn read_spectra(path: &Path) -> Result<Vec<SpectrumGroup>> {
+    parse_spectra(open(path)?, path)
+}
+
+/// As [`read_spectra`], from any reader; `file` names it in errors.
+///
+/// # Errors
+/// As [`read_spectra`].
+pub fn parse_spectra<R: Read>(reader: R, file: &Path) -> Result<Vec<SpectrumGroup>> {
+    let err = |line: Option<u64>, col: Option<usize>, msg: String| {
+        Error::input(file, line, col.map(|c| c as u64 + 1), msg)
+    };
+    let mut rdr = csv_reader(reader);
+    let mut records = rdr.records();
+    let header = match records.next() {
+        None => {
+            return Err(err(
+                None,
+                None,
+                "the file is empty; expected a header line with columns f, psd, loss".into(),
+            ));
+        }
+        Some(r) => Header::new(file, &r.map_err(|e| csv_error(file, e))?)?,
+    };
+    let req = header.require(file, &["f", "psd", "loss"])?;
+    let (i_f, i_psd, i_loss) = (req[0], req[1], req[2]);
+    let (i_dof, i_run, i_tw) = (header.find("dof"), header.find("run"), header.find("tw"));
+
+    // (tw bits) -> group index; per group: run name -> rows.
+    let mut group_of: HashMap<u64, usize> = HashMap::new();
+    let mut groups: Vec<(Option<f64>, Vec<String>, Vec<Vec<Row>>)> = Vec::new();
+    for rec in records {
+        let rec = rec.map_err(|e| csv_error(file, e))?;
+        if is_blank(&rec) {
+            continue;
+        }
+        header.check_width(file, &rec)?;
+        let line = line_of(&rec);
+        let num = |i: usize, name: &str| {
+            parse_number(&rec[i], name).map_err(|m| err(Some(line), Some(i), m))
+        };
+        let f = num(i_f, "f")?;
+        if !(f > 0.0) {
+            return Err(err(
+                Some(line),
+                Some(i_f),
+                format!("column 'f' is {f}, expected a positive frequency in hertz"),
+            ));
+        }
+        let psd = num(i_psd, "psd")?;
+        if psd < 0.0 {
+            return Err(err(
+                Some(line),
+                Some(i_psd),
+                format!("column 'psd' is {psd}, expected a number >= 0 (a power spectral density)"),
+            ));
+        }
+        let loss = num(i_loss, "loss")?;
+        if !(loss > 0.0) {
+            return Err(err(
+                Some(line),
+                Some(i_loss),
+                format!(
+                    "column 'loss' is {loss}, expected a positive number (the dissipative part \
+                     is positive for a passive system)"
+                ),
+            ));
+        }
+        let dof = match i_dof {
+            Some(i) => {
+                let v = num(i, "dof")?;
+                if !(v > 0.0) {
+                    return Err(err(
+                        Some(line),
+                        Some(i),
+                        format!(
+                            "column 'dof' is {v}, expected a positive number of degrees of freedom"
+                        ),
+                    ));
+                }
+                Some(v)
+            }
+            None => None,
+        };
+        let tw = i_tw.map(|i| num(i, "tw")).transpose()?;
+        let run = i_run.map_or_else(String::new, |i| rec[i].to_string());
+        let key = tw.map_or(u64::MAX, f64::to_bits);
+        let gi = *group_of.entry(key).or_insert_with(|| {
+            groups.push((tw, Vec::new(), Vec::new()));
+            groups.len() - 1
+        });
+        let (_, names, rows) = &mut groups[gi];
+        let ri = match names.iter().position(|n| *n == run) {
+            Some(r) => r,
+            None => {
+                names.push(run.clone());
+                rows.push(Vec::new());
+                names.len() - 1
+            }
+        };
+        if let Some(prev) = rows[ri].last()
+            && !(f > prev.f)
+        {
+            return Err(err(
+                Some(line),
+                Some(i_f),
+                format!(
+                    "f = {f} is not above the previous frequency {} (line {}){}; expected \
+                     increasing frequencies",
+                    prev.f,
+                    prev.line,
+                    if run.is_empty() {
+                        String::new()
+                    } else {
+                        format!(" of run '{run}'")
+                    }
+                ),
+            ));
+        }
+        rows[ri].push(Row {
+            f,
+            psd,
+            loss,
+            dof,
+            line,
+        });
+    }
+    if groups.is_empty() {
+        return Err(err(None, None, "no data rows after the header".into()));
+    }
+    let mut out = Vec::new();
+    for (tw, names, rows) in groups {
+        let first = &rows[0];
+        for (name, r) in names.iter().zip(&rows).skip(1) {
+            if r.len() != first.len() {
+                return Err(err(
+                    None,
+                    None,
+                    format!(
+                        "run '{name}' has {} frequencies and run '{}' has {}; expected the same \
+                         frequencies in every run",
+                        r.len(),
+                        names[0],
+                        first.len()
+                    ),
+                ));
+            }
+            if let Some((a, b)) = r
+                .iter()
+                .zip(first)
+                .find(|(a, b)| a.f.total_cmp(&b.f).is_ne())
+            {
+                return Err(err(
+                    Some(a.line),
+                    Some(i_f),
+                    format!(
+                        "f = {} in run '{name}' where run '{}' has f = {} (line {}); expected \
+                         the same frequencies in every run",
+                        a.f, names[0], b.f, b.line
+                    ),
+                ));
+            }
+        }
+        let (nr, nf) = (rows.len(), first.len());
+        let grid =
+            |get: &dyn Fn(&Row) -> f64| Array2::from_shape_fn((nr, nf), |(r, j)| get(&rows[r][j]));
+        out.push(SpectrumGroup {
+            tw,
+            freqs: first.iter().map(|r| r.f).collect(),
+            psd: grid(&|r| r.psd),
+            loss: grid(&|r| r.loss),
+            dof: i_dof.map(|_| grid(&|r| r.dof.unwrap_or(f64::NAN))),
+            runs: names,
+        });
+    }
+    out.sort_by(|a, b| a.tw.unwrap_or(0.0).total_cmp(&b.tw.unwrap_or(0.0)));
+    Ok(out)
+}
+
+/// Streams a noise record: `sink(run, value)` receives every sample in order. Returns
+/// the run names (from the header, or `1`, `2`, … when the first line is all numbers).
+///
+/// # Errors
+/// [`Error::Input`] for an empty file, a line whose field count differs, or a field that
+/// is not a finite number (with line and column).
+pub fn stream_records(path: &Path, sink: impl FnMut(usize, f64)) -> Result<Vec<String>> {
+    stream_records_from(open(path)?, path, sink)
+}
+
+/// As [`stream_records`], from any reader.
+///
+/// # Errors
+/// As [`stream_records`].
+pub fn stream_records_from<R: Read>(
+    reader: R,
+    file: &Path,
+    mut sink: impl FnMut(usize, f64),
+) -> Result<Vec<String>> {
+    let mut rdr = csv_reader(reader);
+    let mut rec = csv::StringRecord::new();
+    let mut names: Option<Vec<String>> = None;
+    let mut width = 0usize;
+    let mut first = true;
+    loop {
+        match rdr.read_record(&mut rec) {
+            Ok(false) => break,
+            Ok(true) => {}
+            Err(e) => return Err(csv_error(file, e)),
+        }
+        if is_blank(&rec) {
+            continue;
+        }
+        let line = line_of(&rec);
+        if first {
+            first = false;
+            let numeric = rec
+                .iter()
+                .all(|f| f.trim_start_matches('\u{feff}').parse::<f64>().is_ok());
+            width = rec.len();
+            if !numeric {
+                let h = Header::new(file, &rec)?;
+                names = Some(h.fields);
+                continue;
+            }
+            names = Some((1..=width).map(|i| i.to_string()).collect());
+        }
+        if rec.len() != width {
+            return Err(Error::input(
+                file,
+                Some(line),
+                None,
+                format!(
+                    "the line has {} fields, expected {width} (one per run); a cut-off line or a \
+                     stray delimiter?",
+                    rec.len()
+                ),
+            ));
+        }
+        for (i, field) in rec.iter().enumerate() {
+            let field = if i == 0 && line == 1 {
+                field.trim_start_matches('\u{feff}')
+            } else {
+                field
+            };
+            let name = names.as_ref().map_or("", |n| n[i].as_str());
+            let v = parse_number(field, name)
+                .map_err(|m| Error::input(file, Some(line), Some(i as u64 + 1), m))?;
+            sink(i, v);
+        }
+    }
+    names.ok_or_else(|| {
+        Error::input(
+            file,
+            None,
+            None,
+            "the record is empty; expected one number per line (or one column per run)",
+        )
+    })
+}

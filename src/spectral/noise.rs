@@ -1,0 +1,249 @@
+//! From raw noise records to a spectrum group: stream, Welch per run, attach the dissipation.
+
+use super::input::{SpectrumGroup, stream_records};
+use super::welch::{Psd, Welch, WelchSettings, bin_correlation, hann};
+use crate::error::{Error, Result};
+use crate::input::{Header, csv_error, csv_reader, is_blank, line_of, open, parse_number};
+use ndarray::Array2;
+use std::path::Path;
+
+/// Where the dissipation (loss, Re Z or Re Y) comes from.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Dissipation {
+    /// The same value at every frequency (a resistor's R for voltage noise).
+    Constant(f64),
+    /// A table of `(f, value)`, increasing in `f`, interpolated linearly.
+    Table(Vec<(f64, f64)>),
+}
+
+impl Dissipation {
+    /// The value at `f`, or `None` outside a table's range.
+    pub fn at(&self, f: f64) -> Option<f64> {
+        match self {
+            Dissipation::Constant(v) => Some(*v),
+            Dissipation::Table(t) => {
+                let i = t.partition_point(|&(x, _)| x < f);
+                if i < t.len() && t[i].0.total_cmp(&f).is_eq() {
+                    return Some(t[i].1);
+                }
+                if i == 0 || i == t.len() {
+                    return None;
+                }
+                let ((x0, y0), (x1, y1)) = (t[i - 1], t[i]);
+                Some(y0 + (y1 - y0) * (f - x0) / (x1 - x0))
+            }
+        }
+    }
+}
+
+/// Reads a dissipation table: a header, then `f,value` rows with increasing `f > 0` and
+/// `value > 0` (the first two columns are used).
+///
+/// # Errors
+/// [`Error::Input`] with line and column for any bad row.
+pub fn read_dissipation(path: &Path) -> Result<Dissipation> {
+    let mut rdr = csv_reader(open(path)?);
+    let mut records = rdr.records();
+    let header = match records.next() {
+        None => {
+            return Err(Error::input(
+                path,
+                None,
+                None,
+                "the file is empty; expected a header and rows of f,value",
+            ));
+        }
+        Some(r) => Header::new(path, &r.map_err(|e| csv_error(path, e))?)?,
+    };
+    if header.fields.len() < 2 {
+        return Err(Error::input(
+            path,
+            Some(header.line),
+            None,
+            format!(
+                "the header has {} column(s); expected two: f and the value",
+                header.fields.len()
+            ),
+        ));
+    }
+    let name = header.fields[1].clone();
+    let mut table: Vec<(f64, f64)> = Vec::new();
+    for rec in records {
+        let rec = rec.map_err(|e| csv_error(path, e))?;
+        if is_blank(&rec) {
+            continue;
+        }
+        header.check_width(path, &rec)?;
+        let line = line_of(&rec);
+        let at = |c: u64, m: String| Error::input(path, Some(line), Some(c), m);
+        let f = parse_number(&rec[0], &header.fields[0]).map_err(|m| at(1, m))?;
+        let v = parse_number(&rec[1], &name).map_err(|m| at(2, m))?;
+        if !(f > 0.0) {
+            return Err(at(
+                1,
+                format!(
+                    "column '{}' is {f}, expected a positive frequency in hertz",
+                    header.fields[0]
+                ),
+            ));
+        }
+        if !(v > 0.0) {
+            return Err(at(
+                2,
+                format!("column '{name}' is {v}, expected a positive number"),
+            ));
+        }
+        if let Some(&(prev, _)) = table.last()
+            && !(f > prev)
+        {
+            return Err(at(
+                1,
+                format!(
+                    "f = {f} is not above the previous frequency {prev}; expected increasing frequencies"
+                ),
+            ));
+        }
+        table.push((f, v));
+    }
+    if table.len() < 2 {
+        return Err(Error::input(
+            path,
+            None,
+            None,
+            "the table has fewer than 2 rows; expected a curve to interpolate",
+        ));
+    }
+    Ok(Dissipation::Table(table))
+}
+
+/// The PSDs of every run of a record file.
+#[derive(Debug, Clone)]
+pub struct RecordPsd {
+    /// Run names.
+    pub runs: Vec<String>,
+    /// One Welch estimate per run.
+    pub psd: Vec<Psd>,
+    /// Squared correlation of neighbouring PSD bins for the window used.
+    pub bin_rho2: Vec<f64>,
+}
+
+/// Streams a record file through Welch's method, one accumulator per run.
+///
+/// # Errors
+/// Reader errors; [`Error::Input`] when a record is empty or shorter than one segment.
+pub fn welch_records(path: &Path, settings: WelchSettings) -> Result<RecordPsd> {
+    settings.validate()?;
+    let mut acc: Vec<Welch> = Vec::new();
+    let mut failed: Option<Error> = None;
+    let runs = stream_records(path, |run, v| {
+        while acc.len() <= run {
+            match Welch::new(settings) {
+                Ok(w) => acc.push(w),
+                Err(e) => {
+                    failed.get_or_insert(e);
+                    return;
+                }
+            }
+        }
+        acc[run].push(v);
+    })?;
+    if let Some(e) = failed {
+        return Err(e);
+    }
+    if acc.is_empty() {
+        return Err(Error::input(
+            path,
+            None,
+            None,
+            "the record is empty; expected one number per line (or one column per run)",
+        ));
+    }
+    let psd = acc
+        .into_iter()
+        .map(|w| {
+            w.finish()
+                .map_err(|e| Error::input(path, None, None, e.to_string()))
+        })
+        .collect::<Result<Vec<_>>>()?;
+    Ok(RecordPsd {
+        runs,
+        psd,
+        bin_rho2: bin_correlation(&hann(settings.segment)),
+    })
+}
+
+/// The lowest frequency bin used for `T_eff`. Removing each segment's mean takes out the
+/// power that the Hann window's main lobe carries from 0 Hz into bin 1: for white noise
+/// bin 1 reads `1 − |W_1|² / (L Σw²) = 5/6` of the truth. Bins 0 and 1 are left out.
+pub const FIRST_BIN: usize = 2;
+
+/// Builds the spectrum group (bins below [`FIRST_BIN`] left out) with the dissipation
+/// attached. Frequencies outside a table's range are left out; their number is returned.
+///
+/// # Errors
+/// [`Error::Analysis`] when no frequency is left.
+pub fn to_group(rec: &RecordPsd, diss: &Dissipation) -> Result<(SpectrumGroup, usize)> {
+    let freqs_all = &rec.psd[0].freqs;
+    let keep: Vec<usize> = (FIRST_BIN..freqs_all.len())
+        .filter(|&j| diss.at(freqs_all[j]).is_some())
+        .collect();
+    let dropped = freqs_all.len().saturating_sub(FIRST_BIN) - keep.len();
+    if keep.is_empty() {
+        return Err(Error::Analysis(
+            "no frequency of the PSD lies inside the dissipation table's range".into(),
+        ));
+    }
+    let nr = rec.runs.len();
+    let freqs: Vec<f64> = keep.iter().map(|&j| freqs_all[j]).collect();
+    let loss: Vec<f64> = freqs
+        .iter()
+        .map(|&f| diss.at(f).unwrap_or(f64::NAN))
+        .collect();
+    Ok((
+        SpectrumGroup {
+            tw: None,
+            runs: rec.runs.clone(),
+            psd: Array2::from_shape_fn((nr, keep.len()), |(r, j)| rec.psd[r].psd[keep[j]]),
+            loss: Array2::from_shape_fn((nr, keep.len()), |(_, j)| loss[j]),
+            dof: Some(Array2::from_shape_fn((nr, keep.len()), |(r, j)| {
+                rec.psd[r].dof[keep[j]]
+            })),
+            freqs,
+        },
+        dropped,
+    ))
+}
+
+/// The PSD as a CSV that `fdtemp spectrum` reads back: `f,psd,dof[,loss][,run]`, from
+/// bin [`FIRST_BIN`] up.
+pub fn psd_csv(rec: &RecordPsd, diss: Option<&Dissipation>) -> Vec<u8> {
+    use std::fmt::Write;
+    let many = rec.runs.len() > 1;
+    let mut s = format!("{} window=hann\n", super::input::DIRECTIVE);
+    s.push_str("f,psd,dof");
+    if diss.is_some() {
+        s.push_str(",loss");
+    }
+    if many {
+        s.push_str(",run");
+    }
+    s.push('\n');
+    for (name, p) in rec.runs.iter().zip(&rec.psd) {
+        for j in FIRST_BIN..p.freqs.len() {
+            let f = p.freqs[j];
+            let loss = diss.map(|d| d.at(f));
+            if matches!(loss, Some(None)) {
+                continue;
+            }
+            let _ = write!(s, "{f:?},{:?},{:?}", p.psd[j], p.dof[j]);
+            if let Some(Some(l)) = loss {
+                let _ = write!(s, ",{l:?}");
+            }
+            if many {
+                let _ = write!(s, ",{name}");
+            }
+            s.push('\n');
+        }
+    }
+    s.into_bytes()
+}
