@@ -517,13 +517,23 @@ fn demo(a: DemoArgs) -> fdtemp::Result<()> {
     let outputs = fdtemp::demo::prune_unchanged(d.outputs.clone(), a.overwrite)?;
     output::write_all(&outputs, true)?;
     print(&fdtemp::report::text::render(&d.report));
+    println!("\n════ spectral part\n");
+    print(&fdtemp::report::spectrum::render(
+        &d.spectrum,
+        &[format!(
+            "data        {}",
+            a.out.join("spectrum.csv").display()
+        )],
+    ));
     println!();
     print!("{}", fdtemp::demo::compare(&d));
     println!(
-        "files      {} (campaign.csv is the input; try: fdtemp fit {} --temperature {})",
+        "files      {} (try: fdtemp fit {} --temperature {}; fdtemp spectrum {} --temperature {} --band 20:500)",
         a.out.display(),
         a.out.join("campaign.csv").display(),
-        d.spec.temperature
+        d.spec.temperature,
+        a.out.join("spectrum.csv").display(),
+        d.spectrum_spec.temperature
     );
     Ok(())
 }

@@ -134,3 +134,82 @@ pub fn generate(spec: &SynthSpec) -> Result<Campaign> {
     let ids = (0..n).map(|i| format!("s{:03}", i + 1)).collect();
     Campaign::new(ids, points, corr, resp, None)
 }
+
+/// The recipe of a synthetic noise spectrum with a known `T_eff(f)`.
+///
+/// `T_eff(f) = T (1 + (f_hot / f)^2)`: equal to the bath at high frequency, hot below
+/// `f_hot`. The loss is a Debye-like `χ''(f) = a f / (1 + (f/f_c)²)`; each run's PSD
+/// scatters as `χ²_ν / ν` around `2 k T_eff χ'' / (π f)` (one-sided per hertz).
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct SpectrumSpec {
+    /// Bath temperature (K).
+    pub temperature: f64,
+    /// Below this frequency the slow modes are hot (Hz); 0 for equilibrium.
+    pub f_hot: f64,
+    /// Independent runs.
+    pub runs: usize,
+    /// Degrees of freedom of each run's PSD value.
+    pub dof: f64,
+    /// Lowest and highest frequency (Hz), log-spaced.
+    pub range: [f64; 2],
+    /// Number of frequencies.
+    pub points: usize,
+    /// Random seed.
+    pub seed: u64,
+}
+
+impl Default for SpectrumSpec {
+    fn default() -> Self {
+        SpectrumSpec {
+            temperature: 295.0,
+            f_hot: 2.0,
+            runs: 12,
+            dof: 16.0,
+            range: [0.05, 500.0],
+            points: 160,
+            seed: 77,
+        }
+    }
+}
+
+impl SpectrumSpec {
+    /// The true effective temperature at `f`.
+    pub fn t_eff(&self, f: f64) -> f64 {
+        self.temperature * (1.0 + (self.f_hot / f).powi(2))
+    }
+
+    /// The loss at `f`.
+    pub fn loss(&self, f: f64) -> f64 {
+        1e-12 * f / (1.0 + (f / 50.0).powi(2))
+    }
+}
+
+/// Generates the spectrum (SI units, loss convention).
+pub fn generate_spectrum(spec: &SpectrumSpec) -> crate::spectral::input::SpectrumGroup {
+    use rand_distr::{ChiSquared, Distribution};
+    let [lo, hi] = spec.range;
+    let n = spec.points;
+    let freqs: Vec<f64> = (0..n)
+        .map(|i| lo * (hi / lo).powf(i as f64 / (n.max(2) - 1) as f64))
+        .collect();
+    let chi = ChiSquared::new(spec.dof).ok();
+    let mut psd = Array2::zeros((spec.runs, n));
+    for r in 0..spec.runs {
+        let mut rng = crate::resample::replicate_rng(spec.seed, r as u64);
+        for (j, &f) in freqs.iter().enumerate() {
+            let g = 2.0 * crate::settings::BOLTZMANN_SI * spec.t_eff(f) * spec.loss(f)
+                / (std::f64::consts::PI * f);
+            let scatter = chi.as_ref().map_or(1.0, |c| c.sample(&mut rng) / spec.dof);
+            psd[[r, j]] = g * scatter;
+        }
+    }
+    let loss = Array2::from_shape_fn((spec.runs, n), |(_, j)| spec.loss(freqs[j]));
+    crate::spectral::input::SpectrumGroup {
+        tw: None,
+        runs: (0..spec.runs).map(|r| format!("run{:02}", r + 1)).collect(),
+        psd,
+        loss,
+        dof: Some(Array2::from_elem((spec.runs, n), spec.dof)),
+        freqs,
+    }
+}

@@ -58,3 +58,73 @@ fn coverage_of_95_percent_intervals_on_two_line_campaigns() {
         }
     }
 }
+
+#[test]
+#[ignore = "long statistical study; see the module header for the command"]
+fn coverage_of_band_averages_from_welch_records() {
+    use fdtemp::spectral::analysis::SpectrumSettings;
+    use fdtemp::spectral::input::{SpectrumGroup, Window};
+    use fdtemp::spectral::welch::{Welch, WelchSettings};
+    use fdtemp::spectral::{Convention, analyze_spectra};
+    use rand::RngExt;
+    let trials = 2000;
+    let mut hits = [0usize; 2];
+    let mut per_freq = (0usize, 0usize);
+    for seed in 0..trials {
+        let mut w = Welch::new(WelchSettings {
+            sample_rate: 1.0,
+            segment: 64,
+            overlap: 32,
+        })
+        .unwrap();
+        let mut rng = fdtemp::resample::replicate_rng(90_000 + seed, 0);
+        for _ in 0..(64 * 40) {
+            let z: f64 = rng.sample(rand_distr::StandardNormal);
+            w.push(z * 0.5f64.sqrt());
+        }
+        let p = w.finish().unwrap();
+        let keep: Vec<usize> = (2..p.freqs.len() - 1).collect();
+        let g = SpectrumGroup {
+            tw: None,
+            runs: vec![String::new()],
+            freqs: keep.iter().map(|&j| p.freqs[j]).collect(),
+            psd: ndarray::Array2::from_shape_fn((1, keep.len()), |(_, j)| p.psd[keep[j]]),
+            loss: ndarray::Array2::from_elem((1, keep.len()), 0.25),
+            dof: Some(ndarray::Array2::from_shape_fn((1, keep.len()), |(_, j)| {
+                p.dof[keep[j]]
+            })),
+        };
+        let s = SpectrumSettings {
+            units: fdtemp::settings::Units::Reduced,
+            convention: Convention::Voltage,
+            ..SpectrumSettings::default()
+        };
+        for (i, window) in [Window::Hann, Window::None].iter().enumerate() {
+            let r = analyze_spectra(&[g.clone()], &window.bin_rho2(), &s, None).unwrap();
+            let b = r.band.unwrap().t_eff;
+            hits[i] += usize::from(b.low.unwrap() <= 1.0 && 1.0 <= b.high.unwrap());
+            if i == 0 {
+                for q in &r.points {
+                    per_freq.1 += 1;
+                    per_freq.0 += usize::from(q.low.unwrap() <= 1.0 && 1.0 <= q.high.unwrap());
+                }
+            }
+        }
+    }
+    let n = trials as f64;
+    println!(
+        "white records through Welch (Hann, L = 64, 50% overlap, 39 segments), {trials} records"
+    );
+    println!(
+        "  per-frequency 95% chi-square intervals: coverage {:.4}",
+        per_freq.0 as f64 / per_freq.1 as f64
+    );
+    println!(
+        "  band average, Hann bin correlation:     coverage {:.4}",
+        hits[0] as f64 / n
+    );
+    println!(
+        "  band average, bins taken as independent: coverage {:.4}",
+        hits[1] as f64 / n
+    );
+}

@@ -39,6 +39,9 @@ pub const FEW_RUNS: usize = 10;
 /// Frequencies per chunk of the resampling product.
 const FREQ_CHUNK: usize = 1024;
 
+/// An interval's ends, when it could be formed.
+type Ends = Option<(f64, f64)>;
+
 /// Where the intervals come from.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, clap::ValueEnum)]
 #[serde(rename_all = "kebab-case")]
@@ -342,7 +345,7 @@ fn correlation_sum(bin_rho2: &[f64], m_bins: usize) -> f64 {
         .sum()
 }
 
-fn chi_interval(t: f64, nu: f64, level: f64) -> Option<(f64, f64)> {
+fn chi_interval(t: f64, nu: f64, level: f64) -> Ends {
     let d = ChiSquared::new(nu).ok()?;
     let a = (1.0 - level) / 2.0;
     Some((t * nu / d.inverse_cdf(1.0 - a), t * nu / d.inverse_cdf(a)))
@@ -438,11 +441,7 @@ fn analyze_group(
     let band_est: Vec<f64> = (0..bands.len()).map(|b| band_mean(b, &t_hat)).collect();
 
     // Intervals per frequency and per band: (low, high) at the band's level.
-    let (point_iv, band_iv, band_dof): (
-        Vec<Option<(f64, f64)>>,
-        Vec<Option<(f64, f64)>>,
-        Vec<Option<f64>>,
-    ) = match errors {
+    let (point_iv, band_iv, band_dof): (Vec<Ends>, Vec<Ends>, Vec<Option<f64>>) = match errors {
         ErrorModel::ChiSquare => {
             let nu = dof.as_ref().expect("chi-square has dof");
             let piv = (0..nf)
@@ -450,8 +449,7 @@ fn analyze_group(
                 .collect();
             let mut biv = Vec::new();
             let mut bdof = Vec::new();
-            for b in 0..bands.len() {
-                let m = count[b];
+            for (b, &m) in count.iter().enumerate() {
                 let sum_nu: f64 = (0..nf)
                     .filter(|&j| members[j].contains(&b))
                     .map(|j| nu[j])
@@ -510,10 +508,7 @@ fn analyze_group(
     let mut test_bands = Vec::new();
     let mut departure = None;
     if let Some(t) = s.temperature {
-        for b in 1..bands.len() {
-            if count[b] == 0 {
-                continue;
-            }
+        for b in (1..bands.len()).filter(|&b| count[b] > 0) {
             let tb = make_band(b);
             let departs = match (tb.t_eff.low, tb.t_eff.high) {
                 (Some(lo), Some(hi)) => t < lo || t > hi,
@@ -563,7 +558,7 @@ fn run_intervals(
     t_hat: &[f64],
     s: &SpectrumSettings,
     test_level: Option<f64>,
-) -> (Vec<Option<(f64, f64)>>, Vec<Option<(f64, f64)>>) {
+) -> (Vec<Ends>, Vec<Ends>) {
     let r = g.runs.len();
     let nf = g.freqs.len();
     let nb = band_est.len();
@@ -579,7 +574,7 @@ fn run_intervals(
     let rf = r as f64;
     let n_chunks = nf.div_ceil(FREQ_CHUNK);
     // Per chunk: per-frequency intervals, and per-replicate band sums (num) for each band.
-    let parts: Vec<(Vec<Option<(f64, f64)>>, Array2<f64>, Array2<f64>)> = (0..n_chunks)
+    let parts: Vec<(Vec<Ends>, Array2<f64>, Array2<f64>)> = (0..n_chunks)
         .into_par_iter()
         .map(|c| {
             let (j0, j1) = (c * FREQ_CHUNK, ((c + 1) * FREQ_CHUNK).min(nf));

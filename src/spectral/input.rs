@@ -30,6 +30,13 @@ pub struct SpectrumGroup {
     pub dof: Option<Array2<f64>>,
 }
 
+/// Rows of one waiting time while reading: run names and each run's rows.
+struct Pending {
+    tw: Option<f64>,
+    names: Vec<String>,
+    rows: Vec<Vec<Row>>,
+}
+
 struct Row {
     f: f64,
     psd: f64,
@@ -123,7 +130,7 @@ pub fn parse_spectra<R: Read>(reader: R, file: &Path) -> Result<Vec<SpectrumGrou
 
     // (tw bits) -> group index; per group: run name -> rows.
     let mut group_of: HashMap<u64, usize> = HashMap::new();
-    let mut groups: Vec<(Option<f64>, Vec<String>, Vec<Vec<Row>>)> = Vec::new();
+    let mut groups: Vec<Pending> = Vec::new();
     for rec in records {
         let rec = rec.map_err(|e| csv_error(file, e))?;
         if is_blank(&rec) {
@@ -181,10 +188,14 @@ pub fn parse_spectra<R: Read>(reader: R, file: &Path) -> Result<Vec<SpectrumGrou
         let run = i_run.map_or_else(String::new, |i| rec[i].to_string());
         let key = tw.map_or(u64::MAX, f64::to_bits);
         let gi = *group_of.entry(key).or_insert_with(|| {
-            groups.push((tw, Vec::new(), Vec::new()));
+            groups.push(Pending {
+                tw,
+                names: Vec::new(),
+                rows: Vec::new(),
+            });
             groups.len() - 1
         });
-        let (_, names, rows) = &mut groups[gi];
+        let Pending { names, rows, .. } = &mut groups[gi];
         let ri = match names.iter().position(|n| *n == run) {
             Some(r) => r,
             None => {
@@ -224,7 +235,7 @@ pub fn parse_spectra<R: Read>(reader: R, file: &Path) -> Result<Vec<SpectrumGrou
         return Err(err(None, None, "no data rows after the header".into()));
     }
     let mut out = Vec::new();
-    for (tw, names, rows) in groups {
+    for Pending { tw, names, rows } in groups {
         let first = &rows[0];
         for (name, r) in names.iter().zip(&rows).skip(1) {
             if r.len() != first.len() {
@@ -351,4 +362,44 @@ pub fn stream_records_from<R: Read>(
             "the record is empty; expected one number per line (or one column per run)",
         )
     })
+}
+
+/// Writes spectrum groups in the format [`read_spectra`] reads (`tw` and `run` columns
+/// only when they carry information).
+pub fn write_spectra(groups: &[SpectrumGroup]) -> Vec<u8> {
+    use std::fmt::Write;
+    let with_tw = groups.iter().any(|g| g.tw.is_some());
+    let with_run = groups.iter().any(|g| g.runs.len() > 1);
+    let with_dof = groups.iter().any(|g| g.dof.is_some());
+    let mut cols = Vec::new();
+    if with_tw {
+        cols.push("tw");
+    }
+    if with_run {
+        cols.push("run");
+    }
+    cols.extend(["f", "psd", "loss"]);
+    if with_dof {
+        cols.push("dof");
+    }
+    let mut s = cols.join(",");
+    s.push('\n');
+    for g in groups {
+        for (r, name) in g.runs.iter().enumerate() {
+            for (j, f) in g.freqs.iter().enumerate() {
+                if let Some(tw) = g.tw.filter(|_| with_tw) {
+                    let _ = write!(s, "{tw:?},");
+                }
+                if with_run {
+                    let _ = write!(s, "{name},");
+                }
+                let _ = write!(s, "{f:?},{:?},{:?}", g.psd[[r, j]], g.loss[[r, j]]);
+                if let Some(d) = &g.dof {
+                    let _ = write!(s, ",{:?}", d[[r, j]]);
+                }
+                s.push('\n');
+            }
+        }
+    }
+    s.into_bytes()
 }

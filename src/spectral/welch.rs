@@ -210,7 +210,7 @@ impl Welch {
         let k = self.segments as f64;
         let nu = equivalent_dof(&self.window, self.settings.hop(), self.segments);
         let last = l / 2;
-        let even = l % 2 == 0;
+        let even = l.is_multiple_of(2);
         let mut psd = Vec::with_capacity(last + 1);
         let mut dof = Vec::with_capacity(last + 1);
         for (i, s) in self.sum.iter().enumerate() {
@@ -226,30 +226,6 @@ impl Welch {
             segments: self.segments,
             samples: self.samples,
         })
-    }
-}
-
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn hann_dof_for_half_overlap_matches_welchs_value() {
-        // Source: Harris, Proc. IEEE 66, 51 (1978), Table 1: overlap correlation of the
-        // Hann window at 50% overlap is 16.7% (ρ = 1/6). Welch (1967) then gives
-        // ν = 2K / (1 + 2 (1 − 1/K) ρ²). Checked here also by simulation with
-        // scipy.signal.welch (L = 64, K = 50, 4000 records: ν/K = 1.888 measured against
-        // 1.892 predicted).
-        let w = hann(1024);
-        let nu = equivalent_dof(&w, 512, 50);
-        let rho2 = 1.0 / 36.0;
-        let expected = 2.0 * 50.0 / (1.0 + 2.0 * (1.0 - 1.0 / 50.0) * rho2);
-        assert!(
-            (nu - expected).abs() < 1e-9,
-            "nu = {nu}, expected {expected}"
-        );
-        // Without overlap the segments are independent: ν = 2K exactly.
-        assert!((equivalent_dof(&w, 1024, 10) - 20.0).abs() < 1e-12);
     }
 }
 
@@ -274,4 +250,28 @@ pub fn bin_correlation(window: &[f64]) -> Vec<f64> {
         out.push(r2);
     }
     out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn hann_dof_for_half_overlap_matches_welchs_value() {
+        // Source: Harris, Proc. IEEE 66, 51 (1978), Table 1: overlap correlation of the
+        // Hann window at 50% overlap is 16.7% (ρ = 1/6). Welch (1967) then gives
+        // ν = 2K / (1 + 2 (1 − 1/K) ρ²). Checked here also by simulation with
+        // scipy.signal.welch (L = 64, K = 50, 4000 records: ν/K = 1.888 measured against
+        // 1.892 predicted).
+        let w = hann(1024);
+        let nu = equivalent_dof(&w, 512, 50);
+        let rho2 = 1.0 / 36.0;
+        let expected = 2.0 * 50.0 / (1.0 + 2.0 * (1.0 - 1.0 / 50.0) * rho2);
+        assert!(
+            (nu - expected).abs() < 1e-9,
+            "nu = {nu}, expected {expected}"
+        );
+        // Without overlap the segments are independent: ν = 2K exactly.
+        assert!((equivalent_dof(&w, 1024, 10) - 20.0).abs() < 1e-12);
+    }
 }
