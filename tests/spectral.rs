@@ -147,7 +147,8 @@ fn each_convention_gives_back_the_temperature_its_formula_was_built_with() {
     let freqs: Vec<f64> = (1..=50).map(|i| i as f64 * 0.7).collect();
     let loss: Vec<f64> = freqs.iter().map(|f| 1e-3 * (1.0 + f / 10.0)).collect();
     let pi = std::f64::consts::PI;
-    let cases: [(Convention, Box<dyn Fn(f64, f64) -> f64>); 4] = [
+    type PsdOf = Box<dyn Fn(f64, f64) -> f64>;
+    let cases: [(Convention, PsdOf); 4] = [
         (
             Convention::Loss,
             Box::new(move |f, l| 2.0 * K_B * t * l / (pi * f)),
