@@ -100,7 +100,8 @@ fn coverage_of_band_averages_from_welch_records() {
             ..SpectrumSettings::default()
         };
         for (i, window) in [Window::Hann, Window::None].iter().enumerate() {
-            let r = analyze_spectra(&[g.clone()], &window.bin_rho2(), &s, None).unwrap();
+            let r =
+                analyze_spectra(std::slice::from_ref(&g), &window.bin_rho2(), &s, None).unwrap();
             let b = r.band.unwrap().t_eff;
             hits[i] += usize::from(b.low.unwrap() <= 1.0 && 1.0 <= b.high.unwrap());
             if i == 0 {
