@@ -47,8 +47,19 @@ fn demo_writes_its_files_and_says_how_close_it_came() {
         .success()
         .stdout(predicate::str::contains("estimate against the truth"))
         .stdout(predicate::str::contains("X        truth 0.4500"))
-        .stdout(predicate::str::contains("inside the interval"));
-    for f in ["campaign.csv", "truth.json", "fit.json", "points.csv"] {
+        .stdout(predicate::str::contains("inside the interval"))
+        .stdout(predicate::str::contains(
+            "T_eff over 20.0–500 Hz: truth 295.0 K (the bath)",
+        ))
+        .stdout(predicate::str::contains("departure: truth"));
+    for f in [
+        "campaign.csv",
+        "truth.json",
+        "fit.json",
+        "points.csv",
+        "spectrum.csv",
+        "spectrum-fit.json",
+    ] {
         assert!(out.join(f).is_file(), "{f}");
     }
     // A second run finds identical files and leaves them alone.
