@@ -467,3 +467,59 @@ fn bad_spectral_inputs_give_their_exact_message_and_exit_code_2() {
             );
     }
 }
+
+#[test]
+fn a_two_run_record_with_an_interpolated_impedance_table_gives_back_the_temperature() {
+    // Two columns = two independent runs of a 2 kΩ resistor at 77 K; Re Z from a table
+    // that covers 10 Hz to 4 kHz only, so the frequencies outside are left out (with a
+    // caution). Source: Nyquist (1928), G_V = 4 k T R.
+    let dir = tempfile::tempdir().unwrap();
+    let (t, r, fs) = (77.0, 2000.0, 1e4);
+    let sd = (4.0 * K_B * t * r * fs / 2.0).sqrt();
+    let mut rng = fdtemp::resample::replicate_rng(21, 0);
+    let mut text = String::from("left,right\n");
+    for _ in 0..(1 << 18) {
+        let (a, b): (f64, f64) = (rng.sample(StandardNormal), rng.sample(StandardNormal));
+        text.push_str(&format!("{:e},{:e}\n", sd * a, sd * b));
+    }
+    let rec = dir.path().join("two.csv");
+    std::fs::write(&rec, text).unwrap();
+    let table = dir.path().join("rez.csv");
+    std::fs::write(&table, "f,re_z\n10,2000\n1000,2000\n4000,2000\n").unwrap();
+    let json = dir.path().join("two.json");
+    fdtemp()
+        .arg("noise")
+        .arg(&rec)
+        .args([
+            "--sample-rate",
+            "1e4",
+            "--segment",
+            "1024",
+            "--convention",
+            "voltage",
+            "--loss-file",
+        ])
+        .arg(&table)
+        .arg("--json")
+        .arg(&json)
+        .assert()
+        .success()
+        .stdout(predicate::str::contains("2 run(s) of 262144 samples"))
+        .stdout(predicate::str::contains(
+            "frequencies outside the dissipation table's range were left out",
+        ));
+    let v: serde_json::Value = serde_json::from_slice(&std::fs::read(&json).unwrap()).unwrap();
+    assert_eq!(v["spectra"][0]["n_runs"], 2);
+    assert_eq!(v["spectra"][0]["errors"], "chi-square");
+    let b = &v["band"];
+    assert!(b["fmin"].as_f64().unwrap() >= 10.0 && b["fmax"].as_f64().unwrap() <= 4000.0);
+    let e = &b["t_eff"];
+    assert!(
+        (e["estimate"].as_f64().unwrap() / t - 1.0).abs() < 0.01,
+        "{e}"
+    );
+    assert!(
+        e["low"].as_f64().unwrap() <= t && t <= e["high"].as_f64().unwrap(),
+        "{e}"
+    );
+}
