@@ -147,6 +147,12 @@ pub struct GroupFit {
     pub verdict: String,
     /// Cautions in words.
     pub warnings: Vec<String>,
+    /// The resampled X values (for figures; not written to JSON).
+    #[serde(skip)]
+    pub ratio_replicates: Vec<f64>,
+    /// The resampled curves (for the figure's band; not written to JSON).
+    #[serde(skip)]
+    pub curve_replicates: Vec<Curve>,
 }
 
 /// A parametric point with its sample errors (for the points CSV and the figures).
@@ -561,6 +567,19 @@ pub fn analyze(
             hi
         ));
     }
+    let spread = pm
+        .x_se
+        .iter()
+        .chain(&pm.y_se)
+        .fold(0.0f64, |m, v| m.max(*v));
+    let size = pm.x.iter().chain(&pm.y).fold(0.0f64, |m, v| m.max(v.abs()));
+    if !(spread > 1e-9 * size) {
+        warnings.push(
+            "the samples are (almost) identical: there is no sample-to-sample spread, so the \
+             intervals only reflect rounding; check that the samples are independent runs"
+                .into(),
+        );
+    }
     if n < FEW_SAMPLES {
         warnings.push(format!(
             "only {n} samples: bootstrap intervals from fewer than {FEW_SAMPLES} samples are \
@@ -681,6 +700,8 @@ fn assemble(
         break_at_edge: None,
         verdict: String::new(),
         warnings: Vec::new(),
+        ratio_replicates: Vec::new(),
+        curve_replicates: Vec::new(),
     };
     let Some(e) = est else {
         let why = format!(
@@ -717,16 +738,9 @@ fn assemble(
         Model::Broken => Estimate::none("fewer than 3 points above the break"),
         Model::Free => Estimate::with(e.fast, iv(e.fast, |v| v.fast).as_ref()),
     };
-    let (slope_above, slope_below) = match s.model {
-        Model::Broken => (-1.0, -e.ratio),
-        Model::Free => (e.sol.b, e.sol.b - e.sol.c),
-    };
-    fit.curve = Some(Curve {
-        q: e.q,
-        intercept: e.sol.a,
-        slope_above,
-        slope_below,
-    });
+    fit.curve = Some(curve_of(&e, s.model));
+    fit.ratio_replicates = series(|v| v.ratio);
+    fit.curve_replicates = ok.iter().map(|(v, _)| curve_of(v, s.model)).collect();
 
     // Equilibrium test.
     let stat = e.sol.sse_null - e.sol.sse;
@@ -807,13 +821,14 @@ fn assemble(
         }
     }
     // The slope check warns on the joint fit, or on one waiting time when the departure
-    // is also large (one of several per-tw checks misses -1 by chance 5% of the time).
+    // is also large (one of several per-tw checks misses -1 by chance 5% of the time);
+    // an offset below 0.1% is no thermometer problem.
     if let (Some(v), Some(lo), Some(hi)) = (
         fit.fast_slope.estimate,
         fit.fast_slope.low,
         fit.fast_slope.high,
     ) && (hi < -1.0 || lo > -1.0)
-        && (g.tw.is_none() || (v + 1.0).abs() > 0.1)
+        && (v + 1.0).abs() > if g.tw.is_none() { 1e-3 } else { 0.1 }
     {
         w.push(format!(
             "the slope above the break is {:.3} [{:.3}, {:.3}], not -1: the thermometer or the \
@@ -840,6 +855,20 @@ fn assemble(
     }
     fit.verdict = verdict(&fit, violated, &fmt_p_resampled(pval, nulls.len()), alpha);
     fit
+}
+
+/// The fitted curve in plot coordinates.
+fn curve_of(v: &Values, model: Model) -> Curve {
+    let (slope_above, slope_below) = match model {
+        Model::Broken => (-1.0, -v.ratio),
+        Model::Free => (v.sol.b, v.sol.b - v.sol.c),
+    };
+    Curve {
+        q: v.q,
+        intercept: v.sol.a,
+        slope_above,
+        slope_below,
+    }
 }
 
 /// Maps X's interval to T_eff = T/X (monotone), with `None` ends where X's interval reaches 0.
@@ -957,7 +986,9 @@ fn split_groups(values: &[f64]) -> Option<(f64, f64)> {
     let (a, b) = (v.len() * 25 / 1000, v.len() - 1 - v.len() * 25 / 1000);
     let central = &v[a..=b];
     let range = central[central.len() - 1] - central[0];
-    if !(range > 0.0) {
+    let scale = central[0].abs().max(central[central.len() - 1].abs());
+    // A spread at the level of rounding is no spread.
+    if !(range > 1e-9 * scale.max(f64::MIN_POSITIVE)) {
         return None;
     }
     let (gap_at, gap) = central

@@ -14,6 +14,7 @@
 use crate::analysis::{FitReport, Progress, analyze};
 use crate::error::{Error, Result};
 use crate::output::Output;
+use crate::report::plot::{self, Figure};
 use crate::settings::FitSettings;
 use crate::spectral::analysis::{SpectrumReport, SpectrumSettings, analyze_spectra};
 use crate::spectral::input::write_spectra;
@@ -117,6 +118,28 @@ pub fn run(dir: &Path, progress: &dyn Progress) -> Result<Demo> {
             bytes: crate::report::csv::points_csv(&report),
         },
     ];
+    let mut outputs = outputs;
+    for ext in ["svg", "png"] {
+        let fig = |name: &str| {
+            let path = dir.join(format!("{name}.{ext}"));
+            Figure::for_path(&path, (1000, 800)).map(|f| (path, f))
+        };
+        let (path, f) = fig("fd-plot")?;
+        outputs.push(Output {
+            path,
+            bytes: plot::fd_plot(&report, f)?,
+        });
+        let (path, f) = fig("ratio-resamples")?;
+        outputs.push(Output {
+            path,
+            bytes: plot::ratio_histogram(&report, f)?,
+        });
+        let (path, f) = fig("teff-spectrum")?;
+        outputs.push(Output {
+            path,
+            bytes: plot::teff_plot(&spectrum, f)?,
+        });
+    }
     Ok(Demo {
         outputs,
         report,

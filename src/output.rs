@@ -70,6 +70,16 @@ pub fn write_all(outputs: &[Output], overwrite: bool) -> Result<()> {
             .tempfile_in(parent_of(&o.path))
             .map_err(io)?;
         tmp.write_all(&o.bytes).map_err(io)?;
+        // A temporary file is private (0600); the result gets the permissions of the file
+        // it replaces, or ordinary ones (0644) when it is new.
+        #[cfg(unix)]
+        {
+            use std::os::unix::fs::PermissionsExt;
+            let perms = std::fs::metadata(&o.path)
+                .map(|m| m.permissions())
+                .unwrap_or_else(|_| std::fs::Permissions::from_mode(0o644));
+            tmp.as_file().set_permissions(perms).map_err(io)?;
+        }
         tmp.as_file().sync_all().map_err(io)?;
         if overwrite {
             tmp.persist(&o.path).map_err(|e| io(e.error))?;
@@ -92,4 +102,20 @@ fn same_file(a: &Path, b: &Path) -> bool {
         (Ok(x), Ok(y)) => x == y,
         _ => a == b,
     }
+}
+
+/// [`check`] for paths that are not computed yet (options that may be absent).
+///
+/// # Errors
+/// As [`check`].
+pub fn check_paths(paths: &[&Option<PathBuf>], inputs: &[&Path], overwrite: bool) -> Result<()> {
+    let planned: Vec<Output> = paths
+        .iter()
+        .filter_map(|p| p.as_ref())
+        .map(|p| Output {
+            path: p.clone(),
+            bytes: Vec::new(),
+        })
+        .collect();
+    check(&planned, inputs, overwrite)
 }

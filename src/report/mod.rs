@@ -3,6 +3,7 @@
 
 pub mod csv;
 pub mod json;
+pub mod plot;
 pub mod spectrum;
 pub mod text;
 

@@ -1,0 +1,756 @@
+//! Figures: the fluctuation–dissipation plot, T_eff(f), and the resampled X.
+//!
+//! Each figure is drawn into memory and returned as SVG or PNG bytes, so it is written
+//! like every other output (atomically, never over a file without asking). Text uses the
+//! DejaVu Sans font compiled into the binary: no system font is needed. Sizes suit a
+//! one-column figure of a two-column paper (8.5 cm wide: the default 1000 px is 300 dpi)
+//! and a screen. The palette is fdtemp's own: four hues of clearly different lightness,
+//! each with its own marker shape, so the series stay apart in greyscale and for readers
+//! with colour-vision deficiencies.
+
+use crate::analysis::{Curve, FitReport};
+use crate::error::{Error, Result};
+use crate::fdplot::Axes;
+use crate::resample::quantile_sorted;
+use crate::settings::Units;
+use crate::spectral::analysis::SpectrumReport;
+use plotters::coord::Shift;
+use plotters::prelude::*;
+use std::path::Path;
+use std::sync::Once;
+
+static FONT: &[u8] = include_bytes!("../../assets/fonts/DejaVuSans.ttf");
+static REGISTER: Once = Once::new();
+
+fn register_font() {
+    REGISTER.call_once(|| {
+        // The bytes are a valid TrueType font compiled in; registration cannot fail.
+        let _ = plotters::style::register_font("sans-serif", FontStyle::Normal, FONT);
+    });
+}
+
+/// The file format of a figure.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Format {
+    /// Scalable vector graphics.
+    Svg,
+    /// Portable network graphics (RGB, 8 bit).
+    Png,
+}
+
+/// What to draw where.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Figure {
+    /// File format.
+    pub format: Format,
+    /// Width in pixels.
+    pub width: u32,
+    /// Height in pixels.
+    pub height: u32,
+}
+
+impl Figure {
+    /// The figure for a path: the format from its extension (`.svg` or `.png`).
+    ///
+    /// # Errors
+    /// [`Error::Setting`] for another extension or a size out of range.
+    pub fn for_path(path: &Path, size: (u32, u32)) -> Result<Self> {
+        let ext = path
+            .extension()
+            .and_then(|e| e.to_str())
+            .map(str::to_ascii_lowercase);
+        let format = match ext.as_deref() {
+            Some("svg") => Format::Svg,
+            Some("png") => Format::Png,
+            _ => {
+                return Err(Error::Setting(format!(
+                    "{}: a figure's file name must end in .svg or .png",
+                    path.display()
+                )));
+            }
+        };
+        let (width, height) = size;
+        if !(200..=8000).contains(&width) || !(150..=8000).contains(&height) {
+            return Err(Error::Setting(format!(
+                "--plot-size is {width}x{height}, expected between 200x150 and 8000x8000 pixels"
+            )));
+        }
+        Ok(Figure {
+            format,
+            width,
+            height,
+        })
+    }
+}
+
+/// Parses `WIDTHxHEIGHT`.
+///
+/// # Errors
+/// A message when the text is not two whole numbers joined by `x`.
+pub fn parse_size(s: &str) -> std::result::Result<(u32, u32), String> {
+    let (w, h) = s
+        .split_once(['x', 'X'])
+        .ok_or_else(|| format!("'{s}' is not WIDTHxHEIGHT"))?;
+    let num = |t: &str| {
+        t.trim()
+            .parse::<u32>()
+            .map_err(|_| format!("'{t}' in '{s}' is not a whole number"))
+    };
+    Ok((num(w)?, num(h)?))
+}
+
+/// fdtemp's series colours (navy, amber, teal, plum, slate, ochre) with marker shapes.
+const PALETTE: [RGBColor; 6] = [
+    RGBColor(0x1f, 0x3b, 0x73),
+    RGBColor(0xe0, 0x8a, 0x1e),
+    RGBColor(0x3f, 0xa7, 0xa0),
+    RGBColor(0xa2, 0x3b, 0x72),
+    RGBColor(0x6b, 0x6f, 0x78),
+    RGBColor(0xb8, 0x9b, 0x2c),
+];
+const INK: RGBColor = RGBColor(0x20, 0x20, 0x20);
+const BAND: RGBColor = RGBColor(0x9a, 0xa5, 0xb8);
+const REFERENCE: RGBColor = RGBColor(0x80, 0x80, 0x80);
+
+/// Font sizes scaled to the figure width (1000 px wide ≈ 8 pt at 8.5 cm).
+struct Scale {
+    label: f64,
+    tick: f64,
+    legend: f64,
+    marker: i32,
+    line: u32,
+}
+
+fn scale(width: u32) -> Scale {
+    let s = f64::from(width) / 1000.0;
+    Scale {
+        label: 34.0 * s,
+        tick: 28.0 * s,
+        legend: 25.0 * s,
+        marker: (7.0 * s).round().max(2.0) as i32,
+        line: (3.0 * s).round().max(1.0) as u32,
+    }
+}
+
+fn err<E: std::fmt::Debug>(what: &str) -> impl Fn(E) -> Error + '_ {
+    move |e| Error::Analysis(format!("cannot draw the {what}: {e:?}"))
+}
+
+/// Renders with the backend of the figure's format.
+fn render(
+    fig: Figure,
+    what: &str,
+    draw: impl Fn(DrawingArea<SVGBackend<'_>, Shift>) -> Result<()>,
+    draw_png: impl Fn(DrawingArea<BitMapBackend<'_>, Shift>) -> Result<()>,
+) -> Result<Vec<u8>> {
+    register_font();
+    match fig.format {
+        Format::Svg => {
+            let mut s = String::new();
+            {
+                let root =
+                    SVGBackend::with_string(&mut s, (fig.width, fig.height)).into_drawing_area();
+                root.fill(&WHITE).map_err(err(what))?;
+                draw(root.clone())?;
+                root.present().map_err(err(what))?;
+            }
+            Ok(s.into_bytes())
+        }
+        Format::Png => {
+            let mut buf = vec![0u8; fig.width as usize * fig.height as usize * 3];
+            {
+                let root = BitMapBackend::with_buffer(&mut buf, (fig.width, fig.height))
+                    .into_drawing_area();
+                root.fill(&WHITE).map_err(err(what))?;
+                draw_png(root.clone())?;
+                root.present().map_err(err(what))?;
+            }
+            encode_png(&buf, fig.width, fig.height)
+        }
+    }
+}
+
+fn encode_png(rgb: &[u8], width: u32, height: u32) -> Result<Vec<u8>> {
+    let mut out = Vec::new();
+    {
+        let mut enc = png::Encoder::new(&mut out, width, height);
+        enc.set_color(png::ColorType::Rgb);
+        enc.set_depth(png::BitDepth::Eight);
+        let mut w = enc.write_header().map_err(err("PNG"))?;
+        w.write_image_data(rgb).map_err(err("PNG"))?;
+    }
+    Ok(out)
+}
+
+/// A compact tick label: powers of ten as 10ⁿ outside [1e-3, 1e4), others trimmed.
+fn tick(v: f64) -> String {
+    if v == 0.0 {
+        return "0".into();
+    }
+    let a = v.abs();
+    let l = a.log10();
+    if !(1e-3..1e4).contains(&a) && (l - l.round()).abs() < 1e-9 {
+        const SUP: [char; 10] = ['⁰', '¹', '²', '³', '⁴', '⁵', '⁶', '⁷', '⁸', '⁹'];
+        let n = l.round() as i64;
+        let digits: String = n
+            .abs()
+            .to_string()
+            .chars()
+            .map(|d| SUP[d as usize - '0' as usize])
+            .collect();
+        let sign = if v < 0.0 { "−" } else { "" };
+        return format!("{sign}10{}{digits}", if n < 0 { "⁻" } else { "" });
+    }
+    if !(1e-3..1e5).contains(&a) {
+        return format!("{v:.1e}");
+    }
+    crate::analysis::fmt_num(v)
+}
+
+fn fmt_iv(v: Option<f64>, lo: Option<f64>, hi: Option<f64>) -> String {
+    let f = |x: f64| super::sig(x, 3);
+    match (v, lo, hi) {
+        (Some(v), Some(lo), Some(hi)) => format!("{} [{}, {}]", f(v), f(lo), f(hi)),
+        (Some(v), Some(lo), None) => format!("{} [{}, unbounded]", f(v), f(lo)),
+        (Some(v), _, _) => f(v),
+        _ => "undefined".into(),
+    }
+}
+
+/// The fluctuation–dissipation plot of a fit.
+///
+/// # Errors
+/// [`Error::Analysis`] when the joint fit has no curve or the drawing fails.
+pub fn fd_plot(r: &FitReport, fig: Figure) -> Result<Vec<u8>> {
+    let joint = &r.fits[0];
+    let curve = joint.curve.ok_or_else(|| {
+        Error::Analysis(
+            "cannot draw the fluctuation–dissipation plot: the joint fit has no curve".into(),
+        )
+    })?;
+    if r.points.is_empty() {
+        return Err(Error::Analysis(
+            "cannot draw the fluctuation–dissipation plot: no points".into(),
+        ));
+    }
+    render(
+        fig,
+        "fluctuation–dissipation plot",
+        |a| draw_fd(a, r, curve, fig),
+        |a| draw_fd(a, r, curve, fig),
+    )
+}
+
+fn draw_fd<DB: DrawingBackend>(
+    root: DrawingArea<DB, Shift>,
+    r: &FitReport,
+    curve: Curve,
+    fig: Figure,
+) -> Result<()> {
+    let e = err::<DrawingAreaErrorKind<DB::ErrorType>>("fluctuation–dissipation plot");
+    let sc = scale(fig.width);
+    let joint = &r.fits[0];
+    let pts = &r.points;
+    let xmax_data = pts
+        .iter()
+        .map(|p| p.x + p.x_se)
+        .fold(f64::NEG_INFINITY, f64::max);
+    let xmin_data = pts
+        .iter()
+        .map(|p| p.x - p.x_se)
+        .fold(f64::INFINITY, f64::min);
+    let ymax_data = pts
+        .iter()
+        .map(|p| p.y + p.y_se)
+        .fold(f64::NEG_INFINITY, f64::max);
+    let ymin_data = pts
+        .iter()
+        .map(|p| p.y - p.y_se)
+        .fold(f64::INFINITY, f64::min);
+    let x0 = xmin_data.min(0.0);
+    let x1 = xmax_data.max(curve.intercept.max(1.0));
+    let y0 = ymin_data.min(0.0);
+    // Head room for the legend above the data.
+    let y1 = ymax_data.max(curve.intercept) * 1.45;
+    let normalized = r.settings.axes_used == Axes::Normalized;
+    let xlabel = if normalized {
+        "C(t,tw) / C(t,t)"
+    } else {
+        "C(t,tw)"
+    };
+    let k = if r.settings.given.units == Units::Si {
+        ""
+    } else {
+        "   (k = 1)"
+    };
+    let ylabel = if normalized {
+        format!("k T χ(t,tw) / C(t,t){k}")
+    } else {
+        format!("k T χ(t,tw){k}")
+    };
+    let mut chart = ChartBuilder::on(&root)
+        .margin((fig.width / 40) as i32)
+        .x_label_area_size((sc.label * 2.4) as i32)
+        .y_label_area_size((sc.label * 3.0) as i32)
+        .build_cartesian_2d(x0..x1, y0..y1)
+        .map_err(&e)?;
+    chart
+        .configure_mesh()
+        .disable_mesh()
+        .x_desc(xlabel)
+        .y_desc(ylabel)
+        .axis_desc_style(("sans-serif", sc.label))
+        .label_style(("sans-serif", sc.tick))
+        .x_labels(6)
+        .y_labels(6)
+        .x_label_formatter(&|v| tick(*v))
+        .y_label_formatter(&|v| tick(*v))
+        .draw()
+        .map_err(&e)?;
+
+    // The break's interval and estimate.
+    if let (Some(lo), Some(hi)) = (joint.brk.low, joint.brk.high) {
+        chart
+            .draw_series(std::iter::once(Rectangle::new(
+                [(lo, y0), (hi, ymax_data + 0.08 * (ymax_data - y0))],
+                BAND.mix(0.18).filled(),
+            )))
+            .map_err(&e)?
+            .label(format!(
+                "break q = {}",
+                fmt_iv(joint.brk.estimate, joint.brk.low, joint.brk.high)
+            ))
+            .legend(move |(x, y)| {
+                Rectangle::new([(x, y - 6), (x + 20, y + 6)], BAND.mix(0.4).filled())
+            });
+    }
+    // Equilibrium: slope -1 through the fitted upper segment's level.
+    let eq = curve.intercept;
+    chart
+        .draw_series(DashedLineSeries::new(
+            vec![(x0, eq - x0), (x1, eq - x1)],
+            (12.0 * f64::from(fig.width) / 1000.0) as u32,
+            (8.0 * f64::from(fig.width) / 1000.0) as u32,
+            REFERENCE.stroke_width(sc.line),
+        ))
+        .map_err(&e)?
+        .label("equilibrium, slope −1")
+        .legend(move |(x, y)| {
+            PathElement::new(vec![(x, y), (x + 20, y)], REFERENCE.stroke_width(2))
+        });
+
+    // Bootstrap band of the fitted curve.
+    let level = r.settings.given.level;
+    if joint.curve_replicates.len() >= 20 {
+        let n = 160;
+        let (a, b) = (xmin_data.max(x0), xmax_data.min(x1));
+        let mut upper = Vec::with_capacity(n);
+        let mut lower = Vec::with_capacity(n);
+        let mut ys = vec![0.0; joint.curve_replicates.len()];
+        for i in 0..n {
+            let x = a + (b - a) * i as f64 / (n - 1) as f64;
+            for (y, c) in ys.iter_mut().zip(&joint.curve_replicates) {
+                *y = c.eval(x);
+            }
+            ys.sort_by(f64::total_cmp);
+            lower.push((x, quantile_sorted(&ys, (1.0 - level) / 2.0)));
+            upper.push((x, quantile_sorted(&ys, (1.0 + level) / 2.0)));
+        }
+        upper.extend(lower.into_iter().rev());
+        chart
+            .draw_series(std::iter::once(Polygon::new(
+                upper,
+                PALETTE[0].mix(0.22).filled(),
+            )))
+            .map_err(&e)?
+            .label(format!("{:.0}% resampling band", 100.0 * level))
+            .legend(move |(x, y)| {
+                Rectangle::new([(x, y - 6), (x + 20, y + 6)], PALETTE[0].mix(0.3).filled())
+            });
+    }
+
+    // Points per waiting time, with standard errors.
+    for (i, &tw) in r.waiting_times.iter().enumerate() {
+        let c = PALETTE[i % PALETTE.len()];
+        let mine: Vec<_> = pts.iter().filter(|p| p.tw.total_cmp(&tw).is_eq()).collect();
+        chart
+            .draw_series(mine.iter().map(|p| {
+                ErrorBar::new_vertical(
+                    p.x,
+                    p.y - p.y_se,
+                    p.y,
+                    p.y + p.y_se,
+                    c.stroke_width(1),
+                    sc.marker as u32,
+                )
+            }))
+            .map_err(&e)?;
+        chart
+            .draw_series(mine.iter().map(|p| {
+                ErrorBar::new_horizontal(
+                    p.y,
+                    p.x - p.x_se,
+                    p.x,
+                    p.x + p.x_se,
+                    c.stroke_width(1),
+                    sc.marker as u32,
+                )
+            }))
+            .map_err(&e)?;
+        let ms = sc.marker;
+        let label = format!("tw = {}", crate::analysis::fmt_num(tw));
+        // Shapes differ per series (filled circle, filled triangle, cross, open circle) so
+        // the series stay apart without colour.
+        macro_rules! series {
+            ($shape:expr) => {
+                chart
+                    .draw_series(mine.iter().map(|p| $shape((p.x, p.y))))
+                    .map_err(&e)?
+                    .label(label)
+                    .legend(move |(x, y)| $shape((x + 10, y)))
+            };
+        }
+        match i % 4 {
+            0 => series!(|at| Circle::new(at, ms, c.filled())),
+            1 => series!(|at| TriangleMarker::new(at, ms + 2, c.filled())),
+            2 => series!(|at| Cross::new(at, ms, c.stroke_width(sc.line))),
+            _ => series!(|at| Circle::new(at, ms, c.stroke_width(sc.line))),
+        };
+    }
+
+    // The fitted broken stick.
+    let fit_pts: Vec<(f64, f64)> = [xmin_data.max(x0), curve.q, xmax_data.min(x1)]
+        .iter()
+        .map(|&x| (x, curve.eval(x)))
+        .collect();
+    let t_eff = fmt_iv(joint.t_eff.estimate, joint.t_eff.low, joint.t_eff.high);
+    chart
+        .draw_series(LineSeries::new(fit_pts, INK.stroke_width(sc.line)))
+        .map_err(&e)?
+        .label(format!(
+            "fit: X = {}",
+            fmt_iv(joint.ratio.estimate, joint.ratio.low, joint.ratio.high)
+        ))
+        .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], INK.stroke_width(3)));
+    chart
+        .draw_series(std::iter::empty::<Circle<(f64, f64), i32>>())
+        .map_err(&e)?
+        .label(format!("T_eff = {t_eff}"))
+        .legend(|(x, y)| EmptyElement::at((x, y)));
+
+    chart
+        .configure_series_labels()
+        .position(SeriesLabelPosition::UpperRight)
+        .background_style(WHITE.filled())
+        .border_style(REFERENCE)
+        .label_font(("sans-serif", sc.legend))
+        .draw()
+        .map_err(&e)?;
+    Ok(())
+}
+
+/// The histogram of the resampled X of the joint fit, with the estimate and interval.
+///
+/// # Errors
+/// [`Error::Analysis`] when there are no resamples, they do not vary, or drawing fails.
+pub fn ratio_histogram(r: &FitReport, fig: Figure) -> Result<Vec<u8>> {
+    let joint = &r.fits[0];
+    let mut reps: Vec<f64> = joint
+        .ratio_replicates
+        .iter()
+        .copied()
+        .filter(|v| v.is_finite())
+        .collect();
+    if reps.len() < 2 {
+        return Err(Error::Analysis(
+            "cannot draw the resample histogram: no resampled X".into(),
+        ));
+    }
+    reps.sort_by(f64::total_cmp);
+    let (lo, hi) = (reps[0], reps[reps.len() - 1]);
+    // Identical resamples differ only by rounding: no distribution to draw.
+    if !(hi - lo > 1e-9 * lo.abs().max(hi.abs()).max(f64::MIN_POSITIVE)) {
+        return Err(Error::Analysis(format!(
+            "cannot draw the resample histogram: every resample gives X = {}",
+            super::sig(lo, 4)
+        )));
+    }
+    render(
+        fig,
+        "resample histogram",
+        |a| draw_hist(a, r, &reps, fig),
+        |a| draw_hist(a, r, &reps, fig),
+    )
+}
+
+fn draw_hist<DB: DrawingBackend>(
+    root: DrawingArea<DB, Shift>,
+    r: &FitReport,
+    reps: &[f64],
+    fig: Figure,
+) -> Result<()> {
+    let e = err::<DrawingAreaErrorKind<DB::ErrorType>>("resample histogram");
+    let sc = scale(fig.width);
+    let joint = &r.fits[0];
+    let n = reps.len();
+    // Freedman–Diaconis bin width.
+    let iqr = quantile_sorted(reps, 0.75) - quantile_sorted(reps, 0.25);
+    let (lo, hi) = (reps[0], reps[n - 1]);
+    let width = if iqr > 0.0 {
+        2.0 * iqr / (n as f64).cbrt()
+    } else {
+        (hi - lo) / 30.0
+    };
+    let bins = (((hi - lo) / width).ceil() as usize).clamp(10, 120);
+    let w = (hi - lo) / bins as f64;
+    let mut counts = vec![0u32; bins];
+    for v in reps {
+        counts[(((v - lo) / w) as usize).min(bins - 1)] += 1;
+    }
+    let ymax = f64::from(*counts.iter().max().unwrap_or(&1)) * 1.35;
+    let pad = 0.05 * (hi - lo);
+    let mut chart = ChartBuilder::on(&root)
+        .margin((fig.width / 40) as i32)
+        .x_label_area_size((sc.label * 2.4) as i32)
+        .y_label_area_size((sc.label * 3.0) as i32)
+        .build_cartesian_2d((lo - pad)..(hi + pad), 0.0..ymax)
+        .map_err(&e)?;
+    chart
+        .configure_mesh()
+        .disable_mesh()
+        .x_desc("X, fluctuation–dissipation ratio (joint fit)")
+        .y_desc("resamples")
+        .axis_desc_style(("sans-serif", sc.label))
+        .label_style(("sans-serif", sc.tick))
+        .x_labels(6)
+        .y_labels(5)
+        .x_label_formatter(&|v| tick(*v))
+        .y_label_formatter(&|v| tick(*v))
+        .draw()
+        .map_err(&e)?;
+    chart
+        .draw_series(counts.iter().enumerate().map(|(i, &c)| {
+            let x = lo + i as f64 * w;
+            Rectangle::new(
+                [(x, 0.0), (x + w, f64::from(c))],
+                PALETTE[0].mix(0.55).filled(),
+            )
+        }))
+        .map_err(&e)?
+        .label(format!("{n} resamples of whole samples"))
+        .legend(|(x, y)| {
+            Rectangle::new([(x, y - 6), (x + 20, y + 6)], PALETTE[0].mix(0.55).filled())
+        });
+    if let Some(est) = joint.ratio.estimate {
+        chart
+            .draw_series(LineSeries::new(
+                vec![(est, 0.0), (est, ymax / 1.35)],
+                INK.stroke_width(sc.line),
+            ))
+            .map_err(&e)?
+            .label(format!("estimate X = {}", super::sig(est, 3)))
+            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], INK.stroke_width(3)));
+    }
+    if let (Some(a), Some(b)) = (joint.ratio.low, joint.ratio.high) {
+        let dash = (10.0 * f64::from(fig.width) / 1000.0) as u32;
+        for (i, v) in [a, b].into_iter().enumerate() {
+            let s = chart
+                .draw_series(DashedLineSeries::new(
+                    vec![(v, 0.0), (v, ymax / 1.35)],
+                    dash,
+                    dash,
+                    PALETTE[1].stroke_width(sc.line),
+                ))
+                .map_err(&e)?;
+            if i == 0 {
+                s.label(format!(
+                    "{:.0}% {} interval [{}, {}]",
+                    100.0 * r.settings.given.level,
+                    r.settings.given.interval.label(),
+                    super::sig(a, 3),
+                    super::sig(b, 3)
+                ))
+                .legend(|(x, y)| {
+                    PathElement::new(vec![(x, y), (x + 20, y)], PALETTE[1].stroke_width(3))
+                });
+            }
+        }
+    }
+    chart
+        .configure_series_labels()
+        .position(SeriesLabelPosition::UpperRight)
+        .background_style(WHITE.filled())
+        .border_style(REFERENCE)
+        .label_font(("sans-serif", sc.legend))
+        .draw()
+        .map_err(&e)?;
+    Ok(())
+}
+
+/// T_eff(f) on a log frequency axis, with interval band, the bath and the departure.
+///
+/// # Errors
+/// [`Error::Analysis`] when there is no positive T_eff to draw or drawing fails.
+pub fn teff_plot(r: &SpectrumReport, fig: Figure) -> Result<Vec<u8>> {
+    let any = r
+        .spectra
+        .iter()
+        .flat_map(|s| &s.points)
+        .any(|p| p.t_eff > 0.0);
+    if !any {
+        return Err(Error::Analysis(
+            "cannot draw T_eff(f): no positive effective temperature".into(),
+        ));
+    }
+    render(
+        fig,
+        "T_eff(f) figure",
+        |a| draw_teff(a, r, fig),
+        |a| draw_teff(a, r, fig),
+    )
+}
+
+fn draw_teff<DB: DrawingBackend>(
+    root: DrawingArea<DB, Shift>,
+    r: &SpectrumReport,
+    fig: Figure,
+) -> Result<()> {
+    let e = err::<DrawingAreaErrorKind<DB::ErrorType>>("T_eff(f) figure");
+    let sc = scale(fig.width);
+    let pts = r
+        .spectra
+        .iter()
+        .flat_map(|s| &s.points)
+        .filter(|p| p.t_eff > 0.0 && p.f > 0.0);
+    let (mut f0, mut f1, mut t0, mut t1) = (f64::INFINITY, 0.0f64, f64::INFINITY, 0.0f64);
+    for p in pts {
+        f0 = f0.min(p.f);
+        f1 = f1.max(p.f);
+        t0 = t0.min(p.low.filter(|v| *v > 0.0).unwrap_or(p.t_eff));
+        t1 = t1.max(p.high.unwrap_or(p.t_eff));
+    }
+    if let Some(t) = r.settings.temperature {
+        t0 = t0.min(t);
+        t1 = t1.max(t);
+    }
+    let unit = if r.settings.units == Units::Si {
+        " (K)"
+    } else {
+        ""
+    };
+    let log_y = t1 / t0 > 8.0;
+    let (t0, t1) = if log_y {
+        (t0 / 1.3, t1 * 6.0)
+    } else {
+        (t0 - 0.1 * (t1 - t0), t1 + 0.6 * (t1 - t0))
+    };
+    let f_range = (f0 / 1.2)..(f1 * 1.2);
+    let root_area = root;
+    macro_rules! body {
+        ($chart:expr) => {{
+            let mut chart = $chart;
+            chart
+                .configure_mesh()
+                .disable_mesh()
+                .x_desc("f (Hz)")
+                .y_desc(format!("T_eff{unit}"))
+                .axis_desc_style(("sans-serif", sc.label))
+                .label_style(("sans-serif", sc.tick))
+                .x_label_formatter(&|v| tick(*v))
+                .y_label_formatter(&|v| tick(*v))
+                .draw()
+                .map_err(&e)?;
+            for (i, s) in r.spectra.iter().enumerate() {
+                let c = PALETTE[i % PALETTE.len()];
+                let ok: Vec<_> = s.points.iter().filter(|p| p.t_eff > 0.0).collect();
+                let band: Vec<(f64, f64)> = ok
+                    .iter()
+                    .filter_map(|p| Some((p.f, p.high?)))
+                    .chain(ok.iter().rev().filter_map(|p| Some((p.f, p.low?.max(t0)))))
+                    .collect();
+                if band.len() > 2 {
+                    chart
+                        .draw_series(std::iter::once(Polygon::new(band, c.mix(0.2).filled())))
+                        .map_err(&e)?
+                        .label(format!("{:.0}% interval", 100.0 * r.settings.level))
+                        .legend(move |(x, y)| {
+                            Rectangle::new([(x, y - 6), (x + 20, y + 6)], c.mix(0.3).filled())
+                        });
+                }
+                let label = s.tw.map_or_else(
+                    || "T_eff(f)".to_string(),
+                    |t| format!("T_eff(f), tw = {}", crate::analysis::fmt_num(t)),
+                );
+                chart
+                    .draw_series(LineSeries::new(
+                        ok.iter().map(|p| (p.f, p.t_eff)),
+                        c.stroke_width(sc.line),
+                    ))
+                    .map_err(&e)?
+                    .label(label)
+                    .legend(move |(x, y)| {
+                        PathElement::new(vec![(x, y), (x + 20, y)], c.stroke_width(3))
+                    });
+                if let Some(fd) = s.departure_below_hz {
+                    chart
+                        .draw_series(DashedLineSeries::new(
+                            vec![(fd, t0), (fd, t1)],
+                            (10.0 * f64::from(fig.width) / 1000.0) as u32,
+                            (8.0 * f64::from(fig.width) / 1000.0) as u32,
+                            PALETTE[3].stroke_width(sc.line),
+                        ))
+                        .map_err(&e)?
+                        .label(format!("departs from T below {} Hz", super::sig(fd, 3)))
+                        .legend(|(x, y)| {
+                            PathElement::new(vec![(x, y), (x + 20, y)], PALETTE[3].stroke_width(3))
+                        });
+                }
+            }
+            if let Some(t) = r.settings.temperature {
+                chart
+                    .draw_series(DashedLineSeries::new(
+                        vec![(f0 / 1.2, t), (f1 * 1.2, t)],
+                        (12.0 * f64::from(fig.width) / 1000.0) as u32,
+                        (8.0 * f64::from(fig.width) / 1000.0) as u32,
+                        REFERENCE.stroke_width(sc.line),
+                    ))
+                    .map_err(&e)?
+                    .label(format!(
+                        "bath T = {}{}",
+                        super::sig(t, 4),
+                        unit.replace(['(', ')'], "")
+                    ))
+                    .legend(|(x, y)| {
+                        PathElement::new(vec![(x, y), (x + 20, y)], REFERENCE.stroke_width(2))
+                    });
+            }
+            chart
+                .configure_series_labels()
+                .position(SeriesLabelPosition::UpperRight)
+                .background_style(WHITE.filled())
+                .border_style(REFERENCE)
+                .label_font(("sans-serif", sc.legend))
+                .draw()
+                .map_err(&e)?;
+        }};
+    }
+    let mut builder = ChartBuilder::on(&root_area);
+    builder
+        .margin((fig.width / 40) as i32)
+        .x_label_area_size((sc.label * 2.4) as i32)
+        .y_label_area_size((sc.label * 3.2) as i32);
+    if log_y {
+        body!(
+            builder
+                .build_cartesian_2d(f_range.log_scale(), (t0..t1).log_scale())
+                .map_err(&e)?
+        );
+    } else {
+        body!(
+            builder
+                .build_cartesian_2d(f_range.log_scale(), t0..t1)
+                .map_err(&e)?
+        );
+    }
+    Ok(())
+}
