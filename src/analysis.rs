@@ -22,7 +22,7 @@ use crate::error::{Error, Result};
 use crate::fdplot::{Axes, Parametric, Transform, data_matrix};
 use crate::fit::{Base, Workspace, broken, fit_line};
 use crate::resample::{self, IntervalMethod, interval};
-use crate::settings::{FitSettings, Model, Weighting};
+use crate::settings::{FitSettings, Hold, Model, Weighting};
 use ndarray::Array2;
 use rayon::prelude::*;
 use serde::Serialize;
@@ -108,8 +108,10 @@ impl Curve {
 /// The fit of one group of points: all waiting times (`tw = None`) or one waiting time.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct GroupFit {
-    /// The waiting time, or `None` for the joint fit over all of them.
+    /// The waiting time held fixed along this curve (`--hold tw`), `None` for the joint fit.
     pub tw: Option<f64>,
+    /// The later time held fixed along this curve (`--hold t`), `None` otherwise.
+    pub t: Option<f64>,
     /// The fitted model.
     pub model: Model,
     /// Number of independent samples.
@@ -172,14 +174,16 @@ pub struct PointRecord {
     pub y_se: f64,
 }
 
-/// The comparison of X at the youngest and oldest waiting time.
+/// The comparison of X on the first and the last curve (smallest and largest held time).
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct AgingCheck {
-    /// Youngest waiting time.
-    pub tw_first: f64,
-    /// Oldest waiting time.
-    pub tw_last: f64,
-    /// `X(tw_last) − X(tw_first)` with its percentile interval.
+    /// Which time is held along the curves.
+    pub hold: Hold,
+    /// The smallest held time.
+    pub first: f64,
+    /// The largest held time.
+    pub last: f64,
+    /// `X(last) − X(first)` with its percentile interval.
     pub ratio_change: Estimate,
 }
 
@@ -261,7 +265,8 @@ struct Spec {
 
 /// A group of points and what its fits need.
 struct Group {
-    tw: Option<f64>,
+    /// The held time (tw or t), `None` for the joint fit.
+    held: Option<f64>,
     idx: Vec<usize>,
     w: Vec<f64>,
 }
@@ -295,7 +300,7 @@ impl Scratch {
 fn base_of(model: Model) -> Base {
     match model {
         Model::Broken => Base::Constant,
-        Model::Free => Base::Line,
+        Model::Free | Model::Line => Base::Line,
     }
 }
 
@@ -319,9 +324,12 @@ fn fit_group(
         sc.y.push(y[j]);
         let r = match model {
             Model::Broken => y[j] + x[j],
-            Model::Free => y[j],
+            Model::Free | Model::Line => y[j],
         };
         sc.r.push(r - r_shift.map_or(0.0, |s| s[k]));
+    }
+    if model == Model::Line {
+        return fit_single_line(&sc.x, &sc.r, &g.w);
     }
     let sol = broken::search(
         &sc.x,
@@ -349,7 +357,7 @@ fn fit_group(
             let fast = fit_line(&sc.fx, &sc.fy, Some(&sc.fw)).map_or(f64::NAN, |l| l.slope);
             (1.0 + sol.c, fast)
         }
-        Model::Free => (sol.c - sol.b, sol.b),
+        Model::Free | Model::Line => (sol.c - sol.b, sol.b),
     };
     Some(Values {
         ratio,
@@ -357,6 +365,31 @@ fn fit_group(
         fast,
         sol,
     })
+}
+
+/// The single free line `r = a + b x` (X = −b), against the null of slope −1.
+fn fit_single_line(x: &[f64], r: &[f64], w: &[f64]) -> Option<Values> {
+    let line = fit_line(x, r, Some(w))?;
+    let sw: f64 = w.iter().sum();
+    let z_mean = (0..x.len()).map(|k| w[k] * (r[k] + x[k])).sum::<f64>() / sw;
+    let (mut sse, mut sse_null) = (0.0, 0.0);
+    for k in 0..x.len() {
+        sse += w[k] * (r[k] - line.intercept - line.slope * x[k]).powi(2);
+        sse_null += w[k] * (r[k] + x[k] - z_mean).powi(2);
+    }
+    let x_min = x.iter().copied().fold(f64::INFINITY, f64::min);
+    let sol = broken::BreakSolution {
+        q: x_min,
+        a: line.intercept,
+        b: line.slope,
+        c: 0.0,
+        sse,
+        sse_null,
+        n_below: 0,
+        interval: 0,
+        n_intervals: 1,
+    };
+    Some(Values { ratio: -line.slope, q: f64::NAN, fast: line.slope, sol })
 }
 
 /// Runs the whole time-domain analysis.
@@ -404,30 +437,31 @@ pub fn analyze(
     let var: Vec<f64> = (0..p)
         .map(|j| match model {
             Model::Broken => pm.x_se[j].powi(2) + pm.y_se[j].powi(2) + 2.0 * pm.xy_cov[j],
-            Model::Free => pm.y_se[j].powi(2),
+            Model::Free | Model::Line => pm.y_se[j].powi(2),
         })
         .collect();
     let weights = point_weights(&var, settings.weights, &mut warnings);
 
     // Groups: all points, then one per waiting time.
     let tws = campaign.waiting_times();
-    let mut groups = vec![Group {
-        tw: None,
-        idx: (0..p).collect(),
-        w: weights.clone(),
-    }];
-    if tws.len() > 1 {
-        for &tw in &tws {
-            let idx: Vec<usize> = (0..p)
-                .filter(|&j| campaign.points()[j].tw.total_cmp(&tw).is_eq())
-                .collect();
-            let w = idx.iter().map(|&j| weights[j]).collect();
-            groups.push(Group {
-                tw: Some(tw),
-                idx,
-                w,
-            });
-        }
+    let held_of = |j: usize| match settings.hold {
+        Hold::Tw => campaign.points()[j].tw,
+        Hold::T => campaign.points()[j].t,
+    };
+    let mut helds: Vec<f64> = (0..p).map(held_of).collect();
+    helds.sort_by(f64::total_cmp);
+    helds.dedup();
+    let in_range = |j: usize| settings.range.is_none_or(|[lo, hi]| pm.x[j] >= lo && pm.x[j] <= hi);
+    let make = |held: Option<f64>| {
+        let idx: Vec<usize> = (0..p)
+            .filter(|&j| in_range(j) && held.is_none_or(|h| held_of(j).total_cmp(&h).is_eq()))
+            .collect();
+        let w = idx.iter().map(|&j| weights[j]).collect();
+        Group { held, idx, w }
+    };
+    let mut groups = vec![make(None)];
+    if helds.len() > 1 {
+        groups.extend(helds.iter().map(|&h| make(Some(h))));
     }
 
     // Estimates.
@@ -556,12 +590,13 @@ pub fn analyze(
         && let (Some(lo), Some(hi)) = (a.ratio_change.low, a.ratio_change.high)
         && (lo > 0.0 || hi < 0.0)
     {
+        let h = a.hold.name();
         warnings.push(format!(
-            "X changes with age: from tw = {} to tw = {} it moves by {:+.3} [{:+.3}, {:+.3}]; \
+            "X changes with age: from {h} = {} to {h} = {} it moves by {:+.3} [{:+.3}, {:+.3}]; \
              the slow regime has not reached its aging limit, so the joint fit mixes ages — \
-             quote the per-tw values or the oldest one",
-            fmt_num(a.tw_first),
-            fmt_num(a.tw_last),
+             quote the per-{h} values or the oldest one",
+            fmt_num(a.first),
+            fmt_num(a.last),
             a.ratio_change.estimate.unwrap_or(f64::NAN),
             lo,
             hi
@@ -660,6 +695,11 @@ fn null_shift(g: &Group, x: &[f64], y: &[f64], model: Model) -> Vec<f64> {
             let c0 = r.iter().zip(&g.w).map(|(r, w)| r * w).sum::<f64>() / sw;
             r.iter().map(|r| r - c0).collect()
         }
+        Model::Line => {
+            let sw: f64 = g.w.iter().sum();
+            let c0 = gx.iter().zip(&gy).zip(&g.w).map(|((x, y), w)| w * (x + y)).sum::<f64>() / sw;
+            gx.iter().zip(&gy).map(|(x, y)| y - (c0 - x)).collect()
+        }
         Model::Free => match fit_line(&gx, &gy, Some(&g.w)) {
             Some(l) => gx
                 .iter()
@@ -681,8 +721,13 @@ fn assemble(
     s: &FitSettings,
     n: usize,
 ) -> GroupFit {
+    let (tw, t) = match s.hold {
+        Hold::Tw => (g.held, None),
+        Hold::T => (None, g.held),
+    };
     let mut fit = GroupFit {
-        tw: g.tw,
+        tw,
+        t,
         model: s.model,
         n_samples: n,
         n_points: g.idx.len(),
@@ -736,7 +781,7 @@ fn assemble(
             Estimate::with(e.fast, iv(e.fast, |v| v.fast).as_ref())
         }
         Model::Broken => Estimate::none("fewer than 3 points above the break"),
-        Model::Free => Estimate::with(e.fast, iv(e.fast, |v| v.fast).as_ref()),
+        Model::Free | Model::Line => Estimate::with(e.fast, iv(e.fast, |v| v.fast).as_ref()),
     };
     fit.curve = Some(curve_of(&e, s.model));
     fit.ratio_replicates = series(|v| v.ratio);
@@ -757,7 +802,9 @@ fn assemble(
     let alpha = 1.0 - s.level;
     let violated = pval < alpha;
 
-    if violated {
+    if s.model == Model::Line {
+        fit.brk = Estimate::none("the single-line model has no break");
+    } else if violated {
         fit.brk = Estimate::with(e.q, q_iv.as_ref());
     } else {
         fit.brk = Estimate::none(format!(
@@ -769,7 +816,7 @@ fn assemble(
     // Profile interval of the break.
     let params = if s.model == Model::Broken { 3.0 } else { 4.0 };
     let dof = g.idx.len() as f64 - params;
-    if dof > 0.0 && violated {
+    if dof > 0.0 && violated && s.model != Model::Line {
         let chi = statrs::distribution::ChiSquared::new(1.0)
             .map(|d| statrs::distribution::ContinuousCDF::inverse_cdf(&d, s.level))
             .unwrap_or(3.84);
@@ -797,7 +844,7 @@ fn assemble(
         ));
     }
     let n_int = e.sol.n_intervals;
-    if violated && !ok.is_empty() {
+    if violated && !ok.is_empty() && s.model != Model::Line {
         let edge = ok
             .iter()
             .filter(|(v, _)| v.sol.interval == 0 || v.sol.interval + 1 == n_int)
@@ -828,7 +875,7 @@ fn assemble(
         fit.fast_slope.low,
         fit.fast_slope.high,
     ) && (hi < -1.0 || lo > -1.0)
-        && (v + 1.0).abs() > if g.tw.is_none() { 1e-3 } else { 0.1 }
+        && (v + 1.0).abs() > if g.held.is_none() { 1e-3 } else { 0.1 }
     {
         w.push(format!(
             "the slope above the break is {:.3} [{:.3}, {:.3}], not -1: the thermometer or the \
@@ -853,7 +900,7 @@ fn assemble(
             ));
         }
     }
-    fit.verdict = verdict(&fit, violated, &fmt_p_resampled(pval, nulls.len()), alpha);
+    fit.verdict = verdict(&fit, s.model, violated, &fmt_p_resampled(pval, nulls.len()), alpha);
     fit
 }
 
@@ -861,7 +908,7 @@ fn assemble(
 fn curve_of(v: &Values, model: Model) -> Curve {
     let (slope_above, slope_below) = match model {
         Model::Broken => (-1.0, -v.ratio),
-        Model::Free => (v.sol.b, v.sol.b - v.sol.c),
+        Model::Free | Model::Line => (v.sol.b, v.sol.b - v.sol.c),
     };
     Curve {
         q: v.q,
@@ -905,11 +952,23 @@ fn t_eff_estimate(temperature: f64, ratio: &Estimate) -> Estimate {
     }
 }
 
-fn verdict(fit: &GroupFit, violated: bool, p: &str, alpha: f64) -> String {
+fn verdict(fit: &GroupFit, model: Model, violated: bool, p: &str, alpha: f64) -> String {
     let (x, lo, hi) = match (fit.ratio.estimate, fit.ratio.low, fit.ratio.high) {
         (Some(x), Some(lo), Some(hi)) => (x, lo, hi),
         _ => return "no interval for X could be formed".into(),
     };
+    if model == Model::Line {
+        return if violated {
+            format!(
+                "one line of slope -X with X = {x:.3} [{lo:.3}, {hi:.3}]: the slope differs \
+                 from the equilibrium -1 (p = {p})"
+            )
+        } else {
+            format!(
+                "equilibrium: the slope is compatible with -1 (p = {p}); X = {x:.3} [{lo:.3}, {hi:.3}]"
+            )
+        };
+    }
     let pct = 100.0 * (1.0 - alpha);
     if !violated {
         return format!(
@@ -969,8 +1028,9 @@ fn aging_check(
     let estimate = est[last]?.ratio - est[first]?.ratio;
     let iv = interval(estimate, &diffs, None, IntervalMethod::Percentile, s.level)?;
     Some(AgingCheck {
-        tw_first: groups[first].tw.unwrap_or(f64::NAN),
-        tw_last: groups[last].tw.unwrap_or(f64::NAN),
+        hold: s.hold,
+        first: groups[first].held.unwrap_or(f64::NAN),
+        last: groups[last].held.unwrap_or(f64::NAN),
         ratio_change: Estimate::with(estimate, Some(&iv)),
     })
 }

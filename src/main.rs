@@ -7,7 +7,7 @@ use fdtemp::input::ColumnNames;
 use fdtemp::output::{self, Output};
 use fdtemp::report::plot::{self, Figure};
 use fdtemp::resample::IntervalMethod;
-use fdtemp::settings::{FitSettings, Model, Units, Weighting};
+use fdtemp::settings::{FitSettings, Hold, Model, Units, Weighting};
 use fdtemp::spectral::analysis::ErrorModel;
 use fdtemp::spectral::input::Window;
 use fdtemp::spectral::{Convention, SpectrumSettings};
@@ -172,7 +172,7 @@ struct FitArgs {
     /// Parametric axes: auto (normalized when corr_eq is present), plain or normalized.
     #[arg(long, value_enum, default_value_t = Axes::Auto)]
     axes: Axes,
-    /// Model: broken (first slope fixed at -1) or free (both slopes fitted).
+    /// Model: broken (first slope fixed at -1), free (both slopes fitted), or line (one slope).
     #[arg(long, value_enum, default_value_t = Model::Broken)]
     model: Model,
     /// Point weights.
@@ -193,6 +193,12 @@ struct FitArgs {
     /// Least number of points on each side of the break.
     #[arg(long, default_value_t = 5)]
     min_branch: usize,
+    /// Which time is held fixed along one curve: tw (t runs) or t (the earlier time runs).
+    #[arg(long, value_enum, default_value_t = Hold::Tw)]
+    hold: Hold,
+    /// Fit only points whose parametric x (C, or C/C(t,t)) lies in CMIN:CMAX.
+    #[arg(long, value_parser = parse_band, value_name = "CMIN:CMAX", allow_hyphen_values = true)]
+    range: Option<[f64; 2]>,
     /// Map a column role to another header name, e.g. --column resp=chi_zfc (repeatable).
     #[arg(long = "column", value_name = "ROLE=NAME")]
     columns: Vec<String>,
@@ -325,6 +331,8 @@ fn fit(a: FitArgs) -> fdtemp::Result<()> {
         level: a.level,
         interval: a.interval,
         min_branch: a.min_branch,
+        hold: a.hold,
+        range: a.range,
     };
     settings.validate()?;
     let figure = a.plot.figure()?;

@@ -36,6 +36,8 @@ pub enum Model {
     /// Both slopes free; the first is reported against −1 as a thermometer check; null:
     /// one straight line of free slope.
     Free,
+    /// One straight line of free slope −X through all points (no break); null: slope −1.
+    Line,
 }
 
 impl Model {
@@ -44,6 +46,27 @@ impl Model {
         match self {
             Model::Broken => "broken stick, first slope fixed at -1",
             Model::Free => "broken stick, both slopes free",
+            Model::Line => "one straight line, slope free (no break)",
+        }
+    }
+}
+
+/// Which time is held fixed along one curve of the parametric plot.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, clap::ValueEnum)]
+#[serde(rename_all = "lowercase")]
+pub enum Hold {
+    /// The waiting time is fixed; the later time t runs (the usual zero-field-cooled form).
+    Tw,
+    /// The later time t is fixed; the earlier time runs.
+    T,
+}
+
+impl Hold {
+    /// The name of the held time in reports.
+    pub fn name(self) -> &'static str {
+        match self {
+            Hold::Tw => "tw",
+            Hold::T => "t",
         }
     }
 }
@@ -81,6 +104,10 @@ pub struct FitSettings {
     pub interval: IntervalMethod,
     /// Least number of points on each side of the break.
     pub min_branch: usize,
+    /// Which time is held fixed along a curve (groups the per-curve fits).
+    pub hold: Hold,
+    /// Only points with x in `[lo, hi]` are fitted (all when `None`).
+    pub range: Option<[f64; 2]>,
 }
 
 impl Default for FitSettings {
@@ -96,6 +123,8 @@ impl Default for FitSettings {
             level: 0.95,
             interval: IntervalMethod::Bca,
             min_branch: 5,
+            hold: Hold::Tw,
+            range: None,
         }
     }
 }
@@ -122,6 +151,13 @@ impl FitSettings {
             return Err(Error::Setting(format!(
                 "--resamples is {}, expected at least 100 (2000 or more for intervals a paper can quote)",
                 self.resamples
+            )));
+        }
+        if let Some([lo, hi]) = self.range
+            && !(hi > lo)
+        {
+            return Err(Error::Setting(format!(
+                "--range is {lo}:{hi}, expected CMIN:CMAX with CMIN < CMAX"
             )));
         }
         if self.min_branch < 2 {

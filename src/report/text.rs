@@ -26,7 +26,7 @@ fn est(e: &Estimate) -> String {
 }
 
 fn label(f: &GroupFit) -> String {
-    f.tw.map_or_else(|| "all".into(), fmt_num)
+    f.tw.or(f.t).map_or_else(|| "all".into(), fmt_num)
 }
 
 /// The human-readable report.
@@ -82,8 +82,9 @@ pub fn render(r: &FitReport) -> Vec<u8> {
         g.seed
     );
     let _ = writeln!(o);
+    let held = g.hold.name();
     let mut rows: Vec<[String; 7]> = vec![[
-        "tw".into(),
+        held.into(),
         "points".into(),
         "break q".into(),
         "X".into(),
@@ -113,23 +114,23 @@ pub fn render(r: &FitReport) -> Vec<u8> {
     let _ = writeln!(o);
     let _ = writeln!(o, "verdict    {}", r.verdict);
     for f in r.fits.iter().skip(1) {
-        let _ = writeln!(o, "  tw = {:<6} {}", label(f), f.verdict);
+        let _ = writeln!(o, "  {held} = {:<6} {}", label(f), f.verdict);
     }
     if let Some(a) = &r.aging {
         let _ = writeln!(
             o,
-            "aging      X(tw = {}) − X(tw = {}) = {} (percentile interval)",
-            fmt_num(a.tw_last),
-            fmt_num(a.tw_first),
+            "aging      X({held} = {}) − X({held} = {}) = {} (percentile interval)",
+            fmt_num(a.last),
+            fmt_num(a.first),
             est(&a.ratio_change)
         );
     }
 
     let mut cautions: Vec<String> = r.warnings.clone();
     for f in &r.fits {
-        let who = f.tw.map_or_else(
-            || "all waiting times".into(),
-            |t| format!("tw = {}", fmt_num(t)),
+        let who = f.tw.or(f.t).map_or_else(
+            || "all curves together".into(),
+            |t| format!("{held} = {}", fmt_num(t)),
         );
         cautions.extend(f.warnings.iter().map(|w| format!("{who}: {w}")));
         for (what, e) in [("break q", &f.brk), ("X", &f.ratio), ("T_eff", &f.t_eff)] {
@@ -170,13 +171,14 @@ pub fn methods(r: &FitReport) -> String {
         Model::Free => {
             "a two-segment line with free slopes above and below a break q (X = minus the lower slope)"
         }
+        Model::Line => "one straight line of free slope -X",
     };
     let weights = match (g.weights, g.model) {
         (Weighting::Uniform, _) => "with uniform weights",
         (Weighting::InverseVariance, Model::Broken) => {
             "weighted by the inverse sample variance of k·T·chi + C at each point"
         }
-        (Weighting::InverseVariance, Model::Free) => {
+        (Weighting::InverseVariance, Model::Free | Model::Line) => {
             "weighted by the inverse sample variance of k·T·chi at each point"
         }
     };
@@ -196,7 +198,7 @@ pub fn methods(r: &FitReport) -> String {
          were taken at {ntw} waiting time(s) ({np} (tw, t) points), and parametric points \
          {axes} were formed with {kt}. We fitted {model} by least squares, {weights}, \
          minimizing exactly over q with at least {m} points on each segment; T_eff = T/X. \
-         Fits were made jointly over all waiting times and for each waiting time separately. \
+         Fits were made jointly over all curves and for each curve (fixed {held}) separately{range}. \
          Uncertainties are {lvl:.0}% {interval} from {b} bootstrap resamples of whole \
          samples, so that the correlations between the points of one sample are kept (seed \
          {seed}). The hypothesis of no break (equilibrium) was tested with the statistic \
@@ -204,6 +206,8 @@ pub fn methods(r: &FitReport) -> String {
          fitted no-break model, because the break is not identified under that hypothesis; \
          for the joint fit p = {p}.",
         ver = r.tool.version,
+        held = g.hold.name(),
+        range = g.range.map_or(String::new(), |[a, b]| format!(", using the points with x between {} and {}", fmt_num(a), fmt_num(b))),
         n = r.n_samples,
         ntw = r.waiting_times.len(),
         np = r.points.len(),
