@@ -389,7 +389,12 @@ fn fit_single_line(x: &[f64], r: &[f64], w: &[f64]) -> Option<Values> {
         interval: 0,
         n_intervals: 1,
     };
-    Some(Values { ratio: -line.slope, q: f64::NAN, fast: line.slope, sol })
+    Some(Values {
+        ratio: -line.slope,
+        q: f64::NAN,
+        fast: line.slope,
+        sol,
+    })
 }
 
 /// Runs the whole time-domain analysis.
@@ -451,7 +456,11 @@ pub fn analyze(
     let mut helds: Vec<f64> = (0..p).map(held_of).collect();
     helds.sort_by(f64::total_cmp);
     helds.dedup();
-    let in_range = |j: usize| settings.range.is_none_or(|[lo, hi]| pm.x[j] >= lo && pm.x[j] <= hi);
+    let in_range = |j: usize| {
+        settings
+            .range
+            .is_none_or(|[lo, hi]| pm.x[j] >= lo && pm.x[j] <= hi)
+    };
     let make = |held: Option<f64>| {
         let idx: Vec<usize> = (0..p)
             .filter(|&j| in_range(j) && held.is_none_or(|h| held_of(j).total_cmp(&h).is_eq()))
@@ -697,7 +706,13 @@ fn null_shift(g: &Group, x: &[f64], y: &[f64], model: Model) -> Vec<f64> {
         }
         Model::Line => {
             let sw: f64 = g.w.iter().sum();
-            let c0 = gx.iter().zip(&gy).zip(&g.w).map(|((x, y), w)| w * (x + y)).sum::<f64>() / sw;
+            let c0 = gx
+                .iter()
+                .zip(&gy)
+                .zip(&g.w)
+                .map(|((x, y), w)| w * (x + y))
+                .sum::<f64>()
+                / sw;
             gx.iter().zip(&gy).map(|(x, y)| y - (c0 - x)).collect()
         }
         Model::Free => match fit_line(&gx, &gy, Some(&g.w)) {
@@ -900,7 +915,13 @@ fn assemble(
             ));
         }
     }
-    fit.verdict = verdict(&fit, s.model, violated, &fmt_p_resampled(pval, nulls.len()), alpha);
+    fit.verdict = verdict(
+        &fit,
+        s.model,
+        violated,
+        &fmt_p_resampled(pval, nulls.len()),
+        alpha,
+    );
     fit
 }
 
@@ -973,9 +994,8 @@ fn verdict(fit: &GroupFit, model: Model, violated: bool, p: &str, alpha: f64) ->
     if !violated {
         return format!(
             "equilibrium: no violation of the fluctuation–dissipation relation at the {:.0}% level \
-             (p = {}); X = {x:.3} [{lo:.3}, {hi:.3}]",
+             (p = {p}); with no break, X below a break is not meaningful",
             100.0 * alpha,
-            p
         );
     }
     let q = fit.brk.estimate.unwrap_or(f64::NAN);

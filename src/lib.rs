@@ -46,4 +46,5 @@ where
 #[cfg(doctest)]
 #[doc = include_str!("../docs/example.md")]
 pub struct DocExamples;
+pub mod sim;
 pub mod spectral;

@@ -8,6 +8,7 @@ use fdtemp::output::{self, Output};
 use fdtemp::report::plot::{self, Figure};
 use fdtemp::resample::IntervalMethod;
 use fdtemp::settings::{FitSettings, Hold, Model, Units, Weighting};
+use fdtemp::sim::Scenario;
 use fdtemp::spectral::analysis::ErrorModel;
 use fdtemp::spectral::input::Window;
 use fdtemp::spectral::{Convention, SpectrumSettings};
@@ -34,8 +35,34 @@ enum Command {
     Spectrum(SpectrumArgs),
     /// Welch PSD of raw noise records, and T_eff(f) when a dissipation is given.
     Noise(NoiseArgs),
+    /// Simulate a system with a known or published ratio into a file that fit/noise read.
+    Synth(SynthArgs),
     /// Generate an invented aging scenario with a known answer, fit it, and compare.
     Demo(DemoArgs),
+}
+
+#[derive(clap::Args)]
+struct SynthArgs {
+    /// The system to simulate.
+    #[arg(value_enum)]
+    scenario: Scenario,
+    /// Independent runs (samples; for resistor, records).
+    #[arg(long, default_value_t = 200)]
+    samples: usize,
+    /// Seed: run i uses random stream i of this seed.
+    #[arg(long, default_value_t = 1)]
+    seed: u64,
+    /// The data file to write; the truth goes beside it as STEM.truth.json.
+    #[arg(long, value_name = "FILE")]
+    out: PathBuf,
+    /// A smaller, faster version of the simulation.
+    #[arg(long)]
+    quick: bool,
+    /// Replace files that exist already.
+    #[arg(long)]
+    overwrite: bool,
+    #[command(flatten)]
+    run: RunArgs,
 }
 
 #[derive(clap::Args)]
@@ -298,12 +325,14 @@ fn main() -> ExitCode {
         Command::Fit(a) => a.run.threads,
         Command::Spectrum(a) => a.common.run.threads,
         Command::Noise(a) => a.common.run.threads,
+        Command::Synth(a) => a.run.threads,
         Command::Demo(a) => a.run.threads,
     };
     let result = fdtemp::with_threads(threads, || match cli.command {
         Command::Fit(a) => fit(a),
         Command::Spectrum(a) => spectrum(a),
         Command::Noise(a) => noise(a),
+        Command::Synth(a) => synth(a),
         Command::Demo(a) => demo(a),
     });
     match result {
@@ -560,6 +589,48 @@ fn noise(a: NoiseArgs) -> fdtemp::Result<()> {
 
 fn fmt_num_cli(v: f64) -> String {
     fdtemp::analysis::fmt_num(v)
+}
+
+fn synth(a: SynthArgs) -> fdtemp::Result<()> {
+    let truth_path = a.out.with_extension("truth.json");
+    output::check_paths(
+        &[&Some(a.out.clone()), &Some(truth_path.clone())],
+        &[],
+        a.overwrite,
+    )?;
+    let spec = fdtemp::sim::SimSpec {
+        scenario: a.scenario,
+        samples: a.samples,
+        seed: a.seed,
+        quick: a.quick,
+    };
+    let sim = fdtemp::sim::simulate(&spec)?;
+    let fit = sim.truth["fit"]
+        .as_str()
+        .unwrap_or("")
+        .replace("FILE", &a.out.display().to_string());
+    output::write_all(
+        &[
+            Output {
+                path: a.out.clone(),
+                bytes: sim.data,
+            },
+            Output {
+                path: truth_path.clone(),
+                bytes: fdtemp::report::json::to_json(&sim.truth),
+            },
+        ],
+        a.overwrite,
+    )?;
+    println!(
+        "wrote      {} ({} runs) and {}",
+        a.out.display(),
+        a.samples,
+        truth_path.display()
+    );
+    println!("truth      {}", sim.truth["source"].as_str().unwrap_or(""));
+    println!("analyse    {fit}");
+    Ok(())
 }
 
 fn demo(a: DemoArgs) -> fdtemp::Result<()> {

@@ -207,7 +207,11 @@ pub fn methods(r: &FitReport) -> String {
          for the joint fit p = {p}.",
         ver = r.tool.version,
         held = g.hold.name(),
-        range = g.range.map_or(String::new(), |[a, b]| format!(", using the points with x between {} and {}", fmt_num(a), fmt_num(b))),
+        range = g.range.map_or(String::new(), |[a, b]| format!(
+            ", using the points with x between {} and {}",
+            fmt_num(a),
+            fmt_num(b)
+        )),
         n = r.n_samples,
         ntw = r.waiting_times.len(),
         np = r.points.len(),
