@@ -129,3 +129,64 @@ fn coverage_of_band_averages_from_welch_records() {
         hits[1] as f64 / n
     );
 }
+
+#[test]
+#[ignore = "long statistical study; see the module header for the command"]
+fn coverage_on_simulated_two_bath_campaigns() {
+    use fdtemp::sim::{Scenario, SimSpec, simulate};
+    let methods = [
+        IntervalMethod::Percentile,
+        IntervalMethod::Basic,
+        IntervalMethod::Bca,
+    ];
+    let campaigns = 200u64;
+    println!("two-baths (simulated), 95% intervals, B = 2000, {campaigns} campaigns per row");
+    println!("  samples  method      X       T_eff   q");
+    for samples in [20usize, 200] {
+        let mut hits = [[0usize; 3]; 3];
+        for seed in 0..campaigns {
+            let sim = simulate(&SimSpec {
+                scenario: Scenario::TwoBaths,
+                samples,
+                seed: 50_000 + seed,
+                quick: false,
+            })
+            .unwrap();
+            let c = fdtemp::input::tidy::parse_campaign(
+                sim.data.as_slice(),
+                std::path::Path::new("sim.csv"),
+                &Default::default(),
+            )
+            .unwrap();
+            let truth = [
+                sim.truth["ratio"].as_f64().unwrap(),
+                sim.truth["t_eff"].as_f64().unwrap(),
+                sim.truth["break"].as_f64().unwrap(),
+            ];
+            for (m, method) in methods.iter().enumerate() {
+                let s = FitSettings {
+                    temperature: 1.0,
+                    resamples: 2000,
+                    seed,
+                    interval: *method,
+                    ..FitSettings::default()
+                };
+                let f = analyze(&c, &s, None, &Silent).unwrap().fits.remove(0);
+                for (k, e) in [&f.ratio, &f.t_eff, &f.brk].iter().enumerate() {
+                    let inside = matches!((e.low, e.high), (Some(lo), Some(hi)) if lo <= truth[k] && truth[k] <= hi);
+                    hits[m][k] += usize::from(inside);
+                }
+            }
+        }
+        for (m, method) in methods.iter().enumerate() {
+            let c = |k: usize| hits[m][k] as f64 / campaigns as f64;
+            println!(
+                "  {samples:>7}  {:<10} {:.3}   {:.3}   {:.3}",
+                method.label(),
+                c(0),
+                c(1),
+                c(2)
+            );
+        }
+    }
+}
