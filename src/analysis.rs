@@ -269,6 +269,8 @@ struct Spec {
 struct Group {
     /// The held time (tw or t), `None` for the joint fit.
     held: Option<f64>,
+    /// `Σ w (x² + y²)`: the size of the weighted data, for rounding tolerances.
+    scale: f64,
     idx: Vec<usize>,
     w: Vec<f64>,
 }
@@ -467,8 +469,18 @@ pub fn analyze(
         let idx: Vec<usize> = (0..p)
             .filter(|&j| in_range(j) && held.is_none_or(|h| held_of(j).total_cmp(&h).is_eq()))
             .collect();
-        let w = idx.iter().map(|&j| weights[j]).collect();
-        Group { held, idx, w }
+        let w: Vec<f64> = idx.iter().map(|&j| weights[j]).collect();
+        let scale = idx
+            .iter()
+            .zip(&w)
+            .map(|(&j, w)| w * (pm.x[j].powi(2) + pm.y[j].powi(2)))
+            .sum();
+        Group {
+            held,
+            scale,
+            idx,
+            w,
+        }
     };
     let mut groups = vec![make(None)];
     if helds.len() > 1 {
@@ -817,7 +829,11 @@ fn assemble(
         .map(|(_, d)| *d)
         .filter(|d| d.is_finite())
         .collect();
-    let exceed = nulls.iter().filter(|&&d| d >= stat).count();
+    // Statistics at the level of rounding are zero: data exactly on the no-break model
+    // must give p = 1, not a coin toss between rounding errors.
+    let tol = 1e-13 * g.scale;
+    let stat = if stat.abs() <= tol { 0.0 } else { stat };
+    let exceed = nulls.iter().filter(|&&d| d >= stat - tol).count();
     let pval = (1 + exceed) as f64 / (nulls.len() + 1) as f64;
     fit.equilibrium_stat = Some(stat);
     fit.equilibrium_p = Some(pval);

@@ -92,13 +92,20 @@ impl Campaign {
                 pt.tw, pt.t
             )));
         }
-        let reorder = |a: &Array2<f64>| a.select(ndarray::Axis(1), &order);
+        // Samples in a canonical order (by identifier), so that the order of rows in a
+        // file changes nothing: resample index i always means the same sample.
+        let mut rows: Vec<usize> = (0..n).collect();
+        rows.sort_by(|&a, &b| sample_ids[a].cmp(&sample_ids[b]));
+        let reorder = |a: &Array2<f64>| {
+            a.select(ndarray::Axis(0), &rows)
+                .select(ndarray::Axis(1), &order)
+        };
         Ok(Campaign {
             points: order.iter().map(|&j| points[j]).collect(),
             corr: reorder(&corr),
             resp: reorder(&resp),
             corr_eq: corr_eq.as_ref().map(reorder),
-            sample_ids,
+            sample_ids: rows.iter().map(|&i| sample_ids[i].clone()).collect(),
         })
     }
 
@@ -112,7 +119,7 @@ impl Campaign {
         self.points.len()
     }
 
-    /// Sample identifiers, in input order of first appearance.
+    /// Sample identifiers, sorted (the canonical order of the rows of the data arrays).
     pub fn sample_ids(&self) -> &[String] {
         &self.sample_ids
     }

@@ -168,7 +168,7 @@ pub struct Interval {
 /// note. Returns `None` when fewer than 2 finite replicates remain.
 ///
 /// # Formula
-/// BCa: `z0 = Φ⁻¹(#{θ* < θ̂} / B)`, `α_j = Φ(z0 + (z0 + z_j) / (1 - a (z0 + z_j)))` for
+/// BCa: `z0 = Φ⁻¹((#{θ* < θ̂} + ½ #{θ* = θ̂}) / B)`, `α_j = Φ(z0 + (z0 + z_j) / (1 - a (z0 + z_j)))` for
 /// `z_j = Φ⁻¹((1 ∓ level)/2)`; the ends are the `α_j` quantiles of the replicates.
 pub fn interval(
     estimate: f64,
@@ -210,8 +210,13 @@ pub fn interval(
                     "BCa needs finite leave-one-out values; percentile interval used".into(),
                 )));
             };
-            let below = sorted.partition_point(|&v| v < estimate);
-            let frac = below as f64 / sorted.len() as f64;
+            // Replicates equal to the estimate (up to rounding) count as half below: with
+            // few samples a resample can reproduce the data exactly, and rounding must not
+            // decide the bias correction.
+            let tol = 1e-10 * estimate.abs().max(1e-300);
+            let below = sorted.partition_point(|&v| v < estimate - tol);
+            let ties = sorted.partition_point(|&v| v <= estimate + tol) - below;
+            let frac = (below as f64 + 0.5 * ties as f64) / sorted.len() as f64;
             if frac <= 0.0 || frac >= 1.0 {
                 return Some(pct(Some(
                     "every resample lies on one side of the estimate, so BCa's bias \

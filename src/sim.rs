@@ -48,6 +48,9 @@ pub enum Scenario {
     OuEquilibrium,
     /// Johnson–Nyquist noise records of a resistor (for `noise`).
     Resistor,
+    /// Invented two-line campaign with a built-in answer (not a simulation; for
+    /// benchmarks): 12 waiting times × 100 times (3 × 40 with `--quick`).
+    TwoLines,
 }
 
 /// What to simulate.
@@ -89,6 +92,7 @@ pub fn simulate(spec: &SimSpec) -> Result<SimOutput> {
         Scenario::Brownian => brownian(spec),
         Scenario::IsingChain => ising_chain(spec),
         Scenario::Resistor => resistor(spec),
+        Scenario::TwoLines => two_lines(spec)?,
     })
 }
 
@@ -453,4 +457,32 @@ fn resistor(spec: &SimSpec) -> SimOutput {
             "source": "Nyquist, Phys. Rev. 32, 110 (1928): one-sided voltage noise 4 k T R (white); 1 kOhm at 300 K gives 4.0704 nV/sqrt(Hz)",
         }),
     }
+}
+
+fn two_lines(spec: &SimSpec) -> Result<SimOutput> {
+    let base = crate::synth::SynthSpec::default();
+    let synth = crate::synth::SynthSpec {
+        samples: spec.samples,
+        seed: spec.seed,
+        waiting_times: if spec.quick {
+            base.waiting_times.clone()
+        } else {
+            (0..12).map(|k| 100.0 * 2f64.powi(k)).collect()
+        },
+        points_per_tw: if spec.quick { 40 } else { 100 },
+        ..base
+    };
+    let campaign = crate::synth::generate(&synth)?;
+    Ok(SimOutput {
+        data: crate::input::write_campaign(&campaign),
+        truth: json!({
+            "scenario": "two-lines",
+            "fit": "fdtemp fit FILE --temperature 0.6",
+            "temperature": synth.temperature,
+            "ratio": synth.ratio,
+            "t_eff": synth.temperature / synth.ratio,
+            "break": synth.plateau,
+            "source": "invented: the sample means lie on the broken stick by construction (fdtemp::synth)",
+        }),
+    })
 }

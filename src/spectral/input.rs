@@ -295,64 +295,99 @@ pub fn stream_records(path: &Path, sink: impl FnMut(usize, f64)) -> Result<Vec<S
 
 /// As [`stream_records`], from any reader.
 ///
+/// A dedicated reader rather than a general CSV parser, because records can hold 10⁸
+/// lines: the input is read in blocks, split at newlines and commas by hand, and each
+/// field parsed as a number, with the same line:column errors as everywhere else.
+///
 /// # Errors
 /// As [`stream_records`].
 pub fn stream_records_from<R: Read>(
-    reader: R,
+    mut reader: R,
     file: &Path,
     mut sink: impl FnMut(usize, f64),
 ) -> Result<Vec<String>> {
-    let mut rdr = csv_reader(reader);
-    let mut rec = csv::StringRecord::new();
+    const BLOCK: usize = 1 << 20;
+    let mut buf: Vec<u8> = Vec::with_capacity(BLOCK * 2);
+    let mut start = 0usize; // first unconsumed byte in buf
+    let mut line_no: u64 = 0;
     let mut names: Option<Vec<String>> = None;
-    let mut width = 0usize;
-    let mut first = true;
+    let mut eof = false;
     loop {
-        match rdr.read_record(&mut rec) {
-            Ok(false) => break,
-            Ok(true) => {}
-            Err(e) => return Err(csv_error(file, e)),
-        }
-        if is_blank(&rec) {
-            continue;
-        }
-        let line = line_of(&rec);
-        if first {
-            first = false;
-            let numeric = rec
-                .iter()
-                .all(|f| f.trim_start_matches('\u{feff}').parse::<f64>().is_ok());
-            width = rec.len();
-            if !numeric {
-                let h = Header::new(file, &rec)?;
-                names = Some(h.fields);
+        // Find the next complete line; read more when there is none.
+        let nl = memchr_newline(&buf[start..]);
+        let line: &[u8] = match nl {
+            Some(i) => &buf[start..start + i],
+            None if eof => {
+                if start >= buf.len() {
+                    break;
+                }
+                &buf[start..]
+            }
+            None => {
+                buf.drain(..start);
+                start = 0;
+                let old = buf.len();
+                buf.resize(old + BLOCK, 0);
+                let got = reader.read(&mut buf[old..]).map_err(|source| Error::Io {
+                    path: file.to_path_buf(),
+                    action: "cannot read",
+                    source,
+                })?;
+                buf.truncate(old + got);
+                eof = got == 0;
                 continue;
             }
-            names = Some((1..=width).map(|i| i.to_string()).collect());
-        }
-        if rec.len() != width {
-            return Err(Error::input(
+        };
+        let consumed = line.len() + usize::from(nl.is_some());
+        line_no += 1;
+        let mut text = std::str::from_utf8(line).map_err(|_| {
+            Error::input(
                 file,
-                Some(line),
+                Some(line_no),
                 None,
-                format!(
-                    "the line has {} fields, expected {width} (one per run); a cut-off line or a \
-                     stray delimiter?",
-                    rec.len()
-                ),
-            ));
+                "the file is not valid UTF-8 text",
+            )
+        })?;
+        if line_no == 1 {
+            text = text.trim_start_matches('\u{feff}');
         }
-        for (i, field) in rec.iter().enumerate() {
-            let field = if i == 0 && line == 1 {
-                field.trim_start_matches('\u{feff}')
-            } else {
-                field
-            };
-            let name = names.as_ref().map_or("", |n| n[i].as_str());
-            let v = parse_number(field, name)
-                .map_err(|m| Error::input(file, Some(line), Some(i as u64 + 1), m))?;
-            sink(i, v);
+        let text = text.trim_end_matches('\r').trim();
+        if text.is_empty() || text.starts_with('#') {
+            start += consumed;
+            continue;
         }
+        match &names {
+            None => {
+                let fields: Vec<&str> = text.split(',').map(str::trim).collect();
+                if fields.iter().all(|f| f.parse::<f64>().is_ok()) {
+                    names = Some((1..=fields.len()).map(|i| i.to_string()).collect());
+                    emit(
+                        text,
+                        line_no,
+                        file,
+                        names.as_deref().unwrap_or(&[]),
+                        &mut sink,
+                    )?;
+                } else {
+                    let mut seen = std::collections::HashSet::new();
+                    for (i, f) in fields.iter().enumerate() {
+                        if !seen.insert(*f) {
+                            return Err(Error::input(
+                                file,
+                                Some(line_no),
+                                Some(i as u64 + 1),
+                                format!(
+                                    "column '{f}' appears twice in the header; expected each name once"
+                                ),
+                            ));
+                        }
+                    }
+                    names = Some(fields.iter().map(|f| f.to_string()).collect());
+                }
+            }
+            Some(n) => emit(text, line_no, file, n, &mut sink)?,
+        }
+        start += consumed;
     }
     names.ok_or_else(|| {
         Error::input(
@@ -362,6 +397,50 @@ pub fn stream_records_from<R: Read>(
             "the record is empty; expected one number per line (or one column per run)",
         )
     })
+}
+
+fn memchr_newline(b: &[u8]) -> Option<usize> {
+    b.iter().position(|&c| c == b'\n')
+}
+
+/// Parses one data line of `names.len()` numbers and hands them to `sink`.
+fn emit(
+    text: &str,
+    line: u64,
+    file: &Path,
+    names: &[String],
+    sink: &mut impl FnMut(usize, f64),
+) -> Result<()> {
+    let width = names.len();
+    let mut count = 0usize;
+    for (i, field) in text.split(',').enumerate() {
+        if i >= width {
+            count = i + 1;
+            continue;
+        }
+        let field = field.trim();
+        let v = match field.parse::<f64>() {
+            Ok(v) if v.is_finite() => v,
+            _ => {
+                let msg = parse_number(field, &names[i]).err().unwrap_or_default();
+                return Err(Error::input(file, Some(line), Some(i as u64 + 1), msg));
+            }
+        };
+        sink(i, v);
+        count = i + 1;
+    }
+    if count != width {
+        return Err(Error::input(
+            file,
+            Some(line),
+            None,
+            format!(
+                "the line has {count} fields, expected {width} (one per run); a cut-off line or a \
+                 stray delimiter?"
+            ),
+        ));
+    }
+    Ok(())
 }
 
 /// Writes spectrum groups in the format [`read_spectra`] reads (`tw` and `run` columns
