@@ -434,6 +434,20 @@ pub fn analyze(
     };
     let data = data_matrix(campaign, normalized);
     let pm = Parametric::new(&data, tf);
+    let overflow =
+        pm.x.iter()
+            .chain(&pm.y)
+            .chain(&pm.x_se)
+            .chain(&pm.y_se)
+            .any(|v| !v.is_finite())
+            || pm.x_se.iter().chain(&pm.y_se).any(|v| !(v * v).is_finite());
+    if overflow {
+        return Err(Error::Analysis(
+            "the numbers are too large to compute with (their means or spreads overflow); \
+             rescale the corr and resp columns"
+                .into(),
+        ));
+    }
     let m = settings.min_branch;
     let model = settings.model;
     let spec = Spec {

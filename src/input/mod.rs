@@ -23,15 +23,84 @@ pub(crate) fn parse_number(field: &str, column: &str) -> Result<f64, String> {
     }
 }
 
-/// Opens a file for reading, naming it in the error.
-pub(crate) fn open(path: &Path) -> Result<std::io::BufReader<std::fs::File>> {
+/// The longest line fdtemp reads (1 MiB): a longer one means the file is not a table.
+pub const MAX_LINE: usize = 1 << 20;
+
+/// The error a [`LineLimit`] raises.
+#[derive(Debug)]
+pub(crate) struct LineTooLong {
+    line: u64,
+}
+
+impl std::fmt::Display for LineTooLong {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(f, "line {} is longer than 1 MiB", self.line)
+    }
+}
+
+impl std::error::Error for LineTooLong {}
+
+/// A reader that fails on a line longer than [`MAX_LINE`] instead of buffering it whole.
+pub(crate) struct LineLimit<R> {
+    inner: R,
+    line: u64,
+    run: usize,
+}
+
+impl<R: Read> Read for LineLimit<R> {
+    fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
+        let n = self.inner.read(buf)?;
+        for &b in &buf[..n] {
+            if b == b'\n' {
+                self.line += 1;
+                self.run = 0;
+            } else {
+                self.run += 1;
+                if self.run > MAX_LINE {
+                    return Err(std::io::Error::new(
+                        std::io::ErrorKind::InvalidData,
+                        LineTooLong {
+                            line: self.line + 1,
+                        },
+                    ));
+                }
+            }
+        }
+        Ok(n)
+    }
+}
+
+/// Opens a file for reading, naming it in the error; lines are limited to 1 MiB.
+pub(crate) fn open(path: &Path) -> Result<std::io::BufReader<LineLimit<std::fs::File>>> {
     std::fs::File::open(path)
-        .map(std::io::BufReader::new)
+        .map(|f| {
+            std::io::BufReader::new(LineLimit {
+                inner: f,
+                line: 0,
+                run: 0,
+            })
+        })
         .map_err(|source| Error::Io {
             path: path.to_path_buf(),
             action: "cannot read",
             source,
         })
+}
+
+/// Maps a read error, naming the line when a line was too long.
+pub(crate) fn read_error(file: &Path, e: std::io::Error) -> Error {
+    if let Some(t) = e
+        .get_ref()
+        .and_then(|inner| inner.downcast_ref::<LineTooLong>())
+    {
+        return Error::input(
+            file,
+            Some(t.line),
+            None,
+            "the line is longer than 1 MiB; expected a text table (is this the right file?)",
+        );
+    }
+    Error::input(file, None, None, format!("read failed: {e}"))
 }
 
 /// The CSV reader every fdtemp format uses: comma-separated, fields trimmed, `#` comment
@@ -50,7 +119,12 @@ pub(crate) fn csv_error(file: &Path, e: csv::Error) -> Error {
     let line = e.position().map(|p| p.line());
     let what = match e.kind() {
         csv::ErrorKind::Utf8 { .. } => "the file is not valid UTF-8 text".to_string(),
-        csv::ErrorKind::Io(io) => format!("read failed: {io}"),
+        csv::ErrorKind::Io(_) => {
+            if let csv::ErrorKind::Io(io) = e.into_kind() {
+                return read_error(file, io);
+            }
+            unreachable!("the kind was Io")
+        }
         _ => e.to_string(),
     };
     Error::input(file, line, None, what)
@@ -115,8 +189,11 @@ impl Header {
                 self.find(name).ok_or_else(|| {
                     let single = self.fields.len() == 1
                         && (self.fields[0].contains(';') || self.fields[0].contains('\t'));
+                    let numeric = 2 * self.fields.iter().filter(|f| f.parse::<f64>().is_ok()).count() > self.fields.len();
                     let hint = if single {
                         " (the header has a single column: fdtemp reads comma-separated files)"
+                    } else if numeric {
+                        " (the first line holds numbers: the file needs a header line naming the columns)"
                     } else {
                         ""
                     };

@@ -328,11 +328,9 @@ pub fn stream_records_from<R: Read>(
                 start = 0;
                 let old = buf.len();
                 buf.resize(old + BLOCK, 0);
-                let got = reader.read(&mut buf[old..]).map_err(|source| Error::Io {
-                    path: file.to_path_buf(),
-                    action: "cannot read",
-                    source,
-                })?;
+                let got = reader
+                    .read(&mut buf[old..])
+                    .map_err(|e| crate::input::read_error(file, e))?;
                 buf.truncate(old + got);
                 eof = got == 0;
                 continue;
