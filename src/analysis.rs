@@ -440,7 +440,13 @@ pub fn analyze(
             .chain(&pm.x_se)
             .chain(&pm.y_se)
             .any(|v| !v.is_finite())
-            || pm.x_se.iter().chain(&pm.y_se).any(|v| !(v * v).is_finite());
+            || pm
+                .x
+                .iter()
+                .chain(&pm.y)
+                .chain(&pm.x_se)
+                .chain(&pm.y_se)
+                .any(|v| !(v * v * 1e6).is_finite());
     if overflow {
         return Err(Error::Analysis(
             "the numbers are too large to compute with (their means or spreads overflow); \
