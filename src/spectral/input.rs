@@ -357,6 +357,17 @@ pub fn stream_records_from<R: Read>(
         match &names {
             None => {
                 let fields: Vec<&str> = text.split(',').map(str::trim).collect();
+                if fields.len() == 1 && (text.contains(';') || text.contains('\t')) {
+                    return Err(Error::input(
+                        file,
+                        Some(line_no),
+                        Some(1),
+                        format!(
+                            "the line is '{text}': fdtemp reads comma-separated records (one \
+                             number per line, or one column per run separated by commas)"
+                        ),
+                    ));
+                }
                 if fields.iter().all(|f| f.parse::<f64>().is_ok()) {
                     names = Some((1..=fields.len()).map(|i| i.to_string()).collect());
                     emit(
