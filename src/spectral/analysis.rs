@@ -362,6 +362,27 @@ fn analyze_group(
     });
     let n_runs = g.runs.len();
     let nf = g.freqs.len();
+    // Groups from the reader are valid by construction; a caller of the library may build
+    // one by hand, so check the shapes and values once here.
+    let shape_ok = |a: &Array2<f64>| a.dim() == (n_runs, nf);
+    let valid = n_runs > 0
+        && nf > 0
+        && shape_ok(&g.psd)
+        && shape_ok(&g.loss)
+        && g.dof.as_ref().is_none_or(shape_ok)
+        && g.freqs.iter().all(|f| *f > 0.0 && f.is_finite())
+        && g.freqs.windows(2).all(|w| w[1] > w[0])
+        && g.loss.iter().all(|v| *v > 0.0 && v.is_finite())
+        && g.psd.iter().all(|v| *v >= 0.0 && v.is_finite())
+        && g.dof
+            .as_ref()
+            .is_none_or(|d| d.iter().all(|v| *v > 0.0 && v.is_finite()));
+    if !valid {
+        return Err(Error::Analysis(format!(
+            "{who}the spectrum is not usable: expected at least one run, increasing positive \
+             frequencies, finite PSD >= 0, positive dissipation and dof, all of one shape"
+        )));
+    }
     let dof: Option<Vec<f64>> = match (&g.dof, s.dof) {
         (Some(d), _) => Some(d.sum_axis(Axis(0)).to_vec()),
         (None, Some(d)) => Some(vec![d * n_runs as f64; nf]),
@@ -402,8 +423,9 @@ fn analyze_group(
         ));
     }
 
-    let gbar = g.psd.mean_axis(Axis(0)).expect("at least one run");
-    let lbar = g.loss.mean_axis(Axis(0)).expect("at least one run");
+    // At least one run was checked above, so the means exist.
+    let gbar = g.psd.mean_axis(Axis(0)).unwrap_or_default();
+    let lbar = g.loss.mean_axis(Axis(0)).unwrap_or_default();
     let factor: Vec<f64> = g
         .freqs
         .iter()
