@@ -166,6 +166,14 @@ const CASES: &[Case] = &[
         code: 2,
         stderr: "error: fixtures/bad/spectrum_empty.csv: the file is empty; expected a header line with columns f, psd, loss",
     },
+    // Found by fuzzing (spectrum_reader, a timeout): an absurd dof of 1e33 made the
+    // chi-square quantile iterate for minutes; it is now accepted and fast.
+    Case {
+        file: "spectrum_huge_dof_fuzz.csv",
+        command: "spectrum",
+        code: 0,
+        stderr: "",
+    },
     Case {
         file: "spectrum_mismatched_runs.csv",
         command: "spectrum",

@@ -523,3 +523,24 @@ fn a_two_run_record_with_an_interpolated_impedance_table_gives_back_the_temperat
         "{e}"
     );
 }
+
+#[test]
+fn chi_square_quantiles_match_tables_and_stay_continuous_at_large_dof() {
+    use fdtemp::spectral::analysis::chi2_quantile;
+    // Source: standard chi-square tables (e.g. Abramowitz & Stegun, Table 26.8):
+    // χ²(1; 0.95) = 3.841, χ²(10; 0.975) = 20.483, χ²(100; 0.05) = 77.929.
+    assert!((chi2_quantile(1.0, 0.95).unwrap() - 3.841).abs() < 1e-3);
+    assert!((chi2_quantile(10.0, 0.975).unwrap() - 20.483).abs() < 1e-3);
+    assert!((chi2_quantile(100.0, 0.05).unwrap() - 77.929).abs() < 1e-3);
+    // Wilson–Hilferty takes over above 1e5: both sides agree to 1e-7 relative.
+    for p in [0.025, 0.5, 0.975] {
+        let below = chi2_quantile(1e5 * (1.0 - 1e-12), p).unwrap();
+        let above = chi2_quantile(1e5 * (1.0 + 1e-12), p).unwrap();
+        assert!(
+            (below / above - 1.0).abs() < 1e-7,
+            "p = {p}: {below} vs {above}"
+        );
+    }
+    // Absurd degrees of freedom return at once.
+    assert!(chi2_quantile(1e33, 0.975).unwrap().is_finite());
+}

@@ -306,7 +306,7 @@ pub fn stream_records_from<R: Read>(
     file: &Path,
     mut sink: impl FnMut(usize, f64),
 ) -> Result<Vec<String>> {
-    const BLOCK: usize = 1 << 20;
+    const BLOCK: usize = 1 << 16;
     let mut buf: Vec<u8> = Vec::with_capacity(BLOCK * 2);
     let mut start = 0usize; // first unconsumed byte in buf
     let mut line_no: u64 = 0;

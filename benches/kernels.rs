@@ -1,0 +1,80 @@
+//! Speed of fdtemp's kernels (criterion). Run: `cargo bench --bench kernels`.
+//! Whole-process, side-by-side timings are in benches/compare.py (DEVELOPERS.md).
+
+use criterion::{Criterion, criterion_group, criterion_main};
+use fdtemp::FitSettings;
+use fdtemp::analysis::{Silent, analyze};
+use fdtemp::fit::{Base, Workspace, broken::search};
+use fdtemp::synth::{SynthSpec, generate};
+use ndarray::Array2;
+use std::hint::black_box;
+
+fn w_shape(samples: usize) -> fdtemp::Campaign {
+    let spec = SynthSpec {
+        samples,
+        waiting_times: (0..12).map(|k| 100.0 * 2f64.powi(k)).collect(),
+        points_per_tw: 100,
+        ..SynthSpec::default()
+    };
+    generate(&spec).unwrap()
+}
+
+fn break_search(c: &mut Criterion) {
+    let p = 1200;
+    let x: Vec<f64> = (0..p).map(|i| i as f64 / p as f64).collect();
+    let r: Vec<f64> = x
+        .iter()
+        .map(|&x| 1.0 - 0.55 * (0.6 - x).max(0.0) + 1e-3 * (x * 977.0).sin())
+        .collect();
+    let w = vec![1.0; p];
+    let mut ws = Workspace::sorted_by(&x);
+    c.bench_function("break search, 1200 points (order known)", |b| {
+        b.iter(|| {
+            search(
+                black_box(&x),
+                black_box(&r),
+                &w,
+                Base::Constant,
+                5,
+                &mut ws,
+                None,
+            )
+        })
+    });
+}
+
+fn resampling_product(c: &mut Criterion) {
+    let camp = w_shape(1000);
+    let d = fdtemp::fdplot::data_matrix(&camp, false);
+    let n = camp.n_samples();
+    let mut wm = Array2::<f64>::zeros((64, n));
+    let mut counts = vec![0u32; n];
+    for row in 0..64 {
+        fdtemp::resample::draw_counts(1, row as u64, n, &mut counts);
+        for (i, &k) in counts.iter().enumerate() {
+            wm[[row, i]] = f64::from(k) / n as f64;
+        }
+    }
+    c.bench_function(
+        "resampling product, 64 resamples x 1000 samples x 2400 columns",
+        |b| b.iter(|| black_box(wm.dot(&d))),
+    );
+}
+
+fn whole_fit(c: &mut Criterion) {
+    let camp = w_shape(100);
+    let s = FitSettings {
+        temperature: 0.6,
+        resamples: 2000,
+        ..FitSettings::default()
+    };
+    let mut g = c.benchmark_group("whole fit");
+    g.sample_size(10);
+    g.bench_function("W3: 100 samples x 1200 points, B = 2000, BCa", |b| {
+        b.iter(|| analyze(black_box(&camp), &s, None, &Silent).unwrap())
+    });
+    g.finish();
+}
+
+criterion_group!(benches, break_search, resampling_product, whole_fit);
+criterion_main!(benches);
