@@ -263,3 +263,36 @@ fn normalized_axes_recover_the_ratio_when_c_tt_is_not_one() {
         "plain axes are off"
     );
 }
+
+#[test]
+fn a_break_near_the_edge_of_the_data_is_flagged() {
+    // The plateau at C = 0.993 leaves only a few points above the break.
+    let spec = SynthSpec {
+        plateau: 0.993,
+        samples: 30,
+        ..SynthSpec::default()
+    };
+    let r = fit(&spec, 300);
+    let f = &r.fits[0];
+    let edge =
+        |w: &String| w.contains("points lie above the break") || w.contains("edge of the data");
+    assert!(f.warnings.iter().any(edge), "{:?}", f.warnings);
+    assert!(
+        !f.warnings.iter().any(|w| w.contains("thermometer")),
+        "{:?}",
+        f.warnings
+    );
+    // A well-placed break gives no such caution.
+    let ok = fit(
+        &SynthSpec {
+            samples: 30,
+            ..SynthSpec::default()
+        },
+        300,
+    );
+    assert!(
+        !ok.fits[0].warnings.iter().any(edge),
+        "{:?}",
+        ok.fits[0].warnings
+    );
+}
