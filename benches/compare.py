@@ -80,7 +80,7 @@ def workload(name, path, b, work):
 
 
 def w2(work):
-    path = os.path.join(work, "w2.txt")
+    path = os.environ.get("FDTEMP_W2", os.path.join(work, "w2.txt"))
     if not os.path.exists(path):
         print("generating the 10^8-sample record (once)...")
         run([BIN, "synth", "resistor", "--samples", "2", "--quick", "--out", os.path.join(work, "seed.csv"), "--overwrite"])
@@ -95,10 +95,11 @@ def w2(work):
     cmd = [BIN, "noise", path, "--sample-rate", "1e4", "--segment", "65536", "--resistance", "1000", "-T", "300"]
     t = median_time(cmd)
     rss = peak_rss(cmd)
-    t_read = median_time([BIN, "noise", path, "--sample-rate", "1e4", "--segment", "65536"])
+    read_floor = os.path.join(ROOT, "target", "release", "examples", "read_floor")
+    t_read = median_time([read_floor, path])
     t_cat = median_time(["cat", path])
     print(f"fdtemp noise             {t:9.2f} s   peak RSS {rss:7.0f} MiB")
-    print(f"read + parse + Welch, no T_eff ({t_read:.2f} s); cat alone {t_cat:.2f} s")
+    print(f"read + parse only        {t_read:9.2f} s   fdtemp / read = {t / t_read:.2f}   (cat alone {t_cat:.2f} s)")
 
 
 def main():

@@ -2,10 +2,9 @@
 //!
 //! Segments of `L` samples, a periodic Hann window, each segment's mean removed, hop
 //! `L − overlap`; the one-sided density is `2 |X_k|² / (fs Σ w²)` (not doubled at 0 and at
-//! Nyquist), averaged over segments. Samples arrive one at a time; only one segment per
-//! record plus a bounded batch of segments is held, so memory does not grow with the record.
-//! The FFTs of a batch run in parallel; their sum is formed in segment order, so the result
-//! does not depend on the number of threads.
+//! Nyquist), averaged over segments. Samples arrive one at a time and go in blocks to a
+//! worker thread that cuts, transforms and sums while reading goes on, in stream order, so
+//! the result does not depend on timing; memory does not grow with the record.
 //!
 //! Equivalent degrees of freedom (Welch 1967, eq. 8 generalized): with `K` segments and the
 //! window's overlap correlation `ρ(j) = Σ w_n w_{n+jS} / Σ w_n²`,
@@ -17,12 +16,12 @@
 //! "density" convention (as in `scipy.signal.welch`).
 
 use crate::error::{Error, Result};
-use rayon::prelude::*;
 use realfft::RealFftPlanner;
 use std::sync::Arc;
 
-/// Segments transformed together (bounds memory to `BATCH × L` numbers per record).
-const BATCH: usize = 64;
+/// Samples handed to the worker at a time (8 MiB); at most three blocks and one segment
+/// are alive per record, whatever its length.
+const BLOCK: usize = 1 << 20;
 
 /// Welch settings.
 #[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
@@ -109,15 +108,55 @@ pub struct Psd {
 }
 
 /// Accumulates one record's samples into a Welch estimate.
+///
+/// The reading thread only appends samples to a block; full blocks go through a bounded
+/// channel to one worker thread, which cuts them into overlapping segments, transforms
+/// them and sums their periodograms in order, so the result does not depend on timing.
 pub struct Welch {
     settings: WelchSettings,
+    block: Vec<f64>,
+    tx: Option<std::sync::mpsc::SyncSender<Vec<f64>>>,
+    worker: Option<std::thread::JoinHandle<(Vec<f64>, usize)>>,
     window: Arc<Vec<f64>>,
-    fft: Arc<dyn realfft::RealToComplex<f64>>,
-    buffer: Vec<f64>,
-    batch: Vec<Vec<f64>>,
-    sum: Vec<f64>,
-    segments: usize,
     samples: u64,
+}
+
+/// Cuts the stream of blocks into segments, transforms them and sums the periodograms.
+fn transform_stream(
+    rx: std::sync::mpsc::Receiver<Vec<f64>>,
+    fft: Arc<dyn realfft::RealToComplex<f64>>,
+    window: Arc<Vec<f64>>,
+    hop: usize,
+) -> (Vec<f64>, usize) {
+    let l = window.len();
+    let mut sum = vec![0.0; l / 2 + 1];
+    let mut segments = 0;
+    let (mut inp, mut out, mut scratch) = (
+        fft.make_input_vec(),
+        fft.make_output_vec(),
+        fft.make_scratch_vec(),
+    );
+    let mut carry: Vec<f64> = Vec::with_capacity(l + BLOCK);
+    for block in rx {
+        carry.extend_from_slice(&block);
+        let mut start = 0;
+        while carry.len() - start >= l {
+            let seg = &carry[start..start + l];
+            let mean = seg.iter().sum::<f64>() / l as f64;
+            for ((i, s), w) in inp.iter_mut().zip(seg).zip(window.iter()) {
+                *i = (s - mean) * w;
+            }
+            // Lengths come from the same plan, so the transform cannot fail.
+            let _ = fft.process_with_scratch(&mut inp, &mut out, &mut scratch);
+            for (acc, c) in sum.iter_mut().zip(&out) {
+                *acc += c.norm_sqr();
+            }
+            segments += 1;
+            start += hop;
+        }
+        carry.drain(..start);
+    }
+    (sum, segments)
 }
 
 impl Welch {
@@ -128,14 +167,17 @@ impl Welch {
     pub fn new(settings: WelchSettings) -> Result<Self> {
         settings.validate()?;
         let l = settings.segment;
+        let window = Arc::new(hann(l));
+        let fft = RealFftPlanner::<f64>::new().plan_fft_forward(l);
+        let (tx, rx) = std::sync::mpsc::sync_channel::<Vec<f64>>(1);
+        let (w, hop) = (Arc::clone(&window), settings.hop());
+        let worker = std::thread::spawn(move || transform_stream(rx, fft, w, hop));
         Ok(Welch {
             settings,
-            window: Arc::new(hann(l)),
-            fft: RealFftPlanner::<f64>::new().plan_fft_forward(l),
-            buffer: Vec::with_capacity(l),
-            batch: Vec::with_capacity(BATCH),
-            sum: vec![0.0; l / 2 + 1],
-            segments: 0,
+            block: Vec::with_capacity(BLOCK),
+            tx: Some(tx),
+            worker: Some(worker),
+            window,
             samples: 0,
         })
     }
@@ -143,50 +185,21 @@ impl Welch {
     /// Adds one sample.
     pub fn push(&mut self, v: f64) {
         self.samples += 1;
-        self.buffer.push(v);
-        if self.buffer.len() == self.settings.segment {
-            self.batch.push(self.buffer.clone());
-            self.buffer.drain(..self.settings.hop());
-            if self.batch.len() == BATCH {
-                self.flush();
-            }
+        self.block.push(v);
+        if self.block.len() == BLOCK {
+            self.flush();
         }
     }
 
     fn flush(&mut self) {
-        if self.batch.is_empty() {
+        if self.block.is_empty() {
             return;
         }
-        let (fft, window) = (&self.fft, &self.window);
-        let spectra: Vec<Vec<f64>> = self
-            .batch
-            .par_iter()
-            .map_init(
-                || {
-                    (
-                        fft.make_input_vec(),
-                        fft.make_output_vec(),
-                        fft.make_scratch_vec(),
-                    )
-                },
-                |(inp, out, scratch), seg| {
-                    let mean = seg.iter().sum::<f64>() / seg.len() as f64;
-                    for ((i, s), w) in inp.iter_mut().zip(seg).zip(window.iter()) {
-                        *i = (s - mean) * w;
-                    }
-                    // Lengths come from the same plan, so the transform cannot fail.
-                    let _ = fft.process_with_scratch(inp, out, scratch);
-                    out.iter().map(|c| c.norm_sqr()).collect()
-                },
-            )
-            .collect();
-        for s in spectra {
-            for (acc, v) in self.sum.iter_mut().zip(s) {
-                *acc += v;
-            }
+        let block = std::mem::replace(&mut self.block, Vec::with_capacity(BLOCK));
+        if let Some(tx) = &self.tx {
+            // The worker only stops when the channel closes, so sending cannot fail.
+            let _ = tx.send(block);
         }
-        self.segments += self.batch.len();
-        self.batch.clear();
     }
 
     /// Finishes the estimate.
@@ -195,11 +208,16 @@ impl Welch {
     /// [`Error::Analysis`] when the record is empty or shorter than one segment.
     pub fn finish(mut self) -> Result<Psd> {
         self.flush();
+        drop(self.tx.take());
+        let (sum, segments) = match self.worker.take().map(std::thread::JoinHandle::join) {
+            Some(Ok(r)) => r,
+            _ => return Err(Error::Analysis("the spectral worker thread failed".into())),
+        };
         let l = self.settings.segment;
         if self.samples == 0 {
             return Err(Error::Analysis("the record is empty".into()));
         }
-        if self.segments == 0 {
+        if segments == 0 {
             return Err(Error::Analysis(format!(
                 "the record has {} samples, fewer than one segment of {l}; lower --segment",
                 self.samples
@@ -207,13 +225,13 @@ impl Welch {
         }
         let fs = self.settings.sample_rate;
         let norm: f64 = self.window.iter().map(|w| w * w).sum();
-        let k = self.segments as f64;
-        let nu = equivalent_dof(&self.window, self.settings.hop(), self.segments);
+        let k = segments as f64;
+        let nu = equivalent_dof(&self.window, self.settings.hop(), segments);
         let last = l / 2;
         let even = l.is_multiple_of(2);
         let mut psd = Vec::with_capacity(last + 1);
         let mut dof = Vec::with_capacity(last + 1);
-        for (i, s) in self.sum.iter().enumerate() {
+        for (i, s) in sum.iter().enumerate() {
             let edge = i == 0 || (even && i == last);
             let scale = if edge { 1.0 } else { 2.0 };
             psd.push(scale * s / (k * fs * norm));
@@ -223,7 +241,7 @@ impl Welch {
             freqs: (0..=last).map(|i| i as f64 * fs / l as f64).collect(),
             psd,
             dof,
-            segments: self.segments,
+            segments,
             samples: self.samples,
         })
     }
