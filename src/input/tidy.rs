@@ -104,9 +104,11 @@ struct Row {
 pub fn parse_campaign<R: Read>(reader: R, file: &Path, names: &ColumnNames) -> Result<Campaign> {
     let err = |line: Option<u64>, col: Option<u64>, msg: String| Error::input(file, line, col, msg);
     let mut rdr = super::csv_reader(reader);
-    let mut records = rdr.records();
-    let header = match records.next() {
-        None => {
+    // One record buffer for every row: campaigns can have millions of rows.
+    let mut rec = csv::StringRecord::new();
+    let has_header = rdr.read_record(&mut rec).map_err(|e| super::csv_error(file, e))?;
+    let header = match has_header {
+        false => {
             return Err(err(
                 None,
                 None,
@@ -116,7 +118,7 @@ pub fn parse_campaign<R: Read>(reader: R, file: &Path, names: &ColumnNames) -> R
                 ),
             ));
         }
-        Some(r) => Header::new(file, &r.map_err(|e| super::csv_error(file, e))?)?,
+        true => Header::new(file, &rec)?,
     };
     let idx = header.require(file, &names.required())?;
     let [i_sample, i_tw, i_t, i_corr, i_resp] = [idx[0], idx[1], idx[2], idx[3], idx[4]];
@@ -128,8 +130,7 @@ pub fn parse_campaign<R: Read>(reader: R, file: &Path, names: &ColumnNames) -> R
     let mut points: Vec<GridPoint> = Vec::new();
     let mut rows: Vec<Row> = Vec::new();
 
-    for rec in records {
-        let rec = rec.map_err(|e| super::csv_error(file, e))?;
+    while rdr.read_record(&mut rec).map_err(|e| super::csv_error(file, e))? {
         let line = super::line_of(&rec);
         if super::is_blank(&rec) {
             continue;
@@ -178,10 +179,14 @@ pub fn parse_campaign<R: Read>(reader: R, file: &Path, names: &ColumnNames) -> R
             }
             None => None,
         };
-        let s = *sample_index.entry(sample.to_string()).or_insert_with(|| {
-            sample_ids.push(sample.to_string());
-            sample_ids.len() - 1
-        });
+        let s = match sample_index.get(sample) {
+            Some(&s) => s,
+            None => {
+                sample_ids.push(sample.to_string());
+                sample_index.insert(sample.to_string(), sample_ids.len() - 1);
+                sample_ids.len() - 1
+            }
+        };
         let key = (normalize_zero(tw).to_bits(), normalize_zero(t).to_bits());
         let p = *point_index.entry(key).or_insert_with(|| {
             points.push(GridPoint { tw, t });
