@@ -444,18 +444,7 @@ fn spectrum(a: SpectrumArgs) -> fdtemp::Result<()> {
     )
     .map_err(in_file(&a.file))?;
     let mut outputs = Vec::new();
-    if let Some(p) = &a.common.json {
-        outputs.push(Output {
-            path: p.clone(),
-            bytes: fdtemp::report::json::to_json(&report),
-        });
-    }
-    if let Some((path, fig)) = figure {
-        outputs.push(Output {
-            path,
-            bytes: plot::teff_plot(&report, fig)?,
-        });
-    }
+    spectral_outputs(&mut outputs, &report, &a.common.json, figure)?;
     output::write_all(&outputs, a.common.overwrite)?;
     let header = vec![
         format!("data        {}", a.file.display()),
@@ -570,20 +559,31 @@ fn noise(a: NoiseArgs) -> fdtemp::Result<()> {
             fmt_num_cli(r)
         ));
     }
-    if let Some(p) = &a.common.json {
+    spectral_outputs(&mut outputs, &report, &a.common.json, figure)?;
+    output::write_all(&outputs, a.common.overwrite)?;
+    print(&fdtemp::report::spectrum::render(&report, &header));
+    Ok(())
+}
+
+/// The JSON and the figure of a spectral analysis, as asked for.
+fn spectral_outputs(
+    outputs: &mut Vec<Output>,
+    report: &fdtemp::spectral::SpectrumReport,
+    json: &Option<PathBuf>,
+    figure: Option<(PathBuf, Figure)>,
+) -> fdtemp::Result<()> {
+    if let Some(p) = json {
         outputs.push(Output {
             path: p.clone(),
-            bytes: fdtemp::report::json::to_json(&report),
+            bytes: fdtemp::report::json::to_json(report),
         });
     }
     if let Some((path, fig)) = figure {
         outputs.push(Output {
             path,
-            bytes: plot::teff_plot(&report, fig)?,
+            bytes: plot::teff_plot(report, fig)?,
         });
     }
-    output::write_all(&outputs, a.common.overwrite)?;
-    print(&fdtemp::report::spectrum::render(&report, &header));
     Ok(())
 }
 

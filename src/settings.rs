@@ -141,18 +141,8 @@ impl FitSettings {
                 self.temperature
             )));
         }
-        if !(self.level > 0.0 && self.level < 1.0) {
-            return Err(Error::Setting(format!(
-                "--level is {}, expected a number between 0 and 1 (for example 0.95)",
-                self.level
-            )));
-        }
-        if self.resamples < 100 {
-            return Err(Error::Setting(format!(
-                "--resamples is {}, expected at least 100 (2000 or more for intervals a paper can quote)",
-                self.resamples
-            )));
-        }
+        check_level(self.level)?;
+        check_resamples(self.resamples)?;
         if let Some([lo, hi]) = self.range
             && !(hi > lo)
         {
@@ -168,4 +158,30 @@ impl FitSettings {
         }
         Ok(())
     }
+}
+
+/// Checks a confidence level (shared by every analysis).
+///
+/// # Errors
+/// [`Error::Setting`] when the level is not strictly between 0 and 1.
+pub fn check_level(level: f64) -> Result<()> {
+    if level > 0.0 && level < 1.0 {
+        return Ok(());
+    }
+    Err(Error::Setting(format!(
+        "--level is {level}, expected a number between 0 and 1 (for example 0.95)"
+    )))
+}
+
+/// Checks a number of bootstrap resamples (shared by every analysis).
+///
+/// # Errors
+/// [`Error::Setting`] below 100 resamples.
+pub fn check_resamples(resamples: usize) -> Result<()> {
+    if resamples >= 100 {
+        return Ok(());
+    }
+    Err(Error::Setting(format!(
+        "--resamples is {resamples}, expected at least 100 (2000 or more for intervals a paper can quote)"
+    )))
 }

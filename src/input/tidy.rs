@@ -106,7 +106,9 @@ pub fn parse_campaign<R: Read>(reader: R, file: &Path, names: &ColumnNames) -> R
     let mut rdr = super::csv_reader(reader);
     // One record buffer for every row: campaigns can have millions of rows.
     let mut rec = csv::StringRecord::new();
-    let has_header = rdr.read_record(&mut rec).map_err(|e| super::csv_error(file, e))?;
+    let has_header = rdr
+        .read_record(&mut rec)
+        .map_err(|e| super::csv_error(file, e))?;
     let header = match has_header {
         false => {
             return Err(err(
@@ -130,7 +132,10 @@ pub fn parse_campaign<R: Read>(reader: R, file: &Path, names: &ColumnNames) -> R
     let mut points: Vec<GridPoint> = Vec::new();
     let mut rows: Vec<Row> = Vec::new();
 
-    while rdr.read_record(&mut rec).map_err(|e| super::csv_error(file, e))? {
+    while rdr
+        .read_record(&mut rec)
+        .map_err(|e| super::csv_error(file, e))?
+    {
         let line = super::line_of(&rec);
         if super::is_blank(&rec) {
             continue;

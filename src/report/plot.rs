@@ -136,6 +136,22 @@ fn err<E: std::fmt::Debug>(what: &str) -> impl Fn(E) -> Error + '_ {
     move |e| Error::Analysis(format!("cannot draw the {what}: {e:?}"))
 }
 
+/// The legend, in the same place and style on every figure.
+fn legend<'a, DB, CT>(chart: &mut ChartContext<'a, DB, CT>, sc: &Scale) -> Result<()>
+where
+    DB: DrawingBackend + 'a,
+    CT: plotters::coord::CoordTranslate,
+{
+    chart
+        .configure_series_labels()
+        .position(SeriesLabelPosition::UpperRight)
+        .background_style(WHITE.filled())
+        .border_style(REFERENCE)
+        .label_font(("sans-serif", sc.legend))
+        .draw()
+        .map_err(err::<DrawingAreaErrorKind<DB::ErrorType>>("legend"))
+}
+
 /// Renders with the backend of the figure's format.
 fn render(
     fig: Figure,
@@ -438,14 +454,7 @@ fn draw_fd<DB: DrawingBackend>(
         .label(format!("T_eff = {t_eff}"))
         .legend(|(x, y)| EmptyElement::at((x, y)));
 
-    chart
-        .configure_series_labels()
-        .position(SeriesLabelPosition::UpperRight)
-        .background_style(WHITE.filled())
-        .border_style(REFERENCE)
-        .label_font(("sans-serif", sc.legend))
-        .draw()
-        .map_err(&e)?;
+    legend(&mut chart, &sc)?;
     Ok(())
 }
 
@@ -576,14 +585,7 @@ fn draw_hist<DB: DrawingBackend>(
             }
         }
     }
-    chart
-        .configure_series_labels()
-        .position(SeriesLabelPosition::UpperRight)
-        .background_style(WHITE.filled())
-        .border_style(REFERENCE)
-        .label_font(("sans-serif", sc.legend))
-        .draw()
-        .map_err(&e)?;
+    legend(&mut chart, &sc)?;
     Ok(())
 }
 
@@ -724,14 +726,7 @@ fn draw_teff<DB: DrawingBackend>(
                         PathElement::new(vec![(x, y), (x + 20, y)], REFERENCE.stroke_width(2))
                     });
             }
-            chart
-                .configure_series_labels()
-                .position(SeriesLabelPosition::UpperRight)
-                .background_style(WHITE.filled())
-                .border_style(REFERENCE)
-                .label_font(("sans-serif", sc.legend))
-                .draw()
-                .map_err(&e)?;
+            legend(&mut chart, &sc)?;
         }};
     }
     let mut builder = ChartBuilder::on(&root_area);

@@ -113,18 +113,8 @@ impl SpectrumSettings {
                 "--temperature is {t}, expected a positive number"
             )));
         }
-        if !(self.level > 0.0 && self.level < 1.0) {
-            return Err(Error::Setting(format!(
-                "--level is {}, expected a number between 0 and 1 (for example 0.95)",
-                self.level
-            )));
-        }
-        if self.resamples < 100 {
-            return Err(Error::Setting(format!(
-                "--resamples is {}, expected at least 100 (2000 or more for intervals a paper can quote)",
-                self.resamples
-            )));
-        }
+        crate::settings::check_level(self.level)?;
+        crate::settings::check_resamples(self.resamples)?;
         if let Some([lo, hi]) = self.band
             && !(lo >= 0.0 && hi > lo && hi.is_finite())
         {
