@@ -308,29 +308,32 @@ fn base_of(model: Model) -> Base {
     }
 }
 
-/// Fits one group given all points' x and y; `r_shift` (if given) replaces r by
-/// `r - r_shift` (the null-imposed replicate).
+/// The fitted quantity: `z = y + x` for the fixed first slope, `y` otherwise.
+fn response(model: Model, x: f64, y: f64) -> f64 {
+    match model {
+        Model::Broken => y + x,
+        Model::Free | Model::Line => y,
+    }
+}
+
+/// Fits one group given all points' x and y. Leaves the group's points in `sc` (x, y, and
+/// the workspace order sorted by x) for [`null_statistic`].
 fn fit_group(
     g: &Group,
     x: &[f64],
     y: &[f64],
     spec: Spec,
     sc: &mut Scratch,
-    r_shift: Option<&[f64]>,
     profile: Option<&mut Vec<(f64, f64)>>,
 ) -> Option<Values> {
     let model = spec.model;
     sc.x.clear();
     sc.y.clear();
     sc.r.clear();
-    for (k, &j) in g.idx.iter().enumerate() {
+    for &j in &g.idx {
         sc.x.push(x[j]);
         sc.y.push(y[j]);
-        let r = match model {
-            Model::Broken => y[j] + x[j],
-            Model::Free | Model::Line => y[j],
-        };
-        sc.r.push(r - r_shift.map_or(0.0, |s| s[k]));
+        sc.r.push(response(model, x[j], y[j]));
     }
     if model == Model::Line {
         return fit_single_line(&sc.x, &sc.r, &g.w);
@@ -345,8 +348,6 @@ fn fit_group(
         profile,
     )?;
     let (ratio, fast) = match model {
-        // The null-imposed refit only needs the SSEs.
-        Model::Broken if r_shift.is_some() => (1.0 + sol.c, f64::NAN),
         Model::Broken => {
             sc.fx.clear();
             sc.fy.clear();
@@ -369,6 +370,30 @@ fn fit_group(
         fast,
         sol,
     })
+}
+
+/// The test statistic `SSE(no break) − SSE(broken stick)` of the resample whose points
+/// [`fit_group`] just left in `sc`, after moving it onto the fitted null model
+/// (`r − shift`). Reuses the gathered points and the sorted order.
+fn null_statistic(g: &Group, spec: Spec, sc: &mut Scratch, shift: &[f64]) -> f64 {
+    sc.r.clear();
+    for k in 0..sc.x.len() {
+        sc.r.push(response(spec.model, sc.x[k], sc.y[k]) - shift[k]);
+    }
+    let sol = if spec.model == Model::Line {
+        fit_single_line(&sc.x, &sc.r, &g.w).map(|v| v.sol)
+    } else {
+        broken::search(
+            &sc.x,
+            &sc.r,
+            &g.w,
+            base_of(spec.model),
+            spec.min_branch,
+            &mut sc.ws,
+            None,
+        )
+    };
+    sol.map_or(f64::NAN, |s| s.sse_null - s.sse)
 }
 
 /// The single free line `r = a + b x` (X = −b), against the null of slope −1.
@@ -515,15 +540,7 @@ pub fn analyze(
         let gx: Vec<f64> = g.idx.iter().map(|&j| pm.x[j]).collect();
         let mut sc = Scratch::new(&gx);
         let mut prof = Vec::new();
-        est.push(fit_group(
-            g,
-            &pm.x,
-            &pm.y,
-            spec,
-            &mut sc,
-            None,
-            Some(&mut prof),
-        ));
+        est.push(fit_group(g, &pm.x, &pm.y, spec, &mut sc, Some(&mut prof)));
         profiles.push(prof);
         scratch.push(sc);
     }
@@ -562,7 +579,7 @@ pub fn analyze(
                     .iter()
                     .zip(sc.iter_mut())
                     .zip(&est)
-                    .map(|((g, s), e)| e.and_then(|_| fit_group(g, xr, yr, spec, s, None, None)))
+                    .map(|((g, s), e)| e.and_then(|_| fit_group(g, xr, yr, spec, s, None)))
                     .collect()
             },
         )
@@ -596,10 +613,8 @@ pub fn analyze(
                             .zip(&shifts)
                             .map(|((g, s), shift)| {
                                 let shift = shift.as_deref()?;
-                                let v = fit_group(g, x, y, spec, s, None, None)?;
-                                let null = fit_group(g, x, y, spec, s, Some(shift), None)
-                                    .map_or(f64::NAN, |nv| nv.sol.sse_null - nv.sol.sse);
-                                Some((v, null))
+                                let v = fit_group(g, x, y, spec, s, None)?;
+                                Some((v, null_statistic(g, spec, s, shift)))
                             })
                             .collect::<Vec<_>>()
                     })

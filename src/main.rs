@@ -510,7 +510,7 @@ fn noise(a: NoiseArgs) -> fdtemp::Result<()> {
             a.file.display(),
             rec.runs.len(),
             p0.samples,
-            fmt_num_cli(a.sample_rate)
+            fdtemp::analysis::fmt_num(a.sample_rate)
         ),
         format!(
             "welch       Hann window, {} samples per segment, overlap {}, {} segments per run, {} degrees of freedom per frequency",
@@ -556,7 +556,7 @@ fn noise(a: NoiseArgs) -> fdtemp::Result<()> {
     if let Some(r) = a.resistance {
         header.push(format!(
             "dissipation Re Z = {} ohm at every frequency",
-            fmt_num_cli(r)
+            fdtemp::analysis::fmt_num(r)
         ));
     }
     spectral_outputs(&mut outputs, &report, &a.common.json, figure)?;
@@ -585,10 +585,6 @@ fn spectral_outputs(
         });
     }
     Ok(())
-}
-
-fn fmt_num_cli(v: f64) -> String {
-    fdtemp::analysis::fmt_num(v)
 }
 
 fn synth(a: SynthArgs) -> fdtemp::Result<()> {

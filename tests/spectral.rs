@@ -417,42 +417,42 @@ fn bad_spectral_inputs_give_their_exact_message_and_exit_code_2() {
             .stdout("")
             .stderr(format!("error: {}{message}\n", path.display()));
     }
-    let empty = dir.path().join("empty.txt");
-    std::fs::write(&empty, "").unwrap();
-    fdtemp()
-        .arg("noise")
-        .arg(&empty)
-        .args(["--sample-rate", "10"])
-        .assert()
-        .code(2)
-        .stderr(format!(
+    // `noise FILE ARGS` must fail with exit code 2 and exactly this message.
+    let refuses = |name: &str, content: &str, args: &[&str], message: &dyn Fn(&Path) -> String| {
+        let path = dir.path().join(name);
+        std::fs::write(&path, content).unwrap();
+        fdtemp()
+            .arg("noise")
+            .arg(&path)
+            .args(args)
+            .assert()
+            .code(2)
+            .stderr(message(&path));
+        path
+    };
+    refuses("empty.txt", "", &["--sample-rate", "10"], &|p| {
+        format!(
             "error: {}: the record is empty; expected one number per line (or one column per run)\n",
-            empty.display()
-        ));
-    let short = dir.path().join("short.txt");
-    std::fs::write(&short, "1\n2\n3\n").unwrap();
-    fdtemp()
-        .arg("noise")
-        .arg(&short)
-        .args(["--sample-rate", "10"])
-        .assert()
-        .code(2)
-        .stderr(format!(
+            p.display()
+        )
+    });
+    let short = refuses("short.txt", "1\n2\n3\n", &["--sample-rate", "10"], &|p| {
+        format!(
             "error: {}: the record has 3 samples, fewer than one segment of 4096; lower --segment\n",
-            short.display()
-        ));
-    let text = dir.path().join("text.txt");
-    std::fs::write(&text, "v\n1\nx\n").unwrap();
-    fdtemp()
-        .arg("noise")
-        .arg(&text)
-        .args(["--sample-rate", "10", "--segment", "8"])
-        .assert()
-        .code(2)
-        .stderr(format!(
-            "error: {}:3:1: column 'v' is 'x', expected a number\n",
-            text.display()
-        ));
+            p.display()
+        )
+    });
+    refuses(
+        "text.txt",
+        "v\n1\nx\n",
+        &["--sample-rate", "10", "--segment", "8"],
+        &|p| {
+            format!(
+                "error: {}:3:1: column 'v' is 'x', expected a number\n",
+                p.display()
+            )
+        },
+    );
     for rate in ["0", "-5", "nan"] {
         fdtemp()
             .arg("noise")
