@@ -377,8 +377,8 @@ fn fit_group(
 /// (`r − shift`). Reuses the gathered points and the sorted order.
 fn null_statistic(g: &Group, spec: Spec, sc: &mut Scratch, shift: &[f64]) -> f64 {
     sc.r.clear();
-    for k in 0..sc.x.len() {
-        sc.r.push(response(spec.model, sc.x[k], sc.y[k]) - shift[k]);
+    for ((x, y), d) in sc.x.iter().zip(&sc.y).zip(shift) {
+        sc.r.push(response(spec.model, *x, *y) - d);
     }
     let sol = if spec.model == Model::Line {
         fit_single_line(&sc.x, &sc.r, &g.w).map(|v| v.sol)
