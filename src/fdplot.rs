@@ -128,3 +128,110 @@ impl Parametric {
         }
     }
 }
+
+/// The sampling variance of each point's fitted quantity `r = (α C + β χ) / C(t,t)` (the
+/// division only on normalized axes), recomputed from the moments of whichever samples
+/// make up a fit: all of them, a bootstrap resample, or a leave-one-out set. Inverse-
+/// variance weights are then re-estimated inside every resample, as the estimator is
+/// (weights fixed at their full-data values make the resampled statistics too narrow).
+///
+/// The moments are extra columns of the data matrix, so one product `W · D` gives the
+/// means and the second moments together. To avoid cancellation, `a = α C + β χ` is
+/// centred on the full-data ratio: `a' = a − r̂ C(t,t)` (or `a − ā` on plain axes); then
+/// with `δ = r − r̂` the delta-method variance of the ratio of means is
+/// `(M[a'²] − 2δ M[a'e] + δ² M[e²]) / (M[e]² (m − 1))` for `m` drawn samples, which on plain
+/// axes (`e = 1`) is the usual `s²/m`.
+///
+/// Source: the delta method for a ratio of means (Cochran, *Sampling Techniques*, 3rd ed.
+/// (1977), §6.3); resampling the whole estimator, weights included: Davison & Hinkley
+/// (1997), §6.2 (common practice).
+#[derive(Debug, Clone)]
+pub struct PointVariance {
+    /// `α`, the factor on C in the fitted quantity.
+    pub alpha: f64,
+    /// `β`, the factor on χ (`k T`).
+    pub beta: f64,
+    /// The full-data ratio `r̂` per point (the centre).
+    centre: Vec<f64>,
+    /// Raw columns before the moment columns (`blocks · P`).
+    offset: usize,
+    normalized: bool,
+    points: usize,
+}
+
+impl PointVariance {
+    /// The variance spec for `r = (α C + β χ)/e` with the centres taken from `data`.
+    pub fn new(data: &Array2<f64>, tf: Transform, alpha: f64, beta: f64) -> Self {
+        let p = tf.points;
+        let n = data.nrows().max(1) as f64;
+        let centre = (0..p)
+            .map(|j| {
+                let (mut a, mut e) = (0.0, 0.0);
+                for row in data.rows() {
+                    a += alpha * row[j] + beta * row[p + j];
+                    e += if tf.normalized { row[2 * p + j] } else { 1.0 };
+                }
+                (a / n) / (e / n)
+            })
+            .collect();
+        PointVariance {
+            alpha,
+            beta,
+            centre,
+            offset: tf.blocks() * p,
+            normalized: tf.normalized,
+            points: p,
+        }
+    }
+
+    /// Number of moment columns appended (per point: 1 plain, 3 normalized).
+    pub fn extra_columns(&self) -> usize {
+        self.points * if self.normalized { 3 } else { 1 }
+    }
+
+    /// `data` with the moment columns appended.
+    pub fn extend(&self, data: &Array2<f64>) -> Array2<f64> {
+        let p = self.points;
+        let mut out = Array2::zeros((data.nrows(), self.offset + self.extra_columns()));
+        for (i, row) in data.rows().into_iter().enumerate() {
+            for k in 0..self.offset {
+                out[[i, k]] = row[k];
+            }
+            for j in 0..p {
+                let e = if self.normalized { row[2 * p + j] } else { 1.0 };
+                let a = self.alpha * row[j] + self.beta * row[p + j] - self.centre[j] * e;
+                out[[i, self.offset + j]] = a * a;
+                if self.normalized {
+                    out[[i, self.offset + p + j]] = a * e;
+                    out[[i, self.offset + 2 * p + j]] = e * e;
+                }
+            }
+        }
+        out
+    }
+
+    /// The variance of every point's fitted quantity from the moments `means` (a row of
+    /// `W · extend(D)`, weights summing to 1) of `drawn` samples.
+    pub fn apply(&self, means: ArrayView1<'_, f64>, drawn: usize, var: &mut [f64]) {
+        let p = self.points;
+        let dof = (drawn as f64 - 1.0).max(1.0);
+        for (j, v) in var.iter_mut().enumerate().take(p) {
+            let e = if self.normalized {
+                means[2 * p + j]
+            } else {
+                1.0
+            };
+            let r = (self.alpha * means[j] + self.beta * means[p + j]) / e;
+            let d = r - self.centre[j];
+            let maa = means[self.offset + j];
+            let s = if self.normalized {
+                let mae = means[self.offset + p + j];
+                let mee = means[self.offset + 2 * p + j];
+                maa - 2.0 * d * mae + d * d * mee
+            } else {
+                maa - d * d
+            };
+            *v = s.max(0.0) / (e * e * dof);
+        }
+    }
+}

@@ -105,14 +105,16 @@ proptest! {
     }
 
     /// Every sample exactly on the equilibrium line y = 1 − x: the no-break model fits
-    /// perfectly in the data and in every resample, so X = 1 and the test finds nothing.
+    /// perfectly in the data and in every resample, so the test finds nothing, the slope
+    /// is −1, and X below a break that does not exist is not quoted.
     #[test]
-    fn data_on_the_equilibrium_line_give_x_one_and_no_violation(n in 4usize..12, e in noise()) {
+    fn data_on_the_equilibrium_line_give_slope_minus_one_and_no_violation(n in 4usize..12, e in noise()) {
         let c = campaign(n, 1.0, &e);
         let on_line = Campaign::new(c.sample_ids().to_vec(), c.points().to_vec(), c.corr().clone(), c.corr().mapv(|v| 1.0 - v), None).unwrap();
         let r = run(&on_line, &settings());
         let f = &r.fits[0];
-        prop_assert!((f.ratio.estimate.unwrap() - 1.0).abs() < 1e-6, "X = {:?}", f.ratio.estimate);
+        prop_assert!((f.fast_slope.estimate.unwrap() + 1.0).abs() < 1e-6, "slope = {:?}", f.fast_slope.estimate);
+        prop_assert!(f.ratio.estimate.is_none() && !f.x_quotable);
         prop_assert!(f.equilibrium_p.unwrap() > 0.05);
         prop_assert!(f.brk.estimate.is_none());
     }

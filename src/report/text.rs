@@ -83,7 +83,7 @@ pub fn render(r: &FitReport) -> Vec<u8> {
     );
     let _ = writeln!(o);
     let held = g.hold.name();
-    let mut rows: Vec<[String; 7]> = vec![[
+    let mut rows: Vec<[String; 8]> = vec![[
         held.into(),
         "points".into(),
         "break q".into(),
@@ -91,6 +91,7 @@ pub fn render(r: &FitReport) -> Vec<u8> {
         "T_eff".into(),
         "slope above q".into(),
         "p(equilibrium)".into(),
+        "p(slope -1)".into(),
     ]];
     for f in &r.fits {
         rows.push([
@@ -101,6 +102,8 @@ pub fn render(r: &FitReport) -> Vec<u8> {
             est(&f.t_eff),
             est(&f.fast_slope),
             f.equilibrium_p
+                .map_or("—".into(), |p| fmt_p_resampled(p, f.null_resamples)),
+            f.thermometer_p
                 .map_or("—".into(), |p| fmt_p_resampled(p, f.null_resamples)),
         ]);
     }
@@ -117,12 +120,27 @@ pub fn render(r: &FitReport) -> Vec<u8> {
         let _ = writeln!(o, "  {held} = {:<6} {}", label(f), f.verdict);
     }
     if let Some(a) = &r.aging {
+        let used: Vec<String> = a.curves_used.iter().map(|&t| fmt_num(t)).collect();
+        let left: Vec<String> = a
+            .left_out
+            .iter()
+            .map(|l| format!("{held} = {} ({})", fmt_num(l.held), l.reason))
+            .collect();
         let _ = writeln!(
             o,
-            "aging      X({held} = {}) − X({held} = {}) = {} (percentile interval)",
-            fmt_num(a.last),
-            fmt_num(a.first),
-            est(&a.ratio_change)
+            "aging      dX/dlog10({held}) = {} per decade over {} = {} (percentile interval){}",
+            est(&a.change_per_decade),
+            held,
+            if used.is_empty() {
+                "none".into()
+            } else {
+                used.join(", ")
+            },
+            if left.is_empty() {
+                String::new()
+            } else {
+                format!("; left out: {}", left.join(", "))
+            }
         );
     }
 
