@@ -194,10 +194,12 @@ pub fn methods(r: &FitReport) -> String {
     let weights = match (g.weights, g.model) {
         (Weighting::Uniform, _) => "with uniform weights",
         (Weighting::InverseVariance, Model::Broken) => {
-            "weighted by the inverse sample variance of k·T·chi + C at each point"
+            "weighted by the inverse sample variance of k·T·chi + C at each point (re-estimated \
+             in every resample from that resample's samples)"
         }
         (Weighting::InverseVariance, Model::Free | Model::Line) => {
-            "weighted by the inverse sample variance of k·T·chi at each point"
+            "weighted by the inverse sample variance of k·T·chi at each point (re-estimated in \
+             every resample from that resample's samples)"
         }
     };
     let interval = match g.interval {
@@ -210,19 +212,50 @@ pub fn methods(r: &FitReport) -> String {
     let p = r.fits[0].equilibrium_p.map_or("not computed".into(), |p| {
         fmt_p_resampled(p, r.fits[0].null_resamples)
     });
+    let search = if g.model == Model::Line {
+        String::new()
+    } else {
+        format!(
+            ", minimizing exactly over q with at least {} points on each segment",
+            g.min_branch
+        )
+    };
+    let test = if g.model == Model::Line {
+        format!(
+            "The hypothesis of equilibrium (slope -1) was tested with the statistic SSE(slope \
+             -1) − SSE(free slope), calibrated by the same resamples moved onto the fitted \
+             slope -1 line; for the joint fit p = {p}."
+        )
+    } else {
+        format!(
+            "The hypothesis of no break (equilibrium) was tested with the statistic SSE(no \
+             break) − SSE(two segments), calibrated by the same resamples moved onto the fitted \
+             no-break model, because the break is not identified under that hypothesis; for \
+             the joint fit p = {p}. X is quoted only where this test rejects and the break lies \
+             away from the edge of the points. The slope above the break was tested against -1 \
+             (a check of the thermometer and the response units) with the resamples centred on \
+             its estimate."
+        )
+    };
+    let aging = if r.aging.is_some() {
+        format!(
+            " The change of X with age is the least-squares slope of the per-curve X against \
+             log10 {held} over the curves where X is quoted, with a percentile interval from \
+             the same resamples.",
+            held = g.hold.name()
+        )
+    } else {
+        String::new()
+    };
     format!(
         "Fluctuation–dissipation ratios were estimated with fdtemp {ver}. For each of {n} \
          independent samples, the correlation C(t,tw) and the integrated response chi(t,tw) \
          were taken at {ntw} waiting time(s) ({np} (tw, t) points), and parametric points \
-         {axes} were formed with {kt}. We fitted {model} by least squares, {weights}, \
-         minimizing exactly over q with at least {m} points on each segment; T_eff = T/X. \
-         Fits were made jointly over all curves and for each curve (fixed {held}) separately{range}. \
-         Uncertainties are {lvl:.0}% {interval} from {b} bootstrap resamples of whole \
-         samples, so that the correlations between the points of one sample are kept (seed \
-         {seed}). The hypothesis of no break (equilibrium) was tested with the statistic \
-         SSE(no break) − SSE(two segments), calibrated by the same resamples moved onto the \
-         fitted no-break model, because the break is not identified under that hypothesis; \
-         for the joint fit p = {p}.",
+         {axes} were formed with {kt}. We fitted {model} by least squares, {weights}{search}; \
+         T_eff = T/X. Fits were made jointly over all curves and for each curve (fixed {held}) \
+         separately{range}. Uncertainties are {lvl:.0}% {interval} from {b} bootstrap \
+         resamples of whole samples, so that the correlations between the points of one \
+         sample are kept (seed {seed}). {test}{aging}",
         ver = r.tool.version,
         held = g.hold.name(),
         range = g.range.map_or(String::new(), |[a, b]| format!(
@@ -233,7 +266,6 @@ pub fn methods(r: &FitReport) -> String {
         n = r.n_samples,
         ntw = r.waiting_times.len(),
         np = r.points.len(),
-        m = g.min_branch,
         lvl = 100.0 * g.level,
         b = g.resamples,
         seed = g.seed,
