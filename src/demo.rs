@@ -197,10 +197,12 @@ pub fn compare(demo: &Demo) -> String {
         "  departure: truth T_eff = T (1 + ({} Hz / f)^2), 10% above T below {} Hz; detected below {}",
         crate::report::sig(sp.f_hot, 3),
         crate::report::sig(sp.f_hot / 0.1f64.sqrt(), 3),
-        fit.departure_below_hz
-            .map_or("— (none)".into(), |f| format!(
-                "{} Hz",
-                crate::report::sig(f, 3)
+        fit.departure
+            .as_ref()
+            .map_or("— (none)".into(), |d| format!(
+                "{} Hz ({})",
+                crate::report::sig(d.below_hz, 3),
+                d.direction.label()
             ))
     );
     o

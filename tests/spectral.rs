@@ -4,7 +4,7 @@
 
 use assert_cmd::Command;
 use fdtemp::settings::Units;
-use fdtemp::spectral::analysis::{ErrorModel, SpectrumSettings};
+use fdtemp::spectral::analysis::{Direction, ErrorModel, SpectrumSettings};
 use fdtemp::spectral::input::{SpectrumGroup, parse_spectra};
 use fdtemp::spectral::welch::{Welch, WelchSettings};
 use fdtemp::spectral::{Convention, analyze_spectra};
@@ -46,7 +46,11 @@ fn welch_psd_matches_scipy_signal_welch() {
         })
         .collect();
     assert_eq!(psd.freqs.len(), reference.len());
+    let nyquist = reference.len() - 1;
     for (j, (f, p)) in reference.iter().enumerate() {
+        // scipy's density scaling leaves the Nyquist bin undoubled; fdtemp doubles it to
+        // the one-sided density (docs/spectral.md), so there it reads twice scipy's value.
+        let p = if j == nyquist { 2.0 * p } else { *p };
         assert!((psd.freqs[j] - f).abs() < 1e-12);
         assert!(
             ((psd.psd[j] - p) / p).abs() < 1e-10,
@@ -111,7 +115,11 @@ fn johnson_nyquist_noise_of_a_resistor_gives_back_its_temperature() {
     );
     assert!((est / t - 1.0).abs() < 0.01, "T_eff {est}");
     assert!(lo <= t && t <= hi, "[{lo}, {hi}]");
-    assert!(v["departure_below_hz"].is_null());
+    assert!(v["departure"].is_null());
+    assert_eq!(v["schema"], 2);
+    // Band edges print as plain numbers: the top edge is the Nyquist frequency, 5000 Hz.
+    let tests = v["spectra"][0]["test_bands"].as_array().unwrap();
+    assert_eq!(tests.last().unwrap()["fmax"].as_f64(), Some(5000.0));
     // The PSD file reads back into `spectrum` with the same band average.
     fdtemp()
         .arg("spectrum")
@@ -181,7 +189,7 @@ fn each_convention_gives_back_the_temperature_its_formula_was_built_with() {
                 p.t_eff
             );
         }
-        assert!(r.departure_below_hz.is_none(), "{conv:?}");
+        assert!(r.departure.is_none(), "{conv:?}");
     }
 }
 
@@ -271,6 +279,19 @@ fn hann_band_average_interval_covers_the_truth_95_percent_of_the_time() {
 
 /// A spectrum CSV with `runs` runs whose T_eff(f) = t (1 + (f0/f)²), PSD noise χ²_ν/ν.
 fn spectrum_csv(path: &Path, runs: usize, t: f64, f0: f64, nu: f64, seed: u64, with_dof: bool) {
+    let teff = move |f: f64| t * (1.0 + (f0 / f).powi(2));
+    spectrum_csv_with(path, runs, &teff, nu, seed, with_dof);
+}
+
+/// A spectrum CSV (200 log-spaced frequencies, 0.1 Hz to 1 kHz) with the given T_eff(f).
+fn spectrum_csv_with(
+    path: &Path,
+    runs: usize,
+    teff: &dyn Fn(f64) -> f64,
+    nu: f64,
+    seed: u64,
+    with_dof: bool,
+) {
     use std::fmt::Write;
     let chi = ChiSquared::new(nu).unwrap();
     let mut rng = fdtemp::resample::replicate_rng(seed, 0);
@@ -283,9 +304,8 @@ fn spectrum_csv(path: &Path, runs: usize, t: f64, f0: f64, nu: f64, seed: u64, w
         for i in 0..200 {
             let f = 10f64.powf(-1.0 + 4.0 * f64::from(i) / 199.0);
             let loss = 1e-20 * (1.0 + f);
-            let teff = t * (1.0 + (f0 / f).powi(2));
             let g =
-                2.0 * K_B * teff * loss / (std::f64::consts::PI * f) * chi.sample(&mut rng) / nu;
+                2.0 * K_B * teff(f) * loss / (std::f64::consts::PI * f) * chi.sample(&mut rng) / nu;
             let _ = write!(s, "r{r},{f:e},{g:e},{loss:e}");
             if with_dof {
                 let _ = write!(s, ",{nu}");
@@ -333,8 +353,15 @@ fn a_hot_low_frequency_regime_is_detected_and_a_flat_one_is_not() {
         ..SpectrumSettings::default()
     };
     let r = analyze_spectra(&groups, &[], &s, None).unwrap();
-    let fd = r.departure_below_hz.expect("a departure");
-    assert!((0.5..=10.0).contains(&fd), "departure below {fd} Hz");
+    let d = r.departure.expect("a departure");
+    assert_eq!(d.direction, Direction::Hot);
+    assert!(
+        (0.5..=10.0).contains(&d.below_hz),
+        "departure below {} Hz",
+        d.below_hz
+    );
+    assert!((d.from_hz - 0.1).abs() < 1e-12, "from {} Hz", d.from_hz);
+    assert!(r.spectra[0].verdict.contains("detectably above T (hot)"));
     // Flat spectra: the corrected test rarely reports a departure (at most 5% of runs
     // by construction; allow 2 of 20).
     let mut false_alarms = 0;
@@ -343,10 +370,115 @@ fn a_hot_low_frequency_regime_is_detected_and_a_flat_one_is_not() {
         spectrum_csv(&flat, 1, 300.0, 0.0, 200.0, 100 + seed, true);
         let g = fdtemp::spectral::input::read_spectra(&flat).unwrap();
         let r = analyze_spectra(&g, &[], &s, None).unwrap();
-        false_alarms += usize::from(r.departure_below_hz.is_some());
+        false_alarms += usize::from(r.departure.is_some());
         assert_eq!(r.spectra[0].errors, ErrorModel::ChiSquare);
     }
     assert!(false_alarms <= 2, "{false_alarms} false departures in 20");
+}
+
+#[test]
+fn a_cold_low_frequency_regime_is_reported_as_cold() {
+    // Invented known truth: T_eff = T (1 − 0.5 / (1 + (f / 1 Hz)²)), half of T at low f.
+    let dir = tempfile::tempdir().unwrap();
+    let file = dir.path().join("cold.csv");
+    let teff = |f: f64| 300.0 * (1.0 - 0.5 / (1.0 + f * f));
+    spectrum_csv_with(&file, 1, &teff, 200.0, 12, true);
+    let groups = fdtemp::spectral::input::read_spectra(&file).unwrap();
+    let s = SpectrumSettings {
+        temperature: Some(300.0),
+        ..SpectrumSettings::default()
+    };
+    let r = analyze_spectra(&groups, &[], &s, None).unwrap();
+    let d = r.departure.expect("a departure");
+    assert_eq!(d.direction, Direction::Cold);
+    assert!(
+        (0.2..=10.0).contains(&d.below_hz),
+        "below {} Hz",
+        d.below_hz
+    );
+    assert!(r.spectra[0].verdict.contains("detectably below T (cold)"));
+    assert!(r.spectra[0].separate_bands.is_empty());
+}
+
+#[test]
+fn one_isolated_hot_band_is_a_separate_finding_not_a_departure_frequency() {
+    // Invented known truth: T_eff = T except twice T between 100 and 150 Hz (a line).
+    let dir = tempfile::tempdir().unwrap();
+    let file = dir.path().join("line.csv");
+    let teff = |f: f64| {
+        if (100.0..150.0).contains(&f) {
+            600.0
+        } else {
+            300.0
+        }
+    };
+    spectrum_csv_with(&file, 1, &teff, 200.0, 13, true);
+    let groups = fdtemp::spectral::input::read_spectra(&file).unwrap();
+    let s = SpectrumSettings {
+        temperature: Some(300.0),
+        ..SpectrumSettings::default()
+    };
+    let r = analyze_spectra(&groups, &[], &s, None).unwrap();
+    assert!(r.departure.is_none(), "{:?}", r.departure);
+    let fit = &r.spectra[0];
+    assert!(!fit.separate_bands.is_empty());
+    assert!(
+        fit.separate_bands
+            .iter()
+            .all(|b| b.direction == Direction::Hot && b.fmax > 90.0 && b.fmin < 160.0)
+    );
+    assert!(
+        fit.warnings
+            .iter()
+            .any(|w| w.contains("not a departure frequency")),
+        "{:?}",
+        fit.warnings
+    );
+    assert!(fit.verdict.contains("no low-frequency departure"));
+}
+
+#[test]
+fn a_white_record_reads_t_in_its_nyquist_bin_within_its_interval() {
+    // Source: Nyquist (1928), one-sided G_V = 4kTR for a resistor; white Gaussian samples
+    // of variance G fs / 2 have one-sided density G at every frequency up to fs/2 (common
+    // practice). The undoubled Nyquist bin would read T/2, far outside its interval.
+    use fdtemp::spectral::noise::{Dissipation, RecordPsd, to_group};
+    let (t, r, fs) = (300.0, 1e3, 1e4);
+    let settings = WelchSettings {
+        sample_rate: fs,
+        segment: 256,
+        overlap: 128,
+    };
+    let mut w = Welch::new(settings).unwrap();
+    let mut rng = fdtemp::resample::replicate_rng(31, 0);
+    let sd = (4.0 * K_B * t * r * fs / 2.0).sqrt();
+    for _ in 0..(256 * 200) {
+        let z: f64 = rng.sample(StandardNormal);
+        w.push(sd * z);
+    }
+    let rec = RecordPsd {
+        runs: vec![String::new()],
+        psd: vec![w.finish().unwrap()],
+        bin_rho2: fdtemp::spectral::input::Window::Hann.bin_rho2(),
+    };
+    let (g, _) = to_group(&rec, &Dissipation::Constant(r)).unwrap();
+    let s = SpectrumSettings {
+        temperature: Some(t),
+        convention: Convention::Voltage,
+        ..SpectrumSettings::default()
+    };
+    let rep = analyze_spectra(&[g], &rec.bin_rho2, &s, None).unwrap();
+    let top = rep.points.last().unwrap();
+    assert_eq!(top.f, fs / 2.0);
+    let (lo, hi) = (top.low.unwrap(), top.high.unwrap());
+    assert!(
+        lo <= t && t <= hi,
+        "Nyquist bin: {} K [{lo}, {hi}]",
+        top.t_eff
+    );
+    // Half the degrees of freedom of its neighbour (a real transform at fs/2).
+    let below = &rep.points[rep.points.len() - 2];
+    assert!((top.dof.unwrap() / below.dof.unwrap() - 0.5).abs() < 1e-12);
 }
 
 #[test]

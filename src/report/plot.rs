@@ -693,7 +693,8 @@ fn draw_teff<DB: DrawingBackend>(
                     .legend(move |(x, y)| {
                         PathElement::new(vec![(x, y), (x + 20, y)], c.stroke_width(3))
                     });
-                if let Some(fd) = s.departure_below_hz {
+                if let Some(d) = &s.departure {
+                    let fd = d.below_hz;
                     chart
                         .draw_series(DashedLineSeries::new(
                             vec![(fd, t0), (fd, t1)],
@@ -702,7 +703,12 @@ fn draw_teff<DB: DrawingBackend>(
                             PALETTE[3].stroke_width(sc.line),
                         ))
                         .map_err(&e)?
-                        .label(format!("departs from T below {} Hz", super::sig(fd, 3)))
+                        .label(format!(
+                            "departs from T below {} Hz ({}: T_eff {} T)",
+                            super::sig(fd, 3),
+                            d.direction.label(),
+                            d.direction.side()
+                        ))
                         .legend(|(x, y)| {
                             PathElement::new(vec![(x, y), (x + 20, y)], PALETTE[3].stroke_width(3))
                         });

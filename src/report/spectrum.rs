@@ -128,7 +128,7 @@ fn section(o: &mut String, r: &SpectrumReport, fit: &SpectrumFit, unit: &str) {
                 b.n_freqs,
                 b.t_eff.estimate.map_or("—".into(), |v| sig(v, 4)),
                 iv(b.t_eff.low, b.t_eff.high),
-                if tb.departs { "yes" } else { "no" }
+                tb.direction.map_or("no", |d| d.label())
             );
         }
     }
@@ -184,8 +184,11 @@ pub fn methods(r: &SpectrumReport) -> String {
     let test = match s.temperature {
         Some(_) => format!(
             " Departure from the bath temperature was tested in log-spaced bands ({} per decade), \
-             each at the Bonferroni-corrected level, and the departure frequency is the upper \
-             edge of the highest band that differs.",
+             each at the Bonferroni-corrected level. A departure is a run of differing bands on \
+             one side of T (hot or cold) that starts at the lowest band; it is reported as a \
+             detection bound, the upper edge of the run's last band, below which T_eff differs \
+             from T in every band. Differing bands outside that run are reported separately, \
+             never as a departure frequency.",
             s.bands_per_decade
         ),
         None => String::new(),

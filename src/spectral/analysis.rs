@@ -13,8 +13,11 @@
 //!
 //! Departure from the bath temperature: the spectrum is cut into log-spaced bands; each
 //! band's average is compared with `T` at the Bonferroni-corrected level `1 − α/nbands`
-//! (so the chance of any false departure is at most `α`). The departure frequency is the
-//! upper edge of the highest band whose `T_eff` differs from `T`.
+//! (so the chance of any false departure is at most `α`). A departure is a contiguous run
+//! of differing bands that starts at the lowest tested band, all on the same side of `T`
+//! (hot or cold); its bound is the upper edge of the run's last band — a detection bound
+//! at this precision, not an estimate of a crossover. A differing band outside that run
+//! is a separate finding, never a departure frequency.
 //!
 //! ## Reference
 //! Welch (1967); Percival & Walden, *Spectral Analysis for Physical Applications* (1993),
@@ -30,12 +33,15 @@ use crate::settings::Units;
 use ndarray::{Array2, Axis, s};
 use rayon::prelude::*;
 use serde::Serialize;
-use statrs::distribution::{ChiSquared, ContinuousCDF, Normal};
+use statrs::distribution::{ChiSquared, ContinuousCDF, Normal, StudentsT};
 
 /// JSON schema version of [`SpectrumReport`].
-pub const SCHEMA: u32 = 1;
+pub const SCHEMA: u32 = 2;
 /// Below this many runs, resampling runs is not the automatic choice.
 pub const FEW_RUNS: usize = 10;
+/// Below this many runs, resampled intervals of `T_eff(f)` and of the band run short
+/// (measured: docs/validation.md, "Calibration: spectral statements").
+pub const SHORT_RUNS: usize = 40;
 /// Frequencies per chunk of the resampling product.
 const FREQ_CHUNK: usize = 1024;
 
@@ -172,6 +178,34 @@ pub struct Band {
     pub t_eff: Estimate,
 }
 
+/// On which side of the bath temperature `T_eff` lies.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Direction {
+    /// `T_eff > T`: the corrected interval lies above `T`.
+    Hot,
+    /// `T_eff < T`: the corrected interval lies below `T`.
+    Cold,
+}
+
+impl Direction {
+    /// "hot" or "cold".
+    pub fn label(self) -> &'static str {
+        match self {
+            Direction::Hot => "hot",
+            Direction::Cold => "cold",
+        }
+    }
+
+    /// "above" or "below".
+    pub fn side(self) -> &'static str {
+        match self {
+            Direction::Hot => "above",
+            Direction::Cold => "below",
+        }
+    }
+}
+
 /// One log band of the departure test.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct TestBand {
@@ -180,7 +214,42 @@ pub struct TestBand {
     pub band: Band,
     /// Whether the corrected interval excludes the bath temperature.
     pub departs: bool,
+    /// Which side of `T` the corrected interval lies on, when it excludes `T`.
+    pub direction: Option<Direction>,
 }
+
+/// The low-frequency departure from `T`: a detection bound with its direction.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Departure {
+    /// Hot (`T_eff > T`) or cold (`T_eff < T`) in every band of the run.
+    pub direction: Direction,
+    /// Upper edge (Hz) of the run's last band: below it `T_eff` differs from `T` in every
+    /// band; above it no departure is detected at this precision.
+    pub below_hz: f64,
+    /// Lower edge (Hz) of the run's first band (the lowest tested band).
+    pub from_hz: f64,
+    /// Bands in the run.
+    pub bands: usize,
+    /// What the bound means, and why it has no interval.
+    pub note: String,
+}
+
+/// A differing band that is not part of the low-frequency run (a separate finding).
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct SeparateBand {
+    /// Lower edge (Hz).
+    pub fmin: f64,
+    /// Upper edge (Hz).
+    pub fmax: f64,
+    /// Which side of `T`.
+    pub direction: Direction,
+}
+
+/// What the note of every [`Departure`] says.
+pub const DEPARTURE_NOTE: &str = "a detection bound on the band grid: T_eff differs from T \
+     in every band below it; above it no departure is detected at this precision (a longer \
+     record can move it up). No interval is given: the bound depends on the precision and \
+     has no population value to cover.";
 
 /// The analysis of one spectrum (one waiting time).
 #[derive(Debug, Clone, PartialEq, Serialize)]
@@ -195,8 +264,10 @@ pub struct SpectrumFit {
     pub points: Vec<SpectrumPoint>,
     /// The band average.
     pub band: Option<Band>,
-    /// The frequency below which `T_eff` departs from `T` (`None`: no departure, or no `T`).
-    pub departure_below_hz: Option<f64>,
+    /// The low-frequency departure from `T` (`None`: none detected, or no `T`).
+    pub departure: Option<Departure>,
+    /// Differing bands outside the low-frequency run (separate findings, not departures).
+    pub separate_bands: Vec<SeparateBand>,
     /// The departure test's bands (when `T` is given).
     pub test_bands: Vec<TestBand>,
     /// The level of each band's interval in the departure test (Bonferroni-corrected).
@@ -228,8 +299,8 @@ pub struct SpectrumReport {
     pub points: Vec<SpectrumPoint>,
     /// The last spectrum's band average.
     pub band: Option<Band>,
-    /// The last spectrum's departure frequency.
-    pub departure_below_hz: Option<f64>,
+    /// The last spectrum's departure.
+    pub departure: Option<Departure>,
     /// Cautions about the whole input.
     pub warnings: Vec<String>,
 }
@@ -273,7 +344,7 @@ pub fn analyze_spectra(
         convention_text: settings.convention.describe(),
         points: last.points.clone(),
         band: last.band.clone(),
-        departure_below_hz: last.departure_below_hz,
+        departure: last.departure.clone(),
         spectra,
         warnings,
     })
@@ -287,14 +358,26 @@ fn make_bands(freqs: &[f64], s: &SpectrumSettings) -> (Vec<(f64, f64)>, usize) {
         let per = s.bands_per_decade as f64;
         let (l0, l1) = (fmin.log10(), fmax.log10());
         let n = ((l1 - l0) * per).ceil().max(1.0) as usize;
+        // The outer edges are the data's own frequencies; inner ones are rounded to 12
+        // significant digits so that JSON shows 5000, not 4999.999999999999.
+        let edge = |i: usize| match i {
+            0 => fmin,
+            i if i == n => fmax,
+            i => round_sig(10f64.powf(l0 + (l1 - l0) * i as f64 / n as f64), 12),
+        };
         for i in 0..n {
-            let a = 10f64.powf(l0 + (l1 - l0) * i as f64 / n as f64);
-            let b = 10f64.powf(l0 + (l1 - l0) * (i + 1) as f64 / n as f64);
-            bands.push((a, b));
+            bands.push((edge(i), edge(i + 1)));
         }
     }
     let n_test = bands.len() - 1;
     (bands, n_test)
+}
+
+/// `v` rounded to `digits` significant digits (through its decimal form).
+fn round_sig(v: f64, digits: usize) -> f64 {
+    format!("{:.*e}", digits.saturating_sub(1), v)
+        .parse()
+        .unwrap_or(v)
 }
 
 /// Which bands each frequency belongs to (a log band is half-open, the last one closed).
@@ -426,6 +509,13 @@ fn analyze_group(
         }
         e => e,
     };
+    if errors == ErrorModel::Runs && (FEW_RUNS..SHORT_RUNS).contains(&n_runs) {
+        warnings.push(format!(
+            "{n_runs} runs: resampled 95% intervals run short below {SHORT_RUNS} runs (measured \
+             on white records with 12 runs: 0.91 per frequency, 0.87 for the band average); the \
+             departure test's bands use Student's t and keep their level"
+        ));
+    }
     if errors == ErrorModel::Runs && n_runs < FEW_RUNS && s.errors == ErrorModel::Runs {
         warnings.push(format!(
             "only {n_runs} runs: intervals from resampling fewer than {FEW_RUNS} runs are unreliable"
@@ -537,40 +627,35 @@ fn analyze_group(
     };
     let band = make_band(0);
     let mut test_bands = Vec::new();
-    let mut departure = None;
     if let Some(t) = s.temperature {
         for b in (1..bands.len()).filter(|&b| count[b] > 0) {
             let tb = make_band(b);
-            let departs = match (tb.t_eff.low, tb.t_eff.high) {
-                (Some(lo), Some(hi)) => t < lo || t > hi,
-                _ => false,
+            let direction = match (tb.t_eff.low, tb.t_eff.high) {
+                (Some(lo), _) if t < lo => Some(Direction::Hot),
+                (_, Some(hi)) if t > hi => Some(Direction::Cold),
+                _ => None,
             };
-            if departs {
-                departure = Some(tb.fmax);
-            }
-            test_bands.push(TestBand { band: tb, departs });
-        }
-        let flags: Vec<bool> = test_bands.iter().map(|b| b.departs).collect();
-        let first = flags.iter().position(|&d| d);
-        let last = flags.iter().rposition(|&d| d);
-        if let (Some(a), Some(z)) = (first, last)
-            && flags[a..=z].iter().any(|d| !d)
-        {
-            warnings.push(
-                "the bands where T_eff departs from T are not contiguous: look at T_eff(f) \
-                 before quoting one departure frequency"
-                    .into(),
-            );
+            test_bands.push(TestBand {
+                band: tb,
+                departs: direction.is_some(),
+                direction,
+            });
         }
     }
-    let verdict = verdict(&band, s, departure, &test_bands);
+    let (departure, separate_bands) = find_departure(&test_bands);
+    if !separate_bands.is_empty() {
+        let level = test_level.unwrap_or(s.level);
+        warnings.push(separate_caution(&separate_bands, departure.as_ref(), level));
+    }
+    let verdict = verdict(&band, s, departure.as_ref());
     Ok(SpectrumFit {
         tw: g.tw,
         n_runs,
         errors,
         points,
         band: Some(band),
-        departure_below_hz: departure,
+        departure,
+        separate_bands,
         test_bands,
         test_level,
         verdict,
@@ -657,7 +742,14 @@ fn run_intervals(
                 .sum()
         })
         .collect();
+    // At least two runs reach the runs model, so r − 1 > 0 and t exists; normal otherwise.
+    let t_dist = StudentsT::new(0.0, 1.0, rf - 1.0).ok();
     let normal = Normal::standard();
+    let quantile = |p: f64| {
+        t_dist
+            .as_ref()
+            .map_or(normal.inverse_cdf(p), |d| d.inverse_cdf(p))
+    };
     let band_iv = (0..nb)
         .map(|b| {
             if !(wsum[b] > 0.0) {
@@ -670,9 +762,11 @@ fn run_intervals(
                     .map(|iv| (iv.low, iv.high))
             } else {
                 // Corrected levels reach far into the tails: use the bootstrap standard error
-                // with the normal quantile there, which is stable for any B.
-                let se = resample::bootstrap_se(&reps);
-                let z = normal.inverse_cdf(0.5 + test_level.unwrap_or(s.level) / 2.0);
+                // there, which is stable for any B, with Student's t on r − 1 degrees of
+                // freedom and the SE scaled by √(r/(r−1)) (the bootstrap SE of a mean of r
+                // runs is the plug-in one; common practice for small samples).
+                let se = resample::bootstrap_se(&reps) * (rf / (rf - 1.0)).sqrt();
+                let z = quantile(0.5 + test_level.unwrap_or(s.level) / 2.0);
                 Some((band_est[b] - z * se, band_est[b] + z * se))
             }
         })
@@ -680,12 +774,64 @@ fn run_intervals(
     (point_iv, band_iv)
 }
 
-fn verdict(
-    band: &Band,
-    s: &SpectrumSettings,
-    departure: Option<f64>,
-    tests: &[TestBand],
-) -> String {
+/// The departure: the run of differing bands, all on one side of `T`, that starts at the
+/// lowest tested band; and every other differing band as a separate finding.
+fn find_departure(tests: &[TestBand]) -> (Option<Departure>, Vec<SeparateBand>) {
+    let dir0 = tests.first().and_then(|b| b.direction);
+    let run = dir0.map_or(0, |d| {
+        tests.iter().take_while(|b| b.direction == Some(d)).count()
+    });
+    let departure = dir0.map(|direction| Departure {
+        direction,
+        below_hz: tests[run - 1].band.fmax,
+        from_hz: tests[0].band.fmin,
+        bands: run,
+        note: DEPARTURE_NOTE.into(),
+    });
+    let separate = tests[run..]
+        .iter()
+        .filter_map(|b| {
+            Some(SeparateBand {
+                fmin: b.band.fmin,
+                fmax: b.band.fmax,
+                direction: b.direction?,
+            })
+        })
+        .collect();
+    (departure, separate)
+}
+
+/// The caution for differing bands outside the low-frequency run.
+fn separate_caution(sep: &[SeparateBand], dep: Option<&Departure>, level: f64) -> String {
+    let fmt = |v: f64| crate::report::sig(v, 4);
+    let list: Vec<String> = sep
+        .iter()
+        .map(|b| {
+            format!(
+                "{}–{} Hz ({}: T_eff {} T)",
+                fmt(b.fmin),
+                fmt(b.fmax),
+                b.direction.label(),
+                b.direction.side()
+            )
+        })
+        .collect();
+    let from = if dep.is_some() {
+        "the low-frequency departure"
+    } else {
+        "the lowest band"
+    };
+    format!(
+        "T_eff differs from T at the corrected level {:.4} in {} band(s) not contiguous with \
+         {from}: {}. This is a separate finding, not a departure frequency; one band can be a \
+         line in the spectrum or a chance excursion — look at T_eff(f) there",
+        level,
+        sep.len(),
+        list.join(", ")
+    )
+}
+
+fn verdict(band: &Band, s: &SpectrumSettings, departure: Option<&Departure>) -> String {
     let fmt = |v: f64| crate::report::sig(v, 4);
     let e = &band.t_eff;
     let (Some(v), Some(lo), Some(hi)) = (e.estimate, e.low, e.high) else {
@@ -700,32 +846,30 @@ fn verdict(
         fmt(lo),
         fmt(hi)
     );
-    if let Some(t) = s.temperature {
-        if lo <= t && t <= hi {
-            out.push_str(&format!(
-                ": equal to the bath temperature {}{unit} within errors",
-                fmt(t)
-            ));
-        } else if lo > t {
-            out.push_str(&format!(": above the bath temperature {}{unit}", fmt(t)));
-        } else {
-            out.push_str(&format!(": below the bath temperature {}{unit}", fmt(t)));
-        }
-        match departure {
-            Some(fd) => {
-                let b = tests.iter().rev().find(|b| b.departs).map(|b| &b.band);
-                if let Some(b) = b {
-                    out.push_str(&format!(
-                        "; T_eff departs from T below {} Hz (band {}–{} Hz: {}{unit})",
-                        fmt(fd),
-                        fmt(b.fmin),
-                        fmt(b.fmax),
-                        fmt(b.t_eff.estimate.unwrap_or(f64::NAN))
-                    ));
-                }
-            }
-            None => out.push_str("; no band departs from T at the corrected level"),
-        }
+    let Some(t) = s.temperature else {
+        return out;
+    };
+    if lo <= t && t <= hi {
+        out.push_str(&format!(
+            ": equal to the bath temperature {}{unit} within errors",
+            fmt(t)
+        ));
+    } else if lo > t {
+        out.push_str(&format!(": above the bath temperature {}{unit}", fmt(t)));
+    } else {
+        out.push_str(&format!(": below the bath temperature {}{unit}", fmt(t)));
+    }
+    match departure {
+        Some(d) => out.push_str(&format!(
+            "; T_eff is detectably {} T ({}) in every band from {} to {} Hz; above {} Hz no \
+             departure is detected at this precision",
+            d.direction.side(),
+            d.direction.label(),
+            fmt(d.from_hz),
+            fmt(d.below_hz),
+            fmt(d.below_hz)
+        )),
+        None => out.push_str("; no low-frequency departure from T at the corrected level"),
     }
     out
 }

@@ -1,8 +1,11 @@
 //! Welch's averaged-periodogram PSD, streamed, with its equivalent degrees of freedom.
 //!
 //! Segments of `L` samples, a periodic Hann window, each segment's mean removed, hop
-//! `L − overlap`; the one-sided density is `2 |X_k|² / (fs Σ w²)` (not doubled at 0 and at
-//! Nyquist), averaged over segments. Samples arrive one at a time and go in blocks to a
+//! `L − overlap`; the one-sided density is `2 |X_k|² / (fs Σ w²)` at every bin but 0 Hz,
+//! averaged over segments. The Nyquist bin is doubled like the interior bins, so white
+//! noise of one-sided density `G` reads `G` there too (the density convention of
+//! `scipy.signal.welch` leaves it undoubled, reading `G/2`; its total power stays right but
+//! its value is not the density at `fs/2`). Bin 0 is left undoubled and is never used. Samples arrive one at a time and go in blocks to a
 //! worker thread that cuts, transforms and sums while reading goes on, in stream order, so
 //! the result does not depend on timing; memory does not grow with the record.
 //!
@@ -232,8 +235,9 @@ impl Welch {
         let mut psd = Vec::with_capacity(last + 1);
         let mut dof = Vec::with_capacity(last + 1);
         for (i, s) in sum.iter().enumerate() {
+            // The 0 Hz and Nyquist transforms are real: one degree of freedom per segment.
             let edge = i == 0 || (even && i == last);
-            let scale = if edge { 1.0 } else { 2.0 };
+            let scale = if i == 0 { 1.0 } else { 2.0 };
             psd.push(scale * s / (k * fs * norm));
             dof.push(if edge { nu / 2.0 } else { nu });
         }
