@@ -30,7 +30,7 @@ use serde::Serialize;
 /// The JSON schema version of [`FitReport`].
 pub const SCHEMA: u32 = 2;
 /// Replicates per chunk of the resampling product; fixed so results do not depend on threads.
-const CHUNK: usize = 64;
+pub(crate) const CHUNK: usize = 64;
 /// Below this many samples the report warns that intervals are unreliable.
 pub const FEW_SAMPLES: usize = 20;
 /// Below this many samples the report says intervals run a little short (measured).

@@ -4,8 +4,8 @@
 
 use crate::error::{Error, Result};
 
-/// Replicates per chunk of the resampling product (shared with the analysis).
-const CHUNK: usize = 64;
+use crate::analysis::CHUNK;
+use crate::spectral::analysis::FREQ_CHUNK;
 
 /// Memory a time-domain fit needs, in bytes, for `n` samples, a data matrix of `cols`
 /// columns over `p` points, `groups` fits, `b` resamples and `threads` workers.
@@ -51,6 +51,27 @@ pub fn human(bytes: f64) -> String {
 /// [`Error::Setting`] naming the need, the limit and what to change.
 pub fn check_fit(n: usize, cols: usize, p: usize, groups: usize, b: usize) -> Result<()> {
     let need = fit_bytes(n, cols, p, groups, b, rayon::current_num_threads());
+    check(need, b, available_bytes())
+}
+
+/// Memory the run bootstrap of one spectrum needs, in bytes: the `b × runs` resampling
+/// matrix, per worker two `b ×` chunk products and the band sums, and the series of one
+/// frequency's replicates.
+pub fn spectrum_bytes(b: usize, runs: usize, freqs: usize, bands: usize, threads: usize) -> f64 {
+    let f = |v: usize| v as f64;
+    let chunk = f(freqs.min(FREQ_CHUNK));
+    let w = f(b) * f(runs) * 8.0;
+    let per_thread = f(b) * (2.0 * chunk + f(bands) + 2.0) * 8.0;
+    let sums = f(b) * f(bands) * 8.0;
+    w + f(threads.min(freqs.div_ceil(FREQ_CHUNK).max(1))) * per_thread + sums
+}
+
+/// Refuses a run bootstrap of a spectrum that would not fit in memory.
+///
+/// # Errors
+/// [`Error::Setting`] naming the need, the limit and what to change.
+pub fn check_spectrum(b: usize, runs: usize, freqs: usize, bands: usize) -> Result<()> {
+    let need = spectrum_bytes(b, runs, freqs, bands, rayon::current_num_threads());
     check(need, b, available_bytes())
 }
 

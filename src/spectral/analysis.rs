@@ -43,7 +43,7 @@ pub const FEW_RUNS: usize = 10;
 /// (measured: docs/validation.md, "Calibration: spectral statements").
 pub const SHORT_RUNS: usize = 40;
 /// Frequencies per chunk of the resampling product.
-const FREQ_CHUNK: usize = 1024;
+pub(crate) const FREQ_CHUNK: usize = 1024;
 
 /// An interval's ends, when it could be formed.
 type Ends = Option<(f64, f64)>;
@@ -591,6 +591,7 @@ fn analyze_group(
             (piv, biv, bdof)
         }
         _ => {
+            crate::budget::check_spectrum(s.resamples, g.runs.len(), g.freqs.len(), bands.len())?;
             let (piv, biv) = run_intervals(
                 g, &factor, &members, &weights, &band_est, &t_hat, s, test_level,
             );
