@@ -27,7 +27,7 @@ pub struct SynthSpec {
     pub samples: usize,
     /// Waiting times.
     pub waiting_times: Vec<f64>,
-    /// Later times per waiting time (log-spaced from `tw + 0.1` to `tw + 30 tw`).
+    /// Later times per waiting time (log-spaced from `tw + first_lag` to `tw + 30 tw`).
     pub points_per_tw: usize,
     /// The true fluctuation–dissipation ratio below the plateau.
     pub ratio: f64,
@@ -54,6 +54,17 @@ pub struct SynthSpec {
     /// The shape of the true relation below the plateau.
     #[serde(skip_serializing_if = "Shape::is_two_lines")]
     pub shape: Shape,
+    /// The first later time's lag `t − tw` (default 0.1). A larger lag leaves fewer points
+    /// in the fast regime, above the plateau.
+    #[serde(skip_serializing_if = "is_default_first_lag")]
+    pub first_lag: f64,
+}
+
+/// The default [`SynthSpec::first_lag`].
+pub const FIRST_LAG: f64 = 0.1;
+
+fn is_default_first_lag(v: &f64) -> bool {
+    v.to_bits() == FIRST_LAG.to_bits()
 }
 
 /// The shape of the true `k T χ̄` against `C̄` below the plateau `q` (above it the slope is
@@ -101,6 +112,7 @@ impl Default for SynthSpec {
             seed: 2026,
             noise_growth: 0.0,
             shape: Shape::TwoLines,
+            first_lag: FIRST_LAG,
         }
     }
 }
@@ -161,7 +173,7 @@ impl SynthSpec {
     /// The grid of later times for one waiting time.
     pub fn times(&self, tw: f64) -> Vec<f64> {
         let k = self.points_per_tw;
-        let (lo, hi) = ((0.1f64).ln(), (30.0 * tw).ln());
+        let (lo, hi) = (self.first_lag.ln(), (30.0 * tw).ln());
         (0..k)
             .map(|i| tw + (lo + (hi - lo) * i as f64 / (k.max(2) - 1) as f64).exp())
             .collect()
@@ -472,22 +484,27 @@ mod tests {
     fn the_edge_break_grid_has_about_five_points_above_the_plateau() {
         // q = 0.95 on 3 waiting times × 20 points: the fast part 0.05 e^(−(t−tw)) keeps C
         // above q only for the first few lags.
-        let spec = SynthSpec {
-            plateau: 0.95,
-            ratio: 0.25,
-            points_per_tw: 20,
-            ..SynthSpec::default()
+        let above = |first_lag: f64| -> Vec<usize> {
+            let spec = SynthSpec {
+                plateau: 0.95,
+                ratio: 0.25,
+                points_per_tw: 20,
+                first_lag,
+                ..SynthSpec::default()
+            };
+            spec.waiting_times
+                .iter()
+                .map(|&tw| {
+                    let t = spec.times(tw);
+                    assert!((t[0] - tw - first_lag).abs() < 1e-9 * tw);
+                    t.iter()
+                        .filter(|&&t| spec.correlation(tw, t) >= spec.plateau)
+                        .count()
+                })
+                .collect()
         };
-        let above: Vec<usize> = spec
-            .waiting_times
-            .iter()
-            .map(|&tw| {
-                spec.times(tw)
-                    .iter()
-                    .filter(|&&t| spec.correlation(tw, t) >= spec.plateau)
-                    .count()
-            })
-            .collect();
-        assert_eq!(above, vec![5, 6, 5]);
+        assert_eq!(above(FIRST_LAG), vec![5, 6, 5]);
+        // A later first lag leaves fewer than the default 5 points per branch above q.
+        assert_eq!(above(0.3), vec![3, 4, 4]);
     }
 }
