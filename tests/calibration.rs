@@ -216,6 +216,8 @@ struct Batch {
     spec: SynthSpec,
     model: Model,
     weights: Weighting,
+    /// The fit's temperature over the true one (1: the thermometer is right).
+    t_scale: f64,
     statements: Vec<Statement>,
 }
 
@@ -303,6 +305,7 @@ fn batches() -> Vec<Batch> {
                 spec: equilibrium(n),
                 model: Broken,
                 weights: w,
+                t_scale: 1.0,
                 statements: vec![
                     st(
                         "equilibrium test false alarm (p < 0.05)",
@@ -329,6 +332,7 @@ fn batches() -> Vec<Batch> {
             spec: equilibrium(20),
             model,
             weights: Iv,
+            t_scale: 1.0,
             statements: vec![st(
                 "equilibrium test false alarm (p < 0.05)",
                 FALSE_ALARM,
@@ -342,6 +346,7 @@ fn batches() -> Vec<Batch> {
             spec: two_lines(20),
             model: Broken,
             weights: w,
+            t_scale: 1.0,
             statements: vec![
                 st(
                     "equilibrium test power (p < 0.05)",
@@ -380,6 +385,7 @@ fn batches() -> Vec<Batch> {
         spec: two_lines(48),
         model: Broken,
         weights: Iv,
+        t_scale: 1.0,
         statements: vec![
             st("joint X interval covers", COVERAGE, x_covered),
             st("joint q interval covers", COVERAGE, q_covered),
@@ -401,6 +407,7 @@ fn batches() -> Vec<Batch> {
         spec: two_lines(20),
         model: Free,
         weights: Iv,
+        t_scale: 1.0,
         statements: vec![
             st("joint X interval covers", COVERAGE, x_covered),
             st("joint q interval covers", COVERAGE, q_covered),
@@ -424,6 +431,7 @@ fn batches() -> Vec<Batch> {
         },
         model: Broken,
         weights: Iv,
+        t_scale: 1.0,
         statements: vec![st(
             "equilibrium test power (p < 0.05)",
             Band::Report,
@@ -435,6 +443,7 @@ fn batches() -> Vec<Batch> {
         spec: aging_x(20),
         model: Broken,
         weights: Iv,
+        t_scale: 1.0,
         statements: vec![
             st(
                 "\"X changes with age\", X ages (power)",
@@ -449,6 +458,7 @@ fn batches() -> Vec<Batch> {
         spec: edge_break(20),
         model: Broken,
         weights: Iv,
+        t_scale: 1.0,
         statements: vec![
             st(
                 "\"X changes with age\", X does not age",
@@ -488,6 +498,7 @@ fn batches() -> Vec<Batch> {
             spec,
             model: Broken,
             weights: Iv,
+            t_scale: 1.0,
             statements: vec![
                 st(
                     "\"X changes with age\", X does not age",
@@ -514,9 +525,22 @@ fn batches() -> Vec<Batch> {
         spec: curved(20),
         model: Broken,
         weights: Iv,
+        t_scale: 1.0,
         statements: vec![st(
             "thermometer caution, slope exactly -1 (curved below q)",
             FALSE_ALARM,
+            thermometer_caution,
+        )],
+    });
+    out.push(Batch {
+        scenario: "two lines X = 0.45, q = 0.6, fitted with T 5% low (slope above -0.95)",
+        spec: two_lines(20),
+        model: Broken,
+        weights: Iv,
+        t_scale: 0.95,
+        statements: vec![st(
+            "thermometer caution, slope -0.95 (power)",
+            Band::Report,
             thermometer_caution,
         )],
     });
@@ -525,6 +549,7 @@ fn batches() -> Vec<Batch> {
         spec: single_line(20),
         model: Line,
         weights: Iv,
+        t_scale: 1.0,
         statements: vec![
             st(
                 "thermometer caution (single-line model)",
@@ -662,7 +687,7 @@ fn calibration_table() {
             ..batch.spec.clone()
         };
         let settings = |spec: &SynthSpec, i: u64| FitSettings {
-            temperature: spec.temperature,
+            temperature: spec.temperature * batch.t_scale,
             resamples: b,
             seed: fit_seed.wrapping_add(i),
             model: batch.model,
