@@ -130,6 +130,13 @@ impl Default for FitSettings {
 }
 
 impl FitSettings {
+    /// The level of the tests, `α = 1 − level`, rounded to 12 digits so that 0.95 gives
+    /// exactly 0.05. A resampling p-value `(1 + #)/(B + 1)` rejects when `p ≤ α`, which has
+    /// level exactly `α` when `α (B + 1)` is a whole number (B = 999, 1999, …).
+    pub fn test_level(&self) -> f64 {
+        ((1.0 - self.level) * 1e12).round() / 1e12
+    }
+
     /// Checks every field's range.
     ///
     /// # Errors

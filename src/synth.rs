@@ -2,10 +2,15 @@
 //!
 //! The sample-mean curves lie exactly on a chosen parametric relation: `C(t,tw)` decays in
 //! two steps (a fast relaxation to the plateau `q`, then a slow aging decay that scales
-//! with `t/tw`), and `k T χ̄ = 1 − C` for `C ≥ q`, `1 − q + X (q − C)` below. Each sample
+//! with `t/tw`), and `k T χ̄ = 1 − C` for `C ≥ q`, `1 − q + X (q − C)` below (the default
+//! [`Shape::TwoLines`]; [`Shape::Smooth`] bends smoothly below `q` instead). Each sample
 //! adds zero-mean noise that is correlated along `t` (an AR(1) sequence) and between C and
-//! χ, as samples from one run of a simulation are. So the mean over infinitely many
-//! samples is the truth, and a correct estimator with correct intervals recovers it.
+//! χ, as samples from one run of a simulation are, and whose size may grow as C decays
+//! (`noise_growth`). So the mean over infinitely many samples is the truth, and a correct
+//! estimator with correct intervals recovers it.
+//!
+//! Special cases: `ratio = 1` is equilibrium (one straight line of slope −1, for either
+//! shape); `plateau = 1` has no fast part, so the truth is the single line `X (1 − C)`.
 //!
 //! These are invented data with a built-in answer, not a simulation of any dynamics.
 
@@ -22,7 +27,7 @@ pub struct SynthSpec {
     pub samples: usize,
     /// Waiting times.
     pub waiting_times: Vec<f64>,
-    /// Later times per waiting time (log-spaced from `tw + 0.1` to `tw + 30 tw`).
+    /// Later times per waiting time (log-spaced from `tw + first_lag` to `tw + 30 tw`).
     pub points_per_tw: usize,
     /// The true fluctuation–dissipation ratio below the plateau.
     pub ratio: f64,
@@ -41,6 +46,54 @@ pub struct SynthSpec {
     pub cross: f64,
     /// Random seed.
     pub seed: u64,
+    /// Growth of the noise as C decays: at a point whose true mean correlation is `C̄`, the
+    /// standard deviation of both C and k T χ is `noise · (1 + noise_growth · (1 − C̄))`
+    /// (0: the same `noise` everywhere).
+    #[serde(skip_serializing_if = "is_zero")]
+    pub noise_growth: f64,
+    /// The shape of the true relation below the plateau.
+    #[serde(skip_serializing_if = "Shape::is_two_lines")]
+    pub shape: Shape,
+    /// The first later time's lag `t − tw` (default 0.1). A larger lag leaves fewer points
+    /// in the fast regime, above the plateau.
+    #[serde(skip_serializing_if = "is_default_first_lag")]
+    pub first_lag: f64,
+}
+
+/// The default [`SynthSpec::first_lag`].
+pub const FIRST_LAG: f64 = 0.1;
+
+fn is_default_first_lag(v: &f64) -> bool {
+    v.to_bits() == FIRST_LAG.to_bits()
+}
+
+/// The shape of the true `k T χ̄` against `C̄` below the plateau `q` (above it the slope is
+/// always −1, `k T χ̄ = 1 − C̄`).
+#[derive(Debug, Clone, Copy, PartialEq, Default, serde::Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Shape {
+    /// A straight line of slope −X below `q`: `k T χ̄ = 1 − q + X (q − C̄)`.
+    #[default]
+    TwoLines,
+    /// A local ratio that falls smoothly from 1 at `q` to `X∞ = ratio` at `C̄ = 0`:
+    /// `−d(k T χ̄)/dC̄ = X(C̄) = X∞ + (1 − X∞) (C̄/q)^power` (power > 0), so that below `q`
+    /// `k T χ̄ = 1 − q + X∞ (q − C̄) + (1 − X∞) q/(power + 1) · (1 − (C̄/q)^(power + 1))`.
+    /// Slope and value are continuous at `q`: there is no break, only a bend.
+    Smooth {
+        /// The exponent of the fall of X(C̄).
+        power: f64,
+    },
+}
+
+impl Shape {
+    /// True for the default two lines (used to keep the serialized recipe unchanged).
+    pub fn is_two_lines(&self) -> bool {
+        matches!(self, Shape::TwoLines)
+    }
+}
+
+fn is_zero(v: &f64) -> bool {
+    *v == 0.0
 }
 
 impl Default for SynthSpec {
@@ -57,6 +110,9 @@ impl Default for SynthSpec {
             along_t: 0.8,
             cross: -0.4,
             seed: 2026,
+            noise_growth: 0.0,
+            shape: Shape::TwoLines,
+            first_lag: FIRST_LAG,
         }
     }
 }
@@ -77,17 +133,47 @@ impl SynthSpec {
 
     /// The true `k T χ` at waiting time `tw` as a function of the mean correlation.
     pub fn response(&self, tw: f64, c: f64) -> f64 {
-        if c >= self.plateau {
-            1.0 - c
+        let q = self.plateau;
+        if c >= q {
+            return 1.0 - c;
+        }
+        let x = self.ratio_at(tw);
+        match self.shape {
+            Shape::TwoLines => 1.0 - q + x * (q - c),
+            Shape::Smooth { power } => {
+                let u = (c / q).max(0.0);
+                1.0 - q + x * (q - c) + (1.0 - x) * q / (power + 1.0) * (1.0 - u.powf(power + 1.0))
+            }
+        }
+    }
+
+    /// The true local ratio `−d(k T χ̄)/dC̄` at waiting time `tw` and mean correlation `c`
+    /// (1 above the plateau).
+    pub fn local_ratio(&self, tw: f64, c: f64) -> f64 {
+        let q = self.plateau;
+        if c >= q {
+            return 1.0;
+        }
+        let x = self.ratio_at(tw);
+        match self.shape {
+            Shape::TwoLines => x,
+            Shape::Smooth { power } => x + (1.0 - x) * (c / q).max(0.0).powf(power),
+        }
+    }
+
+    /// The standard deviation of one sample's C and k T χ where the true mean is `c`.
+    pub fn noise_at(&self, c: f64) -> f64 {
+        if self.noise_growth == 0.0 {
+            self.noise
         } else {
-            1.0 - self.plateau + self.ratio_at(tw) * (self.plateau - c)
+            self.noise * (1.0 + self.noise_growth * (1.0 - c))
         }
     }
 
     /// The grid of later times for one waiting time.
     pub fn times(&self, tw: f64) -> Vec<f64> {
         let k = self.points_per_tw;
-        let (lo, hi) = ((0.1f64).ln(), (30.0 * tw).ln());
+        let (lo, hi) = (self.first_lag.ln(), (30.0 * tw).ln());
         (0..k)
             .map(|i| tw + (lo + (hi - lo) * i as f64 / (k.max(2) - 1) as f64).exp())
             .collect()
@@ -125,8 +211,9 @@ pub fn generate(spec: &SynthSpec) -> Result<Campaign> {
             }
             let c = spec.correlation(g.tw, g.t);
             let y = spec.response(g.tw, c);
-            let nc = spec.noise * e1;
-            let ny = spec.noise * (spec.cross * e1 + cross_c * e2);
+            let sd = spec.noise_at(c);
+            let nc = sd * e1;
+            let ny = sd * (spec.cross * e1 + cross_c * e2);
             corr[[i, j]] = c + nc;
             resp[[i, j]] = (y + ny) / spec.temperature;
         }
@@ -211,5 +298,213 @@ pub fn generate_spectrum(spec: &SpectrumSpec) -> crate::spectral::input::Spectru
         loss,
         dof: Some(Array2::from_elem((spec.runs, n), spec.dof)),
         freqs,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Per point: the sample mean of C and of k T χ over many samples, and their standard
+    /// errors.
+    fn means(spec: &SynthSpec) -> Vec<(GridPoint, [f64; 4])> {
+        let c = generate(spec).unwrap();
+        let (corr, resp) = (c.corr(), c.resp());
+        let n = spec.samples as f64;
+        c.points()
+            .iter()
+            .enumerate()
+            .map(|(j, g)| {
+                let stats = |col: Vec<f64>| {
+                    let m = col.iter().sum::<f64>() / n;
+                    let v = col.iter().map(|v| (v - m).powi(2)).sum::<f64>() / (n - 1.0);
+                    (m, (v / n).sqrt())
+                };
+                let (mc, sc) = stats(corr.column(j).to_vec());
+                let (my, sy) = stats(
+                    resp.column(j)
+                        .iter()
+                        .map(|r| r * spec.temperature)
+                        .collect(),
+                );
+                (*g, [mc, sc, my, sy])
+            })
+            .collect()
+    }
+
+    fn assert_means_converge(spec: &SynthSpec) {
+        for (g, [mc, sc, my, sy]) in means(spec) {
+            let c = spec.correlation(g.tw, g.t);
+            let y = spec.response(g.tw, c);
+            // 5 standard errors: a false failure has probability ~6e-7 per number.
+            assert!((mc - c).abs() < 5.0 * sc, "C at {g:?}: {mc} vs {c} ± {sc}");
+            assert!(
+                (my - y).abs() < 5.0 * sy,
+                "kTχ at {g:?}: {my} vs {y} ± {sy}"
+            );
+        }
+    }
+
+    #[test]
+    fn the_default_recipe_serializes_without_the_new_fields() {
+        let v = serde_json::to_value(SynthSpec::default()).unwrap();
+        let keys: Vec<&str> = v.as_object().unwrap().keys().map(String::as_str).collect();
+        assert!(
+            !keys.contains(&"noise_growth") && !keys.contains(&"shape"),
+            "{keys:?}"
+        );
+        let on = SynthSpec {
+            noise_growth: 1.0,
+            shape: Shape::Smooth { power: 2.0 },
+            ..SynthSpec::default()
+        };
+        let v = serde_json::to_value(on).unwrap();
+        assert_eq!(v["shape"]["smooth"]["power"], 2.0);
+        assert_eq!(v["noise_growth"], 1.0);
+    }
+
+    #[test]
+    fn the_smooth_shape_has_the_stated_slope_and_no_kink() {
+        let spec = SynthSpec {
+            ratio: 0.3,
+            plateau: 0.7,
+            shape: Shape::Smooth { power: 1.5 },
+            ..SynthSpec::default()
+        };
+        let tw = spec.waiting_times[0];
+        let q = spec.plateau;
+        // Value and slope continuous at q.
+        let h = 1e-6;
+        assert!((spec.response(tw, q - h) - (1.0 - q + h)).abs() < 1e-9);
+        assert!((spec.local_ratio(tw, q - h) - 1.0).abs() < 1e-5);
+        // −dy/dC equals the stated X(C) (central differences), and X(0) = ratio.
+        for k in 1..70 {
+            let c = k as f64 * 0.01;
+            let d = -(spec.response(tw, c + h) - spec.response(tw, c - h)) / (2.0 * h);
+            assert!((d - spec.local_ratio(tw, c)).abs() < 1e-6, "c = {c}: {d}");
+        }
+        assert!((spec.local_ratio(tw, 0.0) - 0.3).abs() < 1e-15);
+        // Smoothly decreasing below q.
+        let xs: Vec<f64> = (0..70)
+            .map(|k| spec.local_ratio(tw, k as f64 * 0.01))
+            .collect();
+        assert!(xs.windows(2).all(|w| w[1] > w[0]));
+    }
+
+    #[test]
+    fn equilibrium_is_the_line_of_slope_minus_one_for_either_shape() {
+        for shape in [Shape::TwoLines, Shape::Smooth { power: 2.0 }] {
+            let spec = SynthSpec {
+                ratio: 1.0,
+                shape,
+                ..SynthSpec::default()
+            };
+            for k in 0..=100 {
+                let c = k as f64 * 0.01;
+                let y = spec.response(100.0, c);
+                assert!((y - (1.0 - c)).abs() < 1e-14, "{shape:?} c = {c}: {y}");
+            }
+        }
+    }
+
+    #[test]
+    fn a_plateau_of_one_is_a_single_line() {
+        let spec = SynthSpec {
+            ratio: 0.5,
+            plateau: 1.0,
+            ..SynthSpec::default()
+        };
+        for &tw in &spec.waiting_times {
+            for t in spec.times(tw) {
+                let c = spec.correlation(tw, t);
+                assert!(c < 1.0);
+                assert!((spec.response(tw, c) - 0.5 * (1.0 - c)).abs() < 1e-15);
+            }
+        }
+    }
+
+    #[test]
+    fn sample_means_converge_to_the_truth_for_every_new_shape() {
+        let base = SynthSpec {
+            samples: 4000,
+            points_per_tw: 12,
+            seed: 99,
+            ..SynthSpec::default()
+        };
+        assert_means_converge(&base);
+        assert_means_converge(&SynthSpec {
+            noise_growth: 3.0,
+            ..base.clone()
+        });
+        assert_means_converge(&SynthSpec {
+            shape: Shape::Smooth { power: 2.0 },
+            ratio: 0.25,
+            noise_growth: 1.0,
+            ..base.clone()
+        });
+        assert_means_converge(&SynthSpec {
+            plateau: 0.95,
+            ratio: 0.25,
+            ..base.clone()
+        });
+        assert_means_converge(&SynthSpec {
+            ratio: 1.0,
+            noise_growth: 2.0,
+            ..base
+        });
+    }
+
+    #[test]
+    fn the_noise_grows_as_stated() {
+        let spec = SynthSpec {
+            samples: 4000,
+            points_per_tw: 12,
+            noise_growth: 3.0,
+            seed: 5,
+            ..SynthSpec::default()
+        };
+        let n = spec.samples as f64;
+        for (g, [_, sc, _, sy]) in means(&spec) {
+            let sd = spec.noise_at(spec.correlation(g.tw, g.t));
+            // The SD of 4000 normal samples is within 5% of the truth (its relative SD is
+            // 1/sqrt(2n) ≈ 1.1%).
+            for se in [sc, sy] {
+                assert!(
+                    (se * n.sqrt() / sd - 1.0).abs() < 0.05,
+                    "{g:?}: {} vs {sd}",
+                    se * n.sqrt()
+                );
+            }
+        }
+        let c_end = spec.correlation(10000.0, *spec.times(10000.0).last().unwrap());
+        assert!(spec.noise_at(c_end) > 3.5 * spec.noise);
+    }
+
+    #[test]
+    fn the_edge_break_grid_has_about_five_points_above_the_plateau() {
+        // q = 0.95 on 3 waiting times × 20 points: the fast part 0.05 e^(−(t−tw)) keeps C
+        // above q only for the first few lags.
+        let above = |first_lag: f64| -> Vec<usize> {
+            let spec = SynthSpec {
+                plateau: 0.95,
+                ratio: 0.25,
+                points_per_tw: 20,
+                first_lag,
+                ..SynthSpec::default()
+            };
+            spec.waiting_times
+                .iter()
+                .map(|&tw| {
+                    let t = spec.times(tw);
+                    assert!((t[0] - tw - first_lag).abs() < 1e-9 * tw);
+                    t.iter()
+                        .filter(|&&t| spec.correlation(tw, t) >= spec.plateau)
+                        .count()
+                })
+                .collect()
+        };
+        assert_eq!(above(FIRST_LAG), vec![5, 6, 5]);
+        // A later first lag leaves fewer than the default 5 points per branch above q.
+        assert_eq!(above(0.3), vec![3, 4, 4]);
     }
 }

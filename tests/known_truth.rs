@@ -66,7 +66,7 @@ fn an_equilibrium_campaign_is_rarely_flagged() {
         };
         let r = fit(&spec, 500);
         let f = &r.fits[0];
-        if f.equilibrium_p.unwrap() < 0.05 {
+        if f.equilibrium_p.unwrap() <= 0.05 {
             flagged += 1;
         } else {
             assert!(
