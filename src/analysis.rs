@@ -1257,11 +1257,12 @@ fn t_eff_estimate(temperature: f64, ratio: &Estimate) -> Estimate {
             high: None,
             note: Some("unbounded: X's interval reaches 0".into()),
         },
+        // No interval for X (its note says why): none for T_eff either.
         _ => Estimate {
             estimate,
             low: None,
             high: None,
-            note: Some("no interval".into()),
+            note: None,
         },
     }
 }

@@ -120,28 +120,30 @@ pub fn render(r: &FitReport) -> Vec<u8> {
         let _ = writeln!(o, "  {held} = {:<6} {}", label(f), f.verdict);
     }
     if let Some(a) = &r.aging {
-        let used: Vec<String> = a.curves_used.iter().map(|&t| fmt_num(t)).collect();
         let left: Vec<String> = a
             .left_out
             .iter()
             .map(|l| format!("{held} = {} ({})", fmt_num(l.held), l.reason))
             .collect();
-        let _ = writeln!(
-            o,
-            "aging      dX/dlog10({held}) = {} per decade over {} = {} (percentile interval){}",
-            est(&a.change_per_decade),
-            held,
-            if used.is_empty() {
-                "none".into()
-            } else {
-                used.join(", ")
-            },
-            if left.is_empty() {
-                String::new()
-            } else {
-                format!("; left out: {}", left.join(", "))
-            }
-        );
+        let left = if left.is_empty() {
+            String::new()
+        } else {
+            format!("; left out: {}", left.join(", "))
+        };
+        if a.change_per_decade.estimate.is_some() {
+            let used: Vec<String> = a.curves_used.iter().map(|&t| fmt_num(t)).collect();
+            let _ = writeln!(
+                o,
+                "aging      dX/dlog10({held}) = {} per decade over {held} = {} (percentile interval){left}",
+                est(&a.change_per_decade),
+                used.join(", "),
+            );
+        } else {
+            let _ = writeln!(
+                o,
+                "aging      no trend: fewer than 2 curves where X is quoted{left}"
+            );
+        }
     }
 
     let mut cautions: Vec<String> = r.warnings.clone();
