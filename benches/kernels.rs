@@ -3,9 +3,9 @@
 
 use criterion::{Criterion, criterion_group, criterion_main};
 use fdtemp::FitSettings;
-use fdtemp::analysis::{Silent, analyze};
 use fdtemp::fit::{Base, Workspace, broken::search};
 use fdtemp::synth::{SynthSpec, generate};
+use fdtemp::twotime::{Silent, analyze};
 use ndarray::Array2;
 use std::hint::black_box;
 
@@ -45,7 +45,7 @@ fn break_search(c: &mut Criterion) {
 
 fn resampling_product(c: &mut Criterion) {
     let camp = w_shape(1000);
-    let d = fdtemp::fdplot::data_matrix(&camp, false);
+    let d = fdtemp::twotime::points::data_matrix(&camp, false);
     let n = camp.n_samples();
     let mut wm = Array2::<f64>::zeros((64, n));
     let mut counts = vec![0u32; n];

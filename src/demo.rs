@@ -11,14 +11,14 @@
 //! spectrum compared with its dielectric loss in 12 runs at 295 K. The slow modes are hot:
 //! `T_eff(f) = 295 K · (1 + (2 Hz / f)²)`, the bath temperature above about 20 Hz.
 
-use crate::analysis::{FitReport, Progress, analyze};
 use crate::error::{Error, Result};
 use crate::output::Output;
 use crate::report::plot::{self, Figure};
-use crate::settings::FitSettings;
 use crate::spectral::analysis::{SpectrumReport, SpectrumSettings, analyze_spectra};
 use crate::spectral::input::write_spectra;
 use crate::synth::{SpectrumSpec, SynthSpec, generate, generate_spectrum};
+use crate::twotime::FitSettings;
+use crate::twotime::{FitReport, Progress, analyze};
 use std::fmt::Write;
 use std::path::Path;
 
@@ -111,7 +111,7 @@ pub fn run(dir: &Path, progress: &dyn Progress) -> Result<Demo> {
         },
         Output {
             path: dir.join("fit.json"),
-            bytes: crate::report::json::to_json(&report),
+            bytes: crate::report::json::fit_json(&report),
         },
         Output {
             path: dir.join("points.csv"),

@@ -1,29 +1,33 @@
 //! fdtemp: fluctuation–dissipation ratios and effective temperatures of aging systems,
 //! with confidence intervals that resample independent samples.
+//!
+//! Two domains, each in its own folder: [`twotime`] (C(t,tw) and χ(t,tw) over samples)
+//! and [`spectral`] (noise spectra and dissipation). Readers at the edge ([`input`]),
+//! numerical kernels ([`fit`], [`resample`]), writers and figures ([`report`]), safe
+//! output files ([`output`]), resources ([`budget`]) and the invented and simulated
+//! scenarios ([`scenarios`]). docs/architecture.md draws the map.
 #![deny(clippy::float_cmp)]
 #![warn(missing_docs)]
 // `!(v > 0.0)` is used on purpose: unlike `v <= 0.0` it also rejects NaN.
 #![allow(clippy::neg_cmp_op_on_partial_ord)]
 
 pub mod budget;
-pub mod campaign;
+pub mod common;
 pub mod error;
 pub mod fit;
 pub mod input;
-pub mod resample;
-
-pub use campaign::{Campaign, GridPoint};
-pub use error::{Error, Result};
-pub mod analysis;
-pub mod fdplot;
-pub mod settings;
-
-pub use analysis::{FitReport, analyze};
-pub use settings::FitSettings;
-pub mod demo;
 pub mod output;
 pub mod report;
+pub mod resample;
+pub mod spectral;
+pub mod twotime;
+
+pub mod demo;
+pub mod sim;
 pub mod synth;
+
+pub use error::{Error, Result};
+pub use twotime::{Campaign, FitReport, FitSettings, GridPoint, analyze};
 
 /// Runs `f` on a pool of `threads` worker threads (all cores when `None`).
 ///
@@ -47,5 +51,3 @@ where
 #[cfg(doctest)]
 #[doc = include_str!("../docs/example.md")]
 pub struct DocExamples;
-pub mod sim;
-pub mod spectral;

@@ -1,17 +1,18 @@
 //! The fdtemp command line: parse, call the library, print, exit code.
 
 use clap::{Parser, Subcommand};
-use fdtemp::analysis::Progress;
-use fdtemp::fdplot::Axes;
+use fdtemp::common::Units;
 use fdtemp::input::ColumnNames;
 use fdtemp::output::{self, Output};
 use fdtemp::report::plot::{self, Figure};
 use fdtemp::resample::IntervalMethod;
-use fdtemp::settings::{FitSettings, Hold, Model, Units, Weighting};
 use fdtemp::sim::Scenario;
 use fdtemp::spectral::analysis::ErrorModel;
 use fdtemp::spectral::input::Window;
 use fdtemp::spectral::{Convention, SpectrumSettings};
+use fdtemp::twotime::Progress;
+use fdtemp::twotime::points::Axes;
+use fdtemp::twotime::settings::{FitSettings, Hold, Model, Weighting};
 use std::io::{IsTerminal, Write};
 use std::path::PathBuf;
 use std::process::ExitCode;
@@ -387,7 +388,7 @@ fn fit(a: FitArgs) -> fdtemp::Result<()> {
     if let Some(path) = a.json {
         outputs.push(Output {
             path,
-            bytes: fdtemp::report::json::to_json(&report),
+            bytes: fdtemp::report::json::fit_json(&report),
         });
     }
     if let Some(path) = a.points {
@@ -510,7 +511,7 @@ fn noise(a: NoiseArgs) -> fdtemp::Result<()> {
             a.file.display(),
             rec.runs.len(),
             p0.samples,
-            fdtemp::analysis::fmt_num(a.sample_rate)
+            fdtemp::report::format::fmt_num(a.sample_rate)
         ),
         format!(
             "welch       Hann window, {} samples per segment, overlap {}, {} segments per run, {} degrees of freedom per frequency",
@@ -556,7 +557,7 @@ fn noise(a: NoiseArgs) -> fdtemp::Result<()> {
     if let Some(r) = a.resistance {
         header.push(format!(
             "dissipation Re Z = {} ohm at every frequency",
-            fdtemp::analysis::fmt_num(r)
+            fdtemp::report::format::fmt_num(r)
         ));
     }
     spectral_outputs(&mut outputs, &report, &a.common.json, figure)?;

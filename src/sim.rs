@@ -25,9 +25,9 @@
 //! - `resistor`: Johnson–Nyquist noise of a resistor, white with one-sided PSD 4kTR
 //!   (Nyquist, Phys. Rev. 32, 110 (1928)), for `noise`.
 
+use crate::common::BOLTZMANN_SI;
 use crate::error::{Error, Result};
 use crate::resample::replicate_rng;
-use crate::settings::BOLTZMANN_SI;
 use rand::RngExt;
 use rand_distr::StandardNormal;
 use rayon::prelude::*;

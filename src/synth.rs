@@ -14,8 +14,8 @@
 //!
 //! These are invented data with a built-in answer, not a simulation of any dynamics.
 
-use crate::campaign::{Campaign, GridPoint};
 use crate::error::Result;
+use crate::twotime::campaign::{Campaign, GridPoint};
 use ndarray::Array2;
 use rand::RngExt;
 use rand_distr::StandardNormal;
@@ -284,7 +284,7 @@ pub fn generate_spectrum(spec: &SpectrumSpec) -> crate::spectral::input::Spectru
     for r in 0..spec.runs {
         let mut rng = crate::resample::replicate_rng(spec.seed, r as u64);
         for (j, &f) in freqs.iter().enumerate() {
-            let g = 2.0 * crate::settings::BOLTZMANN_SI * spec.t_eff(f) * spec.loss(f)
+            let g = 2.0 * crate::common::BOLTZMANN_SI * spec.t_eff(f) * spec.loss(f)
                 / (std::f64::consts::PI * f);
             let scatter = chi.as_ref().map_or(1.0, |c| c.sample(&mut rng) / spec.dof);
             psd[[r, j]] = g * scatter;

@@ -8,9 +8,9 @@
 
 use assert_cmd::Command;
 use fdtemp::FitSettings;
-use fdtemp::analysis::{FitReport, Silent, analyze};
-use fdtemp::settings::{Model, Weighting};
 use fdtemp::synth::{SynthSpec, generate};
+use fdtemp::twotime::settings::{Model, Weighting};
+use fdtemp::twotime::{Caution, Finding, FitReport, Silent, Verdict, analyze};
 
 fn design(samples: usize, seed: u64) -> SynthSpec {
     SynthSpec {
@@ -35,11 +35,16 @@ fn fit(spec: &SynthSpec, seed: u64, weights: Weighting, model: Model) -> FitRepo
     analyze(&c, &s, None, &Silent).unwrap()
 }
 
-fn cautions(r: &FitReport) -> Vec<&String> {
-    r.warnings
+fn cautions(r: &FitReport) -> Vec<&Finding> {
+    r.cautions
         .iter()
-        .chain(r.fits.iter().flat_map(|f| &f.warnings))
+        .chain(r.fits.iter().flat_map(|f| &f.cautions))
+        .map(|c| &c.finding)
         .collect()
+}
+
+fn thermometer(c: &Caution) -> bool {
+    matches!(c.finding, Finding::SlopeAboveNotMinusOne { .. })
 }
 
 #[test]
@@ -98,7 +103,7 @@ fn a_break_pinned_at_the_edge_gets_no_x_interval_and_raises_no_aging_alarm() {
         assert!(
             !cautions(&r)
                 .iter()
-                .any(|w| w.contains("X changes with age")),
+                .any(|f| matches!(f, Finding::XChangesWithAge { .. })),
             "{:?}",
             cautions(&r)
         );
@@ -108,8 +113,8 @@ fn a_break_pinned_at_the_edge_gets_no_x_interval_and_raises_no_aging_alarm() {
             if f.equilibrium_p.unwrap() <= 0.05 && !f.x_quotable {
                 assert!(f.ratio.low.is_none() && f.ratio.estimate.is_some());
                 assert!(
-                    f.verdict.contains("at the edge of the points"),
-                    "{}",
+                    matches!(f.verdict, Verdict::BreakAtEdge { .. }),
+                    "{:?}",
                     f.verdict
                 );
                 assert!(a.left_out.iter().any(|l| Some(l.held) == f.tw));
@@ -155,23 +160,16 @@ fn the_thermometer_caution_is_one_test_on_the_joint_fit_with_its_p_value() {
         let spec = design(20, 60_000 + k);
         let r = fit(&spec, 1 + k, Weighting::InverseVariance, Model::Broken);
         for f in &r.fits[1..] {
-            assert!(
-                !f.warnings
-                    .iter()
-                    .any(|w| w.contains("slope above the break"))
-            );
+            assert!(!f.cautions.iter().any(thermometer));
         }
         let joint = &r.fits[0];
-        let flagged = joint
-            .warnings
-            .iter()
-            .any(|w| w.contains("slope above the break"));
+        let flagged = joint.cautions.iter().any(thermometer);
         assert_eq!(
             flagged,
             joint.thermometer_p.is_some_and(|p| p <= 0.05),
             "{:?} {:?}",
             joint.thermometer_p,
-            joint.warnings
+            joint.cautions
         );
         fired += usize::from(flagged);
     }

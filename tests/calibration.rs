@@ -28,9 +28,9 @@
 //! Acceptance bands (for 200 campaigns): 5% tests and cautions on data that do not deserve
 //! them at most 7.5%; 95% intervals 0.93–0.97; statements that must never be made, 0.
 
-use fdtemp::analysis::{Estimate, FitReport, GroupFit, Silent, analyze};
-use fdtemp::settings::{FitSettings, Model, Weighting};
 use fdtemp::synth::{Shape, SynthSpec, generate};
+use fdtemp::twotime::settings::{FitSettings, Model, Weighting};
+use fdtemp::twotime::{Estimate, Finding, FitReport, GroupFit, Silent, analyze};
 use std::time::Instant;
 
 // ─── Accessors: every read of a report field happens here ───────────────────────────────
@@ -67,7 +67,8 @@ fn x_interval(f: &GroupFit) -> Option<(f64, f64)> {
 
 /// The X interval the fit's verdict quotes ("X = 0.204 [0.185, 0.218]"), if it quotes one.
 fn quoted_x_interval(f: &GroupFit) -> Option<(f64, f64)> {
-    if f.verdict.contains("X = ") && f.verdict.contains('[') {
+    let words = fdtemp::report::findings::verdict(&f.verdict);
+    if words.contains("X = ") && words.contains('[') {
         x_interval(f)
     } else {
         None
@@ -103,20 +104,21 @@ fn slope_above_interval(f: &GroupFit) -> Option<(f64, f64)> {
     interval_of(&f.fast_slope)
 }
 
-fn all_warnings(r: &FitReport) -> impl Iterator<Item = &String> {
-    r.warnings
+fn all_findings(r: &FitReport) -> impl Iterator<Item = &Finding> {
+    r.cautions
         .iter()
-        .chain(r.fits.iter().flat_map(|f| &f.warnings))
+        .chain(r.fits.iter().flat_map(|f| &f.cautions))
+        .map(|c| &c.finding)
 }
 
 /// The thermometer caution ("the slope above the break is … not -1") on any fit.
 fn thermometer_flagged(r: &FitReport) -> bool {
-    all_warnings(r).any(|w| w.contains("slope above the break"))
+    all_findings(r).any(|f| matches!(f, Finding::SlopeAboveNotMinusOne { .. }))
 }
 
 /// The caution "X changes with age".
 fn aging_flagged(r: &FitReport) -> bool {
-    all_warnings(r).any(|w| w.contains("X changes with age"))
+    all_findings(r).any(|f| matches!(f, Finding::XChangesWithAge { .. }))
 }
 
 // ─── Statements ─────────────────────────────────────────────────────────────────────────

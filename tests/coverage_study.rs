@@ -6,9 +6,9 @@
 //! often each interval method's 95% interval contains the truth.
 
 use fdtemp::FitSettings;
-use fdtemp::analysis::{Silent, analyze};
 use fdtemp::resample::IntervalMethod;
 use fdtemp::synth::{SynthSpec, generate};
+use fdtemp::twotime::{Silent, analyze};
 
 fn coverage(samples: usize, campaigns: u64) -> Vec<(IntervalMethod, f64, f64, f64)> {
     let methods = [
@@ -33,7 +33,7 @@ fn coverage(samples: usize, campaigns: u64) -> Vec<(IntervalMethod, f64, f64, f6
                 ..FitSettings::default()
             };
             let f = analyze(&c, &s, None, &Silent).unwrap().fits.remove(0);
-            let inside = |e: &fdtemp::analysis::Estimate, v: f64| matches!((e.low, e.high), (Some(lo), Some(hi)) if lo <= v && v <= hi);
+            let inside = |e: &fdtemp::twotime::Estimate, v: f64| matches!((e.low, e.high), (Some(lo), Some(hi)) if lo <= v && v <= hi);
             hits[m][0] += usize::from(inside(&f.ratio, spec.ratio));
             hits[m][1] += usize::from(inside(&f.brk, spec.plateau));
             hits[m][2] += usize::from(inside(&f.fast_slope, -1.0));
@@ -95,7 +95,7 @@ fn coverage_of_band_averages_from_welch_records() {
             })),
         };
         let s = SpectrumSettings {
-            units: fdtemp::settings::Units::Reduced,
+            units: fdtemp::common::Units::Reduced,
             convention: Convention::Voltage,
             ..SpectrumSettings::default()
         };

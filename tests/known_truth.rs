@@ -4,8 +4,8 @@
 //! (`fdtemp::synth`), so a correct estimator with correct intervals recovers them.
 
 use fdtemp::FitSettings;
-use fdtemp::analysis::{Silent, analyze};
 use fdtemp::synth::{SynthSpec, generate};
+use fdtemp::twotime::{Caution, Finding, Silent, Verdict, analyze};
 
 fn fit(spec: &SynthSpec, resamples: usize) -> fdtemp::FitReport {
     let campaign = generate(spec).unwrap();
@@ -73,7 +73,11 @@ fn an_equilibrium_campaign_is_rarely_flagged() {
                 f.brk.estimate.is_none(),
                 "no break is reported under equilibrium"
             );
-            assert!(r.verdict.starts_with("equilibrium"), "{}", r.verdict);
+            assert!(
+                matches!(r.verdict, Verdict::Equilibrium { .. }),
+                "{:?}",
+                r.verdict
+            );
         }
     }
     assert!(flagged <= 4, "flagged {flagged} of 20");
@@ -96,8 +100,8 @@ fn a_coarsening_campaign_reports_an_unbounded_effective_temperature() {
             assert!(f.t_eff.high.is_none(), "unbounded end is null");
             assert!(f.t_eff.note.as_deref().unwrap().contains("unbounded"));
             assert!(
-                r.verdict.contains("no response in the slow regime"),
-                "{}",
+                matches!(r.verdict, Verdict::NoSlowResponse { .. }),
+                "{:?}",
                 r.verdict
             );
         }
@@ -118,7 +122,7 @@ fn json_has_the_documented_shape_and_no_nan() {
         },
         200,
     );
-    let text = String::from_utf8(fdtemp::report::json::to_json(&r)).unwrap();
+    let text = String::from_utf8(fdtemp::report::json::fit_json(&r)).unwrap();
     assert!(!text.contains("NaN") && !text.contains("inf"));
     let v: serde_json::Value = serde_json::from_str(&text).unwrap();
     assert_eq!(v["schema"], 2);
@@ -149,11 +153,11 @@ fn a_ratio_that_still_changes_with_age_is_flagged() {
     assert!(a.change_per_decade.low.unwrap() > 0.0 && a.changes);
     assert_eq!(a.curves_used.len(), 3);
     assert!(
-        r.warnings
+        r.cautions
             .iter()
-            .any(|w| w.starts_with("X changes with age")),
+            .any(|c| matches!(c.finding, Finding::XChangesWithAge { .. })),
         "{:?}",
-        r.warnings
+        r.cautions
     );
     // Per-tw estimates follow the truth.
     for f in &r.fits[1..] {
@@ -174,9 +178,9 @@ fn a_ratio_that_still_changes_with_age_is_flagged() {
     );
     assert!(
         !steady
-            .warnings
+            .cautions
             .iter()
-            .any(|w| w.starts_with("X changes with age"))
+            .any(|c| matches!(c.finding, Finding::XChangesWithAge { .. }))
     );
 }
 
@@ -190,8 +194,8 @@ fn a_wrong_thermometer_shows_in_the_slope_above_the_break() {
     };
     let campaign = generate(&spec).unwrap();
     for model in [
-        fdtemp::settings::Model::Broken,
-        fdtemp::settings::Model::Free,
+        fdtemp::twotime::settings::Model::Broken,
+        fdtemp::twotime::settings::Model::Free,
     ] {
         let settings = FitSettings {
             temperature: 0.5,
@@ -204,12 +208,12 @@ fn a_wrong_thermometer_shows_in_the_slope_above_the_break() {
         let slope = f.fast_slope.estimate.unwrap();
         assert!((slope + 5.0 / 6.0).abs() < 0.03, "{model:?}: slope {slope}");
         assert!(
-            f.warnings
-                .iter()
-                .any(|w| w.contains("not -1 (p = ") && w.contains("thermometer")),
+            f.cautions.iter().any(
+                |c| matches!(c.finding, Finding::SlopeAboveNotMinusOne { p, .. } if p <= 0.05)
+            ),
             "{model:?}"
         );
-        if model == fdtemp::settings::Model::Free {
+        if model == fdtemp::twotime::settings::Model::Free {
             let x = f.ratio.estimate.unwrap();
             assert!((x - 0.45 * 5.0 / 6.0).abs() < 0.03, "free X {x}");
         }
@@ -252,11 +256,14 @@ fn normalized_axes_recover_the_ratio_when_c_tt_is_not_one() {
         ..FitSettings::default()
     };
     let r = analyze(&c, &settings, None, &Silent).unwrap();
-    assert_eq!(r.settings.axes_used, fdtemp::fdplot::Axes::Normalized);
+    assert_eq!(
+        r.settings.axes_used,
+        fdtemp::twotime::points::Axes::Normalized
+    );
     let x = r.fits[0].ratio.estimate.unwrap();
     assert!((x - 0.45).abs() < 0.02, "normalized X {x}");
     let plain = FitSettings {
-        axes: fdtemp::fdplot::Axes::Plain,
+        axes: fdtemp::twotime::points::Axes::Plain,
         ..settings
     };
     let rp = analyze(&c, &plain, None, &Silent).unwrap();
@@ -276,13 +283,19 @@ fn a_break_near_the_edge_of_the_data_is_flagged() {
     };
     let r = fit(&spec, 300);
     let f = &r.fits[0];
-    let edge =
-        |w: &String| w.contains("points lie above the break") || w.contains("edge of the data");
-    assert!(f.warnings.iter().any(edge), "{:?}", f.warnings);
+    let edge = |c: &Caution| {
+        matches!(
+            c.finding,
+            Finding::FewPointsOneSide { .. } | Finding::BreakAtEdgeInResamples { .. }
+        )
+    };
+    assert!(f.cautions.iter().any(edge), "{:?}", f.cautions);
     assert!(
-        !f.warnings.iter().any(|w| w.contains("thermometer")),
+        !f.cautions
+            .iter()
+            .any(|c| matches!(c.finding, Finding::SlopeAboveNotMinusOne { .. })),
         "{:?}",
-        f.warnings
+        f.cautions
     );
     // A well-placed break gives no such caution.
     let ok = fit(
@@ -293,8 +306,8 @@ fn a_break_near_the_edge_of_the_data_is_flagged() {
         300,
     );
     assert!(
-        !ok.fits[0].warnings.iter().any(edge),
+        !ok.fits[0].cautions.iter().any(edge),
         "{:?}",
-        ok.fits[0].warnings
+        ok.fits[0].cautions
     );
 }

@@ -3,7 +3,7 @@
 //! Each property says why it holds. Resampling draws the same sample indices for the same
 //! seed, so where an invariant holds for every resample it holds for the intervals too.
 
-use fdtemp::analysis::{FitReport, Silent, analyze};
+use fdtemp::twotime::{FitReport, Silent, analyze};
 use fdtemp::{Campaign, FitSettings, GridPoint};
 use ndarray::Array2;
 use proptest::prelude::*;
@@ -99,8 +99,8 @@ proptest! {
         let shuffled = format!("sample,tw,t,corr,resp\n{}\n", lines.join("\n"));
         let names = fdtemp::input::ColumnNames::default();
         let c2 = fdtemp::input::tidy::parse_campaign(shuffled.as_bytes(), std::path::Path::new("p.csv"), &names).unwrap();
-        let j1 = fdtemp::report::json::to_json(&run(&c, &settings()));
-        let j2 = fdtemp::report::json::to_json(&run(&c2, &settings()));
+        let j1 = fdtemp::report::json::fit_json(&run(&c, &settings()));
+        let j2 = fdtemp::report::json::fit_json(&run(&c2, &settings()));
         prop_assert_eq!(j1, j2);
     }
 
@@ -147,7 +147,7 @@ fn results_for_a_seed_are_byte_identical_at_1_2_and_8_threads() {
     let c = campaign(30, 0.4, &e);
     let json = |threads| {
         fdtemp::with_threads(Some(threads), || {
-            Ok(fdtemp::report::json::to_json(&run(
+            Ok(fdtemp::report::json::fit_json(&run(
                 &c,
                 &FitSettings {
                     resamples: 1000,

@@ -3,7 +3,7 @@
 //! inputs with their exact messages.
 
 use assert_cmd::Command;
-use fdtemp::settings::Units;
+use fdtemp::common::Units;
 use fdtemp::spectral::analysis::{Direction, ErrorModel, SpectrumSettings};
 use fdtemp::spectral::input::{SpectrumGroup, parse_spectra};
 use fdtemp::spectral::welch::{Welch, WelchSettings};

@@ -9,7 +9,7 @@
 //! `√(p(1−p)/n)`; per-frequency coverage pools bins within a campaign, so its SD is taken
 //! over campaigns (the campaign is the independent unit).
 
-use fdtemp::settings::Units;
+use fdtemp::common::Units;
 use fdtemp::spectral::analysis::{Direction, SpectrumReport, SpectrumSettings};
 use fdtemp::spectral::input::{SpectrumGroup, Window};
 use fdtemp::spectral::noise::{Dissipation, RecordPsd, to_group};

@@ -6,8 +6,8 @@
 //! are accepted.
 
 use super::Header;
-use crate::campaign::{Campaign, GridPoint};
 use crate::error::{Error, Result};
+use crate::twotime::campaign::{Campaign, GridPoint};
 use ndarray::Array2;
 use std::collections::HashMap;
 use std::io::Read;

@@ -1,6 +1,6 @@
 //! The points CSV: the parametric points with their sample standard errors.
 
-use crate::analysis::FitReport;
+use crate::twotime::FitReport;
 use std::fmt::Write;
 
 /// The parametric points as CSV: `tw,t,x,x_se,y,y_se`.

@@ -1,10 +1,46 @@
-//! The JSON writer: the result structs as they are, pretty-printed.
+//! The JSON writer: the result structs as they are, pretty-printed; for a time-domain fit,
+//! every finding (caution or verdict) also carries its sentence as `message`.
 
+use super::findings;
+use crate::twotime::{Caution, FitReport, Verdict};
 use serde::Serialize;
+use serde_json::Value;
 
 /// Serializes any result to pretty JSON bytes, ending with a newline.
 pub fn to_json<T: Serialize>(result: &T) -> Vec<u8> {
-    let mut out = serde_json::to_vec_pretty(result).unwrap_or_else(|e| {
+    finish(serde_json::to_vec_pretty(result))
+}
+
+/// A time-domain fit as JSON: the result as it is, with a `message` beside the code of
+/// every caution and verdict (the sentence the text report prints).
+pub fn fit_json(r: &FitReport) -> Vec<u8> {
+    let value = serde_json::to_value(r).map(|mut v| {
+        add_messages(&mut v, &r.verdict, &r.cautions);
+        if let Some(Value::Array(fits)) = v.get_mut("fits") {
+            for (fv, f) in fits.iter_mut().zip(&r.fits) {
+                add_messages(fv, &f.verdict, &f.cautions);
+            }
+        }
+        v
+    });
+    finish(value.and_then(|v| serde_json::to_vec_pretty(&v)))
+}
+
+fn add_messages(v: &mut Value, verdict: &Verdict, cautions: &[Caution]) {
+    if let Some(Value::Object(m)) = v.get_mut("verdict") {
+        m.insert("message".into(), findings::verdict(verdict).into());
+    }
+    if let Some(Value::Array(a)) = v.get_mut("cautions") {
+        for (cv, c) in a.iter_mut().zip(cautions) {
+            if let Value::Object(m) = cv {
+                m.insert("message".into(), findings::caution(c).into());
+            }
+        }
+    }
+}
+
+fn finish(bytes: serde_json::Result<Vec<u8>>) -> Vec<u8> {
+    let mut out = bytes.unwrap_or_else(|e| {
         format!("{{\"error\": \"cannot serialize the result: {e}\"}}").into_bytes()
     });
     out.push(b'\n');

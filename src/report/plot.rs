@@ -8,12 +8,12 @@
 //! each with its own marker shape, so the series stay apart in greyscale and for readers
 //! with colour-vision deficiencies.
 
-use crate::analysis::{Curve, FitReport};
+use crate::common::Units;
 use crate::error::{Error, Result};
-use crate::fdplot::Axes;
 use crate::resample::quantile_sorted;
-use crate::settings::Units;
 use crate::spectral::analysis::SpectrumReport;
+use crate::twotime::points::Axes;
+use crate::twotime::{Curve, FitReport};
 use plotters::coord::Shift;
 use plotters::prelude::*;
 use std::path::Path;
@@ -220,7 +220,7 @@ fn tick(v: f64) -> String {
     if !(1e-3..1e5).contains(&a) {
         return format!("{v:.1e}");
     }
-    crate::analysis::fmt_num(v)
+    crate::report::format::fmt_num(v)
 }
 
 fn fmt_iv(v: Option<f64>, lo: Option<f64>, hi: Option<f64>) -> String {
@@ -414,7 +414,7 @@ fn draw_fd<DB: DrawingBackend>(
             }))
             .map_err(&e)?;
         let ms = sc.marker;
-        let label = format!("tw = {}", crate::analysis::fmt_num(tw));
+        let label = format!("tw = {}", crate::report::format::fmt_num(tw));
         // Shapes differ per series (filled circle, filled triangle, cross, open circle) so
         // the series stay apart without colour.
         macro_rules! series {
@@ -681,7 +681,7 @@ fn draw_teff<DB: DrawingBackend>(
                 }
                 let label = s.tw.map_or_else(
                     || "T_eff(f)".to_string(),
-                    |t| format!("T_eff(f), tw = {}", crate::analysis::fmt_num(t)),
+                    |t| format!("T_eff(f), tw = {}", crate::report::format::fmt_num(t)),
                 );
                 chart
                     .draw_series(LineSeries::new(

@@ -1,9 +1,9 @@
 //! The text report of a spectral analysis.
 
+use super::format::fmt_num;
 use super::sig;
 use super::text::wrap;
-use crate::analysis::fmt_num;
-use crate::settings::Units;
+use crate::common::Units;
 use crate::spectral::analysis::{ErrorModel, SpectrumFit, SpectrumReport};
 use std::fmt::Write;
 

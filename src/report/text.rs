@@ -1,9 +1,13 @@
 //! The text report: a table per fit, the verdict, cautions, and a methods paragraph.
 
+use super::findings;
+use super::format::{fmt_num, fmt_p_resampled};
 use super::sig;
-use crate::analysis::{Estimate, FitReport, GroupFit, fmt_num, fmt_p_resampled};
-use crate::fdplot::Axes;
-use crate::settings::{Model, Units, Weighting};
+use crate::common::Units;
+use crate::twotime::model;
+use crate::twotime::points::Axes;
+use crate::twotime::settings::Weighting;
+use crate::twotime::{Caution, Estimate, FitReport, GroupFit};
 use std::fmt::Write;
 
 fn est(e: &Estimate) -> String {
@@ -22,6 +26,16 @@ fn est(e: &Estimate) -> String {
                 format!("{} [{}, {}]", sig(v, 4), end(e.low), end(e.high))
             }
         }
+    }
+}
+
+/// A caution as the text report lists it: its subject, then its sentence.
+fn sentence(c: &Caution) -> String {
+    let who = findings::subject(c.subject);
+    if who.is_empty() {
+        findings::caution(c)
+    } else {
+        format!("{who}: {}", findings::caution(c))
     }
 }
 
@@ -70,7 +84,7 @@ pub fn render(r: &FitReport) -> Vec<u8> {
     let _ = writeln!(
         o,
         "model      {}; {weights}; at least {} points per branch",
-        g.model.describe(),
+        model::of(g.model).describe(),
         g.min_branch
     );
     let _ = writeln!(
@@ -108,16 +122,18 @@ pub fn render(r: &FitReport) -> Vec<u8> {
         ]);
     }
     o.push_str(&table(&rows));
-    if g.model == Model::Broken {
-        let _ = writeln!(
-            o,
-            "(slope above q: a free line through the points above the break, a check of the fixed -1)"
-        );
+    if let Some(note) = model::of(g.model).table_note() {
+        let _ = writeln!(o, "{note}");
     }
     let _ = writeln!(o);
-    let _ = writeln!(o, "verdict    {}", r.verdict);
+    let _ = writeln!(o, "verdict    {}", findings::verdict(&r.verdict));
     for f in r.fits.iter().skip(1) {
-        let _ = writeln!(o, "  {held} = {:<6} {}", label(f), f.verdict);
+        let _ = writeln!(
+            o,
+            "  {held} = {:<6} {}",
+            label(f),
+            findings::verdict(&f.verdict)
+        );
     }
     if let Some(a) = &r.aging {
         let left: Vec<String> = a
@@ -146,13 +162,13 @@ pub fn render(r: &FitReport) -> Vec<u8> {
         }
     }
 
-    let mut cautions: Vec<String> = r.warnings.clone();
+    let mut cautions: Vec<String> = r.cautions.iter().map(sentence).collect();
     for f in &r.fits {
         let who = f.tw.or(f.t).map_or_else(
             || "all curves together".into(),
             |t| format!("{held} = {}", fmt_num(t)),
         );
-        cautions.extend(f.warnings.iter().map(|w| format!("{who}: {w}")));
+        cautions.extend(f.cautions.iter().map(sentence));
         for (what, e) in [("break q", &f.brk), ("X", &f.ratio), ("T_eff", &f.t_eff)] {
             if let Some(n) = &e.note
                 && f.ratio.estimate.is_some()
@@ -186,23 +202,18 @@ pub fn methods(r: &FitReport) -> String {
         Axes::Normalized => "(C/C(t,t), k·T·chi/C(t,t)), ratios of sample means",
         _ => "(C, k·T·chi) from sample means",
     };
-    let model = match g.model {
-        Model::Broken => "a two-segment line with slope -1 above a break q and slope -X below it",
-        Model::Free => {
-            "a two-segment line with free slopes above and below a break q (X = minus the lower slope)"
-        }
-        Model::Line => "one straight line of free slope -X",
-    };
-    let weights = match (g.weights, g.model) {
-        (Weighting::Uniform, _) => "with uniform weights",
-        (Weighting::InverseVariance, Model::Broken) => {
-            "weighted by the inverse sample variance of k·T·chi + C at each point (re-estimated \
-             in every resample from that resample's samples)"
-        }
-        (Weighting::InverseVariance, Model::Free | Model::Line) => {
-            "weighted by the inverse sample variance of k·T·chi at each point (re-estimated in \
-             every resample from that resample's samples)"
-        }
+    let m = model::of(g.model);
+    let weights = match g.weights {
+        Weighting::Uniform => "with uniform weights".to_string(),
+        Weighting::InverseVariance => format!(
+            "weighted by the inverse sample variance of {} at each point (re-estimated in \
+             every resample from that resample's samples)",
+            if m.c_factor() == 0.0 {
+                "k·T·chi"
+            } else {
+                "k·T·chi + C"
+            }
+        ),
     };
     let interval = match g.interval {
         crate::resample::IntervalMethod::Bca => {
@@ -214,7 +225,7 @@ pub fn methods(r: &FitReport) -> String {
     let p = r.fits[0].equilibrium_p.map_or("not computed".into(), |p| {
         fmt_p_resampled(p, r.fits[0].null_resamples)
     });
-    let search = if g.model == Model::Line {
+    let search = if !m.has_break() {
         String::new()
     } else {
         format!(
@@ -222,7 +233,7 @@ pub fn methods(r: &FitReport) -> String {
             g.min_branch
         )
     };
-    let test = if g.model == Model::Line {
+    let test = if !m.has_break() {
         format!(
             "The hypothesis of equilibrium (slope -1) was tested with the statistic SSE(slope \
              -1) − SSE(free slope), calibrated by the same resamples moved onto the fitted \
@@ -259,6 +270,7 @@ pub fn methods(r: &FitReport) -> String {
          resamples of whole samples, so that the correlations between the points of one \
          sample are kept (seed {seed}). {test}{aging}",
         ver = r.tool.version,
+        model = m.methods_phrase(),
         held = g.hold.name(),
         range = g.range.map_or(String::new(), |[a, b]| format!(
             ", using the points with x between {} and {}",

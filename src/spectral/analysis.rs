@@ -26,10 +26,10 @@
 
 use super::Convention;
 use super::input::SpectrumGroup;
-use crate::analysis::{Estimate, ToolInfo};
+use crate::common::Units;
+use crate::common::{Estimate, ToolInfo};
 use crate::error::{Error, Result};
 use crate::resample::{self, IntervalMethod};
-use crate::settings::Units;
 use ndarray::{Array2, Axis, s};
 use rayon::prelude::*;
 use serde::Serialize;
@@ -119,8 +119,8 @@ impl SpectrumSettings {
                 "--temperature is {t}, expected a positive number"
             )));
         }
-        crate::settings::check_level(self.level)?;
-        crate::settings::check_resamples(self.resamples)?;
+        crate::common::check_level(self.level)?;
+        crate::common::check_resamples(self.resamples)?;
         if let Some([lo, hi]) = self.band
             && !(lo >= 0.0 && hi > lo && hi.is_finite())
         {
@@ -449,9 +449,7 @@ fn analyze_group(
     s: &SpectrumSettings,
     k: f64,
 ) -> Result<SpectrumFit> {
-    let who = g.tw.map_or_else(String::new, |t| {
-        format!("tw = {}: ", crate::analysis::fmt_num(t))
-    });
+    let who = g.tw.map_or_else(String::new, |t| format!("tw = {t}: "));
     let n_runs = g.runs.len();
     let nf = g.freqs.len();
     // Groups from the reader are valid by construction; a caller of the library may build

@@ -5,7 +5,7 @@
 //! normalization is a ratio of means. Standard errors and the x–y covariance come from
 //! the jackknife over samples, which for plain axes equals the usual `s/√n`.
 
-use crate::campaign::Campaign;
+use crate::twotime::campaign::Campaign;
 use ndarray::{Array2, ArrayView1, Axis};
 
 /// Which quantities go on the axes.

@@ -1,31 +1,9 @@
 //! The settings of a time-domain fit: every choice an enum, every field documented.
 
+use super::points::Axes;
+use crate::common::{Units, check_level, check_resamples};
 use crate::error::{Error, Result};
-use crate::fdplot::Axes;
 use crate::resample::IntervalMethod;
-
-/// Boltzmann's constant in J/K (exact in the SI since 2019).
-pub const BOLTZMANN_SI: f64 = 1.380649e-23;
-
-/// Energy units: decides the value of Boltzmann's constant `k`.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, clap::ValueEnum)]
-#[serde(rename_all = "lowercase")]
-pub enum Units {
-    /// Reduced units, `k = 1`: temperatures are energies.
-    Reduced,
-    /// SI, `k = 1.380649e-23 J/K`: temperatures in kelvin.
-    Si,
-}
-
-impl Units {
-    /// Boltzmann's constant in these units.
-    pub fn boltzmann(self) -> f64 {
-        match self {
-            Units::Reduced => 1.0,
-            Units::Si => BOLTZMANN_SI,
-        }
-    }
-}
 
 /// Which broken-stick model is fitted.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, clap::ValueEnum)]
@@ -38,17 +16,6 @@ pub enum Model {
     Free,
     /// One straight line of free slope −X through all points (no break); null: slope −1.
     Line,
-}
-
-impl Model {
-    /// Words for reports.
-    pub fn describe(self) -> &'static str {
-        match self {
-            Model::Broken => "broken stick, first slope fixed at -1",
-            Model::Free => "broken stick, both slopes free",
-            Model::Line => "one straight line, slope free (no break)",
-        }
-    }
 }
 
 /// Which time is held fixed along one curve of the parametric plot.
@@ -165,30 +132,4 @@ impl FitSettings {
         }
         Ok(())
     }
-}
-
-/// Checks a confidence level (shared by every analysis).
-///
-/// # Errors
-/// [`Error::Setting`] when the level is not strictly between 0 and 1.
-pub fn check_level(level: f64) -> Result<()> {
-    if level > 0.0 && level < 1.0 {
-        return Ok(());
-    }
-    Err(Error::Setting(format!(
-        "--level is {level}, expected a number between 0 and 1 (for example 0.95)"
-    )))
-}
-
-/// Checks a number of bootstrap resamples (shared by every analysis).
-///
-/// # Errors
-/// [`Error::Setting`] below 100 resamples.
-pub fn check_resamples(resamples: usize) -> Result<()> {
-    if resamples >= 100 {
-        return Ok(());
-    }
-    Err(Error::Setting(format!(
-        "--resamples is {resamples}, expected at least 100 (2000 or more for intervals a paper can quote)"
-    )))
 }

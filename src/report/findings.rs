@@ -1,0 +1,238 @@
+//! Findings in words: one sentence per caution code and per verdict code. The text report
+//! prints these; the JSON carries them as `message` beside the code and the numbers.
+
+use super::format::{fmt_num, fmt_p_resampled};
+use crate::twotime::findings::{Caution, Finding, Subject, Verdict};
+use crate::twotime::settings::Hold;
+
+/// Who a caution is about, as the text report prefixes it ("tw = 100: …").
+pub fn subject(s: Subject) -> String {
+    match s {
+        Subject::Campaign => String::new(),
+        Subject::AllCurves => "all curves together".into(),
+        Subject::Tw(v) => format!("{} = {}", Hold::Tw.name(), fmt_num(v)),
+        Subject::T(v) => format!("{} = {}", Hold::T.name(), fmt_num(v)),
+    }
+}
+
+/// The sentence of a caution (without its subject).
+pub fn caution(c: &Caution) -> String {
+    finding(&c.finding)
+}
+
+/// The sentence of a finding.
+pub fn finding(f: &Finding) -> String {
+    match f {
+        Finding::NoSpreadUniformWeights => "every point has zero spread over samples, so \
+             inverse-variance weights are undefined; uniform weights used"
+            .into(),
+        Finding::VarianceFloored => "some points have (almost) no spread over samples; their \
+             variance was floored at 1e-6 of the median for the weights"
+            .into(),
+        Finding::XChangesWithAge { .. } => aging(f),
+        Finding::IdenticalSamples => "the samples are (almost) identical: there is no \
+             sample-to-sample spread, so the intervals only reflect rounding; check that the \
+             samples are independent runs"
+            .into(),
+        Finding::SmallSamples { samples } => format!(
+            "{samples} samples: intervals run a little short at this size (measured coverage \
+             of 95% intervals at 20 samples: X 0.93–0.94 for the joint fit, 0.91–0.92 per \
+             curve and for the line model; docs/validation.md)"
+        ),
+        Finding::FewSamples { samples, limit } => format!(
+            "only {samples} samples: bootstrap intervals from fewer than {limit} samples are \
+             unreliable, usually too narrow (measured at 10 samples: 95% intervals of X cover \
+             0.93 jointly and 0.91 per curve; with uniform weights the 5% tests reject up to \
+             8% of true equilibria; docs/validation.md)"
+        ),
+        _ => break_finding(f),
+    }
+}
+
+/// Sentences about the break, the slopes and the resamples of one fit.
+fn break_finding(f: &Finding) -> String {
+    match f {
+        Finding::FailedResamples { failed, total } => format!(
+            "{failed} of {total} resamples could not be fitted and were left out; the \
+             intervals may be too narrow"
+        ),
+        Finding::BreakAtEdgeInResamples { share } => format!(
+            "the break sits at the edge of the data in {:.0}% of resamples: the slow regime \
+             is barely reached (too few points below or above q); q is uncertain and X is not \
+             quoted with an interval",
+            100.0 * share
+        ),
+        Finding::FewPointsOneSide { points, side } => {
+            let side = side.word();
+            format!(
+                "only {points} points lie {side} the break: that regime is barely resolved, so \
+                 q, the slope {side} it and their intervals are uncertain (add times that reach \
+                 further into it)"
+            )
+        }
+        Finding::BreakNextToEdge => "the break sits next to the first or last point the search \
+             allows: q and X are uncertain"
+            .into(),
+        Finding::BreaksSplit {
+            near_low,
+            near_high,
+        } => format!(
+            "the resampled breaks split into separate groups (near {} and near {}): the data \
+             support more than one break; look at the profile before quoting q",
+            fmt_num(*near_low),
+            fmt_num(*near_high)
+        ),
+        Finding::SlopeAboveNotMinusOne {
+            slope,
+            low,
+            high,
+            p,
+            resamples,
+        } => {
+            let ends = match (low, high) {
+                (Some(lo), Some(hi)) => format!(" [{lo:.3}, {hi:.3}]"),
+                _ => String::new(),
+            };
+            format!(
+                "the slope above the break is {slope:.3}{ends}, not -1 (p = {}): the thermometer \
+                 or the response units may be off, the system may be driven, or the curve bends \
+                 gradually rather than at one break",
+                fmt_p_resampled(*p, *resamples)
+            )
+        }
+        Finding::RatioAboveOne { ratio } => format!(
+            "X = {ratio:.3} > 1 (T_eff below the bath temperature): reported as measured; this \
+             happens after heating, or when the response units are off"
+        ),
+        Finding::RatioBelowZero { ratio } => format!(
+            "X = {ratio:.3} < 0 (negative T_eff): reported as measured; some kinetically \
+             constrained systems do this, otherwise suspect the sign of the response"
+        ),
+        _ => finding(f),
+    }
+}
+
+fn aging(f: &Finding) -> String {
+    let Finding::XChangesWithAge {
+        hold,
+        change_per_decade,
+        low,
+        high,
+        curves,
+        first,
+        last,
+    } = f
+    else {
+        return String::new();
+    };
+    let h = hold.name();
+    format!(
+        "X changes with age: {change_per_decade:+.3} [{low:+.3}, {high:+.3}] per decade of {h} \
+         over {curves} curves ({h} = {} to {}); the slow regime has not reached its aging \
+         limit, so the joint fit mixes ages — quote the per-{h} values or the oldest one",
+        fmt_num(*first),
+        fmt_num(*last),
+    )
+}
+
+/// The sentence of a verdict.
+pub fn verdict(v: &Verdict) -> String {
+    let pr = |p: &f64, b: &usize| fmt_p_resampled(*p, *b);
+    match v {
+        Verdict::NotFitted { points, min_branch } => format!(
+            "not fitted: {points} points, and each branch needs at least {min_branch} with \
+             distinct C values"
+        ),
+        Verdict::NoInterval => "no interval for X could be formed".into(),
+        Verdict::Equilibrium {
+            p,
+            resamples,
+            alpha,
+        } => format!(
+            "equilibrium: no violation of the fluctuation–dissipation relation at the {:.0}% \
+             level (p = {}); with no break, X below a break is not meaningful",
+            100.0 * alpha,
+            pr(p, resamples)
+        ),
+        Verdict::BreakAtEdge {
+            p,
+            resamples,
+            q,
+            ratio,
+        } => format!(
+            "a break is detected (p = {}) at C = {q:.3}, at the edge of the points: one regime \
+             is barely reached, so X ({ratio:.3}) is not quoted with an interval and this curve \
+             is left out of the aging trend",
+            pr(p, resamples)
+        ),
+        Verdict::LineSlope {
+            ratio: [x, lo, hi],
+            p,
+            resamples,
+        } => format!(
+            "one line of slope -X with X = {x:.3} [{lo:.3}, {hi:.3}]: the slope differs from the \
+             equilibrium -1 (p = {})",
+            pr(p, resamples)
+        ),
+        Verdict::LineEquilibrium {
+            ratio: [x, lo, hi],
+            p,
+            resamples,
+        } => format!(
+            "equilibrium: the slope is compatible with -1 (p = {}); X = {x:.3} [{lo:.3}, {hi:.3}]",
+            pr(p, resamples)
+        ),
+        _ => break_verdict(v),
+    }
+}
+
+/// Verdicts of a detected break away from the edge.
+fn break_verdict(v: &Verdict) -> String {
+    let pr = |p: &f64, b: &usize| fmt_p_resampled(*p, *b);
+    match v {
+        Verdict::NoSlowResponse { q, p, resamples } => format!(
+            "no response in the slow regime: below C = {q:.3} the response stays flat within \
+             errors (X compatible with 0, T_eff unbounded), as in coarsening (p = {})",
+            pr(p, resamples)
+        ),
+        Verdict::WeakViolation {
+            ratio: [x, lo, hi],
+            p,
+            resamples,
+        } => format!(
+            "a break is detected (p = {}) but X = {x:.3} [{lo:.3}, {hi:.3}] is compatible with \
+             1: the violation is weak at this precision",
+            pr(p, resamples)
+        ),
+        Verdict::OneBreak {
+            q,
+            ratio: [x, lo, hi],
+            level,
+            p,
+            resamples,
+        } => format!(
+            "one break: slope -1 down to C = {q:.3}, then X = {x:.3} [{lo:.3}, {hi:.3}] at the \
+             {:.0}% level (p = {} for equilibrium)",
+            100.0 * level,
+            pr(p, resamples)
+        ),
+        Verdict::ColderThanBath {
+            ratio: [x, lo, hi],
+            p,
+            resamples,
+        } => format!(
+            "one break with X = {x:.3} [{lo:.3}, {hi:.3}] above 1: the slow modes look colder \
+             than the bath (p = {})",
+            pr(p, resamples)
+        ),
+        Verdict::NegativeRatio {
+            ratio: [x, lo, hi],
+            p,
+            resamples,
+        } => format!(
+            "one break with negative X = {x:.3} [{lo:.3}, {hi:.3}] (p = {})",
+            pr(p, resamples)
+        ),
+        _ => verdict(v),
+    }
+}

@@ -1,0 +1,134 @@
+//! One fit of one group of points: gather the group's points, weights and responses, let
+//! the model fit them, and (for resamples) the null-imposed equilibrium statistic.
+
+use super::model::{Draw, FdModel, FitBuffers, GroupPoints, Values};
+
+/// Resampled curves kept for the figure's band (the first ones; quantiles of this many
+/// curves are steady to well under a line width).
+pub const BAND_CURVES: usize = 4000;
+
+/// Bytes kept per resample and group (for the memory estimate).
+pub const BYTES_PER_DRAW: usize = std::mem::size_of::<Option<Draw>>();
+
+/// What every fit of a group shares: the model and the least points per branch.
+#[derive(Clone, Copy)]
+pub struct Spec {
+    /// The model.
+    pub model: &'static dyn FdModel,
+    /// Least points on each side of the break.
+    pub min_branch: usize,
+}
+
+/// A group of points: all of them (the joint fit) or one curve.
+pub struct Group {
+    /// The held time (tw or t), `None` for the joint fit.
+    pub held: Option<f64>,
+    /// `Σ w (x² + y²)`: the size of the weighted data, for rounding tolerances.
+    pub scale: f64,
+    /// Indices of its points.
+    pub idx: Vec<usize>,
+}
+
+/// All points of one fit (the full data, a resample, a leave-one-out set).
+#[derive(Clone, Copy)]
+pub struct Points<'a> {
+    /// x per grid point.
+    pub x: &'a [f64],
+    /// y per grid point.
+    pub y: &'a [f64],
+    /// Weights per grid point.
+    pub w: &'a [f64],
+}
+
+/// Per-group buffers, so replicate fits do not allocate.
+#[derive(Clone)]
+pub struct Scratch {
+    x: Vec<f64>,
+    y: Vec<f64>,
+    r: Vec<f64>,
+    w: Vec<f64>,
+    buf: FitBuffers,
+}
+
+impl Scratch {
+    /// Buffers for a group whose points have these x (the starting sort order).
+    pub fn new(x: &[f64]) -> Self {
+        let buf = FitBuffers {
+            ws: crate::fit::Workspace::sorted_by(x),
+            ..FitBuffers::default()
+        };
+        Scratch {
+            x: Vec::with_capacity(x.len()),
+            y: Vec::with_capacity(x.len()),
+            r: Vec::with_capacity(x.len()),
+            w: Vec::with_capacity(x.len()),
+            buf,
+        }
+    }
+
+    fn points(&self) -> GroupPoints<'_> {
+        GroupPoints {
+            x: &self.x,
+            y: &self.y,
+            r: &self.r,
+            w: &self.w,
+        }
+    }
+}
+
+/// Fits one group. Leaves the group's points in `sc` for [`null_statistic`].
+pub fn fit_group(
+    g: &Group,
+    pts: Points<'_>,
+    spec: Spec,
+    sc: &mut Scratch,
+    profile: Option<&mut Vec<(f64, f64)>>,
+) -> Option<Values> {
+    sc.x.clear();
+    sc.y.clear();
+    sc.r.clear();
+    sc.w.clear();
+    for &j in &g.idx {
+        sc.x.push(pts.x[j]);
+        sc.y.push(pts.y[j]);
+        sc.w.push(pts.w[j]);
+        sc.r.push(spec.model.response(pts.x[j], pts.y[j]));
+    }
+    let mut buf = std::mem::take(&mut sc.buf);
+    let v = spec
+        .model
+        .fit(sc.points(), spec.min_branch, &mut buf, profile);
+    sc.buf = buf;
+    v
+}
+
+/// The statistic `SSE(null) − SSE(model)` of the resample whose points [`fit_group`] just
+/// left in `sc`, after moving it onto the fitted null model (`r − shift`).
+pub fn null_statistic(spec: Spec, sc: &mut Scratch, shift: &[f64]) -> f64 {
+    sc.r.clear();
+    for ((x, y), d) in sc.x.iter().zip(&sc.y).zip(shift) {
+        sc.r.push(spec.model.response(*x, *y) - d);
+    }
+    let mut buf = std::mem::take(&mut sc.buf);
+    let gap = spec.model.sse_gap(sc.points(), spec.min_branch, &mut buf);
+    sc.buf = buf;
+    gap.unwrap_or(f64::NAN)
+}
+
+/// `r̂ − f̂₀` per point of the group, where f̂₀ is the model's fitted null.
+pub fn null_shift(g: &Group, pts: Points<'_>, spec: Spec) -> Vec<f64> {
+    let x: Vec<f64> = g.idx.iter().map(|&j| pts.x[j]).collect();
+    let y: Vec<f64> = g.idx.iter().map(|&j| pts.y[j]).collect();
+    let w: Vec<f64> = g.idx.iter().map(|&j| pts.w[j]).collect();
+    let r: Vec<f64> = x
+        .iter()
+        .zip(&y)
+        .map(|(x, y)| spec.model.response(*x, *y))
+        .collect();
+    spec.model.null_shift(GroupPoints {
+        x: &x,
+        y: &y,
+        r: &r,
+        w: &w,
+    })
+}

@@ -1,0 +1,227 @@
+//! The two-time (time-domain) analysis: from a campaign of C(t,tw) and χ(t,tw) over
+//! independent samples to X, T_eff, the break and the tests, jointly and per curve.
+//!
+//! Data flow one way, one room per stage (docs/architecture.md):
+//!
+//! 1. [`campaign`]: the data model, samples × (tw, t) points, validated once;
+//! 2. [`points`]: parametric points from sample means, and the data matrix `D`;
+//! 3. [`model`]: the models behind one interface ([`model::FdModel`]);
+//! 4. `fitting`: one fit of one group of points;
+//! 5. `resampling`: weights, the leave-one-out fits and the cluster bootstrap
+//!    (one resample's means are one row of `W · D`);
+//! 6. `assess` and `aging`: intervals, tests and where the break sits, as typed
+//!    [`findings`];
+//! 7. [`result`]: what the JSON carries and the report layer renders.
+
+pub mod campaign;
+pub mod findings;
+pub mod model;
+pub mod points;
+pub mod result;
+pub mod settings;
+
+mod aging;
+mod assess;
+mod fitting;
+mod resampling;
+
+pub use crate::common::{Estimate, Progress, Silent, ToolInfo};
+pub use campaign::{Campaign, GridPoint};
+pub use findings::{Caution, Finding, Subject, Verdict};
+pub use result::{
+    AgingTrend, Curve, FitReport, GroupFit, LeftOut, PointRecord, SCHEMA, SettingsRecord,
+};
+pub use settings::{FitSettings, Hold, Model, Weighting};
+
+pub(crate) use fitting::BYTES_PER_DRAW;
+pub(crate) use resampling::CHUNK;
+
+use crate::error::{Error, Result};
+use findings::{FEW_SAMPLES, SMALL_SAMPLES};
+use fitting::{Group, Points, Scratch, Spec, fit_group, null_shift};
+use model::{Draw, Values};
+use points::{Axes, Parametric};
+use resampling::Prepared;
+
+/// Runs the whole time-domain analysis.
+///
+/// # Errors
+/// [`Error::Setting`] for settings out of range, normalized axes without `corr_eq`, or a
+/// resampling that would not fit in memory; [`Error::Analysis`] when the joint fit is
+/// impossible (too few points for two branches, no spread in C).
+pub fn analyze(
+    campaign: &Campaign,
+    settings: &FitSettings,
+    input: Option<String>,
+    progress: &dyn Progress,
+) -> Result<FitReport> {
+    settings.validate()?;
+    let spec = Spec {
+        model: model::of(settings.model),
+        min_branch: settings.min_branch,
+    };
+    let mut cautions = Vec::new();
+    let prep = resampling::prepare(campaign, settings, spec, &mut cautions)?;
+    let groups = resampling::make_groups(campaign, settings, &prep);
+    let (n, p) = (campaign.n_samples(), campaign.n_points());
+    crate::budget::check_fit(n, prep.data.ncols(), p, groups.len(), settings.resamples)?;
+    let fits = fit_all(&prep, &groups, spec, settings, progress)?;
+    let aging = aging::aging_trend(&groups, &fits.0, &fits.1, settings);
+    cautions.extend(
+        aging
+            .as_ref()
+            .and_then(aging::aging_finding)
+            .map(campaign_caution),
+    );
+    campaign_cautions(&prep.pm, n, &mut cautions);
+    Ok(report(
+        campaign, settings, input, &prep, fits.0, aging, cautions,
+    ))
+}
+
+/// The estimates, the leave-one-out fits and the bootstrap of every group, assessed.
+fn fit_all(
+    prep: &Prepared,
+    groups: &[Group],
+    spec: Spec,
+    settings: &FitSettings,
+    progress: &dyn Progress,
+) -> Result<(Vec<GroupFit>, Vec<Option<Draw>>)> {
+    let pm = &prep.pm;
+    let full = Points {
+        x: &pm.x,
+        y: &pm.y,
+        w: &prep.weights,
+    };
+    let mut est: Vec<Option<Values>> = Vec::new();
+    let mut profiles: Vec<Vec<(f64, f64)>> = Vec::new();
+    let mut scratch: Vec<Scratch> = Vec::new();
+    for g in groups {
+        let gx: Vec<f64> = g.idx.iter().map(|&j| pm.x[j]).collect();
+        let mut sc = Scratch::new(&gx);
+        let mut prof = Vec::new();
+        est.push(fit_group(g, full, spec, &mut sc, Some(&mut prof)));
+        profiles.push(prof);
+        scratch.push(sc);
+    }
+    check_joint(&pm.x, est[0].is_some(), pm.x.len(), settings.min_branch)?;
+    // Null-model shifts per group: r̂ − f̂₀, so that r* − shift lies on the null model.
+    let shifts: Vec<Option<Vec<f64>>> = groups
+        .iter()
+        .zip(&est)
+        .map(|(g, e)| e.map(|_| null_shift(g, full, spec)))
+        .collect();
+    let jack = resampling::jackknife(prep, groups, &est, spec, &scratch);
+    let reps = resampling::bootstrap(prep, groups, &shifts, spec, &scratch, settings, progress);
+    let ng = groups.len();
+    let n = prep.data.nrows();
+    let fits = groups
+        .iter()
+        .enumerate()
+        .map(|(gi, g)| {
+            let series: Vec<Option<Draw>> = reps.iter().skip(gi).step_by(ng).copied().collect();
+            let jk: Vec<Option<Draw>> = jack.iter().map(|r| r[gi]).collect();
+            let input = assess::GroupInput {
+                group: g,
+                est: est[gi],
+                reps: &series,
+                jack: &jk,
+                profile: &profiles[gi],
+            };
+            assess::assess(&input, spec, settings, n)
+        })
+        .collect();
+    Ok((fits, reps))
+}
+
+/// The report: the fits, the points and what shaped them.
+fn report(
+    campaign: &Campaign,
+    settings: &FitSettings,
+    input: Option<String>,
+    prep: &Prepared,
+    fits: Vec<GroupFit>,
+    aging: Option<AgingTrend>,
+    cautions: Vec<Caution>,
+) -> FitReport {
+    let pm = &prep.pm;
+    let points = (0..campaign.n_points())
+        .map(|j| PointRecord {
+            tw: campaign.points()[j].tw,
+            t: campaign.points()[j].t,
+            x: pm.x[j],
+            x_se: pm.x_se[j],
+            y: pm.y[j],
+            y_se: pm.y_se[j],
+        })
+        .collect();
+    FitReport {
+        schema: SCHEMA,
+        tool: ToolInfo::default(),
+        input,
+        settings: SettingsRecord {
+            given: settings.clone(),
+            k: settings.units.boltzmann(),
+            axes_used: if prep.normalized {
+                Axes::Normalized
+            } else {
+                Axes::Plain
+            },
+        },
+        n_samples: campaign.n_samples(),
+        waiting_times: campaign.waiting_times(),
+        verdict: fits[0].verdict.clone(),
+        fits,
+        aging,
+        cautions,
+        points,
+    }
+}
+
+/// Refuses a joint fit that cannot be made, with the reason.
+fn check_joint(x: &[f64], fitted: bool, p: usize, m: usize) -> Result<()> {
+    let spread = x.iter().copied().fold(f64::NEG_INFINITY, f64::max)
+        - x.iter().copied().fold(f64::INFINITY, f64::min);
+    if !(spread > 0.0) {
+        return Err(Error::Analysis(format!(
+            "the mean correlation is {} at every point; the parametric plot needs C to vary",
+            x[0]
+        )));
+    }
+    if !fitted {
+        return Err(Error::Analysis(format!(
+            "cannot fit a break: {p} points in all, and each branch needs at least {m} points \
+             with distinct C values (lower --min-branch, or add points)"
+        )));
+    }
+    Ok(())
+}
+
+fn campaign_caution(finding: Finding) -> Caution {
+    Caution {
+        subject: Subject::Campaign,
+        finding,
+    }
+}
+
+/// Cautions about the whole campaign: no spread between samples, few samples.
+fn campaign_cautions(pm: &Parametric, n: usize, cautions: &mut Vec<Caution>) {
+    let spread = pm
+        .x_se
+        .iter()
+        .chain(&pm.y_se)
+        .fold(0.0f64, |m, v| m.max(*v));
+    let size = pm.x.iter().chain(&pm.y).fold(0.0f64, |m, v| m.max(v.abs()));
+    if !(spread > 1e-9 * size) {
+        cautions.push(campaign_caution(Finding::IdenticalSamples));
+    }
+    if (FEW_SAMPLES..SMALL_SAMPLES).contains(&n) {
+        cautions.push(campaign_caution(Finding::SmallSamples { samples: n }));
+    }
+    if n < FEW_SAMPLES {
+        cautions.push(campaign_caution(Finding::FewSamples {
+            samples: n,
+            limit: FEW_SAMPLES,
+        }));
+    }
+}

@@ -1,0 +1,76 @@
+//! The broken stick with both slopes free: `y = a + b x` above the break, slope `b − c`
+//! below, X = c − b. Its null is one straight line of free slope; the upper slope b is the
+//! thermometer's check.
+
+use super::{Draw, FdModel, FitBuffers, GroupPoints, Values};
+use crate::fit::{Base, broken, fit_line};
+use crate::twotime::result::Curve;
+use crate::twotime::settings::Model;
+
+/// Both slopes fitted.
+pub struct FreeSlopes;
+
+impl FdModel for FreeSlopes {
+    fn kind(&self) -> Model {
+        Model::Free
+    }
+    fn describe(&self) -> &'static str {
+        "broken stick, both slopes free"
+    }
+    fn methods_phrase(&self) -> &'static str {
+        "a two-segment line with free slopes above and below a break q (X = minus the lower slope)"
+    }
+    fn c_factor(&self) -> f64 {
+        0.0
+    }
+
+    fn fit(
+        &self,
+        pts: GroupPoints<'_>,
+        min_branch: usize,
+        buf: &mut FitBuffers,
+        profile: Option<&mut Vec<(f64, f64)>>,
+    ) -> Option<Values> {
+        let sol = broken::search(
+            pts.x,
+            pts.r,
+            pts.w,
+            Base::Line,
+            min_branch,
+            &mut buf.ws,
+            profile,
+        )?;
+        Some(Values {
+            ratio: sol.c - sol.b,
+            q: sol.q,
+            fast: sol.b,
+            sol,
+        })
+    }
+
+    fn sse_gap(&self, pts: GroupPoints<'_>, m: usize, buf: &mut FitBuffers) -> Option<f64> {
+        broken::search(pts.x, pts.r, pts.w, Base::Line, m, &mut buf.ws, None)
+            .map(|s| s.sse_null - s.sse)
+    }
+
+    fn null_shift(&self, pts: GroupPoints<'_>) -> Vec<f64> {
+        match fit_line(pts.x, pts.y, Some(pts.w)) {
+            Some(l) => pts
+                .x
+                .iter()
+                .zip(pts.y)
+                .map(|(x, y)| y - l.intercept - l.slope * x)
+                .collect(),
+            None => vec![0.0; pts.x.len()],
+        }
+    }
+
+    fn curve(&self, d: &Draw) -> Curve {
+        Curve {
+            q: d.q,
+            intercept: d.intercept,
+            slope_above: d.fast,
+            slope_below: -d.ratio,
+        }
+    }
+}

@@ -1,0 +1,153 @@
+//! The models of the parametric plot, behind one interface. A model says what quantity it
+//! fits, fits it on a group's points with weights, compares itself with its no-break
+//! (null) model, and gives the quantities the resampling keeps and the curve it draws.
+//!
+//! To add a model: write one file here implementing [`FdModel`], add its variant to
+//! [`Model`](super::settings::Model) and one line to [`of`]. Nothing in the orchestration
+//! changes.
+
+mod broken;
+mod free;
+mod line;
+
+use super::result::Curve;
+use super::settings::Model;
+use crate::fit::{BreakSolution, Workspace};
+
+/// The model registered for each `--model` choice.
+pub fn of(kind: Model) -> &'static dyn FdModel {
+    match kind {
+        Model::Broken => &broken::FixedSlope,
+        Model::Free => &free::FreeSlopes,
+        Model::Line => &line::SingleLine,
+    }
+}
+
+/// One group's points, gathered: plot coordinates, the fitted response and the weights.
+#[derive(Clone, Copy)]
+pub struct GroupPoints<'a> {
+    /// x per point.
+    pub x: &'a [f64],
+    /// y per point.
+    pub y: &'a [f64],
+    /// The model's fitted quantity per point ([`FdModel::response`]).
+    pub r: &'a [f64],
+    /// Weights.
+    pub w: &'a [f64],
+}
+
+/// Buffers a model may use while fitting, so resampled fits do not allocate.
+#[derive(Debug, Clone, Default)]
+pub struct FitBuffers {
+    /// Points sorted by x, kept between calls as the starting order.
+    pub ws: Workspace,
+    /// Spare x, y, w for a secondary line fit.
+    pub x: Vec<f64>,
+    /// See `x`.
+    pub y: Vec<f64>,
+    /// See `x`.
+    pub w: Vec<f64>,
+}
+
+/// The values of one fit of one group.
+#[derive(Debug, Clone, Copy)]
+pub struct Values {
+    /// X: minus the slope below the break (or of the one line).
+    pub ratio: f64,
+    /// The break (NaN without one).
+    pub q: f64,
+    /// The slope above the break (the thermometer's check), NaN when undefined.
+    pub fast: f64,
+    /// The least-squares solution, with the SSE of the model and of its null.
+    pub sol: BreakSolution,
+}
+
+impl Values {
+    /// The break sits in the first or last allowed interval between points.
+    pub fn at_edge(&self) -> bool {
+        self.q.is_finite()
+            && (self.sol.interval == 0 || self.sol.interval + 1 == self.sol.n_intervals)
+    }
+
+    /// The scalars a resample keeps.
+    pub fn draw(&self, null_stat: f64) -> Draw {
+        Draw {
+            ratio: self.ratio,
+            q: self.q,
+            fast: self.fast,
+            intercept: self.sol.a,
+            null_stat,
+            edge: self.at_edge(),
+        }
+    }
+}
+
+/// What one resample (or leave-one-out fit) of one group keeps: only the scalars the
+/// intervals, tests and figures need, so memory grows as 48 bytes per resample and group.
+#[derive(Debug, Clone, Copy)]
+pub struct Draw {
+    /// X.
+    pub ratio: f64,
+    /// The break.
+    pub q: f64,
+    /// The slope above the break.
+    pub fast: f64,
+    /// The intercept of the upper segment.
+    pub intercept: f64,
+    /// The null-imposed equilibrium statistic (NaN for leave-one-out fits).
+    pub null_stat: f64,
+    /// The break sits at the edge of the allowed intervals.
+    pub edge: bool,
+}
+
+/// A model of the parametric plot `y(x)`.
+pub trait FdModel: Sync {
+    /// Its `--model` choice.
+    fn kind(&self) -> Model;
+    /// Words for the report header.
+    fn describe(&self) -> &'static str;
+    /// The model in the methods paragraph ("a two-segment line with …").
+    fn methods_phrase(&self) -> &'static str;
+    /// A line under the report's table explaining a column, if the model needs one.
+    fn table_note(&self) -> Option<&'static str> {
+        None
+    }
+    /// Whether the model has a break (a slope above it, a thermometer test, an edge).
+    fn has_break(&self) -> bool {
+        true
+    }
+    /// The factor `α` on x in the fitted quantity `r = α x + y` (1 or 0).
+    fn c_factor(&self) -> f64;
+    /// The fitted quantity at one point.
+    fn response(&self, x: f64, y: f64) -> f64 {
+        self.c_factor() * x + y
+    }
+    /// The least-squares fit of the group, with the SSE of its null model; `profile`
+    /// receives `(q, SSE)` over every candidate break.
+    fn fit(
+        &self,
+        pts: GroupPoints<'_>,
+        min_branch: usize,
+        buf: &mut FitBuffers,
+        profile: Option<&mut Vec<(f64, f64)>>,
+    ) -> Option<Values>;
+    /// `SSE(null) − SSE(model)` for the responses `r` (no secondary quantities).
+    fn sse_gap(&self, pts: GroupPoints<'_>, min_branch: usize, buf: &mut FitBuffers)
+    -> Option<f64>;
+    /// `r̂ − f̂₀` per point: subtracting it moves a resample onto the fitted null model.
+    fn null_shift(&self, pts: GroupPoints<'_>) -> Vec<f64>;
+    /// The fitted curve in plot coordinates.
+    fn curve(&self, d: &Draw) -> Curve;
+}
+
+/// The weighted mean of `x + y` (the intercept of the slope −1 line).
+fn equilibrium_level(pts: GroupPoints<'_>) -> f64 {
+    let sw: f64 = pts.w.iter().sum();
+    pts.x
+        .iter()
+        .zip(pts.y)
+        .zip(pts.w)
+        .map(|((x, y), w)| w * (x + y))
+        .sum::<f64>()
+        / sw
+}

@@ -1,0 +1,303 @@
+//! The data behind every fit and the resampling of whole samples: the data matrix `D`
+//! whose rows are samples, the weight rule applied alike to the full data, each
+//! leave-one-out set and each resample, the jackknife, and the chunked bootstrap where one
+//! replicate's means are one row of `W · D`.
+
+use super::campaign::Campaign;
+use super::findings::{Caution, Finding, Subject};
+use super::fitting::{Group, Points, Scratch, Spec, fit_group, null_statistic};
+use super::model::{Draw, Values};
+use super::points::{Axes, Parametric, PointVariance, Transform, data_matrix};
+use super::settings::{FitSettings, Hold, Weighting};
+use crate::common::Progress;
+use crate::error::{Error, Result};
+use crate::resample;
+use ndarray::{Array2, ArrayView1, Axis};
+use rayon::prelude::*;
+
+/// Replicates per chunk of the resampling product; fixed so results do not depend on threads.
+pub(crate) const CHUNK: usize = 64;
+
+/// How point weights are made, the same way in the full fit and in every resample.
+#[derive(Debug, Clone)]
+pub enum WeightRule {
+    /// All points alike.
+    Uniform,
+    /// `1 / max(var, floor)` with `var` from the fit's own samples.
+    Inverse { pv: PointVariance, floor: f64 },
+}
+
+impl WeightRule {
+    /// Writes the weights of every point from a row of `W · D` over `drawn` samples.
+    pub fn weights(
+        &self,
+        means: ArrayView1<'_, f64>,
+        drawn: usize,
+        var: &mut [f64],
+        w: &mut [f64],
+    ) {
+        match self {
+            WeightRule::Uniform => w.iter_mut().for_each(|v| *v = 1.0),
+            WeightRule::Inverse { pv, floor } => {
+                pv.apply(means, drawn, var);
+                for (w, v) in w.iter_mut().zip(var.iter()) {
+                    *w = 1.0 / v.max(*floor);
+                }
+            }
+        }
+    }
+}
+
+/// The campaign prepared for fitting: parametric points, the data matrix that one row of
+/// `W · D` turns into a resample, and the rule that makes point weights.
+pub struct Prepared {
+    /// Means to plot coordinates.
+    pub tf: Transform,
+    /// The parametric points and their leave-one-out versions.
+    pub pm: Parametric,
+    /// `[C | χ | C(t,t)]` per sample, then the moment columns the weights need.
+    pub data: Array2<f64>,
+    /// How weights are made.
+    pub rule: WeightRule,
+    /// Weights of the full-data fit.
+    pub weights: Vec<f64>,
+    /// Normalized axes were used.
+    pub normalized: bool,
+}
+
+/// Forms the points, the data matrix and the full-data weights.
+///
+/// # Errors
+/// [`Error::Setting`] for normalized axes without `corr_eq`; [`Error::Analysis`] when
+/// the numbers overflow.
+pub fn prepare(
+    campaign: &Campaign,
+    settings: &FitSettings,
+    spec: Spec,
+    cautions: &mut Vec<Caution>,
+) -> Result<Prepared> {
+    let normalized = match settings.axes {
+        Axes::Auto => campaign.corr_eq().is_some(),
+        Axes::Plain => false,
+        Axes::Normalized if campaign.corr_eq().is_none() => {
+            return Err(Error::Setting(
+                "--axes normalized needs the column corr_eq (C(t,t)) in the input".into(),
+            ));
+        }
+        Axes::Normalized => true,
+    };
+    let kt = settings.units.boltzmann() * settings.temperature;
+    let tf = Transform {
+        kt,
+        normalized,
+        points: campaign.n_points(),
+    };
+    let raw = data_matrix(campaign, normalized);
+    let pm = Parametric::new(&raw, tf);
+    let finite = |v: &f64| v.is_finite() && (v * v * 1e6).is_finite();
+    if !pm
+        .x
+        .iter()
+        .chain(&pm.y)
+        .chain(&pm.x_se)
+        .chain(&pm.y_se)
+        .all(finite)
+    {
+        return Err(Error::Analysis(
+            "the numbers are too large to compute with (their means or spreads overflow); \
+             rescale the corr and resp columns"
+                .into(),
+        ));
+    }
+    let alpha = spec.model.c_factor();
+    let (rule, data) = match settings.weights {
+        Weighting::Uniform => (WeightRule::Uniform, raw),
+        Weighting::InverseVariance => {
+            let pv = PointVariance::new(&raw, tf, alpha, kt);
+            let data = pv.extend(&raw);
+            (WeightRule::Inverse { pv, floor: 0.0 }, data)
+        }
+    };
+    let mut prep = Prepared {
+        tf,
+        pm,
+        data,
+        rule,
+        weights: Vec::new(),
+        normalized,
+    };
+    prep.full_weights(cautions);
+    Ok(prep)
+}
+
+impl Prepared {
+    /// The means of every column over all samples.
+    pub fn means(&self) -> ndarray::Array1<f64> {
+        self.data.mean_axis(Axis(0)).unwrap_or_default()
+    }
+
+    /// The full-data weights, and the variance floor every resample then shares.
+    fn full_weights(&mut self, cautions: &mut Vec<Caution>) {
+        let p = self.tf.points;
+        let (mut var, mut w) = (vec![0.0; p], vec![1.0; p]);
+        let means = self.means();
+        if let WeightRule::Inverse { pv, .. } = &self.rule {
+            pv.apply(means.view(), self.data.nrows(), &mut var);
+            let mut pos: Vec<f64> = var
+                .iter()
+                .copied()
+                .filter(|v| *v > 0.0 && v.is_finite())
+                .collect();
+            if pos.is_empty() {
+                cautions.push(campaign_caution(Finding::NoSpreadUniformWeights));
+                self.rule = WeightRule::Uniform;
+            } else {
+                pos.sort_by(f64::total_cmp);
+                let floor = 1e-6 * pos[pos.len() / 2];
+                if var.iter().any(|v| !(*v >= floor)) {
+                    cautions.push(campaign_caution(Finding::VarianceFloored));
+                }
+                if let WeightRule::Inverse { floor: f, .. } = &mut self.rule {
+                    *f = floor;
+                }
+            }
+        }
+        self.rule
+            .weights(means.view(), self.data.nrows(), &mut var, &mut w);
+        self.weights = w;
+    }
+}
+
+/// Groups of points: all of them, then one per held time when there are several.
+pub fn make_groups(campaign: &Campaign, settings: &FitSettings, prep: &Prepared) -> Vec<Group> {
+    let p = campaign.n_points();
+    let pm = &prep.pm;
+    let held_of = |j: usize| match settings.hold {
+        Hold::Tw => campaign.points()[j].tw,
+        Hold::T => campaign.points()[j].t,
+    };
+    let mut helds: Vec<f64> = (0..p).map(held_of).collect();
+    helds.sort_by(f64::total_cmp);
+    helds.dedup();
+    let in_range = |j: usize| {
+        settings
+            .range
+            .is_none_or(|[lo, hi]| pm.x[j] >= lo && pm.x[j] <= hi)
+    };
+    let make = |held: Option<f64>| {
+        let idx: Vec<usize> = (0..p)
+            .filter(|&j| in_range(j) && held.is_none_or(|h| held_of(j).total_cmp(&h).is_eq()))
+            .collect();
+        let scale = idx
+            .iter()
+            .map(|&j| prep.weights[j] * (pm.x[j].powi(2) + pm.y[j].powi(2)))
+            .sum();
+        Group { held, scale, idx }
+    };
+    let mut groups = vec![make(None)];
+    if helds.len() > 1 {
+        groups.extend(helds.iter().map(|&h| make(Some(h))));
+    }
+    groups
+}
+
+/// Leave-one-sample-out fits (BCa acceleration), weights re-estimated from the `n − 1`
+/// samples left.
+pub fn jackknife(
+    prep: &Prepared,
+    groups: &[Group],
+    est: &[Option<Values>],
+    spec: Spec,
+    scratch: &[Scratch],
+) -> Vec<Vec<Option<Draw>>> {
+    let n = prep.data.nrows();
+    let p = prep.tf.points;
+    let full = prep.means();
+    (0..n)
+        .into_par_iter()
+        .map_init(
+            || (scratch.to_vec(), vec![0.0; p], vec![0.0; p], full.clone()),
+            |(sc, var, w, loo), i| {
+                let nf = n as f64;
+                loo.assign(&((&full * nf - prep.data.row(i)) / (nf - 1.0)));
+                prep.rule.weights(loo.view(), n - 1, var, w);
+                let (xr, yr) = (prep.pm.x_jack.row(i), prep.pm.y_jack.row(i));
+                let pts = Points {
+                    x: xr.as_slice().unwrap_or(&[]),
+                    y: yr.as_slice().unwrap_or(&[]),
+                    w,
+                };
+                groups
+                    .iter()
+                    .zip(sc.iter_mut())
+                    .zip(est)
+                    .map(|((g, s), e)| {
+                        e.and_then(|_| fit_group(g, pts, spec, s, None))
+                            .map(|v| v.draw(f64::NAN))
+                    })
+                    .collect()
+            },
+        )
+        .collect()
+}
+
+/// The cluster bootstrap: replicate `b`'s groups are `out[b·G .. (b+1)·G]`. One chunk of
+/// replicates is one product `W · D`; chunks are fixed, so results do not depend on threads.
+#[allow(clippy::too_many_arguments)]
+pub fn bootstrap(
+    prep: &Prepared,
+    groups: &[Group],
+    shifts: &[Option<Vec<f64>>],
+    spec: Spec,
+    scratch: &[Scratch],
+    settings: &FitSettings,
+    progress: &dyn Progress,
+) -> Vec<Option<Draw>> {
+    let (n, p, ng) = (prep.data.nrows(), prep.tf.points, groups.len());
+    let b_total = settings.resamples;
+    let mut out: Vec<Option<Draw>> = vec![None; b_total * ng];
+    progress.start(b_total as u64);
+    out.par_chunks_mut(CHUNK * ng).enumerate().for_each_init(
+        || {
+            let bufs = vec![vec![0.0; p]; 4];
+            (scratch.to_vec(), vec![0u32; n], bufs)
+        },
+        |(sc, counts, bufs), (c, slot)| {
+            let b0 = c * CHUNK;
+            let rows = slot.len() / ng;
+            let mut wm = Array2::<f64>::zeros((rows, n));
+            for row in 0..rows {
+                resample::draw_counts(settings.seed, (b0 + row) as u64, n, counts);
+                for (i, &cnt) in counts.iter().enumerate() {
+                    wm[[row, i]] = f64::from(cnt) / n as f64;
+                }
+            }
+            let means = wm.dot(&prep.data);
+            for (row, reps) in slot.chunks_mut(ng).enumerate() {
+                let [x, y, var, w] = &mut bufs[..] else {
+                    return;
+                };
+                prep.tf.apply(means.row(row), x, y);
+                prep.rule.weights(means.row(row), n, var, w);
+                let pts = Points { x, y, w };
+                for (((g, s), shift), rep) in groups.iter().zip(sc.iter_mut()).zip(shifts).zip(reps)
+                {
+                    *rep = shift.as_deref().and_then(|shift| {
+                        let v = fit_group(g, pts, spec, s, None)?;
+                        Some(v.draw(null_statistic(spec, s, shift)))
+                    });
+                }
+            }
+            progress.advance(rows as u64);
+        },
+    );
+    progress.finish();
+    out
+}
+
+fn campaign_caution(finding: Finding) -> Caution {
+    Caution {
+        subject: Subject::Campaign,
+        finding,
+    }
+}

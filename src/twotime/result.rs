@@ -1,0 +1,172 @@
+//! The result of a time-domain fit: what the JSON carries and the reports render.
+
+use super::findings::{Caution, Verdict};
+use super::points::Axes;
+use super::settings::{FitSettings, Hold, Model};
+use crate::common::{Estimate, ToolInfo};
+use serde::Serialize;
+
+/// The JSON schema version of [`FitReport`].
+pub const SCHEMA: u32 = 2;
+
+/// The fitted two-segment curve in plot coordinates: `y = intercept + slope_above · x`
+/// for `x >= q`, and slope `slope_below` for `x < q` (continuous at `q`).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Curve {
+    /// Break.
+    pub q: f64,
+    /// Intercept of the upper segment.
+    pub intercept: f64,
+    /// Slope for `x >= q`.
+    pub slope_above: f64,
+    /// Slope for `x < q`.
+    pub slope_below: f64,
+}
+
+impl Curve {
+    /// The curve's y at x.
+    pub fn eval(&self, x: f64) -> f64 {
+        let y_q = self.intercept + self.slope_above * self.q;
+        if x >= self.q {
+            self.intercept + self.slope_above * x
+        } else {
+            y_q + self.slope_below * (x - self.q)
+        }
+    }
+}
+
+/// The fit of one group of points: all waiting times (`tw = None`) or one waiting time.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct GroupFit {
+    /// The waiting time held fixed along this curve (`--hold tw`), `None` for the joint fit.
+    pub tw: Option<f64>,
+    /// The later time held fixed along this curve (`--hold t`), `None` otherwise.
+    pub t: Option<f64>,
+    /// The fitted model.
+    pub model: Model,
+    /// Number of independent samples.
+    pub n_samples: usize,
+    /// Number of parametric points in the group.
+    pub n_points: usize,
+    /// The fluctuation–dissipation ratio X (minus the slope below the break).
+    pub ratio: Estimate,
+    /// `T_eff = T / X`; ends are `None` ("unbounded") when X's interval reaches 0.
+    pub t_eff: Estimate,
+    /// The break q (the correlation where the slope changes).
+    #[serde(rename = "break")]
+    pub brk: Estimate,
+    /// The slope above the break: fitted in the free model; for the fixed model, a free
+    /// line through the points above the break, as a check of the quasi-equilibrium slope −1.
+    pub fast_slope: Estimate,
+    /// The p-value of the test of no break (equilibrium), calibrated by resampling.
+    pub equilibrium_p: Option<f64>,
+    /// Resamples that calibrated the test (the p-value's floor is `1/(this + 1)`).
+    pub null_resamples: usize,
+    /// The test statistic `SSE(no break) − SSE(broken stick)`.
+    pub equilibrium_stat: Option<f64>,
+    /// The p-value of the test that the slope above the break is −1 (the thermometer
+    /// check), from resamples centred on the estimate; `None` for the line model, without
+    /// a break, or with the break at the edge.
+    pub thermometer_p: Option<f64>,
+    /// X and its interval can be quoted: a break was detected away from the edge of the
+    /// points (always true for the line model).
+    pub x_quotable: bool,
+    /// The fitted curve.
+    pub curve: Option<Curve>,
+    /// `(q, SSE)` over every candidate break.
+    pub profile: Vec<[f64; 2]>,
+    /// Resamples whose fit failed (excluded from the intervals).
+    pub failed_resamples: usize,
+    /// The fraction of resamples whose break sits in the first or last allowed interval.
+    pub break_at_edge: Option<f64>,
+    /// What the data show (a code, its numbers; the report says it in words).
+    pub verdict: Verdict,
+    /// Cautions about this fit.
+    pub cautions: Vec<Caution>,
+    /// The resampled X values (for figures; not written to JSON).
+    #[serde(skip)]
+    pub ratio_replicates: Vec<f64>,
+    /// The resampled curves (for the figure's band; not written to JSON).
+    #[serde(skip)]
+    pub curve_replicates: Vec<Curve>,
+}
+
+/// A parametric point with its sample errors (for the points CSV and the figures).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct PointRecord {
+    /// Waiting time.
+    pub tw: f64,
+    /// Later time.
+    pub t: f64,
+    /// Parametric x.
+    pub x: f64,
+    /// Standard error of x.
+    pub x_se: f64,
+    /// Parametric y.
+    pub y: f64,
+    /// Standard error of y.
+    pub y_se: f64,
+}
+
+/// A curve left out of the aging trend, and why.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct LeftOut {
+    /// Its held time.
+    pub held: f64,
+    /// Why it was left out.
+    pub reason: String,
+}
+
+/// How X changes with the held time: a line in log₁₀ of it over the usable curves.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct AgingTrend {
+    /// Which time is held along the curves.
+    pub hold: Hold,
+    /// The held times of the curves used.
+    pub curves_used: Vec<f64>,
+    /// The curves left out (no break, break at the edge, not fitted), with the reason.
+    pub left_out: Vec<LeftOut>,
+    /// `dX / d log₁₀(held time)`, with its percentile interval.
+    pub change_per_decade: Estimate,
+    /// The interval excludes 0: X changes with age.
+    pub changes: bool,
+}
+
+/// Settings as recorded with the result (resolved axes, the value of k).
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct SettingsRecord {
+    /// The settings as given.
+    #[serde(flatten)]
+    pub given: FitSettings,
+    /// Boltzmann's constant used.
+    pub k: f64,
+    /// The axes actually used ("plain" or "normalized").
+    pub axes_used: Axes,
+}
+
+/// The full result of a time-domain fit; serialized as the JSON output.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct FitReport {
+    /// JSON schema version.
+    pub schema: u32,
+    /// The tool that made it.
+    pub tool: ToolInfo,
+    /// The input file, when there was one.
+    pub input: Option<String>,
+    /// Settings that shaped the result.
+    pub settings: SettingsRecord,
+    /// Number of samples.
+    pub n_samples: usize,
+    /// The waiting times.
+    pub waiting_times: Vec<f64>,
+    /// The joint fit first, then one per waiting time.
+    pub fits: Vec<GroupFit>,
+    /// X against the held time, over the usable curves.
+    pub aging: Option<AgingTrend>,
+    /// What the data show (the joint fit's verdict).
+    pub verdict: Verdict,
+    /// Cautions about the whole campaign.
+    pub cautions: Vec<Caution>,
+    /// The parametric points.
+    pub points: Vec<PointRecord>,
+}
