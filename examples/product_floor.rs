@@ -10,7 +10,7 @@ fn main() {
     let camp =
         fdtemp::input::read_campaign(std::path::Path::new(file), &Default::default()).unwrap();
     let read = t0.elapsed().as_secs_f64();
-    let d = fdtemp::fdplot::data_matrix(&camp, false);
+    let d = fdtemp::twotime::points::data_matrix(&camp, false);
     let n = camp.n_samples();
     let t1 = std::time::Instant::now();
     let checksum: f64 = (0..b.div_ceil(64))
