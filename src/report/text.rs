@@ -45,9 +45,22 @@ fn label(f: &GroupFit) -> String {
 
 /// The human-readable report.
 pub fn render(r: &FitReport) -> Vec<u8> {
+    let mut o = String::new();
+    header(&mut o, r);
+    fits_table(&mut o, r);
+    verdicts(&mut o, r);
+    aging_line(&mut o, r);
+    cautions(&mut o, r);
+    let _ = writeln!(o);
+    let _ = writeln!(o, "methods");
+    let _ = writeln!(o, "{}", wrap(&methods(r), 92, "  "));
+    o.into_bytes()
+}
+
+/// What was fitted and how: data, axes and units, model and weights, intervals.
+fn header(o: &mut String, r: &FitReport) {
     let s = &r.settings;
     let g = &s.given;
-    let mut o = String::new();
     let _ = writeln!(
         o,
         "fdtemp {} · fluctuation–dissipation fit in the time domain",
@@ -95,6 +108,11 @@ pub fn render(r: &FitReport) -> Vec<u8> {
         g.resamples,
         g.seed
     );
+}
+
+/// One row per fit: the break, X, T_eff, the slope above q and the p-values.
+fn fits_table(o: &mut String, r: &FitReport) {
+    let g = &r.settings.given;
     let _ = writeln!(o);
     let held = g.hold.name();
     let mut rows: Vec<[String; 8]> = vec![[
@@ -125,6 +143,11 @@ pub fn render(r: &FitReport) -> Vec<u8> {
     if let Some(note) = model::of(g.model).table_note() {
         let _ = writeln!(o, "{note}");
     }
+}
+
+/// The joint fit's verdict, then one per curve.
+fn verdicts(o: &mut String, r: &FitReport) {
+    let held = r.settings.given.hold.name();
     let _ = writeln!(o);
     let _ = writeln!(o, "verdict    {}", findings::verdict(&r.verdict));
     for f in r.fits.iter().skip(1) {
@@ -135,6 +158,11 @@ pub fn render(r: &FitReport) -> Vec<u8> {
             findings::verdict(&f.verdict)
         );
     }
+}
+
+/// The aging trend, or why there is none.
+fn aging_line(o: &mut String, r: &FitReport) {
+    let held = r.settings.given.hold.name();
     if let Some(a) = &r.aging {
         let left: Vec<String> = a
             .left_out
@@ -161,7 +189,11 @@ pub fn render(r: &FitReport) -> Vec<u8> {
             );
         }
     }
+}
 
+/// Every caution, with its subject.
+fn cautions(o: &mut String, r: &FitReport) {
+    let held = r.settings.given.hold.name();
     let mut cautions: Vec<String> = r.cautions.iter().map(sentence).collect();
     for f in &r.fits {
         let who = f.tw.or(f.t).map_or_else(
@@ -185,10 +217,6 @@ pub fn render(r: &FitReport) -> Vec<u8> {
             let _ = writeln!(o, "  - {c}");
         }
     }
-    let _ = writeln!(o);
-    let _ = writeln!(o, "methods");
-    let _ = writeln!(o, "{}", wrap(&methods(r), 92, "  "));
-    o.into_bytes()
 }
 
 /// A methods paragraph that states how the numbers were made.
