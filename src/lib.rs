@@ -20,10 +20,9 @@ pub mod settings;
 
 pub use analysis::{FitReport, analyze};
 pub use settings::FitSettings;
-pub mod demo;
 pub mod output;
 pub mod report;
-pub mod synth;
+pub mod scenarios;
 
 /// Runs `f` on a pool of `threads` worker threads (all cores when `None`).
 ///
@@ -47,5 +46,4 @@ where
 #[cfg(doctest)]
 #[doc = include_str!("../docs/example.md")]
 pub struct DocExamples;
-pub mod sim;
 pub mod spectral;

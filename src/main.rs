@@ -7,8 +7,8 @@ use fdtemp::input::ColumnNames;
 use fdtemp::output::{self, Output};
 use fdtemp::report::plot::{self, Figure};
 use fdtemp::resample::IntervalMethod;
+use fdtemp::scenarios::sim::Scenario;
 use fdtemp::settings::{FitSettings, Hold, Model, Units, Weighting};
-use fdtemp::sim::Scenario;
 use fdtemp::spectral::analysis::ErrorModel;
 use fdtemp::spectral::input::Window;
 use fdtemp::spectral::{Convention, SpectrumSettings};
@@ -594,13 +594,13 @@ fn synth(a: SynthArgs) -> fdtemp::Result<()> {
         &[],
         a.overwrite,
     )?;
-    let spec = fdtemp::sim::SimSpec {
+    let spec = fdtemp::scenarios::sim::SimSpec {
         scenario: a.scenario,
         samples: a.samples,
         seed: a.seed,
         quick: a.quick,
     };
-    let sim = fdtemp::sim::simulate(&spec)?;
+    let sim = fdtemp::scenarios::sim::simulate(&spec)?;
     let fit = sim.truth["fit"]
         .as_str()
         .unwrap_or("")
@@ -637,8 +637,8 @@ fn demo(a: DemoArgs) -> fdtemp::Result<()> {
             source,
         })?;
     }
-    let d = fdtemp::demo::run(&a.out, &Bar::new())?;
-    let outputs = fdtemp::demo::prune_unchanged(d.outputs.clone(), a.overwrite)?;
+    let d = fdtemp::scenarios::demo::run(&a.out, &Bar::new())?;
+    let outputs = fdtemp::scenarios::demo::prune_unchanged(d.outputs.clone(), a.overwrite)?;
     output::write_all(&outputs, true)?;
     print(&fdtemp::report::text::render(&d.report));
     println!("\n════ spectral part\n");
@@ -650,7 +650,7 @@ fn demo(a: DemoArgs) -> fdtemp::Result<()> {
         )],
     ));
     println!();
-    print!("{}", fdtemp::demo::compare(&d));
+    print!("{}", fdtemp::scenarios::demo::compare(&d));
     println!(
         "files      {} (try: fdtemp fit {} --temperature {}; fdtemp spectrum {} --temperature {} --band 20:500)",
         a.out.display(),

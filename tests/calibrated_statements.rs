@@ -2,15 +2,15 @@
 //! CI. The full calibration table (≥ 200 campaigns per row) is `tests/calibration.rs`
 //! (ignored); these cases guard the fixes that brought each rate into its band.
 //!
-//! Every campaign is invented data with a built-in answer (`fdtemp::synth`), in the design
-//! a referee would try: 3 waiting times × 20 points, noise that grows as C decays, C–χ
-//! noise correlation and AR(1) correlation along t.
+//! Every campaign is invented data with a built-in answer (`fdtemp::scenarios::synth`), in
+//! the design a referee would try: 3 waiting times × 20 points, noise that grows as C
+//! decays, C–χ noise correlation and AR(1) correlation along t.
 
 use assert_cmd::Command;
 use fdtemp::FitSettings;
 use fdtemp::analysis::{FitReport, Silent, analyze};
+use fdtemp::scenarios::synth::{SynthSpec, generate};
 use fdtemp::settings::{Model, Weighting};
-use fdtemp::synth::{SynthSpec, generate};
 
 fn design(samples: usize, seed: u64) -> SynthSpec {
     SynthSpec {

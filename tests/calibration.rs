@@ -1,9 +1,10 @@
 //! Calibration of every statement the time-domain report makes, ignored in CI.
 //!
 //! Over many independent synthetic campaigns with a known truth (invented data,
-//! `fdtemp::synth`), count how often each statement of the report is made and is right:
-//! how often the equilibrium test rejects a true equilibrium, how often a 95% interval
-//! contains the truth, how often a caution fires on data that do not deserve it. Run with
+//! `fdtemp::scenarios::synth`), count how often each statement of the report is made and is
+//! right: how often the equilibrium test rejects a true equilibrium, how often a 95%
+//! interval contains the truth, how often a caution fires on data that do not deserve it.
+//! Run with
 //!
 //!     cargo test --release --test calibration -- --ignored --nocapture
 //!
@@ -29,8 +30,8 @@
 //! them at most 7.5%; 95% intervals 0.93–0.97; statements that must never be made, 0.
 
 use fdtemp::analysis::{Estimate, FitReport, GroupFit, Silent, analyze};
+use fdtemp::scenarios::synth::{Shape, SynthSpec, generate};
 use fdtemp::settings::{FitSettings, Model, Weighting};
-use fdtemp::synth::{Shape, SynthSpec, generate};
 use std::time::Instant;
 
 // ─── Accessors: every read of a report field happens here ───────────────────────────────

@@ -15,10 +15,10 @@ use crate::analysis::{FitReport, Progress, analyze};
 use crate::error::{Error, Result};
 use crate::output::Output;
 use crate::report::plot::{self, Figure};
+use crate::scenarios::synth::{SpectrumSpec, SynthSpec, generate, generate_spectrum};
 use crate::settings::FitSettings;
 use crate::spectral::analysis::{SpectrumReport, SpectrumSettings, analyze_spectra};
 use crate::spectral::input::write_spectra;
-use crate::synth::{SpectrumSpec, SynthSpec, generate, generate_spectrum};
 use std::fmt::Write;
 use std::path::Path;
 

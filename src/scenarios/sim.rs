@@ -1,6 +1,6 @@
 //! Simulated systems with a known or published fluctuation–dissipation ratio.
 //!
-//! Unlike [`crate::synth`], these campaigns come from simulating the dynamics, one
+//! Unlike [`super::synth`], these campaigns come from simulating the dynamics, one
 //! independent run per sample, and are written in exactly the format `fit` (or `noise`)
 //! reads, with a truth file that names where the expected value comes from.
 //!
@@ -460,8 +460,8 @@ fn resistor(spec: &SimSpec) -> SimOutput {
 }
 
 fn two_lines(spec: &SimSpec) -> Result<SimOutput> {
-    let base = crate::synth::SynthSpec::default();
-    let synth = crate::synth::SynthSpec {
+    let base = crate::scenarios::synth::SynthSpec::default();
+    let synth = crate::scenarios::synth::SynthSpec {
         samples: spec.samples,
         seed: spec.seed,
         waiting_times: if spec.quick {
@@ -472,7 +472,7 @@ fn two_lines(spec: &SimSpec) -> Result<SimOutput> {
         points_per_tw: if spec.quick { 40 } else { 100 },
         ..base
     };
-    let campaign = crate::synth::generate(&synth)?;
+    let campaign = crate::scenarios::synth::generate(&synth)?;
     Ok(SimOutput {
         data: crate::input::write_campaign(&campaign),
         truth: json!({
