@@ -69,21 +69,7 @@ pub fn run(dir: &Path, progress: &dyn Progress) -> Result<Demo> {
         progress,
     )?;
     let spectrum_spec = SpectrumSpec::default();
-    let truth = serde_json::json!({
-        "scenario": "soft colloidal glass after a quench (invented)",
-        "ratio": spec.ratio,
-        "t_eff": spec.temperature / spec.ratio,
-        "break": spec.plateau,
-        "temperature": spec.temperature,
-        "recipe": &spec,
-        "source": "built in: fdtemp::synth with the demo recipe; the sample means lie on the \
-                   broken stick by construction",
-        "spectrum": {
-            "scenario": "aging colloidal gel, voltage noise against dielectric loss (invented)",
-            "t_eff": "T (1 + (f_hot / f)^2)",
-            "recipe": &spectrum_spec,
-        },
-    });
+    let truth = truth(&spec, &spectrum_spec);
     let group = generate_spectrum(&spectrum_spec);
     let spectrum_path = dir.join("spectrum.csv");
     let spectrum = analyze_spectra(
@@ -92,7 +78,7 @@ pub fn run(dir: &Path, progress: &dyn Progress) -> Result<Demo> {
         &spectrum_settings(&spectrum_spec),
         Some(spectrum_path.display().to_string()),
     )?;
-    let outputs = vec![
+    let mut outputs = vec![
         Output {
             path: spectrum_path,
             bytes: write_spectra(std::slice::from_ref(&group)),
@@ -118,7 +104,38 @@ pub fn run(dir: &Path, progress: &dyn Progress) -> Result<Demo> {
             bytes: crate::report::csv::points_csv(&report),
         },
     ];
-    let mut outputs = outputs;
+    outputs.extend(figures(dir, &report, &spectrum)?);
+    Ok(Demo {
+        outputs,
+        report,
+        spec,
+        spectrum,
+        spectrum_spec,
+    })
+}
+
+/// The truth file: both recipes and the values they were built with.
+fn truth(spec: &SynthSpec, spectrum_spec: &SpectrumSpec) -> serde_json::Value {
+    serde_json::json!({
+        "scenario": "soft colloidal glass after a quench (invented)",
+        "ratio": spec.ratio,
+        "t_eff": spec.temperature / spec.ratio,
+        "break": spec.plateau,
+        "temperature": spec.temperature,
+        "recipe": spec,
+        "source": "built in: fdtemp::synth with the demo recipe; the sample means lie on the \
+                   broken stick by construction",
+        "spectrum": {
+            "scenario": "aging colloidal gel, voltage noise against dielectric loss (invented)",
+            "t_eff": "T (1 + (f_hot / f)^2)",
+            "recipe": spectrum_spec,
+        },
+    })
+}
+
+/// The FD plot, the resample histogram and T_eff(f), each as SVG and as PNG.
+fn figures(dir: &Path, report: &FitReport, spectrum: &SpectrumReport) -> Result<Vec<Output>> {
+    let mut outputs = Vec::new();
     for ext in ["svg", "png"] {
         let fig = |name: &str| {
             let path = dir.join(format!("{name}.{ext}"));
@@ -127,26 +144,20 @@ pub fn run(dir: &Path, progress: &dyn Progress) -> Result<Demo> {
         let (path, f) = fig("fd-plot")?;
         outputs.push(Output {
             path,
-            bytes: plot::fd_plot(&report, f)?,
+            bytes: plot::fd_plot(report, f)?,
         });
         let (path, f) = fig("ratio-resamples")?;
         outputs.push(Output {
             path,
-            bytes: plot::ratio_histogram(&report, f)?,
+            bytes: plot::ratio_histogram(report, f)?,
         });
         let (path, f) = fig("teff-spectrum")?;
         outputs.push(Output {
             path,
-            bytes: plot::teff_plot(&spectrum, f)?,
+            bytes: plot::teff_plot(spectrum, f)?,
         });
     }
-    Ok(Demo {
-        outputs,
-        report,
-        spec,
-        spectrum,
-        spectrum_spec,
-    })
+    Ok(outputs)
 }
 
 /// Lines that compare the joint estimates with the truth.
