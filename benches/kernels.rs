@@ -4,7 +4,7 @@
 use criterion::{Criterion, criterion_group, criterion_main};
 use fdtemp::FitSettings;
 use fdtemp::fit::{Base, Workspace, broken::search};
-use fdtemp::synth::{SynthSpec, generate};
+use fdtemp::scenarios::synth::{SynthSpec, generate};
 use fdtemp::twotime::{Silent, analyze};
 use ndarray::Array2;
 use std::hint::black_box;

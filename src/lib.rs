@@ -19,12 +19,9 @@ pub mod input;
 pub mod output;
 pub mod report;
 pub mod resample;
+pub mod scenarios;
 pub mod spectral;
 pub mod twotime;
-
-pub mod demo;
-pub mod sim;
-pub mod synth;
 
 pub use error::{Error, Result};
 pub use twotime::{Campaign, FitReport, FitSettings, GridPoint, analyze};

@@ -2,13 +2,13 @@
 //! CI. The full calibration table (≥ 200 campaigns per row) is `tests/calibration.rs`
 //! (ignored); these cases guard the fixes that brought each rate into its band.
 //!
-//! Every campaign is invented data with a built-in answer (`fdtemp::synth`), in the design
-//! a referee would try: 3 waiting times × 20 points, noise that grows as C decays, C–χ
-//! noise correlation and AR(1) correlation along t.
+//! Every campaign is invented data with a built-in answer (`fdtemp::scenarios::synth`), in
+//! the design a referee would try: 3 waiting times × 20 points, noise that grows as C
+//! decays, C–χ noise correlation and AR(1) correlation along t.
 
 use assert_cmd::Command;
 use fdtemp::FitSettings;
-use fdtemp::synth::{SynthSpec, generate};
+use fdtemp::scenarios::synth::{SynthSpec, generate};
 use fdtemp::twotime::settings::{Model, Weighting};
 use fdtemp::twotime::{Caution, Finding, FitReport, Silent, Verdict, analyze};
 

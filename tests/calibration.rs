@@ -1,9 +1,10 @@
 //! Calibration of every statement the time-domain report makes, ignored in CI.
 //!
 //! Over many independent synthetic campaigns with a known truth (invented data,
-//! `fdtemp::synth`), count how often each statement of the report is made and is right:
-//! how often the equilibrium test rejects a true equilibrium, how often a 95% interval
-//! contains the truth, how often a caution fires on data that do not deserve it. Run with
+//! `fdtemp::scenarios::synth`), count how often each statement of the report is made and is
+//! right: how often the equilibrium test rejects a true equilibrium, how often a 95%
+//! interval contains the truth, how often a caution fires on data that do not deserve it.
+//! Run with
 //!
 //!     cargo test --release --test calibration -- --ignored --nocapture
 //!
@@ -28,7 +29,7 @@
 //! Acceptance bands (for 200 campaigns): 5% tests and cautions on data that do not deserve
 //! them at most 7.5%; 95% intervals 0.93–0.97; statements that must never be made, 0.
 
-use fdtemp::synth::{Shape, SynthSpec, generate};
+use fdtemp::scenarios::synth::{Shape, SynthSpec, generate};
 use fdtemp::twotime::settings::{FitSettings, Model, Weighting};
 use fdtemp::twotime::{Estimate, Finding, FitReport, GroupFit, Silent, analyze};
 use std::time::Instant;

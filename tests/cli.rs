@@ -13,12 +13,12 @@ fn fdtemp() -> Command {
 /// A campaign written the way a user would: a small script's output, with their own
 /// column names (run, age, time, C, chi).
 fn user_campaign(dir: &Path) -> std::path::PathBuf {
-    let spec = fdtemp::synth::SynthSpec {
+    let spec = fdtemp::scenarios::synth::SynthSpec {
         samples: 24,
         points_per_tw: 20,
         ..Default::default()
     };
-    let c = fdtemp::synth::generate(&spec).unwrap();
+    let c = fdtemp::scenarios::synth::generate(&spec).unwrap();
     let text = String::from_utf8(fdtemp::input::write_campaign(&c)).unwrap();
     let text = text.replacen("sample,tw,t,corr,resp", "run,age,time,C,chi", 1);
     let path = dir.join("my campaign.csv");
@@ -277,14 +277,14 @@ fn bad_settings_give_their_exact_message_and_exit_code_2() {
     ];
     let dir = tempfile::tempdir().unwrap();
     let input = dir.path().join("c.csv");
-    let spec = fdtemp::synth::SynthSpec {
+    let spec = fdtemp::scenarios::synth::SynthSpec {
         samples: 4,
         points_per_tw: 12,
         ..Default::default()
     };
     std::fs::write(
         &input,
-        fdtemp::input::write_campaign(&fdtemp::synth::generate(&spec).unwrap()),
+        fdtemp::input::write_campaign(&fdtemp::scenarios::synth::generate(&spec).unwrap()),
     )
     .unwrap();
     for (args, message) in cases {
@@ -308,13 +308,13 @@ fn bad_settings_give_their_exact_message_and_exit_code_2() {
 #[test]
 fn a_byte_order_mark_windows_line_ends_and_comments_are_accepted() {
     let dir = tempfile::tempdir().unwrap();
-    let spec = fdtemp::synth::SynthSpec {
+    let spec = fdtemp::scenarios::synth::SynthSpec {
         samples: 6,
         points_per_tw: 12,
         ..Default::default()
     };
     let text = String::from_utf8(fdtemp::input::write_campaign(
-        &fdtemp::synth::generate(&spec).unwrap(),
+        &fdtemp::scenarios::synth::generate(&spec).unwrap(),
     ))
     .unwrap();
     let text = format!(

@@ -2,12 +2,12 @@
 //!
 //!     cargo test --release --test coverage_study -- --ignored --nocapture
 //!
-//! Over many synthetic campaigns with a known X (invented data, `fdtemp::synth`), count how
-//! often each interval method's 95% interval contains the truth.
+//! Over many synthetic campaigns with a known X (invented data, `fdtemp::scenarios::synth`),
+//! count how often each interval method's 95% interval contains the truth.
 
 use fdtemp::FitSettings;
 use fdtemp::resample::IntervalMethod;
-use fdtemp::synth::{SynthSpec, generate};
+use fdtemp::scenarios::synth::{SynthSpec, generate};
 use fdtemp::twotime::{Silent, analyze};
 
 fn coverage(samples: usize, campaigns: u64) -> Vec<(IntervalMethod, f64, f64, f64)> {
@@ -133,7 +133,7 @@ fn coverage_of_band_averages_from_welch_records() {
 #[test]
 #[ignore = "long statistical study; see the module header for the command"]
 fn coverage_on_simulated_two_bath_campaigns() {
-    use fdtemp::sim::{Scenario, SimSpec, simulate};
+    use fdtemp::scenarios::sim::{Scenario, SimSpec, simulate};
     let methods = [
         IntervalMethod::Percentile,
         IntervalMethod::Basic,

@@ -9,7 +9,7 @@ fn fdtemp() -> Command {
 }
 
 fn campaign(dir: &Path, noise: f64) -> PathBuf {
-    let spec = fdtemp::synth::SynthSpec {
+    let spec = fdtemp::scenarios::synth::SynthSpec {
         samples: 24,
         points_per_tw: 20,
         noise,
@@ -18,7 +18,7 @@ fn campaign(dir: &Path, noise: f64) -> PathBuf {
     let path = dir.join("c.csv");
     std::fs::write(
         &path,
-        fdtemp::input::write_campaign(&fdtemp::synth::generate(&spec).unwrap()),
+        fdtemp::input::write_campaign(&fdtemp::scenarios::synth::generate(&spec).unwrap()),
     )
     .unwrap();
     path
@@ -78,11 +78,13 @@ fn the_fluctuation_dissipation_plot_has_every_element_in_svg_and_png() {
 #[test]
 fn the_effective_temperature_plot_marks_the_bath_and_the_departure() {
     let dir = tempfile::tempdir().unwrap();
-    let spec = fdtemp::synth::SpectrumSpec::default();
+    let spec = fdtemp::scenarios::synth::SpectrumSpec::default();
     let file = dir.path().join("s.csv");
     std::fs::write(
         &file,
-        fdtemp::spectral::input::write_spectra(&[fdtemp::synth::generate_spectrum(&spec)]),
+        fdtemp::spectral::input::write_spectra(&[fdtemp::scenarios::synth::generate_spectrum(
+            &spec,
+        )]),
     )
     .unwrap();
     let svg = dir.path().join("t.svg");

@@ -1,10 +1,10 @@
 //! Known-truth recovery on synthetic campaigns (invented data with a built-in answer).
 //!
 //! Each campaign's sample means lie exactly on a broken stick with known X and q
-//! (`fdtemp::synth`), so a correct estimator with correct intervals recovers them.
+//! (`fdtemp::scenarios::synth`), so a correct estimator with correct intervals recovers them.
 
 use fdtemp::FitSettings;
-use fdtemp::synth::{SynthSpec, generate};
+use fdtemp::scenarios::synth::{SynthSpec, generate};
 use fdtemp::twotime::{Caution, Finding, Silent, Verdict, analyze};
 
 fn fit(spec: &SynthSpec, resamples: usize) -> fdtemp::FitReport {

@@ -9,10 +9,10 @@
 //! `message` (or as the plain strings of schema 1), so the pins also hold across the
 //! change to structured findings.
 //!
-//! The campaigns are invented data (`fdtemp::synth`) or runs of `fdtemp synth`.
+//! The campaigns are invented data (`fdtemp::scenarios::synth`) or runs of `fdtemp synth`.
 
 use assert_cmd::Command;
-use fdtemp::synth::{SynthSpec, generate};
+use fdtemp::scenarios::synth::{SynthSpec, generate};
 use std::path::{Path, PathBuf};
 
 fn pinned_dir() -> PathBuf {

@@ -10,7 +10,7 @@ fuzz_target!(|data: &[u8]| {
     };
     let settings = fdtemp::FitSettings { resamples: 100, min_branch: 2, ..Default::default() };
     if let Ok(report) = fdtemp::analyze(&campaign, &settings, None, &fdtemp::twotime::Silent) {
-        let json = String::from_utf8(fdtemp::report::json::to_json(&report)).unwrap();
+        let json = String::from_utf8(fdtemp::report::json::fit_json(&report)).unwrap();
         assert!(!json.contains("NaN") && !json.contains("inf"), "non-finite number in JSON");
         let _ = fdtemp::report::text::render(&report);
     }

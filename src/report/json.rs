@@ -11,6 +11,14 @@ pub fn to_json<T: Serialize>(result: &T) -> Vec<u8> {
     finish(serde_json::to_vec_pretty(result))
 }
 
+/// A free-form JSON value (a truth file) with its keys in sorted order at every level, as
+/// they were written before struct order was kept for results.
+pub fn sorted_json(value: &Value) -> Vec<u8> {
+    let mut v = value.clone();
+    v.sort_all_objects();
+    to_json(&v)
+}
+
 /// A time-domain fit as JSON: the result as it is, with a `message` beside the code of
 /// every caution and verdict (the sentence the text report prints).
 pub fn fit_json(r: &FitReport) -> Vec<u8> {

@@ -14,11 +14,10 @@
 use crate::error::{Error, Result};
 use crate::output::Output;
 use crate::report::plot::{self, Figure};
+use crate::scenarios::synth::{SpectrumSpec, SynthSpec, generate, generate_spectrum};
 use crate::spectral::analysis::{SpectrumReport, SpectrumSettings, analyze_spectra};
 use crate::spectral::input::write_spectra;
-use crate::synth::{SpectrumSpec, SynthSpec, generate, generate_spectrum};
-use crate::twotime::FitSettings;
-use crate::twotime::{FitReport, Progress, analyze};
+use crate::twotime::{FitReport, FitSettings, Progress, analyze};
 use std::fmt::Write;
 use std::path::Path;
 
@@ -69,21 +68,7 @@ pub fn run(dir: &Path, progress: &dyn Progress) -> Result<Demo> {
         progress,
     )?;
     let spectrum_spec = SpectrumSpec::default();
-    let truth = serde_json::json!({
-        "scenario": "soft colloidal glass after a quench (invented)",
-        "ratio": spec.ratio,
-        "t_eff": spec.temperature / spec.ratio,
-        "break": spec.plateau,
-        "temperature": spec.temperature,
-        "recipe": &spec,
-        "source": "built in: fdtemp::synth with the demo recipe; the sample means lie on the \
-                   broken stick by construction",
-        "spectrum": {
-            "scenario": "aging colloidal gel, voltage noise against dielectric loss (invented)",
-            "t_eff": "T (1 + (f_hot / f)^2)",
-            "recipe": &spectrum_spec,
-        },
-    });
+    let truth = truth(&spec, &spectrum_spec);
     let group = generate_spectrum(&spectrum_spec);
     let spectrum_path = dir.join("spectrum.csv");
     let spectrum = analyze_spectra(
@@ -92,7 +77,7 @@ pub fn run(dir: &Path, progress: &dyn Progress) -> Result<Demo> {
         &spectrum_settings(&spectrum_spec),
         Some(spectrum_path.display().to_string()),
     )?;
-    let outputs = vec![
+    let mut outputs = vec![
         Output {
             path: spectrum_path,
             bytes: write_spectra(std::slice::from_ref(&group)),
@@ -107,7 +92,7 @@ pub fn run(dir: &Path, progress: &dyn Progress) -> Result<Demo> {
         },
         Output {
             path: dir.join("truth.json"),
-            bytes: crate::report::json::to_json(&truth),
+            bytes: crate::report::json::sorted_json(&truth),
         },
         Output {
             path: dir.join("fit.json"),
@@ -118,7 +103,38 @@ pub fn run(dir: &Path, progress: &dyn Progress) -> Result<Demo> {
             bytes: crate::report::csv::points_csv(&report),
         },
     ];
-    let mut outputs = outputs;
+    outputs.extend(figures(dir, &report, &spectrum)?);
+    Ok(Demo {
+        outputs,
+        report,
+        spec,
+        spectrum,
+        spectrum_spec,
+    })
+}
+
+/// The truth file: both recipes and the values they were built with.
+fn truth(spec: &SynthSpec, spectrum_spec: &SpectrumSpec) -> serde_json::Value {
+    serde_json::json!({
+        "scenario": "soft colloidal glass after a quench (invented)",
+        "ratio": spec.ratio,
+        "t_eff": spec.temperature / spec.ratio,
+        "break": spec.plateau,
+        "temperature": spec.temperature,
+        "recipe": spec,
+        "source": "built in: fdtemp::synth with the demo recipe; the sample means lie on the \
+                   broken stick by construction",
+        "spectrum": {
+            "scenario": "aging colloidal gel, voltage noise against dielectric loss (invented)",
+            "t_eff": "T (1 + (f_hot / f)^2)",
+            "recipe": spectrum_spec,
+        },
+    })
+}
+
+/// The FD plot, the resample histogram and T_eff(f), each as SVG and as PNG.
+fn figures(dir: &Path, report: &FitReport, spectrum: &SpectrumReport) -> Result<Vec<Output>> {
+    let mut outputs = Vec::new();
     for ext in ["svg", "png"] {
         let fig = |name: &str| {
             let path = dir.join(format!("{name}.{ext}"));
@@ -127,26 +143,20 @@ pub fn run(dir: &Path, progress: &dyn Progress) -> Result<Demo> {
         let (path, f) = fig("fd-plot")?;
         outputs.push(Output {
             path,
-            bytes: plot::fd_plot(&report, f)?,
+            bytes: plot::fd_plot(report, f)?,
         });
         let (path, f) = fig("ratio-resamples")?;
         outputs.push(Output {
             path,
-            bytes: plot::ratio_histogram(&report, f)?,
+            bytes: plot::ratio_histogram(report, f)?,
         });
         let (path, f) = fig("teff-spectrum")?;
         outputs.push(Output {
             path,
-            bytes: plot::teff_plot(&spectrum, f)?,
+            bytes: plot::teff_plot(spectrum, f)?,
         });
     }
-    Ok(Demo {
-        outputs,
-        report,
-        spec,
-        spectrum,
-        spectrum_spec,
-    })
+    Ok(outputs)
 }
 
 /// Lines that compare the joint estimates with the truth.

@@ -1,0 +1,162 @@
+//! `fdtemp fit`: the time-domain analysis of a campaign, its report and output files.
+
+use super::progress::Bar;
+use super::{PlotArgs, RunArgs, in_file, parse_band, print};
+use fdtemp::common::Units;
+use fdtemp::input::ColumnNames;
+use fdtemp::output::{self, Output};
+use fdtemp::report::plot::{self, Figure};
+use fdtemp::resample::IntervalMethod;
+use fdtemp::twotime::points::Axes;
+use fdtemp::twotime::settings::{FitSettings, Hold, Model, Weighting};
+use std::path::PathBuf;
+
+#[derive(clap::Args)]
+pub struct FitArgs {
+    /// Tidy CSV: one row per (sample, tw, t) with columns sample, tw, t, corr, resp [, corr_eq].
+    file: PathBuf,
+    /// Bath temperature T (energy units with --units reduced, kelvin with --units si).
+    #[arg(long, short = 'T', allow_negative_numbers = true)]
+    temperature: f64,
+    /// Units: reduced (k = 1) or si (k = 1.380649e-23 J/K).
+    #[arg(long, value_enum, default_value_t = Units::Reduced)]
+    units: Units,
+    /// Parametric axes: auto (normalized when corr_eq is present), plain or normalized.
+    #[arg(long, value_enum, default_value_t = Axes::Auto)]
+    axes: Axes,
+    /// Model: broken (first slope fixed at -1), free (both slopes fitted), or line (one slope).
+    #[arg(long, value_enum, default_value_t = Model::Broken)]
+    model: Model,
+    /// Point weights.
+    #[arg(long, value_enum, default_value_t = Weighting::InverseVariance)]
+    weights: Weighting,
+    /// Number of bootstrap resamples B.
+    #[arg(long, short = 'B', default_value_t = 2000)]
+    resamples: usize,
+    /// Seed of the random streams.
+    #[arg(long, default_value_t = 1)]
+    seed: u64,
+    /// Confidence level of the intervals.
+    #[arg(long, default_value_t = 0.95, allow_negative_numbers = true)]
+    level: f64,
+    /// Interval method.
+    #[arg(long, value_enum, default_value_t = IntervalMethod::Bca)]
+    interval: IntervalMethod,
+    /// Least number of points on each side of the break.
+    #[arg(long, default_value_t = 5)]
+    min_branch: usize,
+    /// Which time is held fixed along one curve: tw (t runs) or t (the earlier time runs).
+    #[arg(long, value_enum, default_value_t = Hold::Tw)]
+    hold: Hold,
+    /// Fit only points whose parametric x (C, or C/C(t,t)) lies in CMIN:CMAX.
+    #[arg(long, value_parser = parse_band, value_name = "CMIN:CMAX", allow_hyphen_values = true)]
+    range: Option<[f64; 2]>,
+    /// Map a column role to another header name, e.g. --column resp=chi_zfc (repeatable).
+    #[arg(long = "column", value_name = "ROLE=NAME")]
+    columns: Vec<String>,
+    /// Write the full result as JSON to this file.
+    #[arg(long, value_name = "FILE")]
+    json: Option<PathBuf>,
+    /// Write the parametric points with their errors as CSV to this file.
+    #[arg(long, value_name = "FILE")]
+    points: Option<PathBuf>,
+    /// Replace output files that exist already.
+    #[arg(long)]
+    overwrite: bool,
+    /// Draw the histogram of the resampled X into this file (.svg or .png).
+    #[arg(long, value_name = "FILE")]
+    plot_resamples: Option<PathBuf>,
+    #[command(flatten)]
+    plot: PlotArgs,
+    #[command(flatten)]
+    pub(super) run: RunArgs,
+}
+
+impl FitArgs {
+    fn settings(&self) -> FitSettings {
+        FitSettings {
+            temperature: self.temperature,
+            units: self.units,
+            axes: self.axes,
+            model: self.model,
+            weights: self.weights,
+            resamples: self.resamples,
+            seed: self.seed,
+            level: self.level,
+            interval: self.interval,
+            min_branch: self.min_branch,
+            hold: self.hold,
+            range: self.range,
+        }
+    }
+}
+
+/// Checks the settings and output paths, reads the campaign, analyses it, writes the files
+/// asked for, prints the report.
+pub fn run(a: FitArgs) -> fdtemp::Result<()> {
+    let mut names = ColumnNames::default();
+    for m in &a.columns {
+        names.apply(m)?;
+    }
+    let settings = a.settings();
+    settings.validate()?;
+    let figure = a.plot.figure()?;
+    let resample_figure = a
+        .plot_resamples
+        .as_ref()
+        .map(|p| Figure::for_path(p, a.plot.plot_size).map(|f| (p.clone(), f)))
+        .transpose()?;
+    output::check_paths(
+        &[&a.json, &a.points, &a.plot.plot, &a.plot_resamples],
+        &[a.file.as_path()],
+        a.overwrite,
+    )?;
+    let campaign = fdtemp::input::read_campaign(&a.file, &names)?;
+    let report = fdtemp::analyze(
+        &campaign,
+        &settings,
+        Some(a.file.display().to_string()),
+        &Bar::new(),
+    )
+    .map_err(in_file(&a.file))?;
+    let outputs = outputs(&report, a.json, a.points, figure, resample_figure)?;
+    output::write_all(&outputs, a.overwrite)?;
+    print(&fdtemp::report::text::render(&report));
+    Ok(())
+}
+
+/// The files asked for: JSON, points CSV, FD plot, resample histogram.
+fn outputs(
+    report: &fdtemp::FitReport,
+    json: Option<PathBuf>,
+    points: Option<PathBuf>,
+    figure: Option<(PathBuf, Figure)>,
+    resample_figure: Option<(PathBuf, Figure)>,
+) -> fdtemp::Result<Vec<Output>> {
+    let mut outputs = Vec::new();
+    if let Some(path) = json {
+        outputs.push(Output {
+            path,
+            bytes: fdtemp::report::json::fit_json(report),
+        });
+    }
+    if let Some(path) = points {
+        outputs.push(Output {
+            path,
+            bytes: fdtemp::report::csv::points_csv(report),
+        });
+    }
+    if let Some((path, fig)) = figure {
+        outputs.push(Output {
+            path,
+            bytes: plot::fd_plot(report, fig)?,
+        });
+    }
+    if let Some((path, fig)) = resample_figure {
+        outputs.push(Output {
+            path,
+            bytes: plot::ratio_histogram(report, fig)?,
+        });
+    }
+    Ok(outputs)
+}

@@ -1,0 +1,333 @@
+//! `fdtemp spectrum` (a PSD table) and `fdtemp noise` (raw records through Welch), with the
+//! options they share.
+
+use super::{PlotArgs, RunArgs, in_file, parse_band, print};
+use fdtemp::common::Units;
+use fdtemp::output::{self, Output};
+use fdtemp::report::plot::{self, Figure};
+use fdtemp::resample::IntervalMethod;
+use fdtemp::spectral::analysis::ErrorModel;
+use fdtemp::spectral::input::Window;
+use fdtemp::spectral::noise::{self, Dissipation, RecordPsd};
+use fdtemp::spectral::welch::WelchSettings;
+use fdtemp::spectral::{Convention, SpectrumReport, SpectrumSettings};
+use std::path::PathBuf;
+
+#[derive(clap::Args)]
+pub struct SpectrumArgs {
+    /// CSV with columns f, psd, loss and optionally dof, run, tw (one row per frequency).
+    file: PathBuf,
+    /// Bath temperature T (kelvin with SI units): enables the departure test.
+    #[arg(long, short = 'T', allow_negative_numbers = true)]
+    temperature: f64,
+    /// How PSD and dissipation are normalized [default: loss].
+    #[arg(long, value_enum)]
+    convention: Option<Convention>,
+    /// The window the PSD was estimated with (sets the correlation of neighbouring
+    /// frequencies in band averages) [default: as the file's first line says, else none].
+    #[arg(long, value_enum)]
+    window: Option<Window>,
+    #[command(flatten)]
+    pub(super) common: SpectralArgs,
+}
+
+#[derive(clap::Args)]
+pub struct NoiseArgs {
+    /// Noise record: one number per line, or one column per run (optional header).
+    file: PathBuf,
+    /// Samples per second.
+    #[arg(long, allow_negative_numbers = true)]
+    sample_rate: f64,
+    /// Segment length of Welch's method (samples).
+    #[arg(long, default_value_t = 4096)]
+    segment: usize,
+    /// Overlap of consecutive segments (samples) [default: half a segment].
+    #[arg(long)]
+    overlap: Option<usize>,
+    /// A resistor's resistance R (ohm): the dissipation of voltage noise, Re Z = R.
+    #[arg(long, conflicts_with = "loss_file", allow_negative_numbers = true)]
+    resistance: Option<f64>,
+    /// CSV of f and the dissipation (loss, Re Z or Re Y per --convention), interpolated.
+    #[arg(long, value_name = "FILE")]
+    loss_file: Option<PathBuf>,
+    /// Bath temperature T: enables the departure test.
+    #[arg(long, short = 'T', allow_negative_numbers = true)]
+    temperature: Option<f64>,
+    /// How PSD and dissipation are normalized [default: voltage with --resistance, else loss].
+    #[arg(long, value_enum)]
+    convention: Option<Convention>,
+    /// Write the PSD as a CSV that `fdtemp spectrum` reads back.
+    #[arg(long, value_name = "FILE")]
+    psd_out: Option<PathBuf>,
+    #[command(flatten)]
+    pub(super) common: SpectralArgs,
+}
+
+#[derive(clap::Args)]
+pub struct SpectralArgs {
+    /// Units: si (kelvin, k = 1.380649e-23 J/K) or reduced (k = 1).
+    #[arg(long, value_enum, default_value_t = Units::Si)]
+    units: Units,
+    /// Where intervals come from: auto, chi-square, or runs (bootstrap over runs).
+    #[arg(long, value_enum, default_value_t = ErrorModel::Auto)]
+    errors: ErrorModel,
+    /// Degrees of freedom of every PSD value, when the file has no dof column.
+    #[arg(long, allow_negative_numbers = true)]
+    dof: Option<f64>,
+    /// Band for the average of T_eff, FMIN:FMAX in hertz [default: every frequency].
+    #[arg(long, value_parser = parse_band, value_name = "FMIN:FMAX")]
+    band: Option<[f64; 2]>,
+    /// Log-spaced bands per decade in the departure test.
+    #[arg(long, default_value_t = 5)]
+    bands_per_decade: usize,
+    /// Confidence level.
+    #[arg(long, default_value_t = 0.95, allow_negative_numbers = true)]
+    level: f64,
+    /// Bootstrap resamples (runs model).
+    #[arg(long, short = 'B', default_value_t = 2000)]
+    resamples: usize,
+    /// Seed of the random streams.
+    #[arg(long, default_value_t = 1)]
+    seed: u64,
+    /// Interval method for the runs model.
+    #[arg(long, value_enum, default_value_t = IntervalMethod::Bca)]
+    interval: IntervalMethod,
+    /// Write the full result as JSON to this file.
+    #[arg(long, value_name = "FILE")]
+    json: Option<PathBuf>,
+    /// Replace output files that exist already.
+    #[arg(long)]
+    overwrite: bool,
+    #[command(flatten)]
+    plot: PlotArgs,
+    #[command(flatten)]
+    pub(super) run: RunArgs,
+}
+
+impl SpectralArgs {
+    fn settings(&self, temperature: Option<f64>, convention: Convention) -> SpectrumSettings {
+        SpectrumSettings {
+            temperature,
+            units: self.units,
+            convention,
+            level: self.level,
+            errors: self.errors,
+            resamples: self.resamples,
+            seed: self.seed,
+            interval: self.interval,
+            band: self.band,
+            dof: self.dof,
+            bands_per_decade: self.bands_per_decade,
+        }
+    }
+}
+
+/// `fdtemp spectrum`: reads the PSD table, analyses it, writes the files, prints the report.
+pub fn spectrum(a: SpectrumArgs) -> fdtemp::Result<()> {
+    let convention = a.convention.unwrap_or(Convention::Loss);
+    let settings = a.common.settings(Some(a.temperature), convention);
+    settings.validate()?;
+    let figure = a.common.plot.figure()?;
+    output::check_paths(
+        &[&a.common.json, &a.common.plot.plot],
+        &[a.file.as_path()],
+        a.common.overwrite,
+    )?;
+    let groups = fdtemp::spectral::input::read_spectra(&a.file)?;
+    let window = match a.window {
+        Some(w) => w,
+        None => fdtemp::spectral::input::window_directive(&a.file)?.unwrap_or(Window::None),
+    };
+    let report = fdtemp::spectral::analyze_spectra(
+        &groups,
+        &window.bin_rho2(),
+        &settings,
+        Some(a.file.display().to_string()),
+    )
+    .map_err(in_file(&a.file))?;
+    let mut outputs = Vec::new();
+    spectral_outputs(&mut outputs, &report, &a.common.json, figure)?;
+    output::write_all(&outputs, a.common.overwrite)?;
+    let header = vec![
+        format!("data        {}", a.file.display()),
+        format!(
+            "window      {}",
+            match window {
+                Window::Hann => "Hann (neighbouring frequencies correlated: rho^2 = 4/9, 1/36)",
+                Window::None => "none given (neighbouring frequencies taken as independent)",
+            }
+        ),
+    ];
+    print(&fdtemp::report::spectrum::render(&report, &header));
+    Ok(())
+}
+
+/// `fdtemp noise`: Welch PSD of the records; with a dissipation, T_eff(f) and its report.
+pub fn noise(a: NoiseArgs) -> fdtemp::Result<()> {
+    let NoiseSetup {
+        welch,
+        settings,
+        figure,
+    } = noise_settings(&a)?;
+    let mut inputs = vec![a.file.as_path()];
+    if let Some(l) = &a.loss_file {
+        inputs.push(l.as_path());
+    }
+    output::check_paths(
+        &[&a.common.json, &a.psd_out, &a.common.plot.plot],
+        &inputs,
+        a.common.overwrite,
+    )?;
+    let diss = match (a.resistance, &a.loss_file) {
+        (Some(r), _) => Some(Dissipation::Constant(r)),
+        (None, Some(p)) => Some(noise::read_dissipation(p)?),
+        (None, None) => None,
+    };
+    let rec = noise::welch_records(&a.file, welch)?;
+    let mut header = noise_header(&a, &welch, &rec);
+    let mut outputs = Vec::new();
+    if let Some(p) = &a.psd_out {
+        outputs.push(Output {
+            path: p.clone(),
+            bytes: noise::psd_csv(&rec, diss.as_ref()),
+        });
+    }
+    let Some(diss) = diss else {
+        return psd_only(&a, &header, &outputs);
+    };
+    let report = noise_analysis(&a, &rec, &diss, &settings)?;
+    if let Some(r) = a.resistance {
+        header.push(format!(
+            "dissipation Re Z = {} ohm at every frequency",
+            fdtemp::report::format::fmt_num(r)
+        ));
+    }
+    spectral_outputs(&mut outputs, &report, &a.common.json, figure)?;
+    output::write_all(&outputs, a.common.overwrite)?;
+    print(&fdtemp::report::spectrum::render(&report, &header));
+    Ok(())
+}
+
+/// What `noise` does, checked before any work.
+struct NoiseSetup {
+    welch: WelchSettings,
+    settings: SpectrumSettings,
+    figure: Option<(PathBuf, Figure)>,
+}
+
+/// Welch and analysis settings and the figure of `noise`, checked before any work.
+fn noise_settings(a: &NoiseArgs) -> fdtemp::Result<NoiseSetup> {
+    let welch = WelchSettings {
+        sample_rate: a.sample_rate,
+        segment: a.segment,
+        overlap: a.overlap.unwrap_or(a.segment / 2),
+    };
+    welch.validate()?;
+    if let Some(r) = a.resistance
+        && !(r > 0.0 && r.is_finite())
+    {
+        return Err(fdtemp::Error::Setting(format!(
+            "--resistance is {r}, expected a positive number of ohms"
+        )));
+    }
+    let convention = a.convention.unwrap_or(if a.resistance.is_some() {
+        Convention::Voltage
+    } else {
+        Convention::Loss
+    });
+    let settings = a.common.settings(a.temperature, convention);
+    settings.validate()?;
+    let figure = a.common.plot.figure()?;
+    if figure.is_some() && a.resistance.is_none() && a.loss_file.is_none() {
+        return Err(fdtemp::Error::Setting(
+            "--plot draws T_eff(f), which needs a dissipation: give --resistance R or --loss-file FILE".into(),
+        ));
+    }
+    Ok(NoiseSetup {
+        welch,
+        settings,
+        figure,
+    })
+}
+
+/// The report's first lines: the records and the Welch estimate.
+fn noise_header(a: &NoiseArgs, welch: &WelchSettings, rec: &RecordPsd) -> Vec<String> {
+    let p0 = &rec.psd[0];
+    vec![
+        format!(
+            "data        {}: {} run(s) of {} samples at {} Hz",
+            a.file.display(),
+            rec.runs.len(),
+            p0.samples,
+            fdtemp::report::format::fmt_num(a.sample_rate)
+        ),
+        format!(
+            "welch       Hann window, {} samples per segment, overlap {}, {} segments per run, {} degrees of freedom per frequency",
+            welch.segment,
+            welch.overlap,
+            p0.segments,
+            fdtemp::report::sig(p0.dof[1.min(p0.dof.len() - 1)], 4)
+        ),
+    ]
+}
+
+/// Without a dissipation: writes the PSD if asked and says that T_eff is not computed.
+fn psd_only(a: &NoiseArgs, header: &[String], outputs: &[Output]) -> fdtemp::Result<()> {
+    output::write_all(outputs, a.common.overwrite)?;
+    for h in header {
+        println!("{h}");
+    }
+    println!(
+        "no dissipation given: the PSD is computed, T_eff is not (give --resistance R or --loss-file FILE)"
+    );
+    if let Some(p) = &a.psd_out {
+        println!("psd         written to {}", p.display());
+    }
+    Ok(())
+}
+
+/// T_eff(f) of the records against the dissipation; frequencies outside its table are
+/// left out with a warning.
+fn noise_analysis(
+    a: &NoiseArgs,
+    rec: &RecordPsd,
+    diss: &Dissipation,
+    settings: &SpectrumSettings,
+) -> fdtemp::Result<SpectrumReport> {
+    let (group, dropped) = noise::to_group(rec, diss).map_err(in_file(&a.file))?;
+    let mut report = fdtemp::spectral::analyze_spectra(
+        &[group],
+        &rec.bin_rho2,
+        settings,
+        Some(a.file.display().to_string()),
+    )
+    .map_err(in_file(&a.file))?;
+    if dropped > 0 {
+        report.warnings.push(format!(
+            "{dropped} frequencies outside the dissipation table's range were left out"
+        ));
+    }
+    Ok(report)
+}
+
+/// The JSON and the figure of a spectral analysis, as asked for.
+fn spectral_outputs(
+    outputs: &mut Vec<Output>,
+    report: &SpectrumReport,
+    json: &Option<PathBuf>,
+    figure: Option<(PathBuf, Figure)>,
+) -> fdtemp::Result<()> {
+    if let Some(p) = json {
+        outputs.push(Output {
+            path: p.clone(),
+            bytes: fdtemp::report::json::to_json(report),
+        });
+    }
+    if let Some((path, fig)) = figure {
+        outputs.push(Output {
+            path,
+            bytes: plot::teff_plot(report, fig)?,
+        });
+    }
+    Ok(())
+}

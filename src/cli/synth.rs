@@ -1,0 +1,73 @@
+//! `fdtemp synth`: simulates a system with a known answer into a data file and its truth.
+
+use super::RunArgs;
+use fdtemp::output::{self, Output};
+use fdtemp::scenarios::sim::{Scenario, SimSpec, simulate};
+use std::path::PathBuf;
+
+#[derive(clap::Args)]
+pub struct SynthArgs {
+    /// The system to simulate.
+    #[arg(value_enum)]
+    scenario: Scenario,
+    /// Independent runs (samples; for resistor, records).
+    #[arg(long, default_value_t = 200)]
+    samples: usize,
+    /// Seed: run i uses random stream i of this seed.
+    #[arg(long, default_value_t = 1)]
+    seed: u64,
+    /// The data file to write; the truth goes beside it as STEM.truth.json.
+    #[arg(long, value_name = "FILE")]
+    out: PathBuf,
+    /// A smaller, faster version of the simulation.
+    #[arg(long)]
+    quick: bool,
+    /// Replace files that exist already.
+    #[arg(long)]
+    overwrite: bool,
+    #[command(flatten)]
+    pub(super) run: RunArgs,
+}
+
+/// Writes the data file and `STEM.truth.json`, and prints how to analyse them.
+pub fn run(a: SynthArgs) -> fdtemp::Result<()> {
+    let truth_path = a.out.with_extension("truth.json");
+    output::check_paths(
+        &[&Some(a.out.clone()), &Some(truth_path.clone())],
+        &[],
+        a.overwrite,
+    )?;
+    let spec = SimSpec {
+        scenario: a.scenario,
+        samples: a.samples,
+        seed: a.seed,
+        quick: a.quick,
+    };
+    let sim = simulate(&spec)?;
+    let fit = sim.truth["fit"]
+        .as_str()
+        .unwrap_or("")
+        .replace("FILE", &a.out.display().to_string());
+    output::write_all(
+        &[
+            Output {
+                path: a.out.clone(),
+                bytes: sim.data,
+            },
+            Output {
+                path: truth_path.clone(),
+                bytes: fdtemp::report::json::sorted_json(&sim.truth),
+            },
+        ],
+        a.overwrite,
+    )?;
+    println!(
+        "wrote      {} ({} runs) and {}",
+        a.out.display(),
+        a.samples,
+        truth_path.display()
+    );
+    println!("truth      {}", sim.truth["source"].as_str().unwrap_or(""));
+    println!("analyse    {fit}");
+    Ok(())
+}

@@ -1,0 +1,133 @@
+//! Simulated systems with a known or published fluctuation–dissipation ratio.
+//!
+//! Unlike [`super::synth`], these campaigns come from simulating the dynamics, one
+//! independent run per sample, and are written in exactly the format `fit` (or `noise`)
+//! reads, with a truth file that names where the expected value comes from.
+//!
+//! Each sample is one run of a system of [`PARTICLES`] independent particles, and its C
+//! and χ are averages over them, as a simulation averages over its particles.
+//!
+//! - `two-baths`: a particle coordinate made of two Ornstein–Uhlenbeck modes, each coupled
+//!   to its own bath (temperature, mobility, time); the response to a small force is the
+//!   perturbed run minus its zero-field twin (same noise). Exact update steps, no
+//!   discretization error.
+//! - `brownian`: free Brownian motion from the origin; response as above. With the later
+//!   time held fixed, X = 1/2 (Cugliandolo, Kurchan & Parisi, J. Phys. I France 4, 1641
+//!   (1994)).
+//! - `ising-chain`: a 1D Ising chain with heat-bath (Glauber) single-spin dynamics quenched
+//!   from a random state to a low temperature. The integrated response comes from the
+//!   unperturbed dynamics by the field-free estimator
+//!   `T χ(t,s) = (1/L) Σ_i ⟨σ_i(t) Σ_{updates u of i in (s,t]} [σ_i(u) − tanh(β h_i(u))]⟩`
+//!   (Ricci-Tersenghi, Phys. Rev. E 68, 065104(R) (2003); Chatelain, J. Phys. A 36, 10739
+//!   (2003)). Published: `X∞ = 1/2` (Godrèche & Luck, J. Phys. A 33, 1151 (2000);
+//!   Lippiello & Zannetti, Phys. Rev. E 61, 3369 (2000)).
+//! - `ou-equilibrium`: one Ornstein–Uhlenbeck mode in equilibrium: X = 1.
+//! - `resistor`: Johnson–Nyquist noise of a resistor, white with one-sided PSD 4kTR
+//!   (Nyquist, Phys. Rev. 32, 110 (1928)), for `noise`.
+//! - `two-lines`: the invented campaign of [`super::synth`] at benchmark size.
+//!
+//! One file per system: `ou.rs` (two-baths, ou-equilibrium), `brownian.rs`, `ising.rs`,
+//! `resistor.rs`, `two_lines.rs`.
+
+mod brownian;
+mod ising;
+mod ou;
+mod resistor;
+mod two_lines;
+
+use crate::error::{Error, Result};
+use std::fmt::Write;
+
+/// The simulated systems.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, clap::ValueEnum)]
+#[serde(rename_all = "kebab-case")]
+pub enum Scenario {
+    /// Two Ornstein–Uhlenbeck modes coupled to baths at different temperatures.
+    TwoBaths,
+    /// Free Brownian motion (X = 1/2 with the later time fixed).
+    Brownian,
+    /// Glauber–Ising chain quenched to low temperature (X∞ = 1/2).
+    IsingChain,
+    /// One Ornstein–Uhlenbeck mode in equilibrium (X = 1).
+    OuEquilibrium,
+    /// Johnson–Nyquist noise records of a resistor (for `noise`).
+    Resistor,
+    /// Invented two-line campaign with a built-in answer (not a simulation; for
+    /// benchmarks): 12 waiting times × 100 times (3 × 40 with `--quick`).
+    TwoLines,
+}
+
+/// What to simulate.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct SimSpec {
+    /// The system.
+    pub scenario: Scenario,
+    /// Independent runs (samples; records for `resistor`).
+    pub samples: usize,
+    /// Seed: run `i` uses stream `i` of this seed.
+    pub seed: u64,
+    /// A smaller, faster version (for tests).
+    pub quick: bool,
+}
+
+/// The simulated file and its truth.
+#[derive(Debug, Clone)]
+pub struct SimOutput {
+    /// The data file's bytes.
+    pub data: Vec<u8>,
+    /// What the analysis should find, and the source of that value.
+    pub truth: serde_json::Value,
+}
+
+/// Runs the simulation.
+///
+/// # Errors
+/// [`Error::Setting`] when fewer than 2 samples are asked for.
+pub fn simulate(spec: &SimSpec) -> Result<SimOutput> {
+    if spec.samples < 2 {
+        return Err(Error::Setting(format!(
+            "--samples is {}, expected at least 2 independent runs",
+            spec.samples
+        )));
+    }
+    Ok(match spec.scenario {
+        Scenario::TwoBaths => ou::two_baths(spec),
+        Scenario::OuEquilibrium => ou::equilibrium(spec),
+        Scenario::Brownian => brownian::brownian(spec),
+        Scenario::IsingChain => ising::ising_chain(spec),
+        Scenario::Resistor => resistor::resistor(spec),
+        Scenario::TwoLines => two_lines::two_lines(spec)?,
+    })
+}
+
+/// The small constant force of the perturbed twins.
+const FIELD: f64 = 0.01;
+/// Independent particles in one sample (one run of a system); C and χ are their averages.
+pub const PARTICLES: usize = 100;
+
+/// One campaign row: sample index, tw, t, C, chi, C(t,t).
+type Row = (usize, f64, f64, f64, f64, Option<f64>);
+
+/// Rows of a campaign CSV.
+fn campaign_csv(rows: &[Row]) -> Vec<u8> {
+    let with_eq = rows.first().is_some_and(|r| r.5.is_some());
+    let mut s = String::from(if with_eq {
+        "sample,tw,t,corr,resp,corr_eq\n"
+    } else {
+        "sample,tw,t,corr,resp\n"
+    });
+    for &(i, tw, t, c, r, eq) in rows {
+        let _ = write!(s, "run{:04},{tw:?},{t:?},{c:?},{r:?}", i + 1);
+        if let Some(e) = eq {
+            let _ = write!(s, ",{e:?}");
+        }
+        s.push('\n');
+    }
+    s.into_bytes()
+}
+
+fn log_grid(lo: f64, hi: f64, n: usize) -> Vec<f64> {
+    (0..n)
+        .map(|i| lo * (hi / lo).powf(i as f64 / (n - 1) as f64))
+        .collect()
+}
