@@ -112,7 +112,7 @@ pub fn search(
     base: Base,
     min_branch: usize,
     ws: &mut Workspace,
-    mut profile: Option<&mut Vec<(f64, f64)>>,
+    profile: Option<&mut Vec<(f64, f64)>>,
 ) -> Option<BreakSolution> {
     let p = x.len();
     let m = min_branch.max(1);
@@ -124,33 +124,86 @@ pub fn search(
     } else {
         insertion_sort(&mut ws.order, x);
     }
-    let order = &ws.order;
-
-    let sw: f64 = w.iter().sum();
-    let xm = x.iter().zip(w).map(|(x, w)| w * x).sum::<f64>() / sw;
-    let rm = r.iter().zip(w).map(|(r, w)| w * r).sum::<f64>() / sw;
-    let (mut sxx, mut sxr, mut srr) = (0.0, 0.0, 0.0);
-    for i in 0..p {
-        let (dx, dr) = (x[i] - xm, r[i] - rm);
-        sxx += w[i] * dx * dx;
-        sxr += w[i] * dx * dr;
-        srr += w[i] * dr * dr;
-    }
-    if !(sxx > 0.0) {
-        return None;
-    }
+    let c = Centred::of(x, r, w)?;
     let line = base == Base::Line;
-    let sse_null = if line { srr - sxr * sxr / sxx } else { srr };
-    let tiny = 1e-12 * sxx;
+    let best = scan(x, r, w, &ws.order, &c, line, m, profile)?;
+    Some(solution(&best, &c, line, m, p + 1 - 2 * m))
+}
 
+/// Weighted means and centred second moments of the data.
+struct Centred {
+    sw: f64,
+    xm: f64,
+    rm: f64,
+    sxx: f64,
+    sxr: f64,
+    srr: f64,
+}
+
+impl Centred {
+    /// `None` when x has no spread.
+    fn of(x: &[f64], r: &[f64], w: &[f64]) -> Option<Self> {
+        let sw: f64 = w.iter().sum();
+        let xm = x.iter().zip(w).map(|(x, w)| w * x).sum::<f64>() / sw;
+        let rm = r.iter().zip(w).map(|(r, w)| w * r).sum::<f64>() / sw;
+        let (mut sxx, mut sxr, mut srr) = (0.0, 0.0, 0.0);
+        for i in 0..x.len() {
+            let (dx, dr) = (x[i] - xm, r[i] - rm);
+            sxx += w[i] * dx * dx;
+            sxr += w[i] * dx * dr;
+            srr += w[i] * dr * dr;
+        }
+        (sxx > 0.0).then_some(Centred {
+            sw,
+            xm,
+            rm,
+            sxx,
+            sxr,
+            srr,
+        })
+    }
+
+    /// SSE of the base model alone (no break).
+    fn sse_null(&self, line: bool) -> f64 {
+        if line {
+            self.srr - self.sxr * self.sxr / self.sxx
+        } else {
+            self.srr
+        }
+    }
+}
+
+/// The best break found: its SSE, its centred position, the prefix sums there and the
+/// number of points below it.
+struct Best {
+    sse: f64,
+    q: f64,
+    sums: [f64; 5],
+    k: usize,
+}
+
+/// One pass over the sorted points: in each interval between neighbouring points, the
+/// interior stationary point (closed form) and the interval's upper end are candidates.
+#[allow(clippy::too_many_arguments)]
+fn scan(
+    x: &[f64],
+    r: &[f64],
+    w: &[f64],
+    order: &[usize],
+    c: &Centred,
+    line: bool,
+    m: usize,
+    mut profile: Option<&mut Vec<(f64, f64)>>,
+) -> Option<Best> {
+    let sse_null = c.sse_null(line);
+    let tiny = 1e-12 * c.sxx;
     // Prefix sums over the first k sorted points, in centred coordinates:
     // [Σw, Σw x, Σw x², Σw r, Σw x r].
     let mut s = [0.0f64; 5];
-    let mut best: Option<(f64, f64, [f64; 5], usize)> = None; // (sse, q_c, sums, k)
-    let n_intervals = p + 1 - 2 * m;
-    for k in 1..=(p - m) {
+    let mut best: Option<Best> = None;
+    for k in 1..=(x.len() - m) {
         let i = order[k - 1];
-        let (dx, dr) = (x[i] - xm, r[i] - rm);
+        let (dx, dr) = (x[i] - c.xm, r[i] - c.rm);
         s[0] += w[i];
         s[1] += w[i] * dx;
         s[2] += w[i] * dx * dx;
@@ -159,10 +212,10 @@ pub fn search(
         if k < m {
             continue;
         }
-        let [al, be, ga, de, ep] = projected(&s, sw, sxx, sxr, line);
-        let lo = x[order[k - 1]] - xm;
-        let hi = x[order[k]] - xm;
-        let mut consider = |q: f64, best: &mut Option<(f64, f64, [f64; 5], usize)>| {
+        let [al, be, ga, de, ep] = projected(&s, c.sw, c.sxx, c.sxr, line);
+        let lo = x[order[k - 1]] - c.xm;
+        let hi = x[order[k]] - c.xm;
+        let mut consider = |q: f64, best: &mut Option<Best>| {
             let den = ga * q * q - 2.0 * de * q + ep;
             if !(den > tiny) {
                 return;
@@ -170,10 +223,10 @@ pub fn search(
             let num = al * q - be;
             let sse = (sse_null - num * num / den).max(0.0);
             if let Some(prof) = profile.as_deref_mut() {
-                prof.push((q + xm, sse));
+                prof.push((q + c.xm, sse));
             }
-            if best.as_ref().is_none_or(|b| sse < b.0) {
-                *best = Some((sse, q, s, k));
+            if best.as_ref().is_none_or(|b| sse < b.sse) {
+                *best = Some(Best { sse, q, sums: s, k });
             }
         };
         let d = be * ga - al * de;
@@ -185,27 +238,35 @@ pub fn search(
         }
         consider(hi, &mut best);
     }
-    let (sse, qc, sums, k) = best?;
-    // Coefficients at the optimum (centred coordinates), then back to the original ones.
-    let [s_w, s_x, s_xx, _, _] = sums;
+    best
+}
+
+/// The coefficients at the optimum (centred coordinates), then back to the original ones.
+fn solution(best: &Best, c: &Centred, line: bool, m: usize, n_intervals: usize) -> BreakSolution {
+    let qc = best.q;
+    let [s_w, s_x, s_xx, _, _] = best.sums;
     let sum_h = qc * s_w - s_x;
     let sum_xh = qc * s_x - s_xx;
-    let [al, be, ga, de, ep] = projected(&sums, sw, sxx, sxr, line);
+    let [al, be, ga, de, ep] = projected(&best.sums, c.sw, c.sxx, c.sxr, line);
     let den = ga * qc * qc - 2.0 * de * qc + ep;
-    let c = (al * qc - be) / den;
-    let b = if line { (sxr - c * sum_xh) / sxx } else { 0.0 };
-    let a_c = -c * sum_h / sw;
-    Some(BreakSolution {
-        q: qc + xm,
-        a: rm + a_c - b * xm,
+    let coef = (al * qc - be) / den;
+    let b = if line {
+        (c.sxr - coef * sum_xh) / c.sxx
+    } else {
+        0.0
+    };
+    let a_c = -coef * sum_h / c.sw;
+    BreakSolution {
+        q: qc + c.xm,
+        a: c.rm + a_c - b * c.xm,
         b,
-        c,
-        sse,
-        sse_null,
-        n_below: k,
-        interval: k - m,
+        c: coef,
+        sse: best.sse,
+        sse_null: c.sse_null(line),
+        n_below: best.k,
+        interval: best.k - m,
         n_intervals,
-    })
+    }
 }
 
 /// The inner products `[⟨r,u⟩, ⟨r,v⟩, ⟨u,u⟩, ⟨u,v⟩, ⟨v,v⟩]` after projecting out the base

@@ -97,83 +97,112 @@ struct Row {
     line: u64,
 }
 
+/// Where each role's column is in the file.
+struct Columns {
+    sample: usize,
+    tw: usize,
+    t: usize,
+    corr: usize,
+    resp: usize,
+    corr_eq: Option<usize>,
+}
+
+/// The rows read so far, with the samples and grid points in order of appearance.
+#[derive(Default)]
+struct Rows {
+    sample_index: HashMap<String, usize>,
+    sample_ids: Vec<String>,
+    point_index: HashMap<(u64, u64), usize>,
+    points: Vec<GridPoint>,
+    rows: Vec<Row>,
+}
+
 /// Parses a campaign from any reader; `file` is used in error messages only.
 ///
 /// # Errors
 /// As [`read_campaign`].
 pub fn parse_campaign<R: Read>(reader: R, file: &Path, names: &ColumnNames) -> Result<Campaign> {
-    let err = |line: Option<u64>, col: Option<u64>, msg: String| Error::input(file, line, col, msg);
     let mut rdr = super::csv_reader(reader);
     // One record buffer for every row: campaigns can have millions of rows.
     let mut rec = csv::StringRecord::new();
     let has_header = rdr
         .read_record(&mut rec)
         .map_err(|e| super::csv_error(file, e))?;
-    let header = match has_header {
-        false => {
-            return Err(err(
-                None,
-                None,
-                format!(
-                    "the file is empty; expected a header line with columns {}",
-                    names.required().join(", ")
-                ),
-            ));
-        }
-        true => Header::new(file, &rec)?,
-    };
+    if !has_header {
+        return Err(Error::input(
+            file,
+            None,
+            None,
+            format!(
+                "the file is empty; expected a header line with columns {}",
+                names.required().join(", ")
+            ),
+        ));
+    }
+    let header = Header::new(file, &rec)?;
     let idx = header.require(file, &names.required())?;
-    let [i_sample, i_tw, i_t, i_corr, i_resp] = [idx[0], idx[1], idx[2], idx[3], idx[4]];
-    let i_eq = header.find(&names.corr_eq);
-
-    let mut sample_index: HashMap<String, usize> = HashMap::new();
-    let mut sample_ids: Vec<String> = Vec::new();
-    let mut point_index: HashMap<(u64, u64), usize> = HashMap::new();
-    let mut points: Vec<GridPoint> = Vec::new();
-    let mut rows: Vec<Row> = Vec::new();
-
+    let cols = Columns {
+        sample: idx[0],
+        tw: idx[1],
+        t: idx[2],
+        corr: idx[3],
+        resp: idx[4],
+        corr_eq: header.find(&names.corr_eq),
+    };
+    let mut rows = Rows::default();
     while rdr
         .read_record(&mut rec)
         .map_err(|e| super::csv_error(file, e))?
     {
-        let line = super::line_of(&rec);
         if super::is_blank(&rec) {
             continue;
         }
         header.check_width(file, &rec)?;
-        let num = |i: usize, name: &str| {
-            crate::input::parse_number(&rec[i], name)
-                .map_err(|m| err(Some(line), Some(i as u64 + 1), m))
-        };
-        let sample = &rec[i_sample];
+        rows.read(&rec, &cols, file, names)?;
+    }
+    rows.into_campaign(file, cols.corr_eq.is_some())
+}
+
+impl Rows {
+    /// Reads one data row.
+    fn read(
+        &mut self,
+        rec: &csv::StringRecord,
+        cols: &Columns,
+        file: &Path,
+        names: &ColumnNames,
+    ) -> Result<()> {
+        let line = super::line_of(rec);
+        let err =
+            |col: usize, msg: String| Error::input(file, Some(line), Some(col as u64 + 1), msg);
+        let num =
+            |i: usize, name: &str| crate::input::parse_number(&rec[i], name).map_err(|m| err(i, m));
+        let sample = &rec[cols.sample];
         if sample.is_empty() {
             return Err(err(
-                Some(line),
-                Some(i_sample as u64 + 1),
+                cols.sample,
                 format!("column '{}' is empty, expected a sample name", names.sample),
             ));
         }
-        let tw = num(i_tw, &names.tw)?;
-        let t = num(i_t, &names.t)?;
+        let tw = num(cols.tw, &names.tw)?;
+        let t = num(cols.t, &names.t)?;
         if !(t > tw) {
             return Err(err(
-                Some(line),
-                Some(i_t as u64 + 1),
+                cols.t,
                 format!(
                     "{} = {t} is not later than {} = {tw}; expected t > tw",
                     names.t, names.tw
                 ),
             ));
         }
-        let corr = num(i_corr, &names.corr)?;
-        let resp = num(i_resp, &names.resp)?;
-        let corr_eq = match i_eq {
+        let corr = num(cols.corr, &names.corr)?;
+        let resp = num(cols.resp, &names.resp)?;
+        let corr_eq = match cols.corr_eq {
             Some(i) => {
                 let v = num(i, &names.corr_eq)?;
                 if v <= 0.0 {
                     return Err(err(
-                        Some(line),
-                        Some(i as u64 + 1),
+                        i,
                         format!(
                             "column '{}' is {v}, expected a positive number (it normalizes C and chi)",
                             names.corr_eq
@@ -184,92 +213,105 @@ pub fn parse_campaign<R: Read>(reader: R, file: &Path, names: &ColumnNames) -> R
             }
             None => None,
         };
-        let s = match sample_index.get(sample) {
-            Some(&s) => s,
-            None => {
-                sample_ids.push(sample.to_string());
-                sample_index.insert(sample.to_string(), sample_ids.len() - 1);
-                sample_ids.len() - 1
-            }
-        };
-        let key = (normalize_zero(tw).to_bits(), normalize_zero(t).to_bits());
-        let p = *point_index.entry(key).or_insert_with(|| {
-            points.push(GridPoint { tw, t });
-            points.len() - 1
-        });
-        rows.push(Row {
-            sample: s,
-            point: p,
+        let row = Row {
+            sample: self.sample_of(sample),
+            point: self.point_of(tw, t),
             corr,
             resp,
             corr_eq,
             line,
-        });
+        };
+        self.rows.push(row);
+        Ok(())
     }
 
-    if rows.is_empty() {
-        return Err(err(None, None, "no data rows after the header".into()));
+    fn sample_of(&mut self, sample: &str) -> usize {
+        if let Some(&s) = self.sample_index.get(sample) {
+            return s;
+        }
+        self.sample_ids.push(sample.to_string());
+        self.sample_index
+            .insert(sample.to_string(), self.sample_ids.len() - 1);
+        self.sample_ids.len() - 1
     }
-    let n = sample_ids.len();
-    if n < 2 {
-        return Err(err(
-            None,
-            None,
-            format!(
-                "only 1 sample ('{}') in the file; at least 2 independent samples are needed \
-                 to estimate errors",
-                sample_ids[0]
-            ),
-        ));
+
+    fn point_of(&mut self, tw: f64, t: f64) -> usize {
+        let key = (normalize_zero(tw).to_bits(), normalize_zero(t).to_bits());
+        let points = &mut self.points;
+        *self.point_index.entry(key).or_insert_with(|| {
+            points.push(GridPoint { tw, t });
+            points.len() - 1
+        })
     }
-    let np = points.len();
-    let mut seen_at: Vec<u64> = vec![0; n * np];
-    let mut corr = Array2::<f64>::zeros((n, np));
-    let mut resp = Array2::<f64>::zeros((n, np));
-    let mut corr_eq = i_eq.map(|_| Array2::<f64>::zeros((n, np)));
-    for r in &rows {
-        let slot = &mut seen_at[r.sample * np + r.point];
-        if *slot != 0 {
-            let g = points[r.point];
+
+    /// The samples × points arrays, once every sample has every point exactly once.
+    fn into_campaign(self, file: &Path, with_eq: bool) -> Result<Campaign> {
+        let err = |line: Option<u64>, msg: String| Error::input(file, line, None, msg);
+        if self.rows.is_empty() {
+            return Err(err(None, "no data rows after the header".into()));
+        }
+        let n = self.sample_ids.len();
+        if n < 2 {
             return Err(err(
-                Some(r.line),
                 None,
                 format!(
-                    "sample '{}' at tw = {}, t = {} appears again (first on line {}); expected \
-                     one row per (sample, tw, t)",
-                    sample_ids[r.sample], g.tw, g.t, slot
+                    "only 1 sample ('{}') in the file; at least 2 independent samples are \
+                     needed to estimate errors",
+                    self.sample_ids[0]
                 ),
             ));
         }
-        *slot = r.line;
-        corr[[r.sample, r.point]] = r.corr;
-        resp[[r.sample, r.point]] = r.resp;
-        if let (Some(ce), Some(v)) = (corr_eq.as_mut(), r.corr_eq) {
-            ce[[r.sample, r.point]] = v;
+        let np = self.points.len();
+        let mut seen_at: Vec<u64> = vec![0; n * np];
+        let mut corr = Array2::<f64>::zeros((n, np));
+        let mut resp = Array2::<f64>::zeros((n, np));
+        let mut corr_eq = with_eq.then(|| Array2::<f64>::zeros((n, np)));
+        for r in &self.rows {
+            let slot = &mut seen_at[r.sample * np + r.point];
+            if *slot != 0 {
+                let g = self.points[r.point];
+                return Err(err(
+                    Some(r.line),
+                    format!(
+                        "sample '{}' at tw = {}, t = {} appears again (first on line {}); \
+                         expected one row per (sample, tw, t)",
+                        self.sample_ids[r.sample], g.tw, g.t, slot
+                    ),
+                ));
+            }
+            *slot = r.line;
+            corr[[r.sample, r.point]] = r.corr;
+            resp[[r.sample, r.point]] = r.resp;
+            if let (Some(ce), Some(v)) = (corr_eq.as_mut(), r.corr_eq) {
+                ce[[r.sample, r.point]] = v;
+            }
         }
+        self.check_complete(&seen_at).map_err(|m| err(None, m))?;
+        Campaign::new(self.sample_ids, self.points, corr, resp, corr_eq)
+            .map_err(|e| err(None, e.to_string()))
     }
-    for s in 0..n {
-        if let Some(p) = (0..np).find(|&p| seen_at[s * np + p] == 0) {
-            let g = points[p];
-            let (other, line) = (0..n)
-                .find_map(|o| {
-                    let l = seen_at[o * np + p];
-                    (l != 0).then(|| (&sample_ids[o], l))
-                })
-                .unwrap_or((&sample_ids[0], 0));
-            return Err(err(
-                None,
-                None,
-                format!(
+
+    /// Every sample has every grid point (`seen_at` holds the line of each, 0 if none).
+    fn check_complete(&self, seen_at: &[u64]) -> std::result::Result<(), String> {
+        let (n, np) = (self.sample_ids.len(), self.points.len());
+        for s in 0..n {
+            if let Some(p) = (0..np).find(|&p| seen_at[s * np + p] == 0) {
+                let g = self.points[p];
+                let (other, line) = (0..n)
+                    .find_map(|o| {
+                        let l = seen_at[o * np + p];
+                        (l != 0).then(|| (&self.sample_ids[o], l))
+                    })
+                    .unwrap_or((&self.sample_ids[0], 0));
+                return Err(format!(
                     "sample '{}' has no row for tw = {}, t = {}, which sample '{other}' has on \
                      line {line}; every sample needs the same (tw, t) points",
-                    sample_ids[s], g.tw, g.t
-                ),
-            ));
+                    self.sample_ids[s], g.tw, g.t
+                ));
+            }
         }
+        Ok(())
     }
-    Campaign::new(sample_ids, points, corr, resp, corr_eq)
-        .map_err(|e| err(None, None, e.to_string()))
 }
 
 /// Maps -0.0 to 0.0 so that both spellings name the same grid point.

@@ -231,25 +231,8 @@ pub fn methods(r: &FitReport) -> String {
         _ => "(C, k·T·chi) from sample means",
     };
     let m = model::of(g.model);
-    let weights = match g.weights {
-        Weighting::Uniform => "with uniform weights".to_string(),
-        Weighting::InverseVariance => format!(
-            "weighted by the inverse sample variance of {} at each point (re-estimated in \
-             every resample from that resample's samples)",
-            if m.c_factor() == 0.0 {
-                "k·T·chi"
-            } else {
-                "k·T·chi + C"
-            }
-        ),
-    };
-    let interval = match g.interval {
-        crate::resample::IntervalMethod::Bca => {
-            "BCa intervals (acceleration from the leave-one-sample-out jackknife)"
-        }
-        crate::resample::IntervalMethod::Percentile => "percentile intervals",
-        crate::resample::IntervalMethod::Basic => "basic (reflected percentile) intervals",
-    };
+    let weights = weights_phrase(g.weights, m);
+    let interval = interval_phrase(g.interval);
     let p = r.fits[0].equilibrium_p.map_or("not computed".into(), |p| {
         fmt_p_resampled(p, r.fits[0].null_resamples)
     });
@@ -261,23 +244,7 @@ pub fn methods(r: &FitReport) -> String {
             g.min_branch
         )
     };
-    let test = if !m.has_break() {
-        format!(
-            "The hypothesis of equilibrium (slope -1) was tested with the statistic SSE(slope \
-             -1) − SSE(free slope), calibrated by the same resamples moved onto the fitted \
-             slope -1 line; for the joint fit p = {p}."
-        )
-    } else {
-        format!(
-            "The hypothesis of no break (equilibrium) was tested with the statistic SSE(no \
-             break) − SSE(two segments), calibrated by the same resamples moved onto the fitted \
-             no-break model, because the break is not identified under that hypothesis; for \
-             the joint fit p = {p}. X is quoted only where this test rejects and the break lies \
-             away from the edge of the points. The slope above the break was tested against -1 \
-             (a check of the thermometer and the response units) with the resamples centred on \
-             its estimate."
-        )
-    };
+    let test = test_sentences(m, &p);
     let aging = if r.aging.is_some() {
         format!(
             " The change of X with age is the least-squares slope of the per-curve X against \
@@ -312,6 +279,54 @@ pub fn methods(r: &FitReport) -> String {
         b = g.resamples,
         seed = g.seed,
     )
+}
+
+/// How the points were weighted, in words.
+fn weights_phrase(weights: Weighting, m: &dyn model::FdModel) -> String {
+    match weights {
+        Weighting::Uniform => "with uniform weights".to_string(),
+        Weighting::InverseVariance => format!(
+            "weighted by the inverse sample variance of {} at each point (re-estimated in \
+             every resample from that resample's samples)",
+            if m.c_factor() == 0.0 {
+                "k·T·chi"
+            } else {
+                "k·T·chi + C"
+            }
+        ),
+    }
+}
+
+/// How the intervals were formed, in words.
+fn interval_phrase(method: crate::resample::IntervalMethod) -> &'static str {
+    match method {
+        crate::resample::IntervalMethod::Bca => {
+            "BCa intervals (acceleration from the leave-one-sample-out jackknife)"
+        }
+        crate::resample::IntervalMethod::Percentile => "percentile intervals",
+        crate::resample::IntervalMethod::Basic => "basic (reflected percentile) intervals",
+    }
+}
+
+/// The tests in sentences, with the joint fit's equilibrium p-value.
+fn test_sentences(m: &dyn model::FdModel, p: &str) -> String {
+    if !m.has_break() {
+        format!(
+            "The hypothesis of equilibrium (slope -1) was tested with the statistic SSE(slope \
+             -1) − SSE(free slope), calibrated by the same resamples moved onto the fitted \
+             slope -1 line; for the joint fit p = {p}."
+        )
+    } else {
+        format!(
+            "The hypothesis of no break (equilibrium) was tested with the statistic SSE(no \
+             break) − SSE(two segments), calibrated by the same resamples moved onto the fitted \
+             no-break model, because the break is not identified under that hypothesis; for \
+             the joint fit p = {p}. X is quoted only where this test rejects and the break lies \
+             away from the edge of the points. The slope above the break was tested against -1 \
+             (a check of the thermometer and the response units) with the resamples centred on \
+             its estimate."
+        )
+    }
 }
 
 /// Wraps text at `width` columns with an indent.
