@@ -11,11 +11,14 @@
 use crate::common::Units;
 use crate::error::{Error, Result};
 use crate::resample::quantile_sorted;
-use crate::spectral::analysis::SpectrumReport;
+use crate::spectral::analysis::{SpectrumFit, SpectrumReport};
 use crate::twotime::points::Axes;
-use crate::twotime::{Curve, FitReport};
+use crate::twotime::{Curve, FitReport, GroupFit, PointRecord};
 use plotters::coord::Shift;
+use plotters::coord::ranged1d::ValueFormatter;
+use plotters::coord::types::RangedCoordf64;
 use plotters::prelude::*;
+use std::ops::Range;
 use std::path::Path;
 use std::sync::Once;
 
@@ -233,6 +236,11 @@ fn fmt_iv(v: Option<f64>, lo: Option<f64>, hi: Option<f64>) -> String {
     }
 }
 
+/// What each figure is called in a drawing error.
+const FD: &str = "fluctuation–dissipation plot";
+const HIST: &str = "resample histogram";
+const TEFF: &str = "T_eff(f) figure";
+
 /// The fluctuation–dissipation plot of a fit.
 ///
 /// # Errors
@@ -251,22 +259,61 @@ pub fn fd_plot(r: &FitReport, fig: Figure) -> Result<Vec<u8>> {
     }
     render(
         fig,
-        "fluctuation–dissipation plot",
+        FD,
         |a| draw_fd(a, r, curve, fig),
         |a| draw_fd(a, r, curve, fig),
     )
 }
 
-fn draw_fd<DB: DrawingBackend>(
-    root: DrawingArea<DB, Shift>,
-    r: &FitReport,
-    curve: Curve,
+/// The linear chart of the fluctuation–dissipation plot and the resample histogram.
+type Chart<'a, DB> = ChartContext<'a, DB, Cartesian2d<RangedCoordf64, RangedCoordf64>>;
+
+/// The margin, label areas and mesh (no grid, 6 ticks on x) of a linear chart.
+fn linear_chart<'a, DB: DrawingBackend + 'a>(
+    root: &'a DrawingArea<DB, Shift>,
     fig: Figure,
-) -> Result<()> {
-    let e = err::<DrawingAreaErrorKind<DB::ErrorType>>("fluctuation–dissipation plot");
+    (x, y): (Range<f64>, Range<f64>),
+    (xlabel, ylabel): (&str, String),
+    y_labels: usize,
+    what: &str,
+) -> Result<Chart<'a, DB>> {
+    let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(what);
     let sc = scale(fig.width);
-    let joint = &r.fits[0];
-    let pts = &r.points;
+    let mut chart = ChartBuilder::on(root)
+        .margin((fig.width / 40) as i32)
+        .x_label_area_size((sc.label * 2.4) as i32)
+        .y_label_area_size((sc.label * 3.0) as i32)
+        .build_cartesian_2d(x, y)
+        .map_err(&e)?;
+    chart
+        .configure_mesh()
+        .disable_mesh()
+        .x_desc(xlabel)
+        .y_desc(ylabel)
+        .axis_desc_style(("sans-serif", sc.label))
+        .label_style(("sans-serif", sc.tick))
+        .x_labels(6)
+        .y_labels(y_labels)
+        .x_label_formatter(&|v| tick(*v))
+        .y_label_formatter(&|v| tick(*v))
+        .draw()
+        .map_err(&e)?;
+    Ok(chart)
+}
+
+/// The extent of the fluctuation–dissipation plot's data (with standard errors) and its
+/// axes' ranges.
+struct FdRanges {
+    xmin_data: f64,
+    xmax_data: f64,
+    ymax_data: f64,
+    x0: f64,
+    x1: f64,
+    y0: f64,
+    y1: f64,
+}
+
+fn fd_ranges(pts: &[PointRecord], curve: Curve) -> FdRanges {
     let xmax_data = pts
         .iter()
         .map(|p| p.x + p.x_se)
@@ -283,11 +330,20 @@ fn draw_fd<DB: DrawingBackend>(
         .iter()
         .map(|p| p.y - p.y_se)
         .fold(f64::INFINITY, f64::min);
-    let x0 = xmin_data.min(0.0);
-    let x1 = xmax_data.max(curve.intercept.max(1.0));
-    let y0 = ymin_data.min(0.0);
-    // Head room for the legend above the data.
-    let y1 = ymax_data.max(curve.intercept) * 1.45;
+    FdRanges {
+        xmin_data,
+        xmax_data,
+        ymax_data,
+        x0: xmin_data.min(0.0),
+        x1: xmax_data.max(curve.intercept.max(1.0)),
+        y0: ymin_data.min(0.0),
+        // Head room for the legend above the data.
+        y1: ymax_data.max(curve.intercept) * 1.45,
+    }
+}
+
+/// The axis titles: normalized or plain, with `(k = 1)` in reduced units.
+fn fd_labels(r: &FitReport) -> (&'static str, String) {
     let normalized = r.settings.axes_used == Axes::Normalized;
     let xlabel = if normalized {
         "C(t,tw) / C(t,t)"
@@ -304,26 +360,39 @@ fn draw_fd<DB: DrawingBackend>(
     } else {
         format!("k T χ(t,tw){k}")
     };
-    let mut chart = ChartBuilder::on(&root)
-        .margin((fig.width / 40) as i32)
-        .x_label_area_size((sc.label * 2.4) as i32)
-        .y_label_area_size((sc.label * 3.0) as i32)
-        .build_cartesian_2d(x0..x1, y0..y1)
-        .map_err(&e)?;
-    chart
-        .configure_mesh()
-        .disable_mesh()
-        .x_desc(xlabel)
-        .y_desc(ylabel)
-        .axis_desc_style(("sans-serif", sc.label))
-        .label_style(("sans-serif", sc.tick))
-        .x_labels(6)
-        .y_labels(6)
-        .x_label_formatter(&|v| tick(*v))
-        .y_label_formatter(&|v| tick(*v))
-        .draw()
-        .map_err(&e)?;
+    (xlabel, ylabel)
+}
 
+fn draw_fd<DB: DrawingBackend>(
+    root: DrawingArea<DB, Shift>,
+    r: &FitReport,
+    curve: Curve,
+    fig: Figure,
+) -> Result<()> {
+    let sc = scale(fig.width);
+    let joint = &r.fits[0];
+    let rg = fd_ranges(&r.points, curve);
+    let ranges = (rg.x0..rg.x1, rg.y0..rg.y1);
+    let mut chart = linear_chart(&root, fig, ranges, fd_labels(r), 6, FD)?;
+    fd_references(&mut chart, joint, curve, &rg, fig, &sc)?;
+    fd_band(&mut chart, joint, r.settings.given.level, &rg)?;
+    fd_points(&mut chart, r, &sc)?;
+    fd_fit(&mut chart, joint, curve, &rg, &sc)?;
+    legend(&mut chart, &sc)?;
+    Ok(())
+}
+
+/// The break's interval and the equilibrium line.
+fn fd_references<'a, DB: DrawingBackend + 'a>(
+    chart: &mut Chart<'a, DB>,
+    joint: &GroupFit,
+    curve: Curve,
+    rg: &FdRanges,
+    fig: Figure,
+    sc: &Scale,
+) -> Result<()> {
+    let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(FD);
+    let (x0, x1, y0, ymax_data) = (rg.x0, rg.x1, rg.y0, rg.ymax_data);
     // The break's interval and estimate.
     if let (Some(lo), Some(hi)) = (joint.brk.low, joint.brk.high) {
         chart
@@ -354,12 +423,20 @@ fn draw_fd<DB: DrawingBackend>(
         .legend(move |(x, y)| {
             PathElement::new(vec![(x, y), (x + 20, y)], REFERENCE.stroke_width(2))
         });
+    Ok(())
+}
 
-    // Bootstrap band of the fitted curve.
-    let level = r.settings.given.level;
+/// Bootstrap band of the fitted curve.
+fn fd_band<'a, DB: DrawingBackend + 'a>(
+    chart: &mut Chart<'a, DB>,
+    joint: &GroupFit,
+    level: f64,
+    rg: &FdRanges,
+) -> Result<()> {
+    let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(FD);
     if joint.curve_replicates.len() >= 20 {
         let n = 160;
-        let (a, b) = (xmin_data.max(x0), xmax_data.min(x1));
+        let (a, b) = (rg.xmin_data.max(rg.x0), rg.xmax_data.min(rg.x1));
         let mut upper = Vec::with_capacity(n);
         let mut lower = Vec::with_capacity(n);
         let mut ys = vec![0.0; joint.curve_replicates.len()];
@@ -384,11 +461,23 @@ fn draw_fd<DB: DrawingBackend>(
                 Rectangle::new([(x, y - 6), (x + 20, y + 6)], PALETTE[0].mix(0.3).filled())
             });
     }
+    Ok(())
+}
 
-    // Points per waiting time, with standard errors.
+/// Points per waiting time, with standard errors.
+fn fd_points<'a, DB: DrawingBackend + 'a>(
+    chart: &mut Chart<'a, DB>,
+    r: &FitReport,
+    sc: &Scale,
+) -> Result<()> {
+    let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(FD);
     for (i, &tw) in r.waiting_times.iter().enumerate() {
         let c = PALETTE[i % PALETTE.len()];
-        let mine: Vec<_> = pts.iter().filter(|p| p.tw.total_cmp(&tw).is_eq()).collect();
+        let mine: Vec<_> = r
+            .points
+            .iter()
+            .filter(|p| p.tw.total_cmp(&tw).is_eq())
+            .collect();
         chart
             .draw_series(mine.iter().map(|p| {
                 ErrorBar::new_vertical(
@@ -413,7 +502,7 @@ fn draw_fd<DB: DrawingBackend>(
                 )
             }))
             .map_err(&e)?;
-        let ms = sc.marker;
+        let (ms, line) = (sc.marker, sc.line);
         let label = format!("tw = {}", crate::report::format::fmt_num(tw));
         // Shapes differ per series (filled circle, filled triangle, cross, open circle) so
         // the series stay apart without colour.
@@ -429,13 +518,24 @@ fn draw_fd<DB: DrawingBackend>(
         match i % 4 {
             0 => series!(|at| Circle::new(at, ms, c.filled())),
             1 => series!(|at| TriangleMarker::new(at, ms + 2, c.filled())),
-            2 => series!(|at| Cross::new(at, ms, c.stroke_width(sc.line))),
-            _ => series!(|at| Circle::new(at, ms, c.stroke_width(sc.line))),
+            2 => series!(|at| Cross::new(at, ms, c.stroke_width(line))),
+            _ => series!(|at| Circle::new(at, ms, c.stroke_width(line))),
         };
     }
+    Ok(())
+}
 
+/// The fitted broken stick, with X and T_eff in the legend.
+fn fd_fit<'a, DB: DrawingBackend + 'a>(
+    chart: &mut Chart<'a, DB>,
+    joint: &GroupFit,
+    curve: Curve,
+    rg: &FdRanges,
+    sc: &Scale,
+) -> Result<()> {
+    let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(FD);
     // The fitted broken stick.
-    let fit_pts: Vec<(f64, f64)> = [xmin_data.max(x0), curve.q, xmax_data.min(x1)]
+    let fit_pts: Vec<(f64, f64)> = [rg.xmin_data.max(rg.x0), curve.q, rg.xmax_data.min(rg.x1)]
         .iter()
         .map(|&x| (x, curve.eval(x)))
         .collect();
@@ -453,8 +553,6 @@ fn draw_fd<DB: DrawingBackend>(
         .map_err(&e)?
         .label(format!("T_eff = {t_eff}"))
         .legend(|(x, y)| EmptyElement::at((x, y)));
-
-    legend(&mut chart, &sc)?;
     Ok(())
 }
 
@@ -486,21 +584,15 @@ pub fn ratio_histogram(r: &FitReport, fig: Figure) -> Result<Vec<u8>> {
     }
     render(
         fig,
-        "resample histogram",
+        HIST,
         |a| draw_hist(a, r, &reps, fig),
         |a| draw_hist(a, r, &reps, fig),
     )
 }
 
-fn draw_hist<DB: DrawingBackend>(
-    root: DrawingArea<DB, Shift>,
-    r: &FitReport,
-    reps: &[f64],
-    fig: Figure,
-) -> Result<()> {
-    let e = err::<DrawingAreaErrorKind<DB::ErrorType>>("resample histogram");
-    let sc = scale(fig.width);
-    let joint = &r.fits[0];
+/// Freedman–Diaconis bins of the sorted resamples: the counts, the first edge and the
+/// bin width.
+fn hist_bins(reps: &[f64]) -> (Vec<u32>, f64, f64) {
     let n = reps.len();
     // Freedman–Diaconis bin width.
     let iqr = quantile_sorted(reps, 0.75) - quantile_sorted(reps, 0.25);
@@ -516,27 +608,33 @@ fn draw_hist<DB: DrawingBackend>(
     for v in reps {
         counts[(((v - lo) / w) as usize).min(bins - 1)] += 1;
     }
+    (counts, lo, w)
+}
+
+fn draw_hist<DB: DrawingBackend>(
+    root: DrawingArea<DB, Shift>,
+    r: &FitReport,
+    reps: &[f64],
+    fig: Figure,
+) -> Result<()> {
+    let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(HIST);
+    let sc = scale(fig.width);
+    let n = reps.len();
+    let (counts, lo, w) = hist_bins(reps);
+    let hi = reps[n - 1];
     let ymax = f64::from(*counts.iter().max().unwrap_or(&1)) * 1.35;
     let pad = 0.05 * (hi - lo);
-    let mut chart = ChartBuilder::on(&root)
-        .margin((fig.width / 40) as i32)
-        .x_label_area_size((sc.label * 2.4) as i32)
-        .y_label_area_size((sc.label * 3.0) as i32)
-        .build_cartesian_2d((lo - pad)..(hi + pad), 0.0..ymax)
-        .map_err(&e)?;
-    chart
-        .configure_mesh()
-        .disable_mesh()
-        .x_desc("X, fluctuation–dissipation ratio (joint fit)")
-        .y_desc("resamples")
-        .axis_desc_style(("sans-serif", sc.label))
-        .label_style(("sans-serif", sc.tick))
-        .x_labels(6)
-        .y_labels(5)
-        .x_label_formatter(&|v| tick(*v))
-        .y_label_formatter(&|v| tick(*v))
-        .draw()
-        .map_err(&e)?;
+    let mut chart = linear_chart(
+        &root,
+        fig,
+        ((lo - pad)..(hi + pad), 0.0..ymax),
+        (
+            "X, fluctuation–dissipation ratio (joint fit)",
+            "resamples".into(),
+        ),
+        5,
+        HIST,
+    )?;
     chart
         .draw_series(counts.iter().enumerate().map(|(i, &c)| {
             let x = lo + i as f64 * w;
@@ -550,10 +648,25 @@ fn draw_hist<DB: DrawingBackend>(
         .legend(|(x, y)| {
             Rectangle::new([(x, y - 6), (x + 20, y + 6)], PALETTE[0].mix(0.55).filled())
         });
+    hist_marks(&mut chart, r, ymax / 1.35, fig, &sc)?;
+    legend(&mut chart, &sc)?;
+    Ok(())
+}
+
+/// The estimate and the interval's ends as vertical lines up to `top`.
+fn hist_marks<'a, DB: DrawingBackend + 'a>(
+    chart: &mut Chart<'a, DB>,
+    r: &FitReport,
+    top: f64,
+    fig: Figure,
+    sc: &Scale,
+) -> Result<()> {
+    let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(HIST);
+    let joint = &r.fits[0];
     if let Some(est) = joint.ratio.estimate {
         chart
             .draw_series(LineSeries::new(
-                vec![(est, 0.0), (est, ymax / 1.35)],
+                vec![(est, 0.0), (est, top)],
                 INK.stroke_width(sc.line),
             ))
             .map_err(&e)?
@@ -565,7 +678,7 @@ fn draw_hist<DB: DrawingBackend>(
         for (i, v) in [a, b].into_iter().enumerate() {
             let s = chart
                 .draw_series(DashedLineSeries::new(
-                    vec![(v, 0.0), (v, ymax / 1.35)],
+                    vec![(v, 0.0), (v, top)],
                     dash,
                     dash,
                     PALETTE[1].stroke_width(sc.line),
@@ -585,7 +698,6 @@ fn draw_hist<DB: DrawingBackend>(
             }
         }
     }
-    legend(&mut chart, &sc)?;
     Ok(())
 }
 
@@ -606,19 +718,23 @@ pub fn teff_plot(r: &SpectrumReport, fig: Figure) -> Result<Vec<u8>> {
     }
     render(
         fig,
-        "T_eff(f) figure",
+        TEFF,
         |a| draw_teff(a, r, fig),
         |a| draw_teff(a, r, fig),
     )
 }
 
-fn draw_teff<DB: DrawingBackend>(
-    root: DrawingArea<DB, Shift>,
-    r: &SpectrumReport,
-    fig: Figure,
-) -> Result<()> {
-    let e = err::<DrawingAreaErrorKind<DB::ErrorType>>("T_eff(f) figure");
-    let sc = scale(fig.width);
+/// The ranges of T_eff(f): frequencies of the positive points, temperatures of their
+/// intervals and the bath, padded; T_eff is on a log axis when it spans a factor above 8.
+struct TeffRanges {
+    f0: f64,
+    f1: f64,
+    t0: f64,
+    t1: f64,
+    log_y: bool,
+}
+
+fn teff_ranges(r: &SpectrumReport) -> TeffRanges {
     let pts = r
         .spectra
         .iter()
@@ -635,123 +751,176 @@ fn draw_teff<DB: DrawingBackend>(
         t0 = t0.min(t);
         t1 = t1.max(t);
     }
-    let unit = if r.settings.units == Units::Si {
-        " (K)"
-    } else {
-        ""
-    };
     let log_y = t1 / t0 > 8.0;
     let (t0, t1) = if log_y {
         (t0 / 1.3, t1 * 6.0)
     } else {
         (t0 - 0.1 * (t1 - t0), t1 + 0.6 * (t1 - t0))
     };
-    let f_range = (f0 / 1.2)..(f1 * 1.2);
-    let root_area = root;
-    macro_rules! body {
-        ($chart:expr) => {{
-            let mut chart = $chart;
-            chart
-                .configure_mesh()
-                .disable_mesh()
-                .x_desc("f (Hz)")
-                .y_desc(format!("T_eff{unit}"))
-                .axis_desc_style(("sans-serif", sc.label))
-                .label_style(("sans-serif", sc.tick))
-                .x_label_formatter(&|v| tick(*v))
-                .y_label_formatter(&|v| tick(*v))
-                .draw()
-                .map_err(&e)?;
-            for (i, s) in r.spectra.iter().enumerate() {
-                let c = PALETTE[i % PALETTE.len()];
-                let ok: Vec<_> = s.points.iter().filter(|p| p.t_eff > 0.0).collect();
-                let band: Vec<(f64, f64)> = ok
-                    .iter()
-                    .filter_map(|p| Some((p.f, p.high?)))
-                    .chain(ok.iter().rev().filter_map(|p| Some((p.f, p.low?.max(t0)))))
-                    .collect();
-                if band.len() > 2 {
-                    chart
-                        .draw_series(std::iter::once(Polygon::new(band, c.mix(0.2).filled())))
-                        .map_err(&e)?
-                        .label(format!("{:.0}% interval", 100.0 * r.settings.level))
-                        .legend(move |(x, y)| {
-                            Rectangle::new([(x, y - 6), (x + 20, y + 6)], c.mix(0.3).filled())
-                        });
-                }
-                let label = s.tw.map_or_else(
-                    || "T_eff(f)".to_string(),
-                    |t| format!("T_eff(f), tw = {}", crate::report::format::fmt_num(t)),
-                );
-                chart
-                    .draw_series(LineSeries::new(
-                        ok.iter().map(|p| (p.f, p.t_eff)),
-                        c.stroke_width(sc.line),
-                    ))
-                    .map_err(&e)?
-                    .label(label)
-                    .legend(move |(x, y)| {
-                        PathElement::new(vec![(x, y), (x + 20, y)], c.stroke_width(3))
-                    });
-                if let Some(d) = &s.departure {
-                    let fd = d.below_hz;
-                    chart
-                        .draw_series(DashedLineSeries::new(
-                            vec![(fd, t0), (fd, t1)],
-                            (10.0 * f64::from(fig.width) / 1000.0) as u32,
-                            (8.0 * f64::from(fig.width) / 1000.0) as u32,
-                            PALETTE[3].stroke_width(sc.line),
-                        ))
-                        .map_err(&e)?
-                        .label(format!(
-                            "departs from T below {} Hz ({}: T_eff {} T)",
-                            super::sig(fd, 3),
-                            d.direction.label(),
-                            d.direction.side()
-                        ))
-                        .legend(|(x, y)| {
-                            PathElement::new(vec![(x, y), (x + 20, y)], PALETTE[3].stroke_width(3))
-                        });
-                }
-            }
-            if let Some(t) = r.settings.temperature {
-                chart
-                    .draw_series(DashedLineSeries::new(
-                        vec![(f0 / 1.2, t), (f1 * 1.2, t)],
-                        (12.0 * f64::from(fig.width) / 1000.0) as u32,
-                        (8.0 * f64::from(fig.width) / 1000.0) as u32,
-                        REFERENCE.stroke_width(sc.line),
-                    ))
-                    .map_err(&e)?
-                    .label(format!(
-                        "bath T = {}{}",
-                        super::sig(t, 4),
-                        unit.replace(['(', ')'], "")
-                    ))
-                    .legend(|(x, y)| {
-                        PathElement::new(vec![(x, y), (x + 20, y)], REFERENCE.stroke_width(2))
-                    });
-            }
-            legend(&mut chart, &sc)?;
-        }};
+    TeffRanges {
+        f0,
+        f1,
+        t0,
+        t1,
+        log_y,
     }
-    let mut builder = ChartBuilder::on(&root_area);
+}
+
+fn draw_teff<DB: DrawingBackend>(
+    root: DrawingArea<DB, Shift>,
+    r: &SpectrumReport,
+    fig: Figure,
+) -> Result<()> {
+    let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(TEFF);
+    let sc = scale(fig.width);
+    let rg = teff_ranges(r);
+    let f_range = (rg.f0 / 1.2)..(rg.f1 * 1.2);
+    let mut builder = ChartBuilder::on(&root);
     builder
         .margin((fig.width / 40) as i32)
         .x_label_area_size((sc.label * 2.4) as i32)
         .y_label_area_size((sc.label * 3.2) as i32);
-    if log_y {
-        body!(
+    if rg.log_y {
+        teff_body(
             builder
-                .build_cartesian_2d(f_range.log_scale(), (t0..t1).log_scale())
-                .map_err(&e)?
-        );
+                .build_cartesian_2d(f_range.log_scale(), (rg.t0..rg.t1).log_scale())
+                .map_err(&e)?,
+            r,
+            &rg,
+            fig,
+            &sc,
+        )?;
     } else {
-        body!(
+        teff_body(
             builder
-                .build_cartesian_2d(f_range.log_scale(), t0..t1)
-                .map_err(&e)?
-        );
+                .build_cartesian_2d(f_range.log_scale(), rg.t0..rg.t1)
+                .map_err(&e)?,
+            r,
+            &rg,
+            fig,
+            &sc,
+        )?;
+    }
+    Ok(())
+}
+
+/// The mesh, each spectrum, the bath and the legend, on a log or linear T_eff axis.
+fn teff_body<'a, DB, Y>(
+    mut chart: ChartContext<'a, DB, Cartesian2d<LogCoord<f64>, Y>>,
+    r: &SpectrumReport,
+    rg: &TeffRanges,
+    fig: Figure,
+    sc: &Scale,
+) -> Result<()>
+where
+    DB: DrawingBackend + 'a,
+    Y: Ranged<ValueType = f64> + ValueFormatter<f64>,
+{
+    let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(TEFF);
+    let unit = if r.settings.units == Units::Si {
+        " (K)"
+    } else {
+        ""
+    };
+    chart
+        .configure_mesh()
+        .disable_mesh()
+        .x_desc("f (Hz)")
+        .y_desc(format!("T_eff{unit}"))
+        .axis_desc_style(("sans-serif", sc.label))
+        .label_style(("sans-serif", sc.tick))
+        .x_label_formatter(&|v| tick(*v))
+        .y_label_formatter(&|v| tick(*v))
+        .draw()
+        .map_err(&e)?;
+    for (i, s) in r.spectra.iter().enumerate() {
+        let c = PALETTE[i % PALETTE.len()];
+        teff_spectrum(&mut chart, s, c, r.settings.level, rg, fig, sc)?;
+    }
+    if let Some(t) = r.settings.temperature {
+        chart
+            .draw_series(DashedLineSeries::new(
+                vec![(rg.f0 / 1.2, t), (rg.f1 * 1.2, t)],
+                (12.0 * f64::from(fig.width) / 1000.0) as u32,
+                (8.0 * f64::from(fig.width) / 1000.0) as u32,
+                REFERENCE.stroke_width(sc.line),
+            ))
+            .map_err(&e)?
+            .label(format!(
+                "bath T = {}{}",
+                super::sig(t, 4),
+                unit.replace(['(', ')'], "")
+            ))
+            .legend(|(x, y)| {
+                PathElement::new(vec![(x, y), (x + 20, y)], REFERENCE.stroke_width(2))
+            });
+    }
+    legend(&mut chart, sc)?;
+    Ok(())
+}
+
+/// One spectrum in colour `c`: its interval band, its T_eff(f) and its departure.
+fn teff_spectrum<'a, DB, Y>(
+    chart: &mut ChartContext<'a, DB, Cartesian2d<LogCoord<f64>, Y>>,
+    s: &SpectrumFit,
+    c: RGBColor,
+    level: f64,
+    rg: &TeffRanges,
+    fig: Figure,
+    sc: &Scale,
+) -> Result<()>
+where
+    DB: DrawingBackend + 'a,
+    Y: Ranged<ValueType = f64> + ValueFormatter<f64>,
+{
+    let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(TEFF);
+    let (t0, t1) = (rg.t0, rg.t1);
+    let ok: Vec<_> = s.points.iter().filter(|p| p.t_eff > 0.0).collect();
+    let band: Vec<(f64, f64)> = ok
+        .iter()
+        .filter_map(|p| Some((p.f, p.high?)))
+        .chain(ok.iter().rev().filter_map(|p| Some((p.f, p.low?.max(t0)))))
+        .collect();
+    if band.len() > 2 {
+        chart
+            .draw_series(std::iter::once(Polygon::new(band, c.mix(0.2).filled())))
+            .map_err(&e)?
+            .label(format!("{:.0}% interval", 100.0 * level))
+            .legend(move |(x, y)| {
+                Rectangle::new([(x, y - 6), (x + 20, y + 6)], c.mix(0.3).filled())
+            });
+    }
+    let label = s.tw.map_or_else(
+        || "T_eff(f)".to_string(),
+        |t| format!("T_eff(f), tw = {}", crate::report::format::fmt_num(t)),
+    );
+    chart
+        .draw_series(LineSeries::new(
+            ok.iter().map(|p| (p.f, p.t_eff)),
+            c.stroke_width(sc.line),
+        ))
+        .map_err(&e)?
+        .label(label)
+        .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], c.stroke_width(3)));
+    if let Some(d) = &s.departure {
+        let fd = d.below_hz;
+        chart
+            .draw_series(DashedLineSeries::new(
+                vec![(fd, t0), (fd, t1)],
+                (10.0 * f64::from(fig.width) / 1000.0) as u32,
+                (8.0 * f64::from(fig.width) / 1000.0) as u32,
+                PALETTE[3].stroke_width(sc.line),
+            ))
+            .map_err(&e)?
+            .label(format!(
+                "departs from T below {} Hz ({}: T_eff {} T)",
+                super::sig(fd, 3),
+                d.direction.label(),
+                d.direction.side()
+            ))
+            .legend(|(x, y)| {
+                PathElement::new(vec![(x, y), (x + 20, y)], PALETTE[3].stroke_width(3))
+            });
     }
     Ok(())
 }
