@@ -12,7 +12,7 @@
 //! `fdtemp synth`, kept small (few points, `-B 200`) so the pinned files stay small.
 
 use assert_cmd::Command;
-use fdtemp::synth::{SpectrumSpec, SynthSpec, generate, generate_spectrum};
+use fdtemp::scenarios::synth::{SpectrumSpec, SynthSpec, generate, generate_spectrum};
 use std::path::{Path, PathBuf};
 
 fn pinned_dir() -> PathBuf {
