@@ -3,7 +3,7 @@
 //! its null is the line of slope −1. The slope above the break is checked by a free line
 //! through the points above it.
 
-use super::{Draw, FdModel, FitBuffers, GroupPoints, Values, equilibrium_level};
+use super::{Draw, FdModel, FitBuffers, GroupPoints, Values, minus_one_shift};
 use crate::fit::{Base, broken, fit_line};
 use crate::twotime::result::Curve;
 use crate::twotime::settings::Model;
@@ -72,8 +72,7 @@ impl FdModel for FixedSlope {
     }
 
     fn null_shift(&self, pts: GroupPoints<'_>) -> Vec<f64> {
-        let c0 = equilibrium_level(pts);
-        pts.x.iter().zip(pts.y).map(|(x, y)| x + y - c0).collect()
+        minus_one_shift(pts)
     }
 
     fn curve(&self, d: &Draw) -> Curve {

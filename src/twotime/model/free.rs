@@ -2,9 +2,8 @@
 //! below, X = c − b. Its null is one straight line of free slope; the upper slope b is the
 //! thermometer's check.
 
-use super::{Draw, FdModel, FitBuffers, GroupPoints, Values};
+use super::{FdModel, FitBuffers, GroupPoints, Values};
 use crate::fit::{Base, broken, fit_line};
-use crate::twotime::result::Curve;
 use crate::twotime::settings::Model;
 
 /// Both slopes fitted.
@@ -62,15 +61,6 @@ impl FdModel for FreeSlopes {
                 .map(|(x, y)| y - l.intercept - l.slope * x)
                 .collect(),
             None => vec![0.0; pts.x.len()],
-        }
-    }
-
-    fn curve(&self, d: &Draw) -> Curve {
-        Curve {
-            q: d.q,
-            intercept: d.intercept,
-            slope_above: d.fast,
-            slope_below: -d.ratio,
         }
     }
 }

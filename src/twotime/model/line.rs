@@ -2,9 +2,8 @@
 //! of slope −1. Used where the whole curve is one regime (e.g. free diffusion, or a range
 //! of C chosen with `--range`).
 
-use super::{Draw, FdModel, FitBuffers, GroupPoints, Values, equilibrium_level};
+use super::{FdModel, FitBuffers, GroupPoints, Values, equilibrium_level, minus_one_shift};
 use crate::fit::{BreakSolution, fit_line};
-use crate::twotime::result::Curve;
 use crate::twotime::settings::Model;
 
 /// One line, slope free.
@@ -67,16 +66,6 @@ impl FdModel for SingleLine {
     }
 
     fn null_shift(&self, pts: GroupPoints<'_>) -> Vec<f64> {
-        let c0 = equilibrium_level(pts);
-        pts.x.iter().zip(pts.y).map(|(x, y)| y - (c0 - x)).collect()
-    }
-
-    fn curve(&self, d: &Draw) -> Curve {
-        Curve {
-            q: d.q,
-            intercept: d.intercept,
-            slope_above: d.fast,
-            slope_below: -d.ratio,
-        }
+        minus_one_shift(pts)
     }
 }

@@ -136,8 +136,22 @@ pub trait FdModel: Sync {
     -> Option<f64>;
     /// `r̂ − f̂₀` per point: subtracting it moves a resample onto the fitted null model.
     fn null_shift(&self, pts: GroupPoints<'_>) -> Vec<f64>;
-    /// The fitted curve in plot coordinates.
-    fn curve(&self, d: &Draw) -> Curve;
+    /// The fitted curve in plot coordinates (by default: the fitted slope above the
+    /// break, −X below it).
+    fn curve(&self, d: &Draw) -> Curve {
+        Curve {
+            q: d.q,
+            intercept: d.intercept,
+            slope_above: d.fast,
+            slope_below: -d.ratio,
+        }
+    }
+}
+
+/// `r̂ − f̂₀` when the null is the line of slope −1: `x + y` minus its weighted mean.
+fn minus_one_shift(pts: GroupPoints<'_>) -> Vec<f64> {
+    let c0 = equilibrium_level(pts);
+    pts.x.iter().zip(pts.y).map(|(x, y)| x + y - c0).collect()
 }
 
 /// The weighted mean of `x + y` (the intercept of the slope −1 line).
