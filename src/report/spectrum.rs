@@ -60,12 +60,23 @@ pub fn render(r: &SpectrumReport, extra_header: &[String]) -> Vec<u8> {
     o.into_bytes()
 }
 
+/// One spectrum's section of the report (one per waiting time).
 fn section(o: &mut String, r: &SpectrumReport, fit: &SpectrumFit, unit: &str) {
-    let s = &r.settings;
     let _ = writeln!(o);
     if let Some(tw) = fit.tw {
         let _ = writeln!(o, "── tw = {}", fmt_num(tw));
     }
+    summary(o, r, fit, unit);
+    if let Some(lvl) = fit.test_level {
+        departure_table(o, r, fit, lvl);
+    }
+    points_table(o, fit);
+}
+
+/// The spectrum's lines: its runs and frequencies, where intervals come from, the band
+/// average and the verdict.
+fn summary(o: &mut String, r: &SpectrumReport, fit: &SpectrumFit, unit: &str) {
+    let s = &r.settings;
     let (f0, f1) = (fit.points[0].f, fit.points[fit.points.len() - 1].f);
     let _ = writeln!(
         o,
@@ -105,33 +116,39 @@ fn section(o: &mut String, r: &SpectrumReport, fit: &SpectrumFit, unit: &str) {
         );
     }
     let _ = writeln!(o, "verdict     {}", fit.verdict);
-    if let Some(lvl) = fit.test_level {
+}
+
+/// The departure test's bands, each interval at the corrected level `lvl`.
+fn departure_table(o: &mut String, r: &SpectrumReport, fit: &SpectrumFit, lvl: f64) {
+    let _ = writeln!(
+        o,
+        "\ndeparture test: log bands, each interval at {:.4} = 1 − {:.2}/{} (Bonferroni)",
+        lvl,
+        1.0 - r.settings.level,
+        fit.test_bands.len()
+    );
+    let _ = writeln!(
+        o,
+        "  {:>10}  {:>10}  {:>6}  {:>10}  {:<22}  differs from T",
+        "fmin (Hz)", "fmax (Hz)", "freqs", "T_eff", "interval"
+    );
+    for tb in &fit.test_bands {
+        let b = &tb.band;
         let _ = writeln!(
             o,
-            "\ndeparture test: log bands, each interval at {:.4} = 1 − {:.2}/{} (Bonferroni)",
-            lvl,
-            1.0 - s.level,
-            fit.test_bands.len()
+            "  {:>10}  {:>10}  {:>6}  {:>10}  {:<22}  {}",
+            sig(b.fmin, 4),
+            sig(b.fmax, 4),
+            b.n_freqs,
+            b.t_eff.estimate.map_or("—".into(), |v| sig(v, 4)),
+            iv(b.t_eff.low, b.t_eff.high),
+            tb.direction.map_or("no", |d| d.label())
         );
-        let _ = writeln!(
-            o,
-            "  {:>10}  {:>10}  {:>6}  {:>10}  {:<22}  differs from T",
-            "fmin (Hz)", "fmax (Hz)", "freqs", "T_eff", "interval"
-        );
-        for tb in &fit.test_bands {
-            let b = &tb.band;
-            let _ = writeln!(
-                o,
-                "  {:>10}  {:>10}  {:>6}  {:>10}  {:<22}  {}",
-                sig(b.fmin, 4),
-                sig(b.fmax, 4),
-                b.n_freqs,
-                b.t_eff.estimate.map_or("—".into(), |v| sig(v, 4)),
-                iv(b.t_eff.low, b.t_eff.high),
-                tb.direction.map_or("no", |d| d.label())
-            );
-        }
     }
+}
+
+/// `T_eff(f)` at up to [`SHOWN`] log-spaced frequencies.
+fn points_table(o: &mut String, fit: &SpectrumFit) {
     let n = fit.points.len();
     let rows = log_spaced_rows(fit, SHOWN);
     let _ = writeln!(

@@ -451,9 +451,59 @@ fn analyze_group(
 ) -> Result<SpectrumFit> {
     let who = g.tw.map_or_else(String::new, |t| format!("tw = {t}: "));
     let n_runs = g.runs.len();
+    check_group(g, &who)?;
+    let dof = total_dof(g, s);
+    let mut warnings = Vec::new();
+    let errors = choose_errors(s, n_runs, dof.is_some(), &who, &mut warnings)?;
+    let fit = GroupFit::new(g, s, k, dof.as_deref(), &who)?;
+
+    // Intervals per frequency and per band: (low, high) at the band's level.
+    let iv = match errors {
+        ErrorModel::ChiSquare => {
+            let nu = dof.as_ref().expect("chi-square has dof");
+            fit.chi_square_intervals(nu, bin_rho2)
+        }
+        _ => {
+            let n_bands = fit.grid.edges.len();
+            crate::budget::check_spectrum(s.resamples, g.runs.len(), g.freqs.len(), n_bands)?;
+            fit.run_intervals()
+        }
+    };
+
+    let point_dof = if errors == ErrorModel::ChiSquare {
+        dof.as_deref()
+    } else {
+        None
+    };
+    let points = fit.points(&iv, point_dof);
+    let band = fit.band(0, &iv);
+    let test_bands = fit.test_bands(&iv);
+    let (departure, separate_bands) = find_departure(&test_bands);
+    if !separate_bands.is_empty() {
+        let level = fit.grid.test_level.unwrap_or(s.level);
+        warnings.push(separate_caution(&separate_bands, departure.as_ref(), level));
+    }
+    let verdict = verdict(&band, s, departure.as_ref());
+    Ok(SpectrumFit {
+        tw: g.tw,
+        n_runs,
+        errors,
+        points,
+        band: Some(band),
+        departure,
+        separate_bands,
+        test_bands,
+        test_level: fit.grid.test_level,
+        verdict,
+        warnings,
+    })
+}
+
+/// Groups from the reader are valid by construction; a caller of the library may build
+/// one by hand, so check the shapes and values once here.
+fn check_group(g: &SpectrumGroup, who: &str) -> Result<()> {
+    let n_runs = g.runs.len();
     let nf = g.freqs.len();
-    // Groups from the reader are valid by construction; a caller of the library may build
-    // one by hand, so check the shapes and values once here.
     let shape_ok = |a: &Array2<f64>| a.dim() == (n_runs, nf);
     let valid = n_runs > 0
         && nf > 0
@@ -473,15 +523,33 @@ fn analyze_group(
              frequencies, finite PSD >= 0, positive dissipation and dof, all of one shape"
         )));
     }
-    let dof: Option<Vec<f64>> = match (&g.dof, s.dof) {
+    Ok(())
+}
+
+/// Degrees of freedom of the mean PSD at each frequency (summed over runs), when known
+/// from the file's `dof` column or from `--dof`.
+fn total_dof(g: &SpectrumGroup, s: &SpectrumSettings) -> Option<Vec<f64>> {
+    match (&g.dof, s.dof) {
         (Some(d), _) => Some(d.sum_axis(Axis(0)).to_vec()),
-        (None, Some(d)) => Some(vec![d * n_runs as f64; nf]),
+        (None, Some(d)) => Some(vec![d * g.runs.len() as f64; g.freqs.len()]),
         (None, None) => None,
-    };
-    let mut warnings = Vec::new();
+    }
+}
+
+/// The error model for `n_runs` runs, with its cautions pushed to `warnings`.
+///
+/// # Errors
+/// [`Error::Analysis`] when the asked-for model cannot be used, or no model can.
+fn choose_errors(
+    s: &SpectrumSettings,
+    n_runs: usize,
+    has_dof: bool,
+    who: &str,
+    warnings: &mut Vec<String>,
+) -> Result<ErrorModel> {
     let errors = match s.errors {
         ErrorModel::Auto if n_runs >= FEW_RUNS => ErrorModel::Runs,
-        ErrorModel::Auto if dof.is_some() => ErrorModel::ChiSquare,
+        ErrorModel::Auto if has_dof => ErrorModel::ChiSquare,
         ErrorModel::Auto if n_runs >= 2 => {
             warnings.push(format!(
                 "only {n_runs} runs and no degrees of freedom: intervals from resampling so few \
@@ -494,7 +562,7 @@ fn analyze_group(
                 "{who}--errors runs needs at least 2 runs (a 'run' column); the input has {n_runs}"
             )));
         }
-        ErrorModel::ChiSquare if dof.is_none() => {
+        ErrorModel::ChiSquare if !has_dof => {
             return Err(Error::Analysis(format!(
                 "{who}chi-square intervals need the degrees of freedom: add a 'dof' column or give --dof"
             )));
@@ -519,258 +587,365 @@ fn analyze_group(
             "only {n_runs} runs: intervals from resampling fewer than {FEW_RUNS} runs are unreliable"
         ));
     }
+    Ok(errors)
+}
 
-    // At least one run was checked above, so the means exist.
-    let gbar = g.psd.mean_axis(Axis(0)).unwrap_or_default();
-    let lbar = g.loss.mean_axis(Axis(0)).unwrap_or_default();
-    let factor: Vec<f64> = g
-        .freqs
-        .iter()
-        .map(|&f| s.convention.factor(f) / k)
-        .collect();
-    let t_hat: Vec<f64> = (0..nf).map(|j| factor[j] * gbar[j] / lbar[j]).collect();
+/// The bands of one spectrum and the frequencies inside each.
+struct BandGrid {
+    /// `(fmin, fmax)`: the user's band (or all frequencies) first, then the test's bands.
+    edges: Vec<(f64, f64)>,
+    /// Which bands each frequency belongs to.
+    members: Vec<Vec<usize>>,
+    /// Frequencies inside each band.
+    count: Vec<usize>,
+    /// The level of each test band's interval (Bonferroni-corrected), when there are any.
+    test_level: Option<f64>,
+}
 
-    let (bands, n_test) = make_bands(&g.freqs, s);
-    let members = membership(&g.freqs, &bands);
-    let count: Vec<usize> = (0..bands.len())
-        .map(|b| members.iter().filter(|m| m.contains(&b)).count())
-        .collect();
-    if count[0] == 0 {
-        return Err(Error::Analysis(format!(
-            "{who}no frequency inside --band {}:{} (the data span {} to {} Hz)",
-            bands[0].0,
-            bands[0].1,
-            g.freqs[0],
-            g.freqs[nf - 1]
-        )));
+impl BandGrid {
+    /// # Errors
+    /// [`Error::Analysis`] when no frequency lies inside the user's band.
+    fn new(freqs: &[f64], s: &SpectrumSettings, who: &str) -> Result<Self> {
+        let nf = freqs.len();
+        let (edges, n_test) = make_bands(freqs, s);
+        let members = membership(freqs, &edges);
+        let count: Vec<usize> = (0..edges.len())
+            .map(|b| members.iter().filter(|m| m.contains(&b)).count())
+            .collect();
+        if count[0] == 0 {
+            return Err(Error::Analysis(format!(
+                "{who}no frequency inside --band {}:{} (the data span {} to {} Hz)",
+                edges[0].0,
+                edges[0].1,
+                freqs[0],
+                freqs[nf - 1]
+            )));
+        }
+        let alpha = 1.0 - s.level;
+        let test_level = (n_test > 0).then(|| 1.0 - alpha / n_test as f64);
+        Ok(BandGrid {
+            edges,
+            members,
+            count,
+            test_level,
+        })
     }
-    let alpha = 1.0 - s.level;
-    let test_level = (n_test > 0).then(|| 1.0 - alpha / n_test as f64);
-    let weights: Vec<f64> = dof.clone().unwrap_or_else(|| vec![1.0; nf]);
-    let band_mean = |b: usize, t: &[f64]| {
+
+    /// The level of band `b`'s interval: the asked-for level for the user's band, the
+    /// corrected level for a test band.
+    fn level(&self, b: usize, s: &SpectrumSettings) -> f64 {
+        if b == 0 {
+            s.level
+        } else {
+            self.test_level.unwrap_or(s.level)
+        }
+    }
+
+    /// The `weights`-weighted mean of `t` over band `b`.
+    fn mean(&self, b: usize, weights: &[f64], t: &[f64]) -> f64 {
         let (mut num, mut den) = (0.0, 0.0);
-        for j in 0..nf {
-            if members[j].contains(&b) {
+        for j in 0..weights.len() {
+            if self.members[j].contains(&b) {
                 num += weights[j] * t[j];
                 den += weights[j];
             }
         }
         num / den
-    };
-    let band_est: Vec<f64> = (0..bands.len()).map(|b| band_mean(b, &t_hat)).collect();
-
-    // Intervals per frequency and per band: (low, high) at the band's level.
-    let (point_iv, band_iv, band_dof): (Vec<Ends>, Vec<Ends>, Vec<Option<f64>>) = match errors {
-        ErrorModel::ChiSquare => {
-            let nu = dof.as_ref().expect("chi-square has dof");
-            let piv = (0..nf)
-                .map(|j| chi_interval(t_hat[j], nu[j], s.level))
-                .collect();
-            let mut biv = Vec::new();
-            let mut bdof = Vec::new();
-            for (b, &m) in count.iter().enumerate() {
-                let sum_nu: f64 = (0..nf)
-                    .filter(|&j| members[j].contains(&b))
-                    .map(|j| nu[j])
-                    .sum();
-                let nu_b = sum_nu / (1.0 + 2.0 * correlation_sum(bin_rho2, m));
-                let lvl = if b == 0 {
-                    s.level
-                } else {
-                    test_level.unwrap_or(s.level)
-                };
-                biv.push(if m > 0 {
-                    chi_interval(band_est[b], nu_b, lvl)
-                } else {
-                    None
-                });
-                bdof.push((m > 0).then_some(nu_b));
-            }
-            (piv, biv, bdof)
-        }
-        _ => {
-            crate::budget::check_spectrum(s.resamples, g.runs.len(), g.freqs.len(), bands.len())?;
-            let (piv, biv) = run_intervals(
-                g, &factor, &members, &weights, &band_est, &t_hat, s, test_level,
-            );
-            (piv, biv, vec![None; bands.len()])
-        }
-    };
-
-    let points = (0..nf)
-        .map(|j| SpectrumPoint {
-            f: g.freqs[j],
-            t_eff: t_hat[j],
-            low: point_iv[j].map(|v| v.0),
-            high: point_iv[j].map(|v| v.1),
-            psd: gbar[j],
-            loss: lbar[j],
-            dof: if errors == ErrorModel::ChiSquare {
-                dof.as_ref().map(|d| d[j])
-            } else {
-                None
-            },
-        })
-        .collect();
-    let make_band = |b: usize| Band {
-        fmin: bands[b].0,
-        fmax: bands[b].1,
-        n_freqs: count[b],
-        dof: band_dof[b],
-        t_eff: Estimate {
-            estimate: Some(band_est[b]),
-            low: band_iv[b].map(|v| v.0),
-            high: band_iv[b].map(|v| v.1),
-            note: None,
-        },
-    };
-    let band = make_band(0);
-    let mut test_bands = Vec::new();
-    if let Some(t) = s.temperature {
-        for b in (1..bands.len()).filter(|&b| count[b] > 0) {
-            let tb = make_band(b);
-            let direction = match (tb.t_eff.low, tb.t_eff.high) {
-                (Some(lo), _) if t < lo => Some(Direction::Hot),
-                (_, Some(hi)) if t > hi => Some(Direction::Cold),
-                _ => None,
-            };
-            test_bands.push(TestBand {
-                band: tb,
-                departs: direction.is_some(),
-                direction,
-            });
-        }
     }
-    let (departure, separate_bands) = find_departure(&test_bands);
-    if !separate_bands.is_empty() {
-        let level = test_level.unwrap_or(s.level);
-        warnings.push(separate_caution(&separate_bands, departure.as_ref(), level));
+
+    /// The sum of `v` over the frequencies of band `b`.
+    fn sum(&self, b: usize, v: &[f64]) -> f64 {
+        (0..v.len())
+            .filter(|&j| self.members[j].contains(&b))
+            .map(|j| v[j])
+            .sum()
     }
-    let verdict = verdict(&band, s, departure.as_ref());
-    Ok(SpectrumFit {
-        tw: g.tw,
-        n_runs,
-        errors,
-        points,
-        band: Some(band),
-        departure,
-        separate_bands,
-        test_bands,
-        test_level,
-        verdict,
-        warnings,
-    })
 }
 
-/// Bootstrap over runs: per-frequency intervals and band intervals, in frequency chunks.
-#[allow(clippy::too_many_arguments)]
-fn run_intervals(
-    g: &SpectrumGroup,
-    factor: &[f64],
-    members: &[Vec<usize>],
-    weights: &[f64],
-    band_est: &[f64],
-    t_hat: &[f64],
-    s: &SpectrumSettings,
-    test_level: Option<f64>,
-) -> (Vec<Ends>, Vec<Ends>) {
-    let r = g.runs.len();
-    let nf = g.freqs.len();
-    let nb = band_est.len();
-    let b_total = s.resamples;
-    let mut w = Array2::<f64>::zeros((b_total, r));
-    let mut counts = vec![0u32; r];
-    for b in 0..b_total {
-        resample::draw_counts(s.seed, b as u64, r, &mut counts);
-        for (i, &c) in counts.iter().enumerate() {
-            w[[b, i]] = f64::from(c) / r as f64;
+/// Intervals per frequency and per band: (low, high) at the band's level.
+struct Intervals {
+    point: Vec<Ends>,
+    band: Vec<Ends>,
+    /// Equivalent degrees of freedom of each band (chi-square model).
+    band_dof: Vec<Option<f64>>,
+}
+
+/// One spectrum with its point estimates and bands: what the intervals are built from.
+struct GroupFit<'a> {
+    g: &'a SpectrumGroup,
+    s: &'a SpectrumSettings,
+    /// Mean PSD over runs.
+    gbar: Vec<f64>,
+    /// Mean dissipation over runs.
+    lbar: Vec<f64>,
+    /// The convention's factor over `k` at each frequency.
+    factor: Vec<f64>,
+    /// `T_eff` at each frequency.
+    t_hat: Vec<f64>,
+    grid: BandGrid,
+    /// Weight of each frequency in a band average (its dof, or 1).
+    weights: Vec<f64>,
+    /// Each band's average of `T_eff`.
+    band_est: Vec<f64>,
+}
+
+impl<'a> GroupFit<'a> {
+    /// # Errors
+    /// As [`BandGrid::new`].
+    fn new(
+        g: &'a SpectrumGroup,
+        s: &'a SpectrumSettings,
+        k: f64,
+        dof: Option<&[f64]>,
+        who: &str,
+    ) -> Result<Self> {
+        let nf = g.freqs.len();
+        // At least one run was checked (`check_group`), so the means exist.
+        let gbar = g.psd.mean_axis(Axis(0)).unwrap_or_default().to_vec();
+        let lbar = g.loss.mean_axis(Axis(0)).unwrap_or_default().to_vec();
+        let factor: Vec<f64> = g
+            .freqs
+            .iter()
+            .map(|&f| s.convention.factor(f) / k)
+            .collect();
+        let t_hat: Vec<f64> = (0..nf).map(|j| factor[j] * gbar[j] / lbar[j]).collect();
+        let grid = BandGrid::new(&g.freqs, s, who)?;
+        let weights: Vec<f64> = dof.map_or_else(|| vec![1.0; nf], <[f64]>::to_vec);
+        let band_est: Vec<f64> = (0..grid.edges.len())
+            .map(|b| grid.mean(b, &weights, &t_hat))
+            .collect();
+        Ok(GroupFit {
+            g,
+            s,
+            gbar,
+            lbar,
+            factor,
+            t_hat,
+            grid,
+            weights,
+            band_est,
+        })
+    }
+
+    /// Chi-square intervals from the degrees of freedom `nu` of each frequency; a band's
+    /// are Satterthwaite's, corrected for the correlation `bin_rho2` of neighbouring bins.
+    fn chi_square_intervals(&self, nu: &[f64], bin_rho2: &[f64]) -> Intervals {
+        let s = self.s;
+        let point = (0..nu.len())
+            .map(|j| chi_interval(self.t_hat[j], nu[j], s.level))
+            .collect();
+        let mut band = Vec::new();
+        let mut band_dof = Vec::new();
+        for (b, &m) in self.grid.count.iter().enumerate() {
+            let sum_nu = self.grid.sum(b, nu);
+            let nu_b = sum_nu / (1.0 + 2.0 * correlation_sum(bin_rho2, m));
+            let lvl = self.grid.level(b, s);
+            band.push(if m > 0 {
+                chi_interval(self.band_est[b], nu_b, lvl)
+            } else {
+                None
+            });
+            band_dof.push((m > 0).then_some(nu_b));
+        }
+        Intervals {
+            point,
+            band,
+            band_dof,
         }
     }
-    let rf = r as f64;
-    let n_chunks = nf.div_ceil(FREQ_CHUNK);
-    // Per chunk: per-frequency intervals, and per-replicate band sums (num) for each band.
-    let parts: Vec<(Vec<Ends>, Array2<f64>, Array2<f64>)> = (0..n_chunks)
-        .into_par_iter()
-        .map(|c| {
-            let (j0, j1) = (c * FREQ_CHUNK, ((c + 1) * FREQ_CHUNK).min(nf));
-            let gp = w.dot(&g.psd.slice(s![.., j0..j1]));
-            let gl = w.dot(&g.loss.slice(s![.., j0..j1]));
-            let gsum = g.psd.slice(s![.., j0..j1]).sum_axis(Axis(0));
-            let lsum = g.loss.slice(s![.., j0..j1]).sum_axis(Axis(0));
-            let mut band_num = Array2::<f64>::zeros((b_total, nb));
-            let mut jack_num = Array2::<f64>::zeros((r, nb));
-            let mut ivs = Vec::with_capacity(j1 - j0);
-            let mut reps = vec![0.0; b_total];
-            let mut jack = vec![0.0; r];
-            for (jj, j) in (j0..j1).enumerate() {
-                for b in 0..b_total {
-                    reps[b] = factor[j] * gp[[b, jj]] / gl[[b, jj]];
-                    for &bi in &members[j] {
-                        band_num[[b, bi]] += weights[j] * reps[b];
-                    }
-                }
-                for i in 0..r {
-                    let gi = (gsum[jj] - g.psd[[i, j]]) / (rf - 1.0);
-                    let li = (lsum[jj] - g.loss[[i, j]]) / (rf - 1.0);
-                    jack[i] = factor[j] * gi / li;
-                    for &bi in &members[j] {
-                        jack_num[[i, bi]] += weights[j] * jack[i];
-                    }
-                }
-                ivs.push(
-                    resample::interval(t_hat[j], &reps, Some(&jack), s.interval, s.level)
-                        .map(|iv| (iv.low, iv.high)),
-                );
-            }
-            (ivs, band_num, jack_num)
-        })
-        .collect();
-    let mut point_iv = Vec::with_capacity(nf);
-    let mut band_num = Array2::<f64>::zeros((b_total, nb));
-    let mut jack_num = Array2::<f64>::zeros((r, nb));
-    for (ivs, bn, jn) in parts {
-        point_iv.extend(ivs);
-        band_num += &bn;
-        jack_num += &jn;
+
+    /// Bootstrap over runs: per-frequency intervals and band intervals, in frequency chunks.
+    fn run_intervals(&self) -> Intervals {
+        let (r, nf, nb) = (self.g.runs.len(), self.g.freqs.len(), self.band_est.len());
+        let b_total = self.s.resamples;
+        let w = self.resample_weights();
+        let n_chunks = nf.div_ceil(FREQ_CHUNK);
+        // Per chunk: per-frequency intervals, and per-replicate band sums (num) for each band.
+        let parts: Vec<ChunkSums> = (0..n_chunks)
+            .into_par_iter()
+            .map(|c| self.run_chunk(&w, c * FREQ_CHUNK, ((c + 1) * FREQ_CHUNK).min(nf)))
+            .collect();
+        let mut point = Vec::with_capacity(nf);
+        let mut band_num = Array2::<f64>::zeros((b_total, nb));
+        let mut jack_num = Array2::<f64>::zeros((r, nb));
+        for ChunkSums {
+            ivs,
+            band: bn,
+            jack: jn,
+        } in parts
+        {
+            point.extend(ivs);
+            band_num += &bn;
+            jack_num += &jn;
+        }
+        Intervals {
+            point,
+            band: self.run_band_intervals(&band_num, &jack_num),
+            band_dof: vec![None; nb],
+        }
     }
-    let wsum: Vec<f64> = (0..nb)
-        .map(|b| {
-            (0..nf)
-                .filter(|&j| members[j].contains(&b))
-                .map(|j| weights[j])
-                .sum()
-        })
-        .collect();
-    // At least two runs reach the runs model, so r − 1 > 0 and t exists; normal otherwise.
-    let t_dist = StudentsT::new(0.0, 1.0, rf - 1.0).ok();
-    let normal = Normal::standard();
-    let quantile = |p: f64| {
-        t_dist
-            .as_ref()
-            .map_or(normal.inverse_cdf(p), |d| d.inverse_cdf(p))
-    };
-    let band_iv = (0..nb)
-        .map(|b| {
-            if !(wsum[b] > 0.0) {
-                return None;
+
+    /// The resampling weights `W`: replicates × runs, each row a draw's counts over `r`.
+    fn resample_weights(&self) -> Array2<f64> {
+        let r = self.g.runs.len();
+        let b_total = self.s.resamples;
+        let mut w = Array2::<f64>::zeros((b_total, r));
+        let mut counts = vec![0u32; r];
+        for b in 0..b_total {
+            resample::draw_counts(self.s.seed, b as u64, r, &mut counts);
+            for (i, &c) in counts.iter().enumerate() {
+                w[[b, i]] = f64::from(c) / r as f64;
             }
-            let reps: Vec<f64> = band_num.column(b).iter().map(|v| v / wsum[b]).collect();
-            let jack: Vec<f64> = jack_num.column(b).iter().map(|v| v / wsum[b]).collect();
-            if b == 0 {
-                resample::interval(band_est[b], &reps, Some(&jack), s.interval, s.level)
-                    .map(|iv| (iv.low, iv.high))
-            } else {
-                // Corrected levels reach far into the tails: use the bootstrap standard error
-                // there, which is stable for any B, with Student's t on r − 1 degrees of
-                // freedom and the SE scaled by √(r/(r−1)) (the bootstrap SE of a mean of r
-                // runs is the plug-in one; common practice for small samples).
-                let se = resample::bootstrap_se(&reps) * (rf / (rf - 1.0)).sqrt();
-                let z = quantile(0.5 + test_level.unwrap_or(s.level) / 2.0);
-                Some((band_est[b] - z * se, band_est[b] + z * se))
+        }
+        w
+    }
+
+    /// Frequencies `j0..j1`: their intervals, and their parts of every band's replicate
+    /// and jackknife sums.
+    fn run_chunk(&self, w: &Array2<f64>, j0: usize, j1: usize) -> ChunkSums {
+        let (g, s, factor, members) = (self.g, self.s, &self.factor, &self.grid.members);
+        let weights = &self.weights;
+        let (r, nb, b_total) = (g.runs.len(), self.band_est.len(), s.resamples);
+        let rf = r as f64;
+        let gp = w.dot(&g.psd.slice(s![.., j0..j1]));
+        let gl = w.dot(&g.loss.slice(s![.., j0..j1]));
+        let gsum = g.psd.slice(s![.., j0..j1]).sum_axis(Axis(0));
+        let lsum = g.loss.slice(s![.., j0..j1]).sum_axis(Axis(0));
+        let mut band_num = Array2::<f64>::zeros((b_total, nb));
+        let mut jack_num = Array2::<f64>::zeros((r, nb));
+        let mut ivs = Vec::with_capacity(j1 - j0);
+        let mut reps = vec![0.0; b_total];
+        let mut jack = vec![0.0; r];
+        for (jj, j) in (j0..j1).enumerate() {
+            for b in 0..b_total {
+                reps[b] = factor[j] * gp[[b, jj]] / gl[[b, jj]];
+                for &bi in &members[j] {
+                    band_num[[b, bi]] += weights[j] * reps[b];
+                }
             }
-        })
-        .collect();
-    (point_iv, band_iv)
+            for i in 0..r {
+                let gi = (gsum[jj] - g.psd[[i, j]]) / (rf - 1.0);
+                let li = (lsum[jj] - g.loss[[i, j]]) / (rf - 1.0);
+                jack[i] = factor[j] * gi / li;
+                for &bi in &members[j] {
+                    jack_num[[i, bi]] += weights[j] * jack[i];
+                }
+            }
+            ivs.push(
+                resample::interval(self.t_hat[j], &reps, Some(&jack), s.interval, s.level)
+                    .map(|iv| (iv.low, iv.high)),
+            );
+        }
+        ChunkSums {
+            ivs,
+            band: band_num,
+            jack: jack_num,
+        }
+    }
+
+    /// Band intervals from the replicate and jackknife sums of every band.
+    fn run_band_intervals(&self, band_num: &Array2<f64>, jack_num: &Array2<f64>) -> Vec<Ends> {
+        let s = self.s;
+        let rf = self.g.runs.len() as f64;
+        let nb = self.band_est.len();
+        let wsum: Vec<f64> = (0..nb).map(|b| self.grid.sum(b, &self.weights)).collect();
+        // At least two runs reach the runs model, so r − 1 > 0 and t exists; normal otherwise.
+        let t_dist = StudentsT::new(0.0, 1.0, rf - 1.0).ok();
+        let normal = Normal::standard();
+        let quantile = |p: f64| {
+            t_dist
+                .as_ref()
+                .map_or(normal.inverse_cdf(p), |d| d.inverse_cdf(p))
+        };
+        (0..nb)
+            .map(|b| {
+                if !(wsum[b] > 0.0) {
+                    return None;
+                }
+                let reps: Vec<f64> = band_num.column(b).iter().map(|v| v / wsum[b]).collect();
+                let jack: Vec<f64> = jack_num.column(b).iter().map(|v| v / wsum[b]).collect();
+                let est = self.band_est[b];
+                if b == 0 {
+                    resample::interval(est, &reps, Some(&jack), s.interval, s.level)
+                        .map(|iv| (iv.low, iv.high))
+                } else {
+                    // Corrected levels reach far into the tails: use the bootstrap standard
+                    // error there, which is stable for any B, with Student's t on r − 1
+                    // degrees of freedom and the SE scaled by √(r/(r−1)) (the bootstrap SE
+                    // of a mean of r runs is the plug-in one; common practice for small
+                    // samples).
+                    let se = resample::bootstrap_se(&reps) * (rf / (rf - 1.0)).sqrt();
+                    let z = quantile(0.5 + self.grid.level(b, s) / 2.0);
+                    Some((est - z * se, est + z * se))
+                }
+            })
+            .collect()
+    }
+
+    /// `T_eff(f)` with its intervals; `dof` per frequency when the model is chi-square.
+    fn points(&self, iv: &Intervals, dof: Option<&[f64]>) -> Vec<SpectrumPoint> {
+        (0..self.g.freqs.len())
+            .map(|j| SpectrumPoint {
+                f: self.g.freqs[j],
+                t_eff: self.t_hat[j],
+                low: iv.point[j].map(|v| v.0),
+                high: iv.point[j].map(|v| v.1),
+                psd: self.gbar[j],
+                loss: self.lbar[j],
+                dof: dof.map(|d| d[j]),
+            })
+            .collect()
+    }
+
+    /// Band `b` with its average and interval.
+    fn band(&self, b: usize, iv: &Intervals) -> Band {
+        Band {
+            fmin: self.grid.edges[b].0,
+            fmax: self.grid.edges[b].1,
+            n_freqs: self.grid.count[b],
+            dof: iv.band_dof[b],
+            t_eff: Estimate {
+                estimate: Some(self.band_est[b]),
+                low: iv.band[b].map(|v| v.0),
+                high: iv.band[b].map(|v| v.1),
+                note: None,
+            },
+        }
+    }
+
+    /// The departure test's bands that hold a frequency, each compared with `T` (none
+    /// without `T`).
+    fn test_bands(&self, iv: &Intervals) -> Vec<TestBand> {
+        let Some(t) = self.s.temperature else {
+            return Vec::new();
+        };
+        (1..self.grid.edges.len())
+            .filter(|&b| self.grid.count[b] > 0)
+            .map(|b| {
+                let tb = self.band(b, iv);
+                let direction = match (tb.t_eff.low, tb.t_eff.high) {
+                    (Some(lo), _) if t < lo => Some(Direction::Hot),
+                    (_, Some(hi)) if t > hi => Some(Direction::Cold),
+                    _ => None,
+                };
+                TestBand {
+                    band: tb,
+                    departs: direction.is_some(),
+                    direction,
+                }
+            })
+            .collect()
+    }
+}
+
+/// One chunk's part of the bootstrap over runs.
+struct ChunkSums {
+    /// Per-frequency intervals.
+    ivs: Vec<Ends>,
+    /// Per-replicate weighted sums of `T_eff` for each band.
+    band: Array2<f64>,
+    /// Per-jackknife-replicate weighted sums of `T_eff` for each band.
+    jack: Array2<f64>,
 }
 
 /// The departure: the run of differing bands, all on one side of `T`, that starts at the

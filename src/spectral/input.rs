@@ -109,14 +109,12 @@ pub fn read_spectra(path: &Path) -> Result<Vec<SpectrumGroup>> {
 /// # Errors
 /// As [`read_spectra`].
 pub fn parse_spectra<R: Read>(reader: R, file: &Path) -> Result<Vec<SpectrumGroup>> {
-    let err = |line: Option<u64>, col: Option<usize>, msg: String| {
-        Error::input(file, line, col.map(|c| c as u64 + 1), msg)
-    };
     let mut rdr = csv_reader(reader);
     let mut records = rdr.records();
     let header = match records.next() {
         None => {
-            return Err(err(
+            return Err(table_error(
+                file,
                 None,
                 None,
                 "the file is empty; expected a header line with columns f, psd, loss".into(),
@@ -124,57 +122,94 @@ pub fn parse_spectra<R: Read>(reader: R, file: &Path) -> Result<Vec<SpectrumGrou
         }
         Some(r) => Header::new(file, &r.map_err(|e| csv_error(file, e))?)?,
     };
-    let req = header.require(file, &["f", "psd", "loss"])?;
-    let (i_f, i_psd, i_loss) = (req[0], req[1], req[2]);
-    let (i_dof, i_run, i_tw) = (header.find("dof"), header.find("run"), header.find("tw"));
-
-    // (tw bits) -> group index; per group: run name -> rows.
-    let mut group_of: HashMap<u64, usize> = HashMap::new();
-    let mut groups: Vec<Pending> = Vec::new();
+    let cols = Columns::new(&header, file)?;
+    let mut pending = PendingGroups::default();
     for rec in records {
         let rec = rec.map_err(|e| csv_error(file, e))?;
         if is_blank(&rec) {
             continue;
         }
         header.check_width(file, &rec)?;
-        let line = line_of(&rec);
-        let num = |i: usize, name: &str| {
-            parse_number(&rec[i], name).map_err(|m| err(Some(line), Some(i), m))
-        };
-        let f = num(i_f, "f")?;
+        let (tw, run, row) = cols.row(&rec, file)?;
+        pending.push(tw, run, row, cols.f, file)?;
+    }
+    pending.into_groups(&cols, file)
+}
+
+/// An error in a spectrum table at `line` and the 0-based column `col`.
+fn table_error(file: &Path, line: Option<u64>, col: Option<usize>, msg: String) -> Error {
+    Error::input(file, line, col.map(|c| c as u64 + 1), msg)
+}
+
+/// Where the columns of a spectrum table are.
+struct Columns {
+    f: usize,
+    psd: usize,
+    loss: usize,
+    dof: Option<usize>,
+    run: Option<usize>,
+    tw: Option<usize>,
+}
+
+impl Columns {
+    /// # Errors
+    /// [`Error::Input`] when `f`, `psd` or `loss` is missing.
+    fn new(header: &Header, file: &Path) -> Result<Self> {
+        let req = header.require(file, &["f", "psd", "loss"])?;
+        Ok(Columns {
+            f: req[0],
+            psd: req[1],
+            loss: req[2],
+            dof: header.find("dof"),
+            run: header.find("run"),
+            tw: header.find("tw"),
+        })
+    }
+
+    /// One data row: its waiting time, its run's name and its checked values.
+    ///
+    /// # Errors
+    /// [`Error::Input`] for a non-number, a frequency that is not positive, a negative
+    /// PSD, a loss that is not positive or a non-positive dof.
+    fn row(&self, rec: &csv::StringRecord, file: &Path) -> Result<(Option<f64>, String, Row)> {
+        let err =
+            |line: u64, col: usize, msg: String| table_error(file, Some(line), Some(col), msg);
+        let line = line_of(rec);
+        let num = |i: usize, name: &str| parse_number(&rec[i], name).map_err(|m| err(line, i, m));
+        let f = num(self.f, "f")?;
         if !(f > 0.0) {
             return Err(err(
-                Some(line),
-                Some(i_f),
+                line,
+                self.f,
                 format!("column 'f' is {f}, expected a positive frequency in hertz"),
             ));
         }
-        let psd = num(i_psd, "psd")?;
+        let psd = num(self.psd, "psd")?;
         if psd < 0.0 {
             return Err(err(
-                Some(line),
-                Some(i_psd),
+                line,
+                self.psd,
                 format!("column 'psd' is {psd}, expected a number >= 0 (a power spectral density)"),
             ));
         }
-        let loss = num(i_loss, "loss")?;
+        let loss = num(self.loss, "loss")?;
         if !(loss > 0.0) {
             return Err(err(
-                Some(line),
-                Some(i_loss),
+                line,
+                self.loss,
                 format!(
                     "column 'loss' is {loss}, expected a positive number (the dissipative part \
                      is positive for a passive system)"
                 ),
             ));
         }
-        let dof = match i_dof {
+        let dof = match self.dof {
             Some(i) => {
                 let v = num(i, "dof")?;
                 if !(v > 0.0) {
                     return Err(err(
-                        Some(line),
-                        Some(i),
+                        line,
+                        i,
                         format!(
                             "column 'dof' is {v}, expected a positive number of degrees of freedom"
                         ),
@@ -184,10 +219,45 @@ pub fn parse_spectra<R: Read>(reader: R, file: &Path) -> Result<Vec<SpectrumGrou
             }
             None => None,
         };
-        let tw = i_tw.map(|i| num(i, "tw")).transpose()?;
-        let run = i_run.map_or_else(String::new, |i| rec[i].to_string());
+        let tw = self.tw.map(|i| num(i, "tw")).transpose()?;
+        let run = self.run.map_or_else(String::new, |i| rec[i].to_string());
+        let row = Row {
+            f,
+            psd,
+            loss,
+            dof,
+            line,
+        };
+        Ok((tw, run, row))
+    }
+}
+
+/// The rows read so far, by waiting time.
+#[derive(Default)]
+struct PendingGroups {
+    /// (tw bits) -> group index.
+    group_of: HashMap<u64, usize>,
+    /// Per group: run name -> rows.
+    groups: Vec<Pending>,
+}
+
+impl PendingGroups {
+    /// Adds a row to its waiting time's run.
+    ///
+    /// # Errors
+    /// [`Error::Input`] when its frequency is not above the run's previous one (`i_f`
+    /// is the frequency column).
+    fn push(
+        &mut self,
+        tw: Option<f64>,
+        run: String,
+        row: Row,
+        i_f: usize,
+        file: &Path,
+    ) -> Result<()> {
+        let groups = &mut self.groups;
         let key = tw.map_or(u64::MAX, f64::to_bits);
-        let gi = *group_of.entry(key).or_insert_with(|| {
+        let gi = *self.group_of.entry(key).or_insert_with(|| {
             groups.push(Pending {
                 tw,
                 names: Vec::new(),
@@ -205,14 +275,16 @@ pub fn parse_spectra<R: Read>(reader: R, file: &Path) -> Result<Vec<SpectrumGrou
             }
         };
         if let Some(prev) = rows[ri].last()
-            && !(f > prev.f)
+            && !(row.f > prev.f)
         {
-            return Err(err(
-                Some(line),
+            return Err(table_error(
+                file,
+                Some(row.line),
                 Some(i_f),
                 format!(
-                    "f = {f} is not above the previous frequency {} (line {}){}; expected \
+                    "f = {} is not above the previous frequency {} (line {}){}; expected \
                      increasing frequencies",
+                    row.f,
                     prev.f,
                     prev.line,
                     if run.is_empty() {
@@ -223,23 +295,46 @@ pub fn parse_spectra<R: Read>(reader: R, file: &Path) -> Result<Vec<SpectrumGrou
                 ),
             ));
         }
-        rows[ri].push(Row {
-            f,
-            psd,
-            loss,
-            dof,
-            line,
-        });
+        rows[ri].push(row);
+        Ok(())
     }
-    if groups.is_empty() {
-        return Err(err(None, None, "no data rows after the header".into()));
+
+    /// The spectrum groups, by increasing waiting time.
+    ///
+    /// # Errors
+    /// [`Error::Input`] when there is no row, or runs whose frequencies differ.
+    fn into_groups(self, cols: &Columns, file: &Path) -> Result<Vec<SpectrumGroup>> {
+        if self.groups.is_empty() {
+            return Err(table_error(
+                file,
+                None,
+                None,
+                "no data rows after the header".into(),
+            ));
+        }
+        let mut out = self
+            .groups
+            .into_iter()
+            .map(|p| p.into_group(cols, file))
+            .collect::<Result<Vec<_>>>()?;
+        out.sort_by(|a, b| a.tw.unwrap_or(0.0).total_cmp(&b.tw.unwrap_or(0.0)));
+        Ok(out)
     }
-    let mut out = Vec::new();
-    for Pending { tw, names, rows } in groups {
+}
+
+impl Pending {
+    /// The group of one waiting time, once every run is checked to have the first run's
+    /// frequencies.
+    ///
+    /// # Errors
+    /// [`Error::Input`] for a run with other frequencies than the first.
+    fn into_group(self, cols: &Columns, file: &Path) -> Result<SpectrumGroup> {
+        let Pending { tw, names, rows } = self;
         let first = &rows[0];
         for (name, r) in names.iter().zip(&rows).skip(1) {
             if r.len() != first.len() {
-                return Err(err(
+                return Err(table_error(
+                    file,
                     None,
                     None,
                     format!(
@@ -256,9 +351,10 @@ pub fn parse_spectra<R: Read>(reader: R, file: &Path) -> Result<Vec<SpectrumGrou
                 .zip(first)
                 .find(|(a, b)| a.f.total_cmp(&b.f).is_ne())
             {
-                return Err(err(
+                return Err(table_error(
+                    file,
                     Some(a.line),
-                    Some(i_f),
+                    Some(cols.f),
                     format!(
                         "f = {} in run '{name}' where run '{}' has f = {} (line {}); expected \
                          the same frequencies in every run",
@@ -270,17 +366,15 @@ pub fn parse_spectra<R: Read>(reader: R, file: &Path) -> Result<Vec<SpectrumGrou
         let (nr, nf) = (rows.len(), first.len());
         let grid =
             |get: &dyn Fn(&Row) -> f64| Array2::from_shape_fn((nr, nf), |(r, j)| get(&rows[r][j]));
-        out.push(SpectrumGroup {
+        Ok(SpectrumGroup {
             tw,
             freqs: first.iter().map(|r| r.f).collect(),
             psd: grid(&|r| r.psd),
             loss: grid(&|r| r.loss),
-            dof: i_dof.map(|_| grid(&|r| r.dof.unwrap_or(f64::NAN))),
+            dof: cols.dof.map(|_| grid(&|r| r.dof.unwrap_or(f64::NAN))),
             runs: names,
-        });
+        })
     }
-    out.sort_by(|a, b| a.tw.unwrap_or(0.0).total_cmp(&b.tw.unwrap_or(0.0)));
-    Ok(out)
 }
 
 /// Streams a noise record: `sink(run, value)` receives every sample in order. Returns
@@ -302,101 +396,22 @@ pub fn stream_records(path: &Path, sink: impl FnMut(usize, f64)) -> Result<Vec<S
 /// # Errors
 /// As [`stream_records`].
 pub fn stream_records_from<R: Read>(
-    mut reader: R,
+    reader: R,
     file: &Path,
     mut sink: impl FnMut(usize, f64),
 ) -> Result<Vec<String>> {
-    const BLOCK: usize = 1 << 16;
-    let mut buf: Vec<u8> = Vec::with_capacity(BLOCK * 2);
-    let mut start = 0usize; // first unconsumed byte in buf
+    let mut lines = BlockLines::new(reader);
     let mut line_no: u64 = 0;
     let mut names: Option<Vec<String>> = None;
-    let mut eof = false;
-    loop {
-        // Find the next complete line; read more when there is none.
-        let nl = memchr_newline(&buf[start..]);
-        let line: &[u8] = match nl {
-            Some(i) => &buf[start..start + i],
-            None if eof => {
-                if start >= buf.len() {
-                    break;
-                }
-                &buf[start..]
-            }
-            None => {
-                buf.drain(..start);
-                start = 0;
-                let old = buf.len();
-                buf.resize(old + BLOCK, 0);
-                let got = reader
-                    .read(&mut buf[old..])
-                    .map_err(|e| crate::input::read_error(file, e))?;
-                buf.truncate(old + got);
-                eof = got == 0;
-                continue;
-            }
-        };
-        let consumed = line.len() + usize::from(nl.is_some());
+    while let Some(line) = lines.next_line(file)? {
         line_no += 1;
-        let mut text = std::str::from_utf8(line).map_err(|_| {
-            Error::input(
-                file,
-                Some(line_no),
-                None,
-                "the file is not valid UTF-8 text",
-            )
-        })?;
-        if line_no == 1 {
-            text = text.trim_start_matches('\u{feff}');
-        }
-        let text = text.trim_end_matches('\r').trim();
-        if text.is_empty() || text.starts_with('#') {
-            start += consumed;
+        let Some(text) = record_text(line, line_no, file)? else {
             continue;
-        }
+        };
         match &names {
-            None => {
-                let fields: Vec<&str> = text.split(',').map(str::trim).collect();
-                if fields.len() == 1 && (text.contains(';') || text.contains('\t')) {
-                    return Err(Error::input(
-                        file,
-                        Some(line_no),
-                        Some(1),
-                        format!(
-                            "the line is '{text}': fdtemp reads comma-separated records (one \
-                             number per line, or one column per run separated by commas)"
-                        ),
-                    ));
-                }
-                if fields.iter().all(|f| f.parse::<f64>().is_ok()) {
-                    names = Some((1..=fields.len()).map(|i| i.to_string()).collect());
-                    emit(
-                        text,
-                        line_no,
-                        file,
-                        names.as_deref().unwrap_or(&[]),
-                        &mut sink,
-                    )?;
-                } else {
-                    let mut seen = std::collections::HashSet::new();
-                    for (i, f) in fields.iter().enumerate() {
-                        if !seen.insert(*f) {
-                            return Err(Error::input(
-                                file,
-                                Some(line_no),
-                                Some(i as u64 + 1),
-                                format!(
-                                    "column '{f}' appears twice in the header; expected each name once"
-                                ),
-                            ));
-                        }
-                    }
-                    names = Some(fields.iter().map(|f| f.to_string()).collect());
-                }
-            }
+            None => names = Some(first_record_line(text, line_no, file, &mut sink)?),
             Some(n) => emit(text, line_no, file, n, &mut sink)?,
         }
-        start += consumed;
     }
     names.ok_or_else(|| {
         Error::input(
@@ -406,6 +421,128 @@ pub fn stream_records_from<R: Read>(
             "the record is empty; expected one number per line (or one column per run)",
         )
     })
+}
+
+/// The lines of a reader, read in blocks of 64 KiB.
+struct BlockLines<R> {
+    reader: R,
+    buf: Vec<u8>,
+    /// First unconsumed byte in `buf`.
+    start: usize,
+    eof: bool,
+}
+
+impl<R: Read> BlockLines<R> {
+    const BLOCK: usize = 1 << 16;
+
+    fn new(reader: R) -> Self {
+        BlockLines {
+            reader,
+            buf: Vec::with_capacity(Self::BLOCK * 2),
+            start: 0,
+            eof: false,
+        }
+    }
+
+    /// The next line without its newline (the last one may have none), or `None` at the
+    /// end of the input.
+    ///
+    /// # Errors
+    /// [`Error::Input`] when the reader fails (naming the line when one is too long).
+    fn next_line(&mut self, file: &Path) -> Result<Option<&[u8]>> {
+        loop {
+            // Find the next complete line; read more when there is none.
+            let start = self.start;
+            match memchr_newline(&self.buf[start..]) {
+                Some(i) => {
+                    self.start += i + 1;
+                    return Ok(Some(&self.buf[start..start + i]));
+                }
+                None if self.eof => {
+                    if start >= self.buf.len() {
+                        return Ok(None);
+                    }
+                    self.start = self.buf.len();
+                    return Ok(Some(&self.buf[start..]));
+                }
+                None => {
+                    self.buf.drain(..start);
+                    self.start = 0;
+                    let old = self.buf.len();
+                    self.buf.resize(old + Self::BLOCK, 0);
+                    let got = self
+                        .reader
+                        .read(&mut self.buf[old..])
+                        .map_err(|e| crate::input::read_error(file, e))?;
+                    self.buf.truncate(old + got);
+                    self.eof = got == 0;
+                }
+            }
+        }
+    }
+}
+
+/// The text of line `line_no` of a record, trimmed; `None` for a blank or comment line.
+///
+/// # Errors
+/// [`Error::Input`] when the line is not UTF-8.
+fn record_text<'a>(line: &'a [u8], line_no: u64, file: &Path) -> Result<Option<&'a str>> {
+    let mut text = std::str::from_utf8(line).map_err(|_| {
+        Error::input(
+            file,
+            Some(line_no),
+            None,
+            "the file is not valid UTF-8 text",
+        )
+    })?;
+    if line_no == 1 {
+        text = text.trim_start_matches('\u{feff}');
+    }
+    let text = text.trim_end_matches('\r').trim();
+    Ok((!text.is_empty() && !text.starts_with('#')).then_some(text))
+}
+
+/// The run names from a record's first line: its header, or `1`, `2`, … when it is all
+/// numbers (then its numbers go to `sink`).
+///
+/// # Errors
+/// [`Error::Input`] for a line separated by something other than commas, a name that
+/// appears twice, or (for a data line) a bad number.
+fn first_record_line(
+    text: &str,
+    line_no: u64,
+    file: &Path,
+    sink: &mut impl FnMut(usize, f64),
+) -> Result<Vec<String>> {
+    let fields: Vec<&str> = text.split(',').map(str::trim).collect();
+    if fields.len() == 1 && (text.contains(';') || text.contains('\t')) {
+        return Err(Error::input(
+            file,
+            Some(line_no),
+            Some(1),
+            format!(
+                "the line is '{text}': fdtemp reads comma-separated records (one \
+                 number per line, or one column per run separated by commas)"
+            ),
+        ));
+    }
+    if fields.iter().all(|f| f.parse::<f64>().is_ok()) {
+        let names: Vec<String> = (1..=fields.len()).map(|i| i.to_string()).collect();
+        emit(text, line_no, file, &names, sink)?;
+        return Ok(names);
+    }
+    let mut seen = std::collections::HashSet::new();
+    for (i, f) in fields.iter().enumerate() {
+        if !seen.insert(*f) {
+            return Err(Error::input(
+                file,
+                Some(line_no),
+                Some(i as u64 + 1),
+                format!("column '{f}' appears twice in the header; expected each name once"),
+            ));
+        }
+    }
+    Ok(fields.iter().map(|f| f.to_string()).collect())
 }
 
 fn memchr_newline(b: &[u8]) -> Option<usize> {
