@@ -4,7 +4,9 @@
 
 use assert_cmd::Command;
 use fdtemp::common::Units;
+use fdtemp::report::spectrum::verdict;
 use fdtemp::spectral::analysis::{Direction, ErrorModel, SpectrumSettings};
+use fdtemp::spectral::findings::{SpectralFinding, SpectralVerdict};
 use fdtemp::spectral::input::{SpectrumGroup, parse_spectra};
 use fdtemp::spectral::welch::{Welch, WelchSettings};
 use fdtemp::spectral::{Convention, analyze_spectra};
@@ -361,7 +363,14 @@ fn a_hot_low_frequency_regime_is_detected_and_a_flat_one_is_not() {
         d.below_hz
     );
     assert!((d.from_hz - 0.1).abs() < 1e-12, "from {} Hz", d.from_hz);
-    assert!(r.spectra[0].verdict.contains("detectably above T (hot)"));
+    assert!(matches!(
+        r.spectra[0].verdict,
+        SpectralVerdict::BandAverage {
+            departure: Some((Direction::Hot, _)),
+            ..
+        }
+    ));
+    assert!(verdict(&r.spectra[0].verdict).contains("detectably above T (hot)"));
     // Flat spectra: the corrected test rarely reports a departure (at most 5% of runs
     // by construction; allow 2 of 20).
     let mut false_alarms = 0;
@@ -396,7 +405,7 @@ fn a_cold_low_frequency_regime_is_reported_as_cold() {
         "below {} Hz",
         d.below_hz
     );
-    assert!(r.spectra[0].verdict.contains("detectably below T (cold)"));
+    assert!(verdict(&r.spectra[0].verdict).contains("detectably below T (cold)"));
     assert!(r.spectra[0].separate_bands.is_empty());
 }
 
@@ -428,13 +437,13 @@ fn one_isolated_hot_band_is_a_separate_finding_not_a_departure_frequency() {
             .all(|b| b.direction == Direction::Hot && b.fmax > 90.0 && b.fmin < 160.0)
     );
     assert!(
-        fit.warnings
+        fit.cautions
             .iter()
-            .any(|w| w.contains("not a departure frequency")),
+            .any(|c| matches!(c.finding, SpectralFinding::SeparateBands { .. })),
         "{:?}",
-        fit.warnings
+        fit.cautions
     );
-    assert!(fit.verdict.contains("no low-frequency departure"));
+    assert!(verdict(&fit.verdict).contains("no low-frequency departure"));
 }
 
 #[test]

@@ -7,6 +7,7 @@ use fdtemp::output::{self, Output};
 use fdtemp::report::plot::{self, Figure};
 use fdtemp::resample::IntervalMethod;
 use fdtemp::spectral::analysis::ErrorModel;
+use fdtemp::spectral::findings::{SpectralCaution, SpectralFinding};
 use fdtemp::spectral::input::Window;
 use fdtemp::spectral::noise::{self, Dissipation, RecordPsd};
 use fdtemp::spectral::welch::WelchSettings;
@@ -303,9 +304,12 @@ fn noise_analysis(
     )
     .map_err(in_file(&a.file))?;
     if dropped > 0 {
-        report.warnings.push(format!(
-            "{dropped} frequencies outside the dissipation table's range were left out"
-        ));
+        report.cautions.push(SpectralCaution {
+            tw: None,
+            finding: SpectralFinding::OutsideTable {
+                frequencies: dropped,
+            },
+        });
     }
     Ok(report)
 }
@@ -320,7 +324,7 @@ fn spectral_outputs(
     if let Some(p) = json {
         outputs.push(Output {
             path: p.clone(),
-            bytes: fdtemp::report::json::to_json(report),
+            bytes: fdtemp::report::json::spectrum_json(report),
         });
     }
     if let Some((path, fig)) = figure {

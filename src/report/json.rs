@@ -1,7 +1,9 @@
 //! The JSON writer: the result structs as they are, pretty-printed; for a time-domain fit,
 //! every finding (caution or verdict) also carries its sentence as `message`.
 
-use super::findings;
+use super::{findings, spectrum};
+use crate::spectral::analysis::SpectrumReport;
+use crate::spectral::findings::{SpectralCaution, SpectralVerdict};
 use crate::twotime::{Caution, FitReport, Verdict};
 use serde::Serialize;
 use serde_json::Value;
@@ -32,6 +34,38 @@ pub fn fit_json(r: &FitReport) -> Vec<u8> {
         v
     });
     finish(value.and_then(|v| serde_json::to_vec_pretty(&v)))
+}
+
+/// A spectral analysis as JSON: the result as it is, with a `message` beside the code of
+/// every caution and verdict.
+pub fn spectrum_json(r: &SpectrumReport) -> Vec<u8> {
+    let value = serde_json::to_value(r).map(|mut v| {
+        spectral_messages(&mut v, None, &r.cautions);
+        if let Some(Value::Array(fits)) = v.get_mut("spectra") {
+            for (fv, f) in fits.iter_mut().zip(&r.spectra) {
+                spectral_messages(fv, Some(&f.verdict), &f.cautions);
+            }
+        }
+        v
+    });
+    finish(value.and_then(|v| serde_json::to_vec_pretty(&v)))
+}
+
+fn spectral_messages(
+    v: &mut Value,
+    verdict: Option<&SpectralVerdict>,
+    cautions: &[SpectralCaution],
+) {
+    if let (Some(Value::Object(m)), Some(verdict)) = (v.get_mut("verdict"), verdict) {
+        m.insert("message".into(), spectrum::verdict(verdict).into());
+    }
+    if let Some(Value::Array(a)) = v.get_mut("cautions") {
+        for (cv, c) in a.iter_mut().zip(cautions) {
+            if let Value::Object(m) = cv {
+                m.insert("message".into(), spectrum::caution(c).into());
+            }
+        }
+    }
 }
 
 fn add_messages(v: &mut Value, verdict: &Verdict, cautions: &[Caution]) {

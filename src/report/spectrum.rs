@@ -5,6 +5,7 @@ use super::sig;
 use super::text::wrap;
 use crate::common::Units;
 use crate::spectral::analysis::{ErrorModel, SpectrumFit, SpectrumReport};
+use crate::spectral::findings::{BathRelation, SpectralCaution, SpectralFinding, SpectralVerdict};
 use std::fmt::Write;
 
 /// Rows of the per-frequency table shown in text (all are in the JSON).
@@ -44,11 +45,11 @@ pub fn render(r: &SpectrumReport, extra_header: &[String]) -> Vec<u8> {
     for fit in &r.spectra {
         section(&mut o, r, fit, unit);
     }
-    let mut cautions: Vec<String> = r.warnings.clone();
+    let mut cautions: Vec<String> = r.cautions.iter().map(caution).collect();
     for f in &r.spectra {
         let who =
             f.tw.map_or_else(String::new, |t| format!("tw = {}: ", fmt_num(t)));
-        cautions.extend(f.warnings.iter().map(|w| format!("{who}{w}")));
+        cautions.extend(f.cautions.iter().map(|c| format!("{who}{}", caution(c))));
     }
     if !cautions.is_empty() {
         let _ = writeln!(o, "\ncautions");
@@ -115,7 +116,7 @@ fn summary(o: &mut String, r: &SpectrumReport, fit: &SpectrumFit, unit: &str) {
             iv(e.low, e.high)
         );
     }
-    let _ = writeln!(o, "verdict     {}", fit.verdict);
+    let _ = writeln!(o, "verdict     {}", verdict(&fit.verdict));
 }
 
 /// The departure test's bands, each interval at the corrected level `lvl`.
@@ -241,5 +242,111 @@ fn log_spaced_rows(fit: &SpectrumFit, n: usize) -> Vec<usize> {
         })
         .collect();
     out.dedup();
+    out
+}
+
+/// The sentence of a spectral caution (without its subject).
+pub fn caution(c: &SpectralCaution) -> String {
+    match &c.finding {
+        SpectralFinding::ChiSquareAssumesGaussian => "chi-square intervals assume Gaussian \
+             noise and an exact dissipation; intermittent noise makes them too narrow (resample \
+             runs when you have them)"
+            .into(),
+        SpectralFinding::FewRunsNoDof { runs } => format!(
+            "only {runs} runs and no degrees of freedom: intervals from resampling so few runs \
+             are unreliable"
+        ),
+        SpectralFinding::ShortRuns { runs, limit } => format!(
+            "{runs} runs: resampled 95% intervals run short below {limit} runs (measured on \
+             white records with 12 runs: 0.91 per frequency, 0.87 for the band average); the \
+             departure test's bands use Student's t and keep their level"
+        ),
+        SpectralFinding::FewRuns { runs, limit } => format!(
+            "only {runs} runs: intervals from resampling fewer than {limit} runs are unreliable"
+        ),
+        SpectralFinding::SeparateBands {
+            level,
+            bands,
+            after_departure,
+        } => {
+            let fmt = |v: f64| sig(v, 4);
+            let list: Vec<String> = bands
+                .iter()
+                .map(|b| {
+                    format!(
+                        "{}–{} Hz ({}: T_eff {} T)",
+                        fmt(b.fmin),
+                        fmt(b.fmax),
+                        b.direction.label(),
+                        b.direction.side()
+                    )
+                })
+                .collect();
+            let from = if *after_departure {
+                "the low-frequency departure"
+            } else {
+                "the lowest band"
+            };
+            format!(
+                "T_eff differs from T at the corrected level {level:.4} in {} band(s) not \
+                 contiguous with {from}: {}. This is a separate finding, not a departure \
+                 frequency; one band can be a line in the spectrum or a chance excursion — look \
+                 at T_eff(f) there",
+                bands.len(),
+                list.join(", ")
+            )
+        }
+        SpectralFinding::OutsideTable { frequencies } => {
+            format!("{frequencies} frequencies outside the dissipation table's range were left out")
+        }
+    }
+}
+
+/// The sentence of a spectrum's verdict.
+pub fn verdict(v: &SpectralVerdict) -> String {
+    let SpectralVerdict::BandAverage {
+        band: [fmin, fmax],
+        t_eff: [v, lo, hi],
+        kelvin,
+        bath,
+        relation,
+        departure,
+    } = v
+    else {
+        return "no interval could be formed".into();
+    };
+    let fmt = |v: f64| sig(v, 4);
+    let unit = if *kelvin { " K" } else { "" };
+    let mut out = format!(
+        "T_eff over {}–{} Hz = {}{unit} [{}, {}]",
+        fmt(*fmin),
+        fmt(*fmax),
+        fmt(*v),
+        fmt(*lo),
+        fmt(*hi)
+    );
+    let (Some(t), Some(rel)) = (bath, relation) else {
+        return out;
+    };
+    out.push_str(&match rel {
+        BathRelation::Equal => format!(
+            ": equal to the bath temperature {}{unit} within errors",
+            fmt(*t)
+        ),
+        BathRelation::Above => format!(": above the bath temperature {}{unit}", fmt(*t)),
+        BathRelation::Below => format!(": below the bath temperature {}{unit}", fmt(*t)),
+    });
+    match departure {
+        Some((d, [from, below])) => out.push_str(&format!(
+            "; T_eff is detectably {} T ({}) in every band from {} to {} Hz; above {} Hz no \
+             departure is detected at this precision",
+            d.side(),
+            d.label(),
+            fmt(*from),
+            fmt(*below),
+            fmt(*below)
+        )),
+        None => out.push_str("; no low-frequency departure from T at the corrected level"),
+    }
     out
 }

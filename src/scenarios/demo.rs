@@ -84,7 +84,7 @@ pub fn run(dir: &Path, progress: &dyn Progress) -> Result<Demo> {
         },
         Output {
             path: dir.join("spectrum-fit.json"),
-            bytes: crate::report::json::to_json(&spectrum),
+            bytes: crate::report::json::spectrum_json(&spectrum),
         },
         Output {
             path: campaign_path,

@@ -25,6 +25,7 @@
 //! 110 (1946).
 
 use super::Convention;
+use super::findings::{BathRelation, SpectralCaution, SpectralFinding, SpectralVerdict};
 use super::input::SpectrumGroup;
 use crate::common::Units;
 use crate::common::{Estimate, ToolInfo};
@@ -272,10 +273,10 @@ pub struct SpectrumFit {
     pub test_bands: Vec<TestBand>,
     /// The level of each band's interval in the departure test (Bonferroni-corrected).
     pub test_level: Option<f64>,
-    /// What the spectrum shows, in words.
-    pub verdict: String,
-    /// Cautions.
-    pub warnings: Vec<String>,
+    /// What the spectrum shows (a code and its numbers; the report says it in words).
+    pub verdict: SpectralVerdict,
+    /// Cautions about this spectrum.
+    pub cautions: Vec<SpectralCaution>,
 }
 
 /// The full result; the JSON output.
@@ -302,7 +303,7 @@ pub struct SpectrumReport {
     /// The last spectrum's departure.
     pub departure: Option<Departure>,
     /// Cautions about the whole input.
-    pub warnings: Vec<String>,
+    pub cautions: Vec<SpectralCaution>,
 }
 
 /// Analyzes every spectrum group.
@@ -329,11 +330,10 @@ pub fn analyze_spectra(
     if settings.errors != ErrorModel::Runs
         && spectra.iter().any(|s| s.errors == ErrorModel::ChiSquare)
     {
-        warnings.push(
-            "chi-square intervals assume Gaussian noise and an exact dissipation; intermittent \
-             noise makes them too narrow (resample runs when you have them)"
-                .into(),
-        );
+        warnings.push(SpectralCaution {
+            tw: None,
+            finding: SpectralFinding::ChiSquareAssumesGaussian,
+        });
     }
     Ok(SpectrumReport {
         schema: SCHEMA,
@@ -346,7 +346,7 @@ pub fn analyze_spectra(
         band: last.band.clone(),
         departure: last.departure.clone(),
         spectra,
-        warnings,
+        cautions: warnings,
     })
 }
 
@@ -481,7 +481,11 @@ fn analyze_group(
     let (departure, separate_bands) = find_departure(&test_bands);
     if !separate_bands.is_empty() {
         let level = fit.grid.test_level.unwrap_or(s.level);
-        warnings.push(separate_caution(&separate_bands, departure.as_ref(), level));
+        warnings.push(SpectralFinding::SeparateBands {
+            level,
+            bands: separate_bands.clone(),
+            after_departure: departure.is_some(),
+        });
     }
     let verdict = verdict(&band, s, departure.as_ref());
     Ok(SpectrumFit {
@@ -495,7 +499,10 @@ fn analyze_group(
         test_bands,
         test_level: fit.grid.test_level,
         verdict,
-        warnings,
+        cautions: warnings
+            .into_iter()
+            .map(|finding| SpectralCaution { tw: g.tw, finding })
+            .collect(),
     })
 }
 
@@ -545,16 +552,13 @@ fn choose_errors(
     n_runs: usize,
     has_dof: bool,
     who: &str,
-    warnings: &mut Vec<String>,
+    warnings: &mut Vec<SpectralFinding>,
 ) -> Result<ErrorModel> {
     let errors = match s.errors {
         ErrorModel::Auto if n_runs >= FEW_RUNS => ErrorModel::Runs,
         ErrorModel::Auto if has_dof => ErrorModel::ChiSquare,
         ErrorModel::Auto if n_runs >= 2 => {
-            warnings.push(format!(
-                "only {n_runs} runs and no degrees of freedom: intervals from resampling so few \
-                 runs are unreliable"
-            ));
+            warnings.push(SpectralFinding::FewRunsNoDof { runs: n_runs });
             ErrorModel::Runs
         }
         ErrorModel::Runs if n_runs < 2 => {
@@ -576,16 +580,16 @@ fn choose_errors(
         e => e,
     };
     if errors == ErrorModel::Runs && (FEW_RUNS..SHORT_RUNS).contains(&n_runs) {
-        warnings.push(format!(
-            "{n_runs} runs: resampled 95% intervals run short below {SHORT_RUNS} runs (measured \
-             on white records with 12 runs: 0.91 per frequency, 0.87 for the band average); the \
-             departure test's bands use Student's t and keep their level"
-        ));
+        warnings.push(SpectralFinding::ShortRuns {
+            runs: n_runs,
+            limit: SHORT_RUNS,
+        });
     }
     if errors == ErrorModel::Runs && n_runs < FEW_RUNS && s.errors == ErrorModel::Runs {
-        warnings.push(format!(
-            "only {n_runs} runs: intervals from resampling fewer than {FEW_RUNS} runs are unreliable"
-        ));
+        warnings.push(SpectralFinding::FewRuns {
+            runs: n_runs,
+            limit: FEW_RUNS,
+        });
     }
     Ok(errors)
 }
@@ -975,75 +979,26 @@ fn find_departure(tests: &[TestBand]) -> (Option<Departure>, Vec<SeparateBand>) 
     (departure, separate)
 }
 
-/// The caution for differing bands outside the low-frequency run.
-fn separate_caution(sep: &[SeparateBand], dep: Option<&Departure>, level: f64) -> String {
-    let fmt = |v: f64| crate::report::sig(v, 4);
-    let list: Vec<String> = sep
-        .iter()
-        .map(|b| {
-            format!(
-                "{}–{} Hz ({}: T_eff {} T)",
-                fmt(b.fmin),
-                fmt(b.fmax),
-                b.direction.label(),
-                b.direction.side()
-            )
-        })
-        .collect();
-    let from = if dep.is_some() {
-        "the low-frequency departure"
-    } else {
-        "the lowest band"
-    };
-    format!(
-        "T_eff differs from T at the corrected level {:.4} in {} band(s) not contiguous with \
-         {from}: {}. This is a separate finding, not a departure frequency; one band can be a \
-         line in the spectrum or a chance excursion — look at T_eff(f) there",
-        level,
-        sep.len(),
-        list.join(", ")
-    )
-}
-
-fn verdict(band: &Band, s: &SpectrumSettings, departure: Option<&Departure>) -> String {
-    let fmt = |v: f64| crate::report::sig(v, 4);
+fn verdict(band: &Band, s: &SpectrumSettings, departure: Option<&Departure>) -> SpectralVerdict {
     let e = &band.t_eff;
     let (Some(v), Some(lo), Some(hi)) = (e.estimate, e.low, e.high) else {
-        return "no interval could be formed".into();
+        return SpectralVerdict::NoInterval;
     };
-    let unit = if s.units == Units::Si { " K" } else { "" };
-    let mut out = format!(
-        "T_eff over {}–{} Hz = {}{unit} [{}, {}]",
-        fmt(band.fmin),
-        fmt(band.fmax),
-        fmt(v),
-        fmt(lo),
-        fmt(hi)
-    );
-    let Some(t) = s.temperature else {
-        return out;
-    };
-    if lo <= t && t <= hi {
-        out.push_str(&format!(
-            ": equal to the bath temperature {}{unit} within errors",
-            fmt(t)
-        ));
-    } else if lo > t {
-        out.push_str(&format!(": above the bath temperature {}{unit}", fmt(t)));
-    } else {
-        out.push_str(&format!(": below the bath temperature {}{unit}", fmt(t)));
+    let relation = s.temperature.map(|t| {
+        if lo <= t && t <= hi {
+            BathRelation::Equal
+        } else if lo > t {
+            BathRelation::Above
+        } else {
+            BathRelation::Below
+        }
+    });
+    SpectralVerdict::BandAverage {
+        band: [band.fmin, band.fmax],
+        t_eff: [v, lo, hi],
+        kelvin: s.units == Units::Si,
+        bath: s.temperature,
+        relation,
+        departure: departure.map(|d| (d.direction, [d.from_hz, d.below_hz])),
     }
-    match departure {
-        Some(d) => out.push_str(&format!(
-            "; T_eff is detectably {} T ({}) in every band from {} to {} Hz; above {} Hz no \
-             departure is detected at this precision",
-            d.direction.side(),
-            d.direction.label(),
-            fmt(d.from_hz),
-            fmt(d.below_hz),
-            fmt(d.below_hz)
-        )),
-        None => out.push_str("; no low-frequency departure from T at the corrected level"),
-    }
-    out
 }

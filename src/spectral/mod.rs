@@ -6,6 +6,7 @@
 //! which one the data follow: the convention is a setting and is printed with the result.
 
 pub mod analysis;
+pub mod findings;
 pub mod input;
 pub mod noise;
 pub mod welch;

@@ -1,0 +1,91 @@
+//! What a spectral analysis found, as typed values with stable codes (docs/findings.md);
+//! the report layer (`report::spectrum`) says each in words.
+
+use super::analysis::{Direction, SeparateBand};
+use serde::Serialize;
+
+/// A caution about the spectra.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+#[serde(tag = "code", rename_all = "snake_case")]
+pub enum SpectralFinding {
+    /// Chi-square intervals assume Gaussian noise and an exact dissipation.
+    ChiSquareAssumesGaussian,
+    /// A few runs and no degrees of freedom: run resampling is unreliable.
+    FewRunsNoDof {
+        /// Runs.
+        runs: usize,
+    },
+    /// 10–39 runs: resampled intervals run short (measured).
+    ShortRuns {
+        /// Runs.
+        runs: usize,
+        /// The size below which this fires.
+        limit: usize,
+    },
+    /// Run resampling asked for with fewer than 10 runs.
+    FewRuns {
+        /// Runs.
+        runs: usize,
+        /// The size below which this fires.
+        limit: usize,
+    },
+    /// Differing bands outside the low-frequency run: separate findings, not departures.
+    SeparateBands {
+        /// The corrected level of each band's test.
+        level: f64,
+        /// The bands.
+        bands: Vec<SeparateBand>,
+        /// Whether a low-frequency departure was found (else: counted from the lowest band).
+        after_departure: bool,
+    },
+    /// Frequencies outside the dissipation table's range were left out.
+    OutsideTable {
+        /// How many.
+        frequencies: usize,
+    },
+}
+
+/// A spectral caution with its subject: the spectrum at a waiting time, or all of them.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct SpectralCaution {
+    /// The waiting time of the spectrum it is about (`None`: the whole input).
+    pub tw: Option<f64>,
+    /// What was found.
+    #[serde(flatten)]
+    pub finding: SpectralFinding,
+}
+
+/// How the band average compares with the bath.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum BathRelation {
+    /// T lies inside the interval.
+    Equal,
+    /// The interval lies above T.
+    Above,
+    /// The interval lies below T.
+    Below,
+}
+
+/// What one spectrum shows.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+#[serde(tag = "code", rename_all = "snake_case")]
+pub enum SpectralVerdict {
+    /// No interval of the band average could be formed.
+    NoInterval,
+    /// The band average, and against the bath when T is given.
+    BandAverage {
+        /// The band's edges (Hz).
+        band: [f64; 2],
+        /// T_eff with its interval.
+        t_eff: [f64; 3],
+        /// Kelvin (SI) or reduced units.
+        kelvin: bool,
+        /// The bath temperature, when given.
+        bath: Option<f64>,
+        /// The band average against the bath.
+        relation: Option<BathRelation>,
+        /// The low-frequency departure: direction and the bands it spans (Hz).
+        departure: Option<(Direction, [f64; 2])>,
+    },
+}
