@@ -8,7 +8,7 @@
 //! and look at the figures (DEVELOPERS.md, "Looking at figures") before committing.
 //! Only SVG is pinned: PNG bytes may depend on the rasterizer.
 //!
-//! The campaigns and spectra are invented data (`fdtemp::synth`) or runs of
+//! The campaigns and spectra are invented data (`fdtemp::scenarios::synth`) or runs of
 //! `fdtemp synth`, kept small (few points, `-B 200`) so the pinned files stay small.
 
 use assert_cmd::Command;

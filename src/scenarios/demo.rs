@@ -122,7 +122,7 @@ fn truth(spec: &SynthSpec, spectrum_spec: &SpectrumSpec) -> serde_json::Value {
         "break": spec.plateau,
         "temperature": spec.temperature,
         "recipe": spec,
-        "source": "built in: fdtemp::synth with the demo recipe; the sample means lie on the \
+        "source": "built in: fdtemp::scenarios::synth with the demo recipe; the sample means lie on the \
                    broken stick by construction",
         "spectrum": {
             "scenario": "aging colloidal gel, voltage noise against dielectric loss (invented)",

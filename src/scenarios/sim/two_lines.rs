@@ -30,7 +30,7 @@ pub(super) fn two_lines(spec: &SimSpec) -> Result<SimOutput> {
             "ratio": synth.ratio,
             "t_eff": synth.temperature / synth.ratio,
             "break": synth.plateau,
-            "source": "invented: the sample means lie on the broken stick by construction (fdtemp::synth)",
+            "source": "invented: the sample means lie on the broken stick by construction (fdtemp::scenarios::synth)",
         }),
     })
 }
