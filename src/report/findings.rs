@@ -1,7 +1,7 @@
 //! Findings in words: one sentence per caution code and per verdict code. The text report
 //! prints these; the JSON carries them as `message` beside the code and the numbers.
 
-use super::format::{fmt_num, fmt_p_resampled};
+use super::format::{Digits, distinct, fmt_num, num3, p_clause, with_interval};
 use crate::twotime::findings::{Caution, Finding, Subject, Verdict};
 use crate::twotime::settings::Hold;
 
@@ -89,24 +89,26 @@ fn break_finding(f: &Finding) -> String {
             p,
             resamples,
         } => {
-            let ends = match (low, high) {
-                (Some(lo), Some(hi)) => format!(" [{lo:.3}, {hi:.3}]"),
-                _ => String::new(),
+            let slope = match (low, high) {
+                (Some(lo), Some(hi)) => with_interval(*slope, *lo, *hi),
+                _ => num3(*slope),
             };
             format!(
-                "the slope above the break is {slope:.3}{ends}, not -1 (p = {}): the thermometer \
-                 or the response units may be off, the system may be driven, or the curve bends \
+                "the slope above the break is {slope}, not -1 ({}): the thermometer or the \
+                 response units may be off, the system may be driven, or the curve bends \
                  gradually rather than at one break",
-                fmt_p_resampled(*p, *resamples)
+                p_clause(*p, *resamples)
             )
         }
         Finding::RatioAboveOne { ratio } => format!(
-            "X = {ratio:.3} > 1 (T_eff below the bath temperature): reported as measured; this \
-             happens after heating, or when the response units are off"
+            "X = {} > 1 (T_eff below the bath temperature): reported as measured; this \
+             happens after heating, or when the response units are off",
+            num3(*ratio)
         ),
         Finding::RatioBelowZero { ratio } => format!(
-            "X = {ratio:.3} < 0 (negative T_eff): reported as measured; some kinetically \
-             constrained systems do this, otherwise suspect the sign of the response"
+            "X = {} < 0 (negative T_eff): reported as measured; some kinetically \
+             constrained systems do this, otherwise suspect the sign of the response",
+            num3(*ratio)
         ),
         _ => finding(f),
     }
@@ -126,10 +128,14 @@ fn aging(f: &Finding) -> String {
         return String::new();
     };
     let h = hold.name();
+    let s = distinct(&[*change_per_decade, *low, *high], Digits::Fixed(3), true);
     format!(
-        "X changes with age: {change_per_decade:+.3} [{low:+.3}, {high:+.3}] per decade of {h} \
+        "X changes with age: {} [{}, {}] per decade of {h} \
          over {curves} curves ({h} = {} to {}); the slow regime has not reached its aging \
          limit, so the joint fit mixes ages — quote the per-{h} values or the oldest one",
+        s[0],
+        s[1],
+        s[2],
         fmt_num(*first),
         fmt_num(*last),
     )
@@ -137,7 +143,8 @@ fn aging(f: &Finding) -> String {
 
 /// The sentence of a verdict.
 pub fn verdict(v: &Verdict) -> String {
-    let pr = |p: &f64, b: &usize| fmt_p_resampled(*p, *b);
+    let pr = |p: &f64, b: &usize| p_clause(*p, *b);
+    let x = |[x, lo, hi]: &[f64; 3]| with_interval(*x, *lo, *hi);
     match v {
         Verdict::NotFitted { points, min_branch } => format!(
             "not fitted: {points} points, and each branch needs at least {min_branch} with \
@@ -150,7 +157,7 @@ pub fn verdict(v: &Verdict) -> String {
             alpha,
         } => format!(
             "equilibrium: no violation of the fluctuation–dissipation relation at the {:.0}% \
-             level (p = {}); with no break, X below a break is not meaningful",
+             level ({}); with no break, X below a break is not meaningful",
             100.0 * alpha,
             pr(p, resamples)
         ),
@@ -160,27 +167,30 @@ pub fn verdict(v: &Verdict) -> String {
             q,
             ratio,
         } => format!(
-            "a break is detected (p = {}) at C = {q:.3}, at the edge of the points: one regime \
-             is barely reached, so X ({ratio:.3}) is not quoted with an interval and this curve \
-             is left out of the aging trend",
-            pr(p, resamples)
+            "a break is detected ({}) at C = {}, at the edge of the points: one regime is \
+             barely reached, so X ({}) is not quoted with an interval and this curve is left \
+             out of the aging trend",
+            pr(p, resamples),
+            num3(*q),
+            num3(*ratio)
         ),
         Verdict::LineSlope {
-            ratio: [x, lo, hi],
+            ratio,
             p,
             resamples,
         } => format!(
-            "one line of slope -X with X = {x:.3} [{lo:.3}, {hi:.3}]: the slope differs from the \
-             equilibrium -1 (p = {})",
+            "one line of slope -X with X = {}: the slope differs from the equilibrium -1 ({})",
+            x(ratio),
             pr(p, resamples)
         ),
         Verdict::LineEquilibrium {
-            ratio: [x, lo, hi],
+            ratio,
             p,
             resamples,
         } => format!(
-            "equilibrium: the slope is compatible with -1 (p = {}); X = {x:.3} [{lo:.3}, {hi:.3}]",
-            pr(p, resamples)
+            "equilibrium: the slope is compatible with -1 ({}); X = {}",
+            pr(p, resamples),
+            x(ratio)
         ),
         _ => break_verdict(v),
     }
@@ -188,49 +198,55 @@ pub fn verdict(v: &Verdict) -> String {
 
 /// Verdicts of a detected break away from the edge.
 fn break_verdict(v: &Verdict) -> String {
-    let pr = |p: &f64, b: &usize| fmt_p_resampled(*p, *b);
+    let pr = |p: &f64, b: &usize| p_clause(*p, *b);
+    let x = |[x, lo, hi]: &[f64; 3]| with_interval(*x, *lo, *hi);
     match v {
         Verdict::NoSlowResponse { q, p, resamples } => format!(
-            "no response in the slow regime: below C = {q:.3} the response stays flat within \
-             errors (X compatible with 0, T_eff unbounded), as in coarsening (p = {})",
+            "no response in the slow regime: below C = {} the response stays flat within \
+             errors (X compatible with 0, T_eff unbounded), as in coarsening ({})",
+            num3(*q),
             pr(p, resamples)
         ),
         Verdict::WeakViolation {
-            ratio: [x, lo, hi],
+            ratio,
             p,
             resamples,
         } => format!(
-            "a break is detected (p = {}) but X = {x:.3} [{lo:.3}, {hi:.3}] is compatible with \
-             1: the violation is weak at this precision",
-            pr(p, resamples)
+            "a break is detected ({}) but X = {} is compatible with 1: the violation is weak \
+             at this precision",
+            pr(p, resamples),
+            x(ratio)
         ),
         Verdict::OneBreak {
             q,
-            ratio: [x, lo, hi],
+            ratio,
             level,
             p,
             resamples,
         } => format!(
-            "one break: slope -1 down to C = {q:.3}, then X = {x:.3} [{lo:.3}, {hi:.3}] at the \
-             {:.0}% level (p = {} for equilibrium)",
+            "one break: slope -1 down to C = {}, then X = {} at the {:.0}% level ({} for \
+             equilibrium)",
+            num3(*q),
+            x(ratio),
             100.0 * level,
             pr(p, resamples)
         ),
         Verdict::ColderThanBath {
-            ratio: [x, lo, hi],
+            ratio,
             p,
             resamples,
         } => format!(
-            "one break with X = {x:.3} [{lo:.3}, {hi:.3}] above 1: the slow modes look colder \
-             than the bath (p = {})",
+            "one break with X = {} above 1: the slow modes look colder than the bath ({})",
+            x(ratio),
             pr(p, resamples)
         ),
         Verdict::NegativeRatio {
-            ratio: [x, lo, hi],
+            ratio,
             p,
             resamples,
         } => format!(
-            "one break with negative X = {x:.3} [{lo:.3}, {hi:.3}] (p = {})",
+            "one break with negative X = {} ({})",
+            x(ratio),
             pr(p, resamples)
         ),
         _ => verdict(v),

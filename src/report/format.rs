@@ -47,3 +47,109 @@ pub fn fmt_num(v: f64) -> String {
         format!("{v:.3e}")
     }
 }
+
+/// A p-value as a sentence says it: "p = 0.012", or "p ≤ 5.0e-4" at the floor of a
+/// resampled test (no null resample reached the observed statistic).
+pub fn p_clause(p: f64, resamples: usize) -> String {
+    let v = fmt_p_resampled(p, resamples);
+    if v.starts_with('≤') {
+        format!("p {v}")
+    } else {
+        format!("p = {v}")
+    }
+}
+
+/// How [`distinct`] first tries to write its numbers.
+#[derive(Debug, Clone, Copy)]
+pub enum Digits {
+    /// This many decimals (`{:.3}`).
+    Fixed(usize),
+    /// This many significant digits ([`sig`]).
+    Sig(usize),
+}
+
+/// Formats numbers that are read together (an estimate and its interval ends) so that
+/// none prints as 0 unless it is 0 and numbers that differ print differently: first as
+/// `first` says; when that loses a number, with 2, 3, … significant digits (scientific
+/// notation below 1e-3). `plus` writes a `+` before non-negative numbers.
+pub fn distinct(values: &[f64], first: Digits, plus: bool) -> Vec<String> {
+    let write = |d: Digits| -> Vec<String> {
+        values
+            .iter()
+            .map(|&v| {
+                let s = match d {
+                    Digits::Fixed(n) => format!("{v:.n$}"),
+                    Digits::Sig(n) => sig(v, n),
+                };
+                if plus && v >= 0.0 { format!("+{s}") } else { s }
+            })
+            .collect()
+    };
+    let start = match first {
+        Digits::Fixed(_) => 2,
+        Digits::Sig(n) => n + 1,
+    };
+    let mut out = write(first);
+    let mut n = start;
+    while !keeps_numbers(values, &out) && n <= 12 {
+        out = write(Digits::Sig(n));
+        n += 1;
+    }
+    out
+}
+
+/// No non-zero number prints as zero, and numbers that differ print differently.
+fn keeps_numbers(values: &[f64], texts: &[String]) -> bool {
+    let zero = |s: &str| s.trim_start_matches('+').parse::<f64>() == Ok(0.0);
+    let lost = values
+        .iter()
+        .zip(texts)
+        .any(|(&v, s)| v.is_finite() && v != 0.0 && zero(s));
+    let merged = (0..values.len())
+        .any(|i| (i + 1..values.len()).any(|j| values[i] != values[j] && texts[i] == texts[j]));
+    !lost && !merged
+}
+
+/// An estimate and its interval as a sentence writes them: "0.445 [0.435, 0.455]" with
+/// three decimals, more digits when three decimals would lose a number
+/// ("0.0012 [0.00031, 0.0029]").
+pub fn with_interval(v: f64, low: f64, high: f64) -> String {
+    let s = distinct(&[v, low, high], Digits::Fixed(3), false);
+    format!("{} [{}, {}]", s[0], s[1], s[2])
+}
+
+/// One number in a sentence: three decimals, or significant digits when three decimals
+/// would print it as 0.
+pub fn num3(v: f64) -> String {
+    distinct(&[v], Digits::Fixed(3), false).remove(0)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_small_interval_keeps_its_numbers() {
+        assert_eq!(with_interval(0.445, 0.435, 0.455), "0.445 [0.435, 0.455]");
+        assert_eq!(
+            with_interval(0.0012, 0.00031, 0.0029),
+            "0.0012 [3.1e-4, 0.0029]"
+        );
+        assert_eq!(num3(0.0004), "4.0e-4");
+        assert_eq!(num3(0.0), "0.000");
+    }
+
+    #[test]
+    fn ends_equal_to_the_estimate_get_more_digits() {
+        assert_eq!(
+            with_interval(0.5, 0.4999, 0.5002),
+            "0.5000 [0.4999, 0.5002]"
+        );
+    }
+
+    #[test]
+    fn a_floor_p_value_reads_as_a_bound() {
+        assert_eq!(p_clause(1.0 / 2001.0, 2000), "p ≤ 5.0e-4");
+        assert_eq!(p_clause(0.012, 2000), "p = 0.012");
+    }
+}

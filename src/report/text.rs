@@ -1,7 +1,7 @@
 //! The text report: a table per fit, the verdict, cautions, and a methods paragraph.
 
 use super::findings;
-use super::format::{fmt_num, fmt_p_resampled};
+use super::format::{Digits, distinct, fmt_num, fmt_p_resampled, p_clause};
 use super::sig;
 use crate::common::Units;
 use crate::twotime::model;
@@ -14,17 +14,23 @@ fn est(e: &Estimate) -> String {
     match e.estimate {
         None => "—".into(),
         Some(v) => {
-            let end = |x: Option<f64>| x.map_or_else(|| "unbounded".into(), |x| sig(x, 4));
             if e.low.is_none()
                 && e.high.is_none()
                 && e.note
                     .as_deref()
                     .is_none_or(|n| !n.starts_with("unbounded"))
             {
-                sig(v, 4)
-            } else {
-                format!("{} [{}, {}]", sig(v, 4), end(e.low), end(e.high))
+                return sig(v, 4);
             }
+            let ends = [e.low, e.high];
+            let mut values = vec![v];
+            values.extend(ends.iter().flatten());
+            let mut texts = distinct(&values, Digits::Sig(4), false).into_iter();
+            let first = texts.next().unwrap_or_default();
+            let [low, high] = ends.map(|x| {
+                x.map_or_else(|| "unbounded".into(), |_| texts.next().unwrap_or_default())
+            });
+            format!("{first} [{low}, {high}]")
         }
     }
 }
@@ -79,7 +85,7 @@ fn header(o: &mut String, r: &FitReport) {
     );
     let units = match g.units {
         Units::Reduced => "k = 1, reduced units".to_string(),
-        Units::Si => format!("k = {} J/K, SI", s.k),
+        Units::Si => format!("k = {} J/K, SI", sig(s.k, 7)),
     };
     let axes = match s.axes_used {
         Axes::Normalized => "x = C/C(t,t), y = k·T·chi/C(t,t)",
@@ -233,9 +239,11 @@ pub fn methods(r: &FitReport) -> String {
     let m = model::of(g.model);
     let weights = weights_phrase(g.weights, m);
     let interval = interval_phrase(g.interval);
-    let p = r.fits[0].equilibrium_p.map_or("not computed".into(), |p| {
-        fmt_p_resampled(p, r.fits[0].null_resamples)
-    });
+    let p = r.fits[0]
+        .equilibrium_p
+        .map_or("p not computed".into(), |p| {
+            p_clause(p, r.fits[0].null_resamples)
+        });
     let search = if !m.has_break() {
         String::new()
     } else {
@@ -314,14 +322,14 @@ fn test_sentences(m: &dyn model::FdModel, p: &str) -> String {
         format!(
             "The hypothesis of equilibrium (slope -1) was tested with the statistic SSE(slope \
              -1) − SSE(free slope), calibrated by the same resamples moved onto the fitted \
-             slope -1 line; for the joint fit p = {p}."
+             slope -1 line; for the joint fit {p}."
         )
     } else {
         format!(
             "The hypothesis of no break (equilibrium) was tested with the statistic SSE(no \
              break) − SSE(two segments), calibrated by the same resamples moved onto the fitted \
              no-break model, because the break is not identified under that hypothesis; for \
-             the joint fit p = {p}. X is quoted only where this test rejects and the break lies \
+             the joint fit {p}. X is quoted only where this test rejects and the break lies \
              away from the edge of the points. The slope above the break was tested against -1 \
              (a check of the thermometer and the response units) with the resamples centred on \
              its estimate."
