@@ -106,7 +106,7 @@ fn fit_reads_a_user_file_with_mapped_columns_and_writes_json_and_points() {
     let v: serde_json::Value = serde_json::from_slice(&std::fs::read(&json).unwrap()).unwrap();
     assert_eq!(v["settings"]["seed"], 5);
     assert_eq!(v["fits"].as_array().unwrap().len(), 4);
-    let x = v["fits"][0]["ratio"]["estimate"].as_f64().unwrap();
+    let x = v["fits"][0]["x"]["estimate"].as_f64().unwrap();
     assert!((x - 0.45).abs() < 0.05, "X = {x}");
     let csv = std::fs::read_to_string(&points).unwrap();
     assert_eq!(csv.lines().next(), Some("tw,t,x,x_se,y,y_se"));

@@ -125,15 +125,15 @@ fn json_has_the_documented_shape_and_no_nan() {
     let text = String::from_utf8(fdtemp::report::json::fit_json(&r)).unwrap();
     assert!(!text.contains("NaN") && !text.contains("inf"));
     let v: serde_json::Value = serde_json::from_str(&text).unwrap();
-    assert_eq!(v["schema"], 2);
+    assert_eq!(v["schema"], 3);
     assert_eq!(v["settings"]["resamples"], 200);
     assert_eq!(v["settings"]["interval"], "bca");
     assert!(v["fits"][0]["tw"].is_null());
     assert_eq!(v["fits"][1]["tw"], 100.0);
-    for key in ["ratio", "t_eff", "break"] {
+    for key in ["x", "t_eff", "break", "slope_above"] {
         assert!(v["fits"][0][key].get("estimate").is_some(), "{key}");
     }
-    assert!(v["fits"][0]["equilibrium_p"].is_number());
+    assert!(v["fits"][0]["p_equilibrium"].is_number());
 }
 
 #[test]

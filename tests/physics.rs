@@ -67,13 +67,13 @@ fn two_baths(samples: usize, quick: bool) {
     let f = &r["fits"][0];
     // Source: exact for two Ornstein–Uhlenbeck modes (closed-form C and chi; common
     // practice): X = T_fast / T_slow = 0.4, T_eff = T_slow = 2.5, q = 0.5.
-    for (key, name) in [("ratio", "ratio"), ("t_eff", "t_eff"), ("break", "break")] {
+    for (key, name) in [("x", "ratio"), ("t_eff", "t_eff"), ("break", "break")] {
         let v = truth[name].as_f64().unwrap();
         assert!(inside(&f[key], v), "{key}: truth {v} not in {}", f[key]);
     }
     // The slope above the break is -1 (T = T_fast). Its 95% interval misses -1 in about 1
     // seed of 20 (measured: 10 of 11 seeds cover), so check it with a tolerance of 5%.
-    let slope = f["fast_slope"]["estimate"].as_f64().unwrap();
+    let slope = f["slope_above"]["estimate"].as_f64().unwrap();
     assert!((slope + 1.0).abs() < 0.05, "slope above the break {slope}");
     assert_eq!(r["settings"]["axes_used"], "normalized");
 }
@@ -97,7 +97,7 @@ fn brownian(samples: usize, quick: bool) -> serde_json::Value {
     // the later time fixed.
     assert_eq!(truth["ratio"], 0.5);
     for f in r["fits"].as_array().unwrap() {
-        assert!(inside(&f["ratio"], 0.5), "X {}", f["ratio"]);
+        assert!(inside(&f["x"], 0.5), "X {}", f["x"]);
         assert!(f["t"].is_number() || f["t"].is_null());
     }
     r
@@ -119,7 +119,7 @@ fn free_brownian_motion_has_ratio_one_half_with_the_later_time_fixed() {
 #[ignore = "long: see the module header"]
 fn free_brownian_motion_has_ratio_one_half_long() {
     let r = brownian(1000, false);
-    let x = r["fits"][0]["ratio"]["estimate"].as_f64().unwrap();
+    let x = r["fits"][0]["x"]["estimate"].as_f64().unwrap();
     assert!((x - 0.5).abs() < 0.01, "X = {x}");
 }
 
@@ -130,7 +130,7 @@ fn an_equilibrium_ornstein_uhlenbeck_process_shows_no_violation() {
     let (file, truth) = synth(dir.path(), "ou-equilibrium", 100, true, 13);
     assert_eq!(truth["ratio"], 1.0);
     let r = fit(&file, &["-T", "1"]);
-    assert!(r["fits"][0]["equilibrium_p"].as_f64().unwrap() >= 0.05);
+    assert!(r["fits"][0]["p_equilibrium"].as_f64().unwrap() >= 0.05);
     assert!(r["fits"][0]["break"]["estimate"].is_null());
     assert_eq!(r["verdict"]["code"], "equilibrium");
 }
@@ -239,7 +239,7 @@ fn the_ising_chain_at_full_size_follows_the_scaling_forms_and_reaches_one_half_n
                 "0:0.3",
             ],
         );
-        let x = &r["fits"][0]["ratio"];
+        let x = &r["fits"][0]["x"];
         println!("Ising chain, seed {seed}, 200 chains of 4000 spins, C <= 0.3: X = {x}");
         estimates.push(x["estimate"].as_f64().unwrap());
         covered += usize::from(inside(x, 0.5));

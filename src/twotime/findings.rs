@@ -127,12 +127,14 @@ pub enum Finding {
     },
     /// X above 1 (T_eff below the bath), reported as measured.
     RatioAboveOne {
-        /// X.
+        /// X (JSON `x`).
+        #[serde(rename = "x")]
         ratio: f64,
     },
     /// X below 0 (negative T_eff), reported as measured.
     RatioBelowZero {
-        /// X.
+        /// X (JSON `x`).
+        #[serde(rename = "x")]
         ratio: f64,
     },
 }
@@ -177,12 +179,14 @@ pub enum Verdict {
         resamples: usize,
         /// The break.
         q: f64,
-        /// X, without an interval.
+        /// X, without an interval (JSON `x`).
+        #[serde(rename = "x")]
         ratio: f64,
     },
     /// The line model: one slope, different from −1.
     LineSlope {
         /// X = −slope, with its interval.
+        #[serde(rename = "x")]
         ratio: [f64; 3],
         /// The equilibrium p-value.
         p: f64,
@@ -192,6 +196,7 @@ pub enum Verdict {
     /// The line model: the slope is compatible with −1.
     LineEquilibrium {
         /// X = −slope, with its interval.
+        #[serde(rename = "x")]
         ratio: [f64; 3],
         /// The equilibrium p-value.
         p: f64,
@@ -210,6 +215,7 @@ pub enum Verdict {
     /// A break, but X compatible with 1.
     WeakViolation {
         /// X with its interval.
+        #[serde(rename = "x")]
         ratio: [f64; 3],
         /// The equilibrium p-value.
         p: f64,
@@ -221,6 +227,7 @@ pub enum Verdict {
         /// The break.
         q: f64,
         /// X with its interval.
+        #[serde(rename = "x")]
         ratio: [f64; 3],
         /// The confidence level.
         level: f64,
@@ -232,6 +239,7 @@ pub enum Verdict {
     /// One break with X above 1.
     ColderThanBath {
         /// X with its interval.
+        #[serde(rename = "x")]
         ratio: [f64; 3],
         /// The equilibrium p-value.
         p: f64,
@@ -241,6 +249,7 @@ pub enum Verdict {
     /// One break with X below 0.
     NegativeRatio {
         /// X with its interval.
+        #[serde(rename = "x")]
         ratio: [f64; 3],
         /// The equilibrium p-value.
         p: f64,

@@ -7,7 +7,7 @@ use crate::common::{Estimate, ToolInfo};
 use serde::Serialize;
 
 /// The JSON schema version of [`FitReport`].
-pub const SCHEMA: u32 = 2;
+pub const SCHEMA: u32 = 3;
 
 /// The fitted two-segment curve in plot coordinates: `y = intercept + slope_above · x`
 /// for `x >= q`, and slope `slope_below` for `x < q` (continuous at `q`).
@@ -48,7 +48,8 @@ pub struct GroupFit {
     pub n_samples: usize,
     /// Number of parametric points in the group.
     pub n_points: usize,
-    /// The fluctuation–dissipation ratio X (minus the slope below the break).
+    /// The fluctuation–dissipation ratio X (minus the slope below the break); JSON `x`.
+    #[serde(rename = "x")]
     pub ratio: Estimate,
     /// `T_eff = T / X`; ends are `None` ("unbounded") when X's interval reaches 0.
     pub t_eff: Estimate,
@@ -57,16 +58,24 @@ pub struct GroupFit {
     pub brk: Estimate,
     /// The slope above the break: fitted in the free model; for the fixed model, a free
     /// line through the points above the break, as a check of the quasi-equilibrium slope −1.
+    /// JSON `slope_above` ("slope above q" in the report).
+    #[serde(rename = "slope_above")]
     pub fast_slope: Estimate,
     /// The p-value of the test of no break (equilibrium), calibrated by resampling.
+    /// JSON `p_equilibrium` (the report's column "p(equilibrium)").
+    #[serde(rename = "p_equilibrium")]
     pub equilibrium_p: Option<f64>,
     /// Resamples that calibrated the test (the p-value's floor is `1/(this + 1)`).
     pub null_resamples: usize,
     /// The test statistic `SSE(no break) − SSE(broken stick)`.
+    /// JSON `equilibrium_statistic`.
+    #[serde(rename = "equilibrium_statistic")]
     pub equilibrium_stat: Option<f64>,
     /// The p-value of the test that the slope above the break is −1 (the thermometer
     /// check), from resamples centred on the estimate; `None` for the line model, without
     /// a break, or with the break at the edge.
+    /// JSON `p_slope_minus_one` (the report's column "p(slope -1)").
+    #[serde(rename = "p_slope_minus_one")]
     pub thermometer_p: Option<f64>,
     /// X and its interval can be quoted: a break was detected away from the edge of the
     /// points (always true for the line model).
