@@ -114,6 +114,55 @@ fn fit_reads_a_user_file_with_mapped_columns_and_writes_json_and_points() {
 }
 
 #[test]
+fn the_json_uses_the_report_words_and_the_text_says_p_at_its_floor_as_a_bound() {
+    let dir = tempfile::tempdir().unwrap();
+    let input = user_campaign(dir.path());
+    let json = dir.path().join("fit.json");
+    fit_user(&input)
+        .args(["-B", "400", "--json"])
+        .arg(&json)
+        .assert()
+        .success()
+        .stdout(predicate::str::contains("(p ≤ 0.002 for equilibrium)"))
+        .stdout(predicate::str::contains("for the joint fit p ≤ 0.002"))
+        .stdout(predicate::str::contains("p = ≤").not());
+    let v: serde_json::Value = serde_json::from_slice(&std::fs::read(&json).unwrap()).unwrap();
+    assert_eq!(v["schema"], 3);
+    let f = &v["fits"][0];
+    for key in [
+        "x",
+        "slope_above",
+        "p_equilibrium",
+        "p_slope_minus_one",
+        "equilibrium_statistic",
+    ] {
+        assert!(f.get(key).is_some(), "{key} missing");
+    }
+    for old in [
+        "ratio",
+        "fast_slope",
+        "equilibrium_p",
+        "thermometer_p",
+        "equilibrium_stat",
+    ] {
+        assert!(f.get(old).is_none(), "old name {old} still written");
+    }
+    assert!(v["verdict"]["x"].is_array() && v["verdict"].get("ratio").is_none());
+}
+
+#[test]
+fn the_si_header_writes_k_in_scientific_notation() {
+    let dir = tempfile::tempdir().unwrap();
+    let input = user_campaign(dir.path());
+    fit_user(&input)
+        .args(["-B", "200", "--units", "si"])
+        .assert()
+        .success()
+        .stdout(predicate::str::contains("(k = 1.380649e-23 J/K, SI)"))
+        .stdout(predicate::str::contains("0.0000000").not());
+}
+
+#[test]
 fn fit_never_overwrites_an_existing_output_or_its_input() {
     let dir = tempfile::tempdir().unwrap();
     let input = user_campaign(dir.path());

@@ -252,3 +252,24 @@ fn break_verdict(v: &Verdict) -> String {
         _ => verdict(v),
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_small_x_keeps_its_numbers_and_a_floor_p_reads_as_a_bound() {
+        let v = Verdict::OneBreak {
+            q: 0.6,
+            ratio: [0.0012, 0.00031, 0.0029],
+            level: 0.95,
+            p: 1.0 / 2001.0,
+            resamples: 2000,
+        };
+        assert_eq!(
+            verdict(&v),
+            "one break: slope -1 down to C = 0.600, then X = 0.0012 [3.1e-4, 0.0029] at the 95% \
+             level (p ≤ 5.0e-4 for equilibrium)"
+        );
+    }
+}

@@ -105,8 +105,9 @@ fn keeps_numbers(values: &[f64], texts: &[String]) -> bool {
         .iter()
         .zip(texts)
         .any(|(&v, s)| v.is_finite() && v != 0.0 && zero(s));
-    let merged = (0..values.len())
-        .any(|i| (i + 1..values.len()).any(|j| values[i] != values[j] && texts[i] == texts[j]));
+    let merged = (0..values.len()).any(|i| {
+        (i + 1..values.len()).any(|j| (values[i] - values[j]).abs() > 0.0 && texts[i] == texts[j])
+    });
     !lost && !merged
 }
 
