@@ -68,9 +68,9 @@ def workload(name, path, b, work):
     t_st = p["read"] + p["resamples"] / small_b * b + p["jackknife"] / p["jackknife_fits"] * p["samples"]
     _, text = run([FLOOR, path, str(b)])
     floor = json.loads(text)
-    agree = max(abs(a["ratio"]["estimate"] - c["ratio"]) for a, c in zip(fd, vec["fits"]))
+    agree = max(abs(a["x"]["estimate"] - c["ratio"]) for a, c in zip(fd, vec["fits"]))
     agree_q = max(abs(a["break"]["estimate"] - c["break"]) for a, c in zip(fd, vec["fits"]) if a["break"]["estimate"] is not None)
-    agree_st = max(abs(a["ratio"]["estimate"] - c["ratio"]) for a, c in zip(fd, st["fits"]))
+    agree_st = max(abs(a["x"]["estimate"] - c["ratio"]) for a, c in zip(fd, st["fits"]))
     print(f"estimates agree: |X_fdtemp - X_vectorized| <= {agree:.1e}, |q| <= {agree_q:.1e}, |X - X_straightforward| <= {agree_st:.1e}")
     print(f"fdtemp                   {t_fd:9.2f} s   peak RSS {rss:7.0f} MiB")
     print(f"vectorized numpy         {t_vec:9.2f} s   ratio {t_vec / t_fd:7.1f}x")
