@@ -31,6 +31,15 @@ fn png_size(path: &Path) -> (u32, u32) {
     (info.width, info.height)
 }
 
+/// The PNG's resolution from its pHYs chunk, in dots per inch.
+fn png_dpi(path: &Path) -> Option<f64> {
+    let decoder = png::Decoder::new(std::io::BufReader::new(std::fs::File::open(path).unwrap()));
+    let reader = decoder.read_info().unwrap();
+    let d = reader.info().pixel_dims?;
+    assert_eq!(d.xppu, d.yppu);
+    (d.unit == png::Unit::Meter).then(|| f64::from(d.xppu) * 0.0254)
+}
+
 #[test]
 fn the_fluctuation_dissipation_plot_has_every_element_in_svg_and_png() {
     let dir = tempfile::tempdir().unwrap();
@@ -73,6 +82,19 @@ fn the_fluctuation_dissipation_plot_has_every_element_in_svg_and_png() {
         .assert()
         .success();
     assert_eq!(png_size(&png), (850, 600));
+    // WxH is drawn as one column wide: 850 px over 8.5 cm is 254 dpi.
+    assert!((png_dpi(&png).unwrap() - 254.0).abs() < 0.1);
+    for (size, px) in [("double", (2102, 1299)), ("slide", (1920, 1080))] {
+        let p = dir.path().join(format!("{size}.png"));
+        fdtemp()
+            .arg("fit")
+            .arg(&input)
+            .args(["-T", "0.6", "-B", "200", "--plot-size", size, "--plot"])
+            .arg(&p)
+            .assert()
+            .success();
+        assert_eq!(png_size(&p), px, "{size}");
+    }
 }
 
 #[test]
@@ -113,7 +135,9 @@ fn the_effective_temperature_plot_marks_the_bath_and_the_departure() {
         .arg(&png)
         .assert()
         .success();
-    assert_eq!(png_size(&png), (1000, 800));
+    // The default is one column (8.5 cm × 6.8 cm) at 300 dpi, stated in the file.
+    assert_eq!(png_size(&png), (1004, 803));
+    assert!((png_dpi(&png).unwrap() - 300.0).abs() < 0.1);
 }
 
 #[test]
@@ -148,7 +172,7 @@ fn noise_draws_its_effective_temperature_and_refuses_without_a_dissipation() {
         .arg(&png)
         .assert()
         .success();
-    assert_eq!(png_size(&png), (1000, 800));
+    assert_eq!(png_size(&png), (1004, 803));
     fdtemp()
         .arg("noise")
         .arg(&rec)

@@ -16,7 +16,7 @@ pub mod spectral;
 pub mod synth;
 
 use clap::{Parser, Subcommand};
-use fdtemp::report::plot::Figure;
+use fdtemp::report::plot::{Figure, PlotSize};
 use std::io::Write;
 use std::path::{Path, PathBuf};
 
@@ -63,9 +63,11 @@ pub struct PlotArgs {
     /// Draw the figure into this file (.svg or .png).
     #[arg(long, value_name = "FILE")]
     plot: Option<PathBuf>,
-    /// Figure size in pixels (1000 wide suits 8.5 cm at 300 dpi).
-    #[arg(long, value_name = "WxH", default_value = "1000x800", value_parser = fdtemp::report::plot::parse_size)]
-    plot_size: (u32, u32),
+    /// Figure size: single (8.5 cm wide, one column), double (17.8 cm, two columns) or
+    /// slide (16:9), with text of 7.5-9 pt at that size and PNG at 300 dpi (slide: 192);
+    /// or WxH pixels, drawn as if one column wide.
+    #[arg(long, value_name = "SIZE", default_value = "single", value_parser = fdtemp::report::plot::parse_size)]
+    plot_size: PlotSize,
 }
 
 impl PlotArgs {

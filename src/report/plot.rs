@@ -2,9 +2,9 @@
 //!
 //! Each figure is drawn into memory and returned as SVG or PNG bytes, so it is written
 //! like every other output (atomically, never over a file without asking). Text uses the
-//! DejaVu Sans font compiled into the binary: no system font is needed. Sizes suit a
-//! one-column figure of a two-column paper (8.5 cm wide: the default 1000 px is 300 dpi)
-//! and a screen. The palette is fdtemp's own: four hues of clearly different lightness,
+//! DejaVu Sans font compiled into the binary: no system font is needed. A figure is drawn
+//! for a physical size ([`PlotSize`]: one column, two columns, a slide) and every font
+//! size and line width is set in points at that size (docs/figures.md). The palette is fdtemp's own: four hues of clearly different lightness,
 //! each with its own marker shape, so the series stay apart in greyscale and for readers
 //! with colour-vision deficiencies.
 
@@ -41,8 +41,56 @@ pub enum Format {
     Png,
 }
 
+/// The size a figure is drawn for: a physical width and height and a resolution.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum PlotSize {
+    /// One column of a two-column paper: 8.5 cm × 6.8 cm at 300 dpi (1004 × 803 px).
+    Single,
+    /// The full width of a two-column paper: 17.8 cm × 11 cm at 300 dpi (2102 × 1299 px).
+    Double,
+    /// A 16:9 slide: 10 in × 5.625 in at 192 dpi (1920 × 1080 px).
+    Slide,
+    /// A size in pixels, drawn as if printed one column wide (8.5 cm), so text scales
+    /// with the width as before presets existed.
+    Pixels(u32, u32),
+}
+
+/// Centimetres per inch.
+const CM_PER_IN: f64 = 2.54;
+/// Points per inch (1 pt = 1/72 in).
+const PT_PER_IN: f64 = 72.0;
+/// One column's width in cm.
+const SINGLE_CM: f64 = 8.5;
+
+impl PlotSize {
+    /// (physical width in inches, physical height in inches, dots per inch).
+    fn physical(self) -> (f64, f64, f64) {
+        match self {
+            PlotSize::Single => (SINGLE_CM / CM_PER_IN, 6.8 / CM_PER_IN, 300.0),
+            PlotSize::Double => (17.8 / CM_PER_IN, 11.0 / CM_PER_IN, 300.0),
+            PlotSize::Slide => (10.0, 5.625, 192.0),
+            PlotSize::Pixels(w, h) => {
+                let w_in = SINGLE_CM / CM_PER_IN;
+                let dpi = f64::from(w) / w_in;
+                (w_in, f64::from(h) / dpi, dpi)
+            }
+        }
+    }
+
+    /// The size in pixels.
+    pub fn pixels(self) -> (u32, u32) {
+        match self {
+            PlotSize::Pixels(w, h) => (w, h),
+            _ => {
+                let (w, h, dpi) = self.physical();
+                ((w * dpi).round() as u32, (h * dpi).round() as u32)
+            }
+        }
+    }
+}
+
 /// What to draw where.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Figure {
     /// File format.
     pub format: Format,
@@ -50,6 +98,10 @@ pub struct Figure {
     pub width: u32,
     /// Height in pixels.
     pub height: u32,
+    /// Dots per inch at the physical size the figure is drawn for.
+    pub dpi: f64,
+    /// Whether the SVG states its physical size (presets) or only pixels (`WxH`).
+    pub physical: bool,
 }
 
 impl Figure {
@@ -57,7 +109,7 @@ impl Figure {
     ///
     /// # Errors
     /// [`Error::Setting`] for another extension or a size out of range.
-    pub fn for_path(path: &Path, size: (u32, u32)) -> Result<Self> {
+    pub fn for_path(path: &Path, size: PlotSize) -> Result<Self> {
         let ext = path
             .extension()
             .and_then(|e| e.to_str())
@@ -72,7 +124,7 @@ impl Figure {
                 )));
             }
         };
-        let (width, height) = size;
+        let (width, height) = size.pixels();
         if !(200..=8000).contains(&width) || !(150..=8000).contains(&height) {
             return Err(Error::Setting(format!(
                 "--plot-size is {width}x{height}, expected between 200x150 and 8000x8000 pixels"
@@ -82,24 +134,37 @@ impl Figure {
             format,
             width,
             height,
+            dpi: size.physical().2,
+            physical: !matches!(size, PlotSize::Pixels(..)),
         })
+    }
+
+    /// Pixels per point (1/72 in) at the figure's physical size.
+    fn px_per_pt(&self) -> f64 {
+        self.dpi / PT_PER_IN
     }
 }
 
-/// Parses `WIDTHxHEIGHT`.
+/// Parses `single`, `double`, `slide` or `WIDTHxHEIGHT` (pixels).
 ///
 /// # Errors
-/// A message when the text is not two whole numbers joined by `x`.
-pub fn parse_size(s: &str) -> std::result::Result<(u32, u32), String> {
+/// A message when the text is none of those.
+pub fn parse_size(s: &str) -> std::result::Result<PlotSize, String> {
+    match s.trim().to_ascii_lowercase().as_str() {
+        "single" => return Ok(PlotSize::Single),
+        "double" => return Ok(PlotSize::Double),
+        "slide" => return Ok(PlotSize::Slide),
+        _ => {}
+    }
     let (w, h) = s
         .split_once(['x', 'X'])
-        .ok_or_else(|| format!("'{s}' is not WIDTHxHEIGHT"))?;
+        .ok_or_else(|| format!("'{s}' is not single, double, slide or WIDTHxHEIGHT"))?;
     let num = |t: &str| {
         t.trim()
             .parse::<u32>()
             .map_err(|_| format!("'{t}' in '{s}' is not a whole number"))
     };
-    Ok((num(w)?, num(h)?))
+    Ok(PlotSize::Pixels(num(w)?, num(h)?))
 }
 
 /// fdtemp's series colours (navy, amber, teal, plum, slate, ochre) with marker shapes.
@@ -115,28 +180,72 @@ const INK: RGBColor = RGBColor(0x20, 0x20, 0x20);
 const BAND: RGBColor = RGBColor(0x9a, 0xa5, 0xb8);
 const REFERENCE: RGBColor = RGBColor(0x80, 0x80, 0x80);
 
-/// Font sizes scaled to the figure width (1000 px wide ≈ 8 pt at 8.5 cm).
+/// Sizes in points (1/72 in) at the figure's physical size, turned into pixels.
+///
+/// Font sizes are what plotters is given: its SVG writes `size / 1.24` as the
+/// `font-size` (plotters-svg 0.3.7, `draw_text`), so each is multiplied by that factor to
+/// put the stated point size into the file.
 struct Scale {
+    /// Axis titles.
     label: f64,
+    /// Tick labels.
     tick: f64,
+    /// Legend entries.
     legend: f64,
+    /// Marker radius.
     marker: i32,
+    /// Data and fit lines.
     line: u32,
+    /// Error bars and thin rules.
+    thin: u32,
+    /// Dash and gap of dashed lines.
+    dash: (u32, u32),
+    /// Length of a legend's line sample.
+    sample: i32,
+    /// Pixels per point.
+    px: f64,
 }
 
-fn scale(width: u32) -> Scale {
-    let s = f64::from(width) / 1000.0;
+/// plotters' SVG font size divisor (plotters-svg 0.3.7).
+const PLOTTERS_EM: f64 = 1.24;
+/// Point sizes of the axis titles, tick labels and legend (journals ask for ≥ 7 pt).
+const LABEL_PT: f64 = 9.0;
+const TICK_PT: f64 = 8.0;
+const LEGEND_PT: f64 = 7.5;
+
+fn scale(fig: Figure) -> Scale {
+    let px = fig.px_per_pt();
+    let len = |pt: f64| (pt * px).round().max(1.0);
     Scale {
-        label: 34.0 * s,
-        tick: 28.0 * s,
-        legend: 25.0 * s,
-        marker: (7.0 * s).round().max(2.0) as i32,
-        line: (3.0 * s).round().max(1.0) as u32,
+        // plotters keeps whole pixels of its font size: round up, never under the size.
+        label: (LABEL_PT * px * PLOTTERS_EM).ceil(),
+        tick: (TICK_PT * px * PLOTTERS_EM).ceil(),
+        legend: (LEGEND_PT * px * PLOTTERS_EM).ceil(),
+        marker: len(2.0).max(2.0) as i32,
+        line: len(1.0) as u32,
+        thin: len(0.5) as u32,
+        dash: (len(4.0) as u32, len(2.5) as u32),
+        sample: len(12.0) as i32,
+        px,
     }
 }
 
 fn err<E: std::fmt::Debug>(what: &str) -> impl Fn(E) -> Error + '_ {
     move |e| Error::Analysis(format!("cannot draw the {what}: {e:?}"))
+}
+
+/// A point on the backend, in pixels.
+type Px = (i32, i32);
+
+/// A legend's filled swatch, `len` pixels wide.
+fn swatch(style: ShapeStyle, len: i32) -> impl Fn(Px) -> Rectangle<Px> {
+    let h = len / 4;
+    move |(x, y)| Rectangle::new([(x, y - h), (x + len, y + h)], style)
+}
+
+/// A legend's line sample, `len` pixels long.
+fn stroke(style: ShapeStyle, len: i32) -> impl Fn(Px) -> PathElement<Px> {
+    move |(x, y)| PathElement::new(vec![(x, y), (x + len, y)], style)
 }
 
 /// The legend, in the same place and style on every figure.
@@ -151,6 +260,8 @@ where
         .background_style(WHITE.filled())
         .border_style(REFERENCE)
         .label_font(("sans-serif", sc.legend))
+        .legend_area_size(sc.sample + (4.0 * sc.px) as i32)
+        .margin((4.0 * sc.px) as u32)
         .draw()
         .map_err(err::<DrawingAreaErrorKind<DB::ErrorType>>("legend"))
 }
@@ -173,7 +284,7 @@ fn render(
                 draw(root.clone())?;
                 root.present().map_err(err(what))?;
             }
-            Ok(s.into_bytes())
+            Ok(physical_svg(s, fig).into_bytes())
         }
         Format::Png => {
             let mut buf = vec![0u8; fig.width as usize * fig.height as usize * 3];
@@ -184,15 +295,39 @@ fn render(
                 draw_png(root.clone())?;
                 root.present().map_err(err(what))?;
             }
-            encode_png(&buf, fig.width, fig.height)
+            encode_png(&buf, fig)
         }
     }
 }
 
-fn encode_png(rgb: &[u8], width: u32, height: u32) -> Result<Vec<u8>> {
+/// States the physical size on the `<svg>` element (a preset's width and height in cm,
+/// the pixels kept as the view box), so a viewer or a journal's system places it at
+/// that size.
+fn physical_svg(s: String, fig: Figure) -> String {
+    if !fig.physical {
+        return s;
+    }
+    let cm = |px: u32| super::sig(f64::from(px) / fig.dpi * CM_PER_IN, 3);
+    let old = format!("<svg width=\"{}\" height=\"{}\"", fig.width, fig.height);
+    let new = format!(
+        "<svg width=\"{}cm\" height=\"{}cm\"",
+        cm(fig.width),
+        cm(fig.height)
+    );
+    s.replacen(&old, &new, 1)
+}
+
+/// RGB bytes as PNG, with a pHYs chunk stating the figure's resolution.
+fn encode_png(rgb: &[u8], fig: Figure) -> Result<Vec<u8>> {
     let mut out = Vec::new();
     {
-        let mut enc = png::Encoder::new(&mut out, width, height);
+        let mut enc = png::Encoder::new(&mut out, fig.width, fig.height);
+        let ppm = (fig.dpi / CM_PER_IN * 100.0).round() as u32;
+        enc.set_pixel_dims(Some(png::PixelDimensions {
+            xppu: ppm,
+            yppu: ppm,
+            unit: png::Unit::Meter,
+        }));
         enc.set_color(png::ColorType::Rgb);
         enc.set_depth(png::BitDepth::Eight);
         let mut w = enc.write_header().map_err(err("PNG"))?;
@@ -278,9 +413,9 @@ fn linear_chart<'a, DB: DrawingBackend + 'a>(
     what: &str,
 ) -> Result<Chart<'a, DB>> {
     let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(what);
-    let sc = scale(fig.width);
+    let sc = scale(fig);
     let mut chart = ChartBuilder::on(root)
-        .margin((fig.width / 40) as i32)
+        .margin((6.0 * sc.px) as i32)
         .x_label_area_size((sc.label * 2.4) as i32)
         .y_label_area_size((sc.label * 3.0) as i32)
         .build_cartesian_2d(x, y)
@@ -369,13 +504,13 @@ fn draw_fd<DB: DrawingBackend>(
     curve: Curve,
     fig: Figure,
 ) -> Result<()> {
-    let sc = scale(fig.width);
+    let sc = scale(fig);
     let joint = &r.fits[0];
     let rg = fd_ranges(&r.points, curve);
     let ranges = (rg.x0..rg.x1, rg.y0..rg.y1);
     let mut chart = linear_chart(&root, fig, ranges, fd_labels(r), 6, FD)?;
-    fd_references(&mut chart, joint, curve, &rg, fig, &sc)?;
-    fd_band(&mut chart, joint, r.settings.given.level, &rg)?;
+    fd_references(&mut chart, joint, curve, &rg, &sc)?;
+    fd_band(&mut chart, joint, r.settings.given.level, &rg, &sc)?;
     fd_points(&mut chart, r, &sc)?;
     fd_fit(&mut chart, joint, curve, &rg, &sc)?;
     legend(&mut chart, &sc)?;
@@ -388,7 +523,6 @@ fn fd_references<'a, DB: DrawingBackend + 'a>(
     joint: &GroupFit,
     curve: Curve,
     rg: &FdRanges,
-    fig: Figure,
     sc: &Scale,
 ) -> Result<()> {
     let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(FD);
@@ -405,24 +539,20 @@ fn fd_references<'a, DB: DrawingBackend + 'a>(
                 "break q = {}",
                 fmt_iv(joint.brk.estimate, joint.brk.low, joint.brk.high)
             ))
-            .legend(move |(x, y)| {
-                Rectangle::new([(x, y - 6), (x + 20, y + 6)], BAND.mix(0.4).filled())
-            });
+            .legend(swatch(BAND.mix(0.4).filled(), sc.sample));
     }
     // Equilibrium: slope -1 through the fitted upper segment's level.
     let eq = curve.intercept;
     chart
         .draw_series(DashedLineSeries::new(
             vec![(x0, eq - x0), (x1, eq - x1)],
-            (12.0 * f64::from(fig.width) / 1000.0) as u32,
-            (8.0 * f64::from(fig.width) / 1000.0) as u32,
+            sc.dash.0,
+            sc.dash.1,
             REFERENCE.stroke_width(sc.line),
         ))
         .map_err(&e)?
         .label("equilibrium, slope −1")
-        .legend(move |(x, y)| {
-            PathElement::new(vec![(x, y), (x + 20, y)], REFERENCE.stroke_width(2))
-        });
+        .legend(stroke(REFERENCE.stroke_width(sc.line), sc.sample));
     Ok(())
 }
 
@@ -432,6 +562,7 @@ fn fd_band<'a, DB: DrawingBackend + 'a>(
     joint: &GroupFit,
     level: f64,
     rg: &FdRanges,
+    sc: &Scale,
 ) -> Result<()> {
     let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(FD);
     if joint.curve_replicates.len() >= 20 {
@@ -457,9 +588,7 @@ fn fd_band<'a, DB: DrawingBackend + 'a>(
             )))
             .map_err(&e)?
             .label(format!("{:.0}% resampling band", 100.0 * level))
-            .legend(move |(x, y)| {
-                Rectangle::new([(x, y - 6), (x + 20, y + 6)], PALETTE[0].mix(0.3).filled())
-            });
+            .legend(swatch(PALETTE[0].mix(0.3).filled(), sc.sample));
     }
     Ok(())
 }
@@ -485,7 +614,7 @@ fn fd_points<'a, DB: DrawingBackend + 'a>(
                     p.y - p.y_se,
                     p.y,
                     p.y + p.y_se,
-                    c.stroke_width(1),
+                    c.stroke_width(sc.thin),
                     sc.marker as u32,
                 )
             }))
@@ -497,12 +626,12 @@ fn fd_points<'a, DB: DrawingBackend + 'a>(
                     p.x - p.x_se,
                     p.x,
                     p.x + p.x_se,
-                    c.stroke_width(1),
+                    c.stroke_width(sc.thin),
                     sc.marker as u32,
                 )
             }))
             .map_err(&e)?;
-        let (ms, line) = (sc.marker, sc.line);
+        let (ms, line, half) = (sc.marker, sc.line, sc.sample / 2);
         let label = format!("tw = {}", crate::report::format::fmt_num(tw));
         // Shapes differ per series (filled circle, filled triangle, cross, open circle) so
         // the series stay apart without colour.
@@ -512,7 +641,7 @@ fn fd_points<'a, DB: DrawingBackend + 'a>(
                     .draw_series(mine.iter().map(|p| $shape((p.x, p.y))))
                     .map_err(&e)?
                     .label(label)
-                    .legend(move |(x, y)| $shape((x + 10, y)))
+                    .legend(move |(x, y)| $shape((x + half, y)))
             };
         }
         match i % 4 {
@@ -547,7 +676,7 @@ fn fd_fit<'a, DB: DrawingBackend + 'a>(
             "fit: X = {}",
             fmt_iv(joint.ratio.estimate, joint.ratio.low, joint.ratio.high)
         ))
-        .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], INK.stroke_width(3)));
+        .legend(stroke(INK.stroke_width(sc.line), sc.sample));
     chart
         .draw_series(std::iter::empty::<Circle<(f64, f64), i32>>())
         .map_err(&e)?
@@ -618,7 +747,7 @@ fn draw_hist<DB: DrawingBackend>(
     fig: Figure,
 ) -> Result<()> {
     let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(HIST);
-    let sc = scale(fig.width);
+    let sc = scale(fig);
     let n = reps.len();
     let (counts, lo, w) = hist_bins(reps);
     let hi = reps[n - 1];
@@ -645,10 +774,8 @@ fn draw_hist<DB: DrawingBackend>(
         }))
         .map_err(&e)?
         .label(format!("{n} resamples of whole samples"))
-        .legend(|(x, y)| {
-            Rectangle::new([(x, y - 6), (x + 20, y + 6)], PALETTE[0].mix(0.55).filled())
-        });
-    hist_marks(&mut chart, r, ymax / 1.35, fig, &sc)?;
+        .legend(swatch(PALETTE[0].mix(0.55).filled(), sc.sample));
+    hist_marks(&mut chart, r, ymax / 1.35, &sc)?;
     legend(&mut chart, &sc)?;
     Ok(())
 }
@@ -658,7 +785,6 @@ fn hist_marks<'a, DB: DrawingBackend + 'a>(
     chart: &mut Chart<'a, DB>,
     r: &FitReport,
     top: f64,
-    fig: Figure,
     sc: &Scale,
 ) -> Result<()> {
     let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(HIST);
@@ -671,16 +797,15 @@ fn hist_marks<'a, DB: DrawingBackend + 'a>(
             ))
             .map_err(&e)?
             .label(format!("estimate X = {}", super::sig(est, 3)))
-            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], INK.stroke_width(3)));
+            .legend(stroke(INK.stroke_width(sc.line), sc.sample));
     }
     if let (Some(a), Some(b)) = (joint.ratio.low, joint.ratio.high) {
-        let dash = (10.0 * f64::from(fig.width) / 1000.0) as u32;
         for (i, v) in [a, b].into_iter().enumerate() {
             let s = chart
                 .draw_series(DashedLineSeries::new(
                     vec![(v, 0.0), (v, top)],
-                    dash,
-                    dash,
+                    sc.dash.0,
+                    sc.dash.1,
                     PALETTE[1].stroke_width(sc.line),
                 ))
                 .map_err(&e)?;
@@ -692,9 +817,7 @@ fn hist_marks<'a, DB: DrawingBackend + 'a>(
                     super::sig(a, 3),
                     super::sig(b, 3)
                 ))
-                .legend(|(x, y)| {
-                    PathElement::new(vec![(x, y), (x + 20, y)], PALETTE[1].stroke_width(3))
-                });
+                .legend(stroke(PALETTE[1].stroke_width(sc.line), sc.sample));
             }
         }
     }
@@ -772,12 +895,12 @@ fn draw_teff<DB: DrawingBackend>(
     fig: Figure,
 ) -> Result<()> {
     let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(TEFF);
-    let sc = scale(fig.width);
+    let sc = scale(fig);
     let rg = teff_ranges(r);
     let f_range = (rg.f0 / 1.2)..(rg.f1 * 1.2);
     let mut builder = ChartBuilder::on(&root);
     builder
-        .margin((fig.width / 40) as i32)
+        .margin((6.0 * sc.px) as i32)
         .x_label_area_size((sc.label * 2.4) as i32)
         .y_label_area_size((sc.label * 3.2) as i32);
     if rg.log_y {
@@ -787,7 +910,6 @@ fn draw_teff<DB: DrawingBackend>(
                 .map_err(&e)?,
             r,
             &rg,
-            fig,
             &sc,
         )?;
     } else {
@@ -797,7 +919,6 @@ fn draw_teff<DB: DrawingBackend>(
                 .map_err(&e)?,
             r,
             &rg,
-            fig,
             &sc,
         )?;
     }
@@ -809,7 +930,6 @@ fn teff_body<'a, DB, Y>(
     mut chart: ChartContext<'a, DB, Cartesian2d<LogCoord<f64>, Y>>,
     r: &SpectrumReport,
     rg: &TeffRanges,
-    fig: Figure,
     sc: &Scale,
 ) -> Result<()>
 where
@@ -835,14 +955,14 @@ where
         .map_err(&e)?;
     for (i, s) in r.spectra.iter().enumerate() {
         let c = PALETTE[i % PALETTE.len()];
-        teff_spectrum(&mut chart, s, c, r.settings.level, rg, fig, sc)?;
+        teff_spectrum(&mut chart, s, c, r.settings.level, rg, sc)?;
     }
     if let Some(t) = r.settings.temperature {
         chart
             .draw_series(DashedLineSeries::new(
                 vec![(rg.f0 / 1.2, t), (rg.f1 * 1.2, t)],
-                (12.0 * f64::from(fig.width) / 1000.0) as u32,
-                (8.0 * f64::from(fig.width) / 1000.0) as u32,
+                sc.dash.0,
+                sc.dash.1,
                 REFERENCE.stroke_width(sc.line),
             ))
             .map_err(&e)?
@@ -851,9 +971,7 @@ where
                 super::sig(t, 4),
                 unit.replace(['(', ')'], "")
             ))
-            .legend(|(x, y)| {
-                PathElement::new(vec![(x, y), (x + 20, y)], REFERENCE.stroke_width(2))
-            });
+            .legend(stroke(REFERENCE.stroke_width(sc.line), sc.sample));
     }
     legend(&mut chart, sc)?;
     Ok(())
@@ -866,7 +984,6 @@ fn teff_spectrum<'a, DB, Y>(
     c: RGBColor,
     level: f64,
     rg: &TeffRanges,
-    fig: Figure,
     sc: &Scale,
 ) -> Result<()>
 where
@@ -886,9 +1003,7 @@ where
             .draw_series(std::iter::once(Polygon::new(band, c.mix(0.2).filled())))
             .map_err(&e)?
             .label(format!("{:.0}% interval", 100.0 * level))
-            .legend(move |(x, y)| {
-                Rectangle::new([(x, y - 6), (x + 20, y + 6)], c.mix(0.3).filled())
-            });
+            .legend(swatch(c.mix(0.3).filled(), sc.sample));
     }
     let label = s.tw.map_or_else(
         || "T_eff(f)".to_string(),
@@ -901,14 +1016,14 @@ where
         ))
         .map_err(&e)?
         .label(label)
-        .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], c.stroke_width(3)));
+        .legend(stroke(c.stroke_width(sc.line), sc.sample));
     if let Some(d) = &s.departure {
         let fd = d.below_hz;
         chart
             .draw_series(DashedLineSeries::new(
                 vec![(fd, t0), (fd, t1)],
-                (10.0 * f64::from(fig.width) / 1000.0) as u32,
-                (8.0 * f64::from(fig.width) / 1000.0) as u32,
+                sc.dash.0,
+                sc.dash.1,
                 PALETTE[3].stroke_width(sc.line),
             ))
             .map_err(&e)?
@@ -918,9 +1033,7 @@ where
                 d.direction.label(),
                 d.direction.side()
             ))
-            .legend(|(x, y)| {
-                PathElement::new(vec![(x, y), (x + 20, y)], PALETTE[3].stroke_width(3))
-            });
+            .legend(stroke(PALETTE[3].stroke_width(sc.line), sc.sample));
     }
     Ok(())
 }
