@@ -84,6 +84,24 @@ fn the_fluctuation_dissipation_plot_has_every_element_in_svg_and_png() {
     assert_eq!(png_size(&png), (850, 600));
     // WxH is drawn as one column wide: 850 px over 8.5 cm is 254 dpi.
     assert!((png_dpi(&png).unwrap() - 254.0).abs() < 0.1);
+    // PDF: the same drawing on a page of the physical size, DejaVu Sans embedded.
+    let pdf = dir.path().join("fd.pdf");
+    fdtemp()
+        .arg("fit")
+        .arg(&input)
+        .args(["-T", "0.6", "-B", "200", "--plot"])
+        .arg(&pdf)
+        .assert()
+        .success();
+    let bytes = std::fs::read(&pdf).unwrap();
+    let text = String::from_utf8_lossy(&bytes);
+    assert!(text.starts_with("%PDF-"));
+    assert!(text.contains("DejaVuSans") && text.contains("/FontFile2"));
+    // 8.5 cm is 240.9 pt.
+    assert!(
+        text.contains("/MediaBox [0 0 240.9"),
+        "the page is not 8.5 cm wide"
+    );
     for (size, px) in [("double", (2102, 1299)), ("slide", (1920, 1080))] {
         let p = dir.path().join(format!("{size}.png"));
         fdtemp()
@@ -196,7 +214,7 @@ fn figure_requests_that_cannot_be_met_are_refused_clearly() {
         .assert()
         .code(2)
         .stderr(format!(
-            "error: {}: a figure's file name must end in .svg or .png\n",
+            "error: {}: a figure's file name must end in .svg, .png or .pdf\n",
             bad.display()
         ));
     fdtemp()

@@ -60,7 +60,7 @@ impl Command {
 
 #[derive(clap::Args)]
 pub struct PlotArgs {
-    /// Draw the figure into this file (.svg or .png).
+    /// Draw the figure into this file (.svg, .png or .pdf).
     #[arg(long, value_name = "FILE")]
     plot: Option<PathBuf>,
     /// Figure size: single (8.5 cm wide, one column), double (17.8 cm, two columns) or

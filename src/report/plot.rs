@@ -39,6 +39,8 @@ pub enum Format {
     Svg,
     /// Portable network graphics (RGB, 8 bit).
     Png,
+    /// Portable document format: the SVG drawing converted, with the font embedded.
+    Pdf,
 }
 
 /// The size a figure is drawn for: a physical width and height and a resolution.
@@ -117,9 +119,10 @@ impl Figure {
         let format = match ext.as_deref() {
             Some("svg") => Format::Svg,
             Some("png") => Format::Png,
+            Some("pdf") => Format::Pdf,
             _ => {
                 return Err(Error::Setting(format!(
-                    "{}: a figure's file name must end in .svg or .png",
+                    "{}: a figure's file name must end in .svg, .png or .pdf",
                     path.display()
                 )));
             }
@@ -275,16 +278,14 @@ fn render(
 ) -> Result<Vec<u8>> {
     register_font();
     match fig.format {
-        Format::Svg => {
-            let mut s = String::new();
-            {
-                let root =
-                    SVGBackend::with_string(&mut s, (fig.width, fig.height)).into_drawing_area();
-                root.fill(&WHITE).map_err(err(what))?;
-                draw(root.clone())?;
-                root.present().map_err(err(what))?;
-            }
-            Ok(physical_svg(s, fig).into_bytes())
+        Format::Svg => Ok(physical_svg(svg_string(fig, what, &draw)?, fig).into_bytes()),
+        Format::Pdf => {
+            // The PDF page takes the physical size the SVG states.
+            let fig = Figure {
+                physical: true,
+                ..fig
+            };
+            pdf_from_svg(&physical_svg(svg_string(fig, what, &draw)?, fig))
         }
         Format::Png => {
             let mut buf = vec![0u8; fig.width as usize * fig.height as usize * 3];
@@ -298,6 +299,73 @@ fn render(
             encode_png(&buf, fig)
         }
     }
+}
+
+/// The drawing as SVG text, sized in pixels.
+fn svg_string(
+    fig: Figure,
+    what: &str,
+    draw: &impl Fn(DrawingArea<SVGBackend<'_>, Shift>) -> Result<()>,
+) -> Result<String> {
+    let mut s = String::new();
+    {
+        let root = SVGBackend::with_string(&mut s, (fig.width, fig.height)).into_drawing_area();
+        root.fill(&WHITE).map_err(err(what))?;
+        draw(root.clone())?;
+        root.present().map_err(err(what))?;
+    }
+    Ok(s)
+}
+
+/// SVG text converted to PDF (svg2pdf), with DejaVu Sans as the sans-serif face so the
+/// text is embedded as text in that font. The page is the SVG's stated size.
+fn pdf_from_svg(svg: &str) -> Result<Vec<u8>> {
+    use svg2pdf::usvg;
+    // usvg reads cm at its dpi; the page at the same dpi keeps the physical size.
+    const DPI: f32 = 96.0;
+    let mut db = usvg::fontdb::Database::new();
+    db.load_font_data(FONT.to_vec());
+    db.set_sans_serif_family("DejaVu Sans");
+    let opt = usvg::Options {
+        dpi: DPI,
+        font_family: "DejaVu Sans".into(),
+        fontdb: std::sync::Arc::new(db),
+        ..usvg::Options::default()
+    };
+    let tree = usvg::Tree::from_str(svg, &opt).map_err(err("PDF"))?;
+    let page = svg2pdf::PageOptions { dpi: DPI };
+    let pdf =
+        svg2pdf::to_pdf(&tree, svg2pdf::ConversionOptions::default(), page).map_err(err("PDF"))?;
+    Ok(sorted_resources(pdf))
+}
+
+/// svg2pdf 0.13 writes the entries of a page's resource dictionaries (`/xo0 8 0 R`, one
+/// per line) in hash-map order, so two runs differ. Sorting each run of such lines that
+/// follows a line ending in `<<` gives the same bytes every time; the run keeps its
+/// length, so the cross-reference offsets stay right.
+fn sorted_resources(pdf: Vec<u8>) -> Vec<u8> {
+    let is_entry = |l: &[u8]| {
+        let t = l.trim_ascii();
+        t.first() == Some(&b'/')
+            && t.ends_with(b" 0 R")
+            && t.iter().all(|b| b.is_ascii_graphic() || *b == b' ')
+    };
+    let mut lines: Vec<&[u8]> = pdf.split(|&b| b == b'\n').collect();
+    let mut i = 0;
+    while i < lines.len() {
+        if lines[i].trim_ascii_end().ends_with(b"<<") {
+            let start = i + 1;
+            let mut end = start;
+            while end < lines.len() && is_entry(lines[end]) {
+                end += 1;
+            }
+            lines[start..end].sort_unstable();
+            i = end.max(i + 1);
+        } else {
+            i += 1;
+        }
+    }
+    lines.join(&b'\n')
 }
 
 /// States the physical size on the `<svg>` element (a preset's width and height in cm,

@@ -132,10 +132,10 @@ fn truth(spec: &SynthSpec, spectrum_spec: &SpectrumSpec) -> serde_json::Value {
     })
 }
 
-/// The FD plot, the resample histogram and T_eff(f), each as SVG and as PNG.
+/// The FD plot, the resample histogram and T_eff(f), each as SVG, PNG and PDF.
 fn figures(dir: &Path, report: &FitReport, spectrum: &SpectrumReport) -> Result<Vec<Output>> {
     let mut outputs = Vec::new();
-    for ext in ["svg", "png"] {
+    for ext in ["svg", "png", "pdf"] {
         let fig = |name: &str| {
             let path = dir.join(format!("{name}.{ext}"));
             Figure::for_path(&path, PlotSize::Single).map(|f| (path, f))
