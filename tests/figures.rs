@@ -62,7 +62,7 @@ fn the_fluctuation_dissipation_plot_has_every_element_in_svg_and_png() {
         "\ntw = 10000\n",
         "equilibrium, slope −1",
         "fit: X = ",
-        "T_eff = ",
+        "Teff = ",
         "break q = ",
         "95% resampling band",
         "C(t,tw)",
@@ -138,10 +138,10 @@ fn the_effective_temperature_plot_marks_the_bath_and_the_departure() {
     let text = std::fs::read_to_string(&svg).unwrap();
     for label in [
         "bath T = 295",
-        "departs from T below",
+        "departs below",
         "95% interval",
         "f (Hz)",
-        "T_eff (K)",
+        "Teff (K)",
     ] {
         assert!(text.contains(label), "the SVG lacks '{label}'");
     }

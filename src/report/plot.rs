@@ -412,16 +412,8 @@ fn tick(v: f64) -> String {
     let a = v.abs();
     let l = a.log10();
     if !(1e-3..1e4).contains(&a) && (l - l.round()).abs() < 1e-9 {
-        const SUP: [char; 10] = ['⁰', '¹', '²', '³', '⁴', '⁵', '⁶', '⁷', '⁸', '⁹'];
-        let n = l.round() as i64;
-        let digits: String = n
-            .abs()
-            .to_string()
-            .chars()
-            .map(|d| SUP[d as usize - '0' as usize])
-            .collect();
         let sign = if v < 0.0 { "−" } else { "" };
-        return format!("{sign}10{}{digits}", if n < 0 { "⁻" } else { "" });
+        return format!("{sign}{}", superscript_power(l.round() as i64));
     }
     if !(1e-3..1e5).contains(&a) {
         return format!("{v:.1e}");
@@ -429,8 +421,46 @@ fn tick(v: f64) -> String {
     crate::report::format::fmt_num(v)
 }
 
+/// An estimate and its interval, with 3 significant digits or more: digits are added
+/// (up to 6) until an end that differs from the estimate also prints differently.
+/// A log axis's label: decades only, all as 10ⁿ (other ticks stay, unlabelled, as minor
+/// ticks). When the range holds fewer than two decades, every tick is labelled.
+fn log_tick(v: f64, (lo, hi): (f64, f64)) -> String {
+    let decades = (hi.log10().floor() - lo.log10().ceil()) as i64 + 1;
+    if decades < 2 {
+        return tick(v);
+    }
+    let l = v.log10();
+    if (l - l.round()).abs() > 1e-9 {
+        return String::new();
+    }
+    superscript_power(l.round() as i64)
+}
+
+/// 10 to the power `n` with superscript digits (10⁻¹, 10⁰, 10³).
+fn superscript_power(n: i64) -> String {
+    const SUP: [char; 10] = ['⁰', '¹', '²', '³', '⁴', '⁵', '⁶', '⁷', '⁸', '⁹'];
+    let digits: String = n
+        .abs()
+        .to_string()
+        .chars()
+        .map(|d| SUP[d as usize - '0' as usize])
+        .collect();
+    format!("10{}{digits}", if n < 0 { "⁻" } else { "" })
+}
+
 fn fmt_iv(v: Option<f64>, lo: Option<f64>, hi: Option<f64>) -> String {
-    let f = |x: f64| super::sig(x, 3);
+    let digits = v.map_or(3, |v| {
+        (3..=6)
+            .find(|&d| {
+                [lo, hi]
+                    .into_iter()
+                    .flatten()
+                    .all(|e| e.total_cmp(&v).is_eq() || super::sig(e, d) != super::sig(v, d))
+            })
+            .unwrap_or(6)
+    });
+    let f = |x: f64| super::sig(x, digits);
     match (v, lo, hi) {
         (Some(v), Some(lo), Some(hi)) => format!("{} [{}, {}]", f(v), f(lo), f(hi)),
         (Some(v), Some(lo), None) => format!("{} [{}, unbounded]", f(v), f(lo)),
@@ -438,6 +468,9 @@ fn fmt_iv(v: Option<f64>, lo: Option<f64>, hi: Option<f64>) -> String {
         _ => "undefined".into(),
     }
 }
+
+/// The effective temperature as figures write it (no literal underscore).
+const T_EFF: &str = "Teff";
 
 /// What each figure is called in a drawing error.
 const FD: &str = "fluctuation–dissipation plot";
@@ -748,7 +781,7 @@ fn fd_fit<'a, DB: DrawingBackend + 'a>(
     chart
         .draw_series(std::iter::empty::<Circle<(f64, f64), i32>>())
         .map_err(&e)?
-        .label(format!("T_eff = {t_eff}"))
+        .label(format!("{T_EFF} = {t_eff}"))
         .legend(|(x, y)| EmptyElement::at((x, y)));
     Ok(())
 }
@@ -1014,16 +1047,30 @@ where
         .configure_mesh()
         .disable_mesh()
         .x_desc("f (Hz)")
-        .y_desc(format!("T_eff{unit}"))
+        .y_desc(format!("{T_EFF}{unit}"))
         .axis_desc_style(("sans-serif", sc.label))
         .label_style(("sans-serif", sc.tick))
-        .x_label_formatter(&|v| tick(*v))
-        .y_label_formatter(&|v| tick(*v))
+        .x_labels(30)
+        .y_labels(30)
+        .x_label_formatter(&|v| log_tick(*v, (rg.f0 / 1.2, rg.f1 * 1.2)))
+        .y_label_formatter(&|v| {
+            if rg.log_y {
+                log_tick(*v, (rg.t0, rg.t1))
+            } else {
+                tick(*v)
+            }
+        })
         .draw()
         .map_err(&e)?;
     for (i, s) in r.spectra.iter().enumerate() {
         let c = PALETTE[i % PALETTE.len()];
-        teff_spectrum(&mut chart, s, c, r.settings.level, rg, sc)?;
+        // One legend entry per kind: the band and the departure are named once.
+        let named = Named {
+            band: i == 0,
+            departure: r.spectra[..i].iter().all(|s| s.departure.is_none()),
+            several: r.spectra.len() > 1,
+        };
+        teff_spectrum(&mut chart, s, c, (r.settings.level, named), rg, sc)?;
     }
     if let Some(t) = r.settings.temperature {
         chart
@@ -1045,12 +1092,21 @@ where
     Ok(())
 }
 
+/// Which of a spectrum's elements get a legend entry, so each kind is named once.
+#[derive(Clone, Copy)]
+struct Named {
+    band: bool,
+    departure: bool,
+    /// More than one spectrum: the departure's entry names no frequency.
+    several: bool,
+}
+
 /// One spectrum in colour `c`: its interval band, its T_eff(f) and its departure.
 fn teff_spectrum<'a, DB, Y>(
     chart: &mut ChartContext<'a, DB, Cartesian2d<LogCoord<f64>, Y>>,
     s: &SpectrumFit,
     c: RGBColor,
-    level: f64,
+    (level, named): (f64, Named),
     rg: &TeffRanges,
     sc: &Scale,
 ) -> Result<()>
@@ -1067,15 +1123,19 @@ where
         .chain(ok.iter().rev().filter_map(|p| Some((p.f, p.low?.max(t0)))))
         .collect();
     if band.len() > 2 {
-        chart
+        let drawn = chart
             .draw_series(std::iter::once(Polygon::new(band, c.mix(0.2).filled())))
-            .map_err(&e)?
-            .label(format!("{:.0}% interval", 100.0 * level))
-            .legend(swatch(c.mix(0.3).filled(), sc.sample));
+            .map_err(&e)?;
+        if named.band {
+            let swatch_colour = if named.several { BAND } else { c };
+            drawn
+                .label(format!("{:.0}% interval", 100.0 * level))
+                .legend(swatch(swatch_colour.mix(0.4).filled(), sc.sample));
+        }
     }
     let label = s.tw.map_or_else(
-        || "T_eff(f)".to_string(),
-        |t| format!("T_eff(f), tw = {}", crate::report::format::fmt_num(t)),
+        || format!("{T_EFF}(f)"),
+        |t| format!("{T_EFF}(f), tw = {}", crate::report::format::fmt_num(t)),
     );
     chart
         .draw_series(LineSeries::new(
@@ -1087,21 +1147,29 @@ where
         .legend(stroke(c.stroke_width(sc.line), sc.sample));
     if let Some(d) = &s.departure {
         let fd = d.below_hz;
-        chart
+        let drawn = chart
             .draw_series(DashedLineSeries::new(
                 vec![(fd, t0), (fd, t1)],
                 sc.dash.0,
                 sc.dash.1,
                 PALETTE[3].stroke_width(sc.line),
             ))
-            .map_err(&e)?
-            .label(format!(
-                "departs from T below {} Hz ({}: T_eff {} T)",
-                super::sig(fd, 3),
-                d.direction.label(),
-                d.direction.side()
-            ))
-            .legend(stroke(PALETTE[3].stroke_width(sc.line), sc.sample));
+            .map_err(&e)?;
+        if named.departure {
+            let label = if named.several {
+                format!("departure from T ({T_EFF} {} T)", d.direction.side())
+            } else {
+                format!(
+                    "departs below {} Hz ({}: {T_EFF} {} T)",
+                    super::sig(fd, 3),
+                    d.direction.label(),
+                    d.direction.side()
+                )
+            };
+            drawn
+                .label(label)
+                .legend(stroke(PALETTE[3].stroke_width(sc.line), sc.sample));
+        }
     }
     Ok(())
 }
