@@ -242,3 +242,151 @@ fn figure_requests_that_cannot_be_met_are_refused_clearly() {
         ));
     assert!(!hist.exists());
 }
+
+/// One `<text>` of a plotters SVG: its box (x0, y0, x1, y1) in pixels, estimated from
+/// the font size, the anchor and the character count, and its font size.
+struct TextBox {
+    text: String,
+    font_px: f64,
+    rect: [f64; 4],
+}
+
+fn attr(tag: &str, name: &str) -> Option<String> {
+    let start = tag.find(&format!(" {name}=\""))? + name.len() + 3;
+    let len = tag[start..].find('"')?;
+    Some(tag[start..start + len].to_string())
+}
+
+/// Every text of the SVG, and the points per pixel at the physical size it states.
+fn svg_texts(svg: &str) -> (Vec<TextBox>, f64) {
+    let head = &svg[..svg.find('>').unwrap()];
+    let cm: f64 = attr(head, "width")
+        .unwrap()
+        .trim_end_matches("cm")
+        .parse()
+        .unwrap();
+    let view: Vec<f64> = attr(head, "viewBox")
+        .unwrap()
+        .split(' ')
+        .map(|v| v.parse().unwrap())
+        .collect();
+    let pt_per_px = cm / 2.54 * 72.0 / view[2];
+    let mut out = Vec::new();
+    for chunk in svg.split("<text").skip(1) {
+        let tag = &chunk[..chunk.find('>').unwrap()];
+        let text = chunk[tag.len() + 1..chunk.find("</text>").unwrap()]
+            .trim()
+            .to_string();
+        let num = |n: &str| attr(tag, n).unwrap().parse::<f64>().unwrap();
+        let (x, y, fs) = (num("x"), num("y"), num("font-size"));
+        // DejaVu Sans averages about 0.6 em per character in these labels (from memory).
+        let w = 0.6 * fs * text.chars().count() as f64;
+        let x0 = match attr(tag, "text-anchor").as_deref() {
+            Some("end") => x - w,
+            Some("middle") => x - w / 2.0,
+            _ => x,
+        };
+        let y0 = match attr(tag, "dy").as_deref() {
+            Some("0.76em") => y,
+            Some("0.5ex") => y - fs / 2.0,
+            _ => y - fs,
+        };
+        let mut rect = [x0, y0, x0 + w, y0 + fs];
+        if tag.contains("rotate(") {
+            // A rotated axis title: its box turns about (x, y).
+            rect = [x - fs / 2.0, y - w / 2.0, x + fs / 2.0, y + w / 2.0];
+        }
+        out.push(TextBox {
+            text,
+            font_px: fs,
+            rect,
+        });
+    }
+    (out, pt_per_px)
+}
+
+/// Font sizes of at least 7 pt at the stated size, and no two text boxes overlapping
+/// (shrunk by a tenth of the font size, as the estimate is rough).
+fn check_print_text(name: &str, svg: &str) -> (f64, f64) {
+    let (texts, pt_per_px) = svg_texts(svg);
+    assert!(texts.len() >= 8, "{name}: only {} texts", texts.len());
+    let sizes: Vec<f64> = texts.iter().map(|t| t.font_px * pt_per_px).collect();
+    let (min, max) = sizes
+        .iter()
+        .fold((f64::INFINITY, 0.0f64), |(a, b), &s| (a.min(s), b.max(s)));
+    assert!(min >= 7.0, "{name}: text at {min:.2} pt");
+    let live: Vec<&TextBox> = texts.iter().filter(|t| !t.text.is_empty()).collect();
+    for (i, a) in live.iter().enumerate() {
+        for b in &live[i + 1..] {
+            let m = 0.1 * a.font_px.min(b.font_px);
+            let apart = a.rect[2] - m <= b.rect[0]
+                || b.rect[2] - m <= a.rect[0]
+                || a.rect[3] - m <= b.rect[1]
+                || b.rect[3] - m <= a.rect[1];
+            assert!(apart, "{name}: '{}' overlaps '{}'", a.text, b.text);
+        }
+    }
+    (min, max)
+}
+
+#[test]
+fn the_print_text_check_catches_small_and_overlapping_labels() {
+    let head = r#"<svg width="8.50cm" height="6.80cm" viewBox="0 0 1004 803">"#;
+    let text = |x: u32, fs: f64, s: &str| {
+        format!(
+            r#"<text x="{x}" y="700" dy="0.76em" text-anchor="middle" font-size="{fs}">{s}</text>"#
+        )
+    };
+    let row = |fs: f64, step: u32| -> String {
+        let labels: String = (0..8).map(|i| text(100 + i * step, fs, "10000")).collect();
+        format!("{head}{labels}</svg>")
+    };
+    assert!(std::panic::catch_unwind(|| check_print_text("apart", &row(34.0, 120))).is_ok());
+    assert!(std::panic::catch_unwind(|| check_print_text("overlap", &row(34.0, 60))).is_err());
+    assert!(std::panic::catch_unwind(|| check_print_text("small", &row(20.0, 120))).is_err());
+}
+
+#[test]
+fn the_demo_figures_have_print_sized_text_without_overlaps_at_one_and_two_columns() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("demo");
+    fdtemp()
+        .args(["demo", "--out"])
+        .arg(&out)
+        .assert()
+        .success();
+    for f in ["fd-plot", "ratio-resamples", "teff-spectrum"] {
+        let svg = std::fs::read_to_string(out.join(format!("{f}.svg"))).unwrap();
+        check_print_text(&format!("{f} single"), &svg);
+        assert!(
+            std::fs::read(out.join(format!("{f}.pdf")))
+                .unwrap()
+                .starts_with(b"%PDF-")
+        );
+        assert!((png_dpi(&out.join(format!("{f}.png"))).unwrap() - 300.0).abs() < 0.1);
+    }
+    let fd = dir.path().join("fd.svg");
+    let hist = dir.path().join("hist.svg");
+    fdtemp()
+        .arg("fit")
+        .arg(out.join("campaign.csv"))
+        .args(["-T", "0.6", "-B", "200", "--plot-size", "double", "--plot"])
+        .arg(&fd)
+        .arg("--plot-resamples")
+        .arg(&hist)
+        .assert()
+        .success();
+    let teff = dir.path().join("teff.svg");
+    fdtemp()
+        .arg("spectrum")
+        .arg(out.join("spectrum.csv"))
+        .args(["-T", "295", "-B", "200", "--plot-size", "double", "--plot"])
+        .arg(&teff)
+        .assert()
+        .success();
+    for p in [fd, hist, teff] {
+        let svg = std::fs::read_to_string(&p).unwrap();
+        assert!(svg.starts_with("<svg width=\"17.8cm\""));
+        check_print_text(&format!("{} double", p.display()), &svg);
+    }
+}
