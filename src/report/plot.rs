@@ -257,9 +257,22 @@ where
     DB: DrawingBackend + 'a,
     CT: plotters::coord::CoordTranslate,
 {
+    legend_at(chart, sc, SeriesLabelPosition::UpperRight)
+}
+
+/// The legend in a chosen corner.
+fn legend_at<'a, DB, CT>(
+    chart: &mut ChartContext<'a, DB, CT>,
+    sc: &Scale,
+    corner: SeriesLabelPosition,
+) -> Result<()>
+where
+    DB: DrawingBackend + 'a,
+    CT: plotters::coord::CoordTranslate,
+{
     chart
         .configure_series_labels()
-        .position(SeriesLabelPosition::UpperRight)
+        .position(corner)
         .background_style(WHITE.filled())
         .border_style(REFERENCE)
         .label_font(("sans-serif", sc.legend))
@@ -542,7 +555,6 @@ fn linear_chart<'a, DB: DrawingBackend + 'a>(
 struct FdRanges {
     xmin_data: f64,
     xmax_data: f64,
-    ymax_data: f64,
     x0: f64,
     x1: f64,
     y0: f64,
@@ -566,15 +578,16 @@ fn fd_ranges(pts: &[PointRecord], curve: Curve) -> FdRanges {
         .iter()
         .map(|p| p.y - p.y_se)
         .fold(f64::INFINITY, f64::min);
+    // The data, the fitted curve's level and the origin, with a 4% margin at the top.
+    let y0 = ymin_data.min(0.0);
+    let top = ymax_data.max(curve.intercept);
     FdRanges {
         xmin_data,
         xmax_data,
-        ymax_data,
         x0: xmin_data.min(0.0),
         x1: xmax_data.max(curve.intercept.max(1.0)),
-        y0: ymin_data.min(0.0),
-        // Head room for the legend above the data.
-        y1: ymax_data.max(curve.intercept) * 1.45,
+        y0,
+        y1: top + 0.04 * (top - y0),
     }
 }
 
@@ -607,14 +620,16 @@ fn draw_fd<DB: DrawingBackend>(
 ) -> Result<()> {
     let sc = scale(fig);
     let joint = &r.fits[0];
-    let rg = fd_ranges(&r.points, curve);
+    let mut rg = fd_ranges(&r.points, curve);
+    let (corner, y1) = fd_layout(r, curve, &rg, fig);
+    rg.y1 = y1;
     let ranges = (rg.x0..rg.x1, rg.y0..rg.y1);
-    let mut chart = linear_chart(&root, fig, ranges, fd_labels(r), 6, FD)?;
+    let mut chart = linear_chart(&root, fig, ranges, fd_labels(r), 9, FD)?;
     fd_references(&mut chart, joint, curve, &rg, &sc)?;
     fd_band(&mut chart, joint, r.settings.given.level, &rg, &sc)?;
     fd_points(&mut chart, r, &sc)?;
     fd_fit(&mut chart, joint, curve, &rg, &sc)?;
-    legend(&mut chart, &sc)?;
+    legend_at(&mut chart, &sc, corner)?;
     Ok(())
 }
 
@@ -627,20 +642,18 @@ fn fd_references<'a, DB: DrawingBackend + 'a>(
     sc: &Scale,
 ) -> Result<()> {
     let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(FD);
-    let (x0, x1, y0, ymax_data) = (rg.x0, rg.x1, rg.y0, rg.ymax_data);
-    // The break's interval and estimate.
+    let (x0, x1, y0, y1) = (rg.x0, rg.x1, rg.y0, rg.y1);
+    // The break's interval as a bracket standing on the C axis.
     if let (Some(lo), Some(hi)) = (joint.brk.low, joint.brk.high) {
+        let h = 0.05 * (y1 - y0);
         chart
-            .draw_series(std::iter::once(Rectangle::new(
-                [(lo, y0), (hi, ymax_data + 0.08 * (ymax_data - y0))],
-                BAND.mix(0.18).filled(),
+            .draw_series(std::iter::once(PathElement::new(
+                vec![(lo, y0 + h), (lo, y0), (hi, y0), (hi, y0 + h)],
+                PALETTE[4].stroke_width(sc.line * 2),
             )))
             .map_err(&e)?
-            .label(format!(
-                "break q = {}",
-                fmt_iv(joint.brk.estimate, joint.brk.low, joint.brk.high)
-            ))
-            .legend(swatch(BAND.mix(0.4).filled(), sc.sample));
+            .label(break_label(joint))
+            .legend(stroke(PALETTE[4].stroke_width(sc.line * 2), sc.sample));
     }
     // Equilibrium: slope -1 through the fitted upper segment's level.
     let eq = curve.intercept;
@@ -655,6 +668,82 @@ fn fd_references<'a, DB: DrawingBackend + 'a>(
         .label("equilibrium, slope −1")
         .legend(stroke(REFERENCE.stroke_width(sc.line), sc.sample));
     Ok(())
+}
+
+fn break_label(joint: &GroupFit) -> String {
+    format!(
+        "break q = {}",
+        fmt_iv(joint.brk.estimate, joint.brk.low, joint.brk.high)
+    )
+}
+
+fn fit_label(joint: &GroupFit) -> String {
+    format!(
+        "fit: X = {}",
+        fmt_iv(joint.ratio.estimate, joint.ratio.low, joint.ratio.high)
+    )
+}
+
+fn teff_label(joint: &GroupFit) -> String {
+    let t_eff = fmt_iv(joint.t_eff.estimate, joint.t_eff.low, joint.t_eff.high);
+    format!("{T_EFF} = {t_eff}")
+}
+
+/// Where the FD plot's legend goes and how high the y axis runs: lower left (the empty
+/// side below a fluctuation–dissipation curve) when no point or fitted curve falls under
+/// it, else upper right, with the y axis raised (by 8% steps, up to 1.6 times) until the
+/// data clear it. The legend's box is estimated from its rows and longest label, and the
+/// plot area from the chart's margins (`linear_chart`).
+fn fd_layout(
+    r: &FitReport,
+    curve: Curve,
+    rg: &FdRanges,
+    fig: Figure,
+) -> (SeriesLabelPosition, f64) {
+    let sc = scale(fig);
+    let joint = &r.fits[0];
+    let fs = sc.legend / PLOTTERS_EM;
+    let labels = [break_label(joint), fit_label(joint), teff_label(joint)];
+    let chars = labels
+        .iter()
+        .map(|l| l.chars().count())
+        .max()
+        .unwrap_or(0)
+        .max(22);
+    let rows = r.waiting_times.len() + 5;
+    let pad = 4.0 * sc.px;
+    let w = f64::from(sc.sample) + 3.0 * pad + 0.6 * fs * chars as f64;
+    let h = rows as f64 * 1.6 * fs + 2.0 * pad;
+    let margin = 6.0 * sc.px;
+    let plot_w = f64::from(fig.width) - 2.0 * margin - sc.label * 3.0;
+    let plot_h = f64::from(fig.height) - 2.0 * margin - sc.label * 2.4;
+    // The legend's box as fractions of the axes.
+    let (fx, fy) = ((w + pad) / plot_w, (h + pad) / plot_h);
+    let marks = |y1: f64| -> Vec<(f64, f64)> {
+        let frac = |x: f64, y: f64| ((x - rg.x0) / (rg.x1 - rg.x0), (y - rg.y0) / (y1 - rg.y0));
+        let curve_pts = (0..=50).map(|i| {
+            let x = rg.x0 + (rg.x1 - rg.x0) * f64::from(i) / 50.0;
+            frac(x, curve.eval(x))
+        });
+        r.points
+            .iter()
+            .map(|p| frac(p.x, p.y + p.y_se))
+            .chain(curve_pts)
+            .collect()
+    };
+    if marks(rg.y1).iter().all(|&(x, y)| !(x < fx && y < fy)) {
+        return (SeriesLabelPosition::LowerLeft, rg.y1);
+    }
+    let mut y1 = rg.y1;
+    let limit = rg.y0 + 1.6 * (rg.y1 - rg.y0);
+    while y1 < limit
+        && !marks(y1)
+            .iter()
+            .all(|&(x, y)| !(x > 1.0 - fx && y > 1.0 - fy))
+    {
+        y1 += 0.08 * (rg.y1 - rg.y0);
+    }
+    (SeriesLabelPosition::UpperRight, y1)
 }
 
 /// Bootstrap band of the fitted curve.
@@ -769,19 +858,15 @@ fn fd_fit<'a, DB: DrawingBackend + 'a>(
         .iter()
         .map(|&x| (x, curve.eval(x)))
         .collect();
-    let t_eff = fmt_iv(joint.t_eff.estimate, joint.t_eff.low, joint.t_eff.high);
     chart
         .draw_series(LineSeries::new(fit_pts, INK.stroke_width(sc.line)))
         .map_err(&e)?
-        .label(format!(
-            "fit: X = {}",
-            fmt_iv(joint.ratio.estimate, joint.ratio.low, joint.ratio.high)
-        ))
+        .label(fit_label(joint))
         .legend(stroke(INK.stroke_width(sc.line), sc.sample));
     chart
         .draw_series(std::iter::empty::<Circle<(f64, f64), i32>>())
         .map_err(&e)?
-        .label(format!("{T_EFF} = {t_eff}"))
+        .label(teff_label(joint))
         .legend(|(x, y)| EmptyElement::at((x, y)));
     Ok(())
 }
