@@ -926,6 +926,9 @@ fn hist_bins(reps: &[f64]) -> (Vec<u32>, f64, f64) {
     (counts, lo, w)
 }
 
+/// The resample histogram's y range over its tallest bar.
+const HIST_ROOM: f64 = 1.6;
+
 fn draw_hist<DB: DrawingBackend>(
     root: DrawingArea<DB, Shift>,
     r: &FitReport,
@@ -937,7 +940,8 @@ fn draw_hist<DB: DrawingBackend>(
     let n = reps.len();
     let (counts, lo, w) = hist_bins(reps);
     let hi = reps[n - 1];
-    let ymax = f64::from(*counts.iter().max().unwrap_or(&1)) * 1.35;
+    // Head room for the three-row legend above the tallest bar.
+    let ymax = f64::from(*counts.iter().max().unwrap_or(&1)) * HIST_ROOM;
     let pad = 0.05 * (hi - lo);
     let mut chart = linear_chart(
         &root,
@@ -961,7 +965,7 @@ fn draw_hist<DB: DrawingBackend>(
         .map_err(&e)?
         .label(format!("{n} resamples of whole samples"))
         .legend(swatch(PALETTE[0].mix(0.55).filled(), sc.sample));
-    hist_marks(&mut chart, r, ymax / 1.35, &sc)?;
+    hist_marks(&mut chart, r, ymax / HIST_ROOM, &sc)?;
     legend(&mut chart, &sc)?;
     Ok(())
 }
