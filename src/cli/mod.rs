@@ -63,9 +63,9 @@ pub struct PlotArgs {
     /// Draw the figure into this file (.svg, .png or .pdf).
     #[arg(long, value_name = "FILE")]
     plot: Option<PathBuf>,
-    /// Figure size: single (8.5 cm wide, one column), double (17.8 cm, two columns) or
-    /// slide (16:9), with text of 7.5-9 pt at that size and PNG at 300 dpi (slide: 192);
-    /// or WxH pixels, drawn as if one column wide.
+    /// Figure size: single (8.5 cm wide, one column) or double (17.8 cm, two columns),
+    /// text 7.5-9 pt at that size, PNG at 300 dpi; slide (16:9, text twice as large,
+    /// 192 dpi); or WxH pixels, drawn as if one column wide.
     #[arg(long, value_name = "SIZE", default_value = "single", value_parser = fdtemp::report::plot::parse_size)]
     plot_size: PlotSize,
 }

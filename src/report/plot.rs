@@ -50,7 +50,8 @@ pub enum PlotSize {
     Single,
     /// The full width of a two-column paper: 17.8 cm × 11 cm at 300 dpi (2102 × 1299 px).
     Double,
-    /// A 16:9 slide: 10 in × 5.625 in at 192 dpi (1920 × 1080 px).
+    /// A 16:9 slide: 10 in × 5.625 in at 192 dpi (1920 × 1080 px), text and lines twice
+    /// their print size.
     Slide,
     /// A size in pixels, drawn as if printed one column wide (8.5 cm), so text scales
     /// with the width as before presets existed.
@@ -104,6 +105,8 @@ pub struct Figure {
     pub dpi: f64,
     /// Whether the SVG states its physical size (presets) or only pixels (`WxH`).
     pub physical: bool,
+    /// Text and lines relative to print (2 on a slide, seen from afar; 1 otherwise).
+    pub emphasis: f64,
 }
 
 impl Figure {
@@ -139,12 +142,13 @@ impl Figure {
             height,
             dpi: size.physical().2,
             physical: !matches!(size, PlotSize::Pixels(..)),
+            emphasis: if size == PlotSize::Slide { 2.0 } else { 1.0 },
         })
     }
 
-    /// Pixels per point (1/72 in) at the figure's physical size.
+    /// Pixels per point (1/72 in) at the figure's physical size, times its emphasis.
     fn px_per_pt(&self) -> f64 {
-        self.dpi / PT_PER_IN
+        self.dpi / PT_PER_IN * self.emphasis
     }
 }
 
