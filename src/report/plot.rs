@@ -1181,7 +1181,53 @@ where
             ))
             .legend(stroke(REFERENCE.stroke_width(sc.line), sc.sample));
     }
+    if let (Some(t), true) = (r.settings.temperature, rg.log_y) {
+        bath_tick(&chart, t, rg, sc)?;
+    }
     legend(&mut chart, sc)?;
+    Ok(())
+}
+
+/// The bath temperature as a labelled tick on a log T_eff axis, left of the axis like
+/// the decades, unless it would touch a decade's label (then the legend names it).
+fn bath_tick<'a, DB, Y>(
+    chart: &ChartContext<'a, DB, Cartesian2d<LogCoord<f64>, Y>>,
+    t: f64,
+    rg: &TeffRanges,
+    sc: &Scale,
+) -> Result<()>
+where
+    DB: DrawingBackend + 'a,
+    Y: Ranged<ValueType = f64> + ValueFormatter<f64>,
+{
+    let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(TEFF);
+    let x = rg.f0 / 1.2;
+    let (px, py) = chart.backend_coord(&(x, t));
+    let fs = sc.tick / PLOTTERS_EM;
+    let decades = (rg.t0.log10().ceil() as i32)..=(rg.t1.log10().floor() as i32);
+    let clear = decades
+        .map(|d| chart.backend_coord(&(x, 10f64.powi(d))).1)
+        .all(|dy| f64::from((dy - py).abs()) > 1.3 * fs);
+    if !clear {
+        return Ok(());
+    }
+    let area = chart.plotting_area().strip_coord_spec();
+    let (ox, oy) = area.get_base_pixel();
+    let (px, py) = (px - ox, py - oy);
+    let len = (3.0 * sc.px) as i32;
+    area.draw(&PathElement::new(
+        vec![(px - len, py), (px, py)],
+        INK.stroke_width(sc.thin),
+    ))
+    .map_err(&e)?;
+    let style = TextStyle::from(("sans-serif", sc.tick).into_font()).pos(
+        plotters::style::text_anchor::Pos::new(
+            plotters::style::text_anchor::HPos::Right,
+            plotters::style::text_anchor::VPos::Center,
+        ),
+    );
+    area.draw(&Text::new(super::sig(t, 3), (px - 2 * len, py), style))
+        .map_err(&e)?;
     Ok(())
 }
 
