@@ -31,6 +31,15 @@ fn png_size(path: &Path) -> (u32, u32) {
     (info.width, info.height)
 }
 
+/// The PNG's resolution from its pHYs chunk, in dots per inch.
+fn png_dpi(path: &Path) -> Option<f64> {
+    let decoder = png::Decoder::new(std::io::BufReader::new(std::fs::File::open(path).unwrap()));
+    let reader = decoder.read_info().unwrap();
+    let d = reader.info().pixel_dims?;
+    assert_eq!(d.xppu, d.yppu);
+    (d.unit == png::Unit::Meter).then(|| f64::from(d.xppu) * 0.0254)
+}
+
 #[test]
 fn the_fluctuation_dissipation_plot_has_every_element_in_svg_and_png() {
     let dir = tempfile::tempdir().unwrap();
@@ -53,7 +62,7 @@ fn the_fluctuation_dissipation_plot_has_every_element_in_svg_and_png() {
         "\ntw = 10000\n",
         "equilibrium, slope −1",
         "fit: X = ",
-        "T_eff = ",
+        "Teff = ",
         "break q = ",
         "95% resampling band",
         "C(t,tw)",
@@ -73,6 +82,37 @@ fn the_fluctuation_dissipation_plot_has_every_element_in_svg_and_png() {
         .assert()
         .success();
     assert_eq!(png_size(&png), (850, 600));
+    // WxH is drawn as one column wide: 850 px over 8.5 cm is 254 dpi.
+    assert!((png_dpi(&png).unwrap() - 254.0).abs() < 0.1);
+    // PDF: the same drawing on a page of the physical size, DejaVu Sans embedded.
+    let pdf = dir.path().join("fd.pdf");
+    fdtemp()
+        .arg("fit")
+        .arg(&input)
+        .args(["-T", "0.6", "-B", "200", "--plot"])
+        .arg(&pdf)
+        .assert()
+        .success();
+    let bytes = std::fs::read(&pdf).unwrap();
+    let text = String::from_utf8_lossy(&bytes);
+    assert!(text.starts_with("%PDF-"));
+    assert!(text.contains("DejaVuSans") && text.contains("/FontFile2"));
+    // 8.5 cm is 240.9 pt.
+    assert!(
+        text.contains("/MediaBox [0 0 240.9"),
+        "the page is not 8.5 cm wide"
+    );
+    for (size, px) in [("double", (2102, 1299)), ("slide", (1920, 1080))] {
+        let p = dir.path().join(format!("{size}.png"));
+        fdtemp()
+            .arg("fit")
+            .arg(&input)
+            .args(["-T", "0.6", "-B", "200", "--plot-size", size, "--plot"])
+            .arg(&p)
+            .assert()
+            .success();
+        assert_eq!(png_size(&p), px, "{size}");
+    }
 }
 
 #[test]
@@ -98,10 +138,10 @@ fn the_effective_temperature_plot_marks_the_bath_and_the_departure() {
     let text = std::fs::read_to_string(&svg).unwrap();
     for label in [
         "bath T = 295",
-        "departs from T below",
+        "departs below",
         "95% interval",
         "f (Hz)",
-        "T_eff (K)",
+        "Teff (K)",
     ] {
         assert!(text.contains(label), "the SVG lacks '{label}'");
     }
@@ -113,7 +153,9 @@ fn the_effective_temperature_plot_marks_the_bath_and_the_departure() {
         .arg(&png)
         .assert()
         .success();
-    assert_eq!(png_size(&png), (1000, 800));
+    // The default is one column (8.5 cm × 6.8 cm) at 300 dpi, stated in the file.
+    assert_eq!(png_size(&png), (1004, 803));
+    assert!((png_dpi(&png).unwrap() - 300.0).abs() < 0.1);
 }
 
 #[test]
@@ -148,7 +190,7 @@ fn noise_draws_its_effective_temperature_and_refuses_without_a_dissipation() {
         .arg(&png)
         .assert()
         .success();
-    assert_eq!(png_size(&png), (1000, 800));
+    assert_eq!(png_size(&png), (1004, 803));
     fdtemp()
         .arg("noise")
         .arg(&rec)
@@ -172,7 +214,7 @@ fn figure_requests_that_cannot_be_met_are_refused_clearly() {
         .assert()
         .code(2)
         .stderr(format!(
-            "error: {}: a figure's file name must end in .svg or .png\n",
+            "error: {}: a figure's file name must end in .svg, .png or .pdf\n",
             bad.display()
         ));
     fdtemp()
@@ -199,4 +241,152 @@ fn figure_requests_that_cannot_be_met_are_refused_clearly() {
             "error: cannot draw the resample histogram: every resample gives X = 0.45",
         ));
     assert!(!hist.exists());
+}
+
+/// One `<text>` of a plotters SVG: its box (x0, y0, x1, y1) in pixels, estimated from
+/// the font size, the anchor and the character count, and its font size.
+struct TextBox {
+    text: String,
+    font_px: f64,
+    rect: [f64; 4],
+}
+
+fn attr(tag: &str, name: &str) -> Option<String> {
+    let start = tag.find(&format!(" {name}=\""))? + name.len() + 3;
+    let len = tag[start..].find('"')?;
+    Some(tag[start..start + len].to_string())
+}
+
+/// Every text of the SVG, and the points per pixel at the physical size it states.
+fn svg_texts(svg: &str) -> (Vec<TextBox>, f64) {
+    let head = &svg[..svg.find('>').unwrap()];
+    let cm: f64 = attr(head, "width")
+        .unwrap()
+        .trim_end_matches("cm")
+        .parse()
+        .unwrap();
+    let view: Vec<f64> = attr(head, "viewBox")
+        .unwrap()
+        .split(' ')
+        .map(|v| v.parse().unwrap())
+        .collect();
+    let pt_per_px = cm / 2.54 * 72.0 / view[2];
+    let mut out = Vec::new();
+    for chunk in svg.split("<text").skip(1) {
+        let tag = &chunk[..chunk.find('>').unwrap()];
+        let text = chunk[tag.len() + 1..chunk.find("</text>").unwrap()]
+            .trim()
+            .to_string();
+        let num = |n: &str| attr(tag, n).unwrap().parse::<f64>().unwrap();
+        let (x, y, fs) = (num("x"), num("y"), num("font-size"));
+        // DejaVu Sans averages about 0.6 em per character in these labels (from memory).
+        let w = 0.6 * fs * text.chars().count() as f64;
+        let x0 = match attr(tag, "text-anchor").as_deref() {
+            Some("end") => x - w,
+            Some("middle") => x - w / 2.0,
+            _ => x,
+        };
+        let y0 = match attr(tag, "dy").as_deref() {
+            Some("0.76em") => y,
+            Some("0.5ex") => y - fs / 2.0,
+            _ => y - fs,
+        };
+        let mut rect = [x0, y0, x0 + w, y0 + fs];
+        if tag.contains("rotate(") {
+            // A rotated axis title: its box turns about (x, y).
+            rect = [x - fs / 2.0, y - w / 2.0, x + fs / 2.0, y + w / 2.0];
+        }
+        out.push(TextBox {
+            text,
+            font_px: fs,
+            rect,
+        });
+    }
+    (out, pt_per_px)
+}
+
+/// Font sizes of at least 7 pt at the stated size, and no two text boxes overlapping
+/// (shrunk by a tenth of the font size, as the estimate is rough).
+fn check_print_text(name: &str, svg: &str) -> (f64, f64) {
+    let (texts, pt_per_px) = svg_texts(svg);
+    assert!(texts.len() >= 8, "{name}: only {} texts", texts.len());
+    let sizes: Vec<f64> = texts.iter().map(|t| t.font_px * pt_per_px).collect();
+    let (min, max) = sizes
+        .iter()
+        .fold((f64::INFINITY, 0.0f64), |(a, b), &s| (a.min(s), b.max(s)));
+    assert!(min >= 7.0, "{name}: text at {min:.2} pt");
+    let live: Vec<&TextBox> = texts.iter().filter(|t| !t.text.is_empty()).collect();
+    for (i, a) in live.iter().enumerate() {
+        for b in &live[i + 1..] {
+            let m = 0.1 * a.font_px.min(b.font_px);
+            let apart = a.rect[2] - m <= b.rect[0]
+                || b.rect[2] - m <= a.rect[0]
+                || a.rect[3] - m <= b.rect[1]
+                || b.rect[3] - m <= a.rect[1];
+            assert!(apart, "{name}: '{}' overlaps '{}'", a.text, b.text);
+        }
+    }
+    (min, max)
+}
+
+#[test]
+fn the_print_text_check_catches_small_and_overlapping_labels() {
+    let head = r#"<svg width="8.50cm" height="6.80cm" viewBox="0 0 1004 803">"#;
+    let text = |x: u32, fs: f64, s: &str| {
+        format!(
+            r#"<text x="{x}" y="700" dy="0.76em" text-anchor="middle" font-size="{fs}">{s}</text>"#
+        )
+    };
+    let row = |fs: f64, step: u32| -> String {
+        let labels: String = (0..8).map(|i| text(100 + i * step, fs, "10000")).collect();
+        format!("{head}{labels}</svg>")
+    };
+    assert!(std::panic::catch_unwind(|| check_print_text("apart", &row(34.0, 120))).is_ok());
+    assert!(std::panic::catch_unwind(|| check_print_text("overlap", &row(34.0, 60))).is_err());
+    assert!(std::panic::catch_unwind(|| check_print_text("small", &row(20.0, 120))).is_err());
+}
+
+#[test]
+fn the_demo_figures_have_print_sized_text_without_overlaps_at_one_and_two_columns() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("demo");
+    fdtemp()
+        .args(["demo", "--out"])
+        .arg(&out)
+        .assert()
+        .success();
+    for f in ["fd-plot", "ratio-resamples", "teff-spectrum"] {
+        let svg = std::fs::read_to_string(out.join(format!("{f}.svg"))).unwrap();
+        check_print_text(&format!("{f} single"), &svg);
+        assert!(
+            std::fs::read(out.join(format!("{f}.pdf")))
+                .unwrap()
+                .starts_with(b"%PDF-")
+        );
+        assert!((png_dpi(&out.join(format!("{f}.png"))).unwrap() - 300.0).abs() < 0.1);
+    }
+    let fd = dir.path().join("fd.svg");
+    let hist = dir.path().join("hist.svg");
+    fdtemp()
+        .arg("fit")
+        .arg(out.join("campaign.csv"))
+        .args(["-T", "0.6", "-B", "200", "--plot-size", "double", "--plot"])
+        .arg(&fd)
+        .arg("--plot-resamples")
+        .arg(&hist)
+        .assert()
+        .success();
+    let teff = dir.path().join("teff.svg");
+    fdtemp()
+        .arg("spectrum")
+        .arg(out.join("spectrum.csv"))
+        .args(["-T", "295", "-B", "200", "--plot-size", "double", "--plot"])
+        .arg(&teff)
+        .assert()
+        .success();
+    for p in [fd, hist, teff] {
+        let svg = std::fs::read_to_string(&p).unwrap();
+        assert!(svg.starts_with("<svg width=\"17.8cm\""));
+        check_print_text(&format!("{} double", p.display()), &svg);
+    }
 }

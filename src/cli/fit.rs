@@ -63,7 +63,7 @@ pub struct FitArgs {
     /// Replace output files that exist already.
     #[arg(long)]
     overwrite: bool,
-    /// Draw the histogram of the resampled X into this file (.svg or .png).
+    /// Draw the histogram of the resampled X into this file (.svg, .png or .pdf).
     #[arg(long, value_name = "FILE")]
     plot_resamples: Option<PathBuf>,
     #[command(flatten)]

@@ -16,7 +16,7 @@ pub mod spectral;
 pub mod synth;
 
 use clap::{Parser, Subcommand};
-use fdtemp::report::plot::Figure;
+use fdtemp::report::plot::{Figure, PlotSize};
 use std::io::Write;
 use std::path::{Path, PathBuf};
 
@@ -60,12 +60,14 @@ impl Command {
 
 #[derive(clap::Args)]
 pub struct PlotArgs {
-    /// Draw the figure into this file (.svg or .png).
+    /// Draw the figure into this file (.svg, .png or .pdf).
     #[arg(long, value_name = "FILE")]
     plot: Option<PathBuf>,
-    /// Figure size in pixels (1000 wide suits 8.5 cm at 300 dpi).
-    #[arg(long, value_name = "WxH", default_value = "1000x800", value_parser = fdtemp::report::plot::parse_size)]
-    plot_size: (u32, u32),
+    /// Figure size: single (8.5 cm wide, one column) or double (17.8 cm, two columns),
+    /// text 7.5-9 pt at that size, PNG at 300 dpi; slide (16:9, text twice as large,
+    /// 192 dpi); or WxH pixels, drawn as if one column wide.
+    #[arg(long, value_name = "SIZE", default_value = "single", value_parser = fdtemp::report::plot::parse_size)]
+    plot_size: PlotSize,
 }
 
 impl PlotArgs {

@@ -2,9 +2,9 @@
 //!
 //! Each figure is drawn into memory and returned as SVG or PNG bytes, so it is written
 //! like every other output (atomically, never over a file without asking). Text uses the
-//! DejaVu Sans font compiled into the binary: no system font is needed. Sizes suit a
-//! one-column figure of a two-column paper (8.5 cm wide: the default 1000 px is 300 dpi)
-//! and a screen. The palette is fdtemp's own: four hues of clearly different lightness,
+//! DejaVu Sans font compiled into the binary: no system font is needed. A figure is drawn
+//! for a physical size ([`PlotSize`]: one column, two columns, a slide) and every font
+//! size and line width is set in points at that size (docs/figures.md). The palette is fdtemp's own: four hues of clearly different lightness,
 //! each with its own marker shape, so the series stay apart in greyscale and for readers
 //! with colour-vision deficiencies.
 
@@ -39,10 +39,61 @@ pub enum Format {
     Svg,
     /// Portable network graphics (RGB, 8 bit).
     Png,
+    /// Portable document format: the SVG drawing converted, with the font embedded.
+    Pdf,
+}
+
+/// The size a figure is drawn for: a physical width and height and a resolution.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum PlotSize {
+    /// One column of a two-column paper: 8.5 cm × 6.8 cm at 300 dpi (1004 × 803 px).
+    Single,
+    /// The full width of a two-column paper: 17.8 cm × 11 cm at 300 dpi (2102 × 1299 px).
+    Double,
+    /// A 16:9 slide: 10 in × 5.625 in at 192 dpi (1920 × 1080 px), text and lines twice
+    /// their print size.
+    Slide,
+    /// A size in pixels, drawn as if printed one column wide (8.5 cm), so text scales
+    /// with the width as before presets existed.
+    Pixels(u32, u32),
+}
+
+/// Centimetres per inch.
+const CM_PER_IN: f64 = 2.54;
+/// Points per inch (1 pt = 1/72 in).
+const PT_PER_IN: f64 = 72.0;
+/// One column's width in cm.
+const SINGLE_CM: f64 = 8.5;
+
+impl PlotSize {
+    /// (physical width in inches, physical height in inches, dots per inch).
+    fn physical(self) -> (f64, f64, f64) {
+        match self {
+            PlotSize::Single => (SINGLE_CM / CM_PER_IN, 6.8 / CM_PER_IN, 300.0),
+            PlotSize::Double => (17.8 / CM_PER_IN, 11.0 / CM_PER_IN, 300.0),
+            PlotSize::Slide => (10.0, 5.625, 192.0),
+            PlotSize::Pixels(w, h) => {
+                let w_in = SINGLE_CM / CM_PER_IN;
+                let dpi = f64::from(w) / w_in;
+                (w_in, f64::from(h) / dpi, dpi)
+            }
+        }
+    }
+
+    /// The size in pixels.
+    pub fn pixels(self) -> (u32, u32) {
+        match self {
+            PlotSize::Pixels(w, h) => (w, h),
+            _ => {
+                let (w, h, dpi) = self.physical();
+                ((w * dpi).round() as u32, (h * dpi).round() as u32)
+            }
+        }
+    }
 }
 
 /// What to draw where.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Figure {
     /// File format.
     pub format: Format,
@@ -50,6 +101,12 @@ pub struct Figure {
     pub width: u32,
     /// Height in pixels.
     pub height: u32,
+    /// Dots per inch at the physical size the figure is drawn for.
+    pub dpi: f64,
+    /// Whether the SVG states its physical size (presets) or only pixels (`WxH`).
+    pub physical: bool,
+    /// Text and lines relative to print (2 on a slide, seen from afar; 1 otherwise).
+    pub emphasis: f64,
 }
 
 impl Figure {
@@ -57,7 +114,7 @@ impl Figure {
     ///
     /// # Errors
     /// [`Error::Setting`] for another extension or a size out of range.
-    pub fn for_path(path: &Path, size: (u32, u32)) -> Result<Self> {
+    pub fn for_path(path: &Path, size: PlotSize) -> Result<Self> {
         let ext = path
             .extension()
             .and_then(|e| e.to_str())
@@ -65,14 +122,15 @@ impl Figure {
         let format = match ext.as_deref() {
             Some("svg") => Format::Svg,
             Some("png") => Format::Png,
+            Some("pdf") => Format::Pdf,
             _ => {
                 return Err(Error::Setting(format!(
-                    "{}: a figure's file name must end in .svg or .png",
+                    "{}: a figure's file name must end in .svg, .png or .pdf",
                     path.display()
                 )));
             }
         };
-        let (width, height) = size;
+        let (width, height) = size.pixels();
         if !(200..=8000).contains(&width) || !(150..=8000).contains(&height) {
             return Err(Error::Setting(format!(
                 "--plot-size is {width}x{height}, expected between 200x150 and 8000x8000 pixels"
@@ -82,24 +140,38 @@ impl Figure {
             format,
             width,
             height,
+            dpi: size.physical().2,
+            physical: !matches!(size, PlotSize::Pixels(..)),
+            emphasis: if size == PlotSize::Slide { 2.0 } else { 1.0 },
         })
+    }
+
+    /// Pixels per point (1/72 in) at the figure's physical size, times its emphasis.
+    fn px_per_pt(&self) -> f64 {
+        self.dpi / PT_PER_IN * self.emphasis
     }
 }
 
-/// Parses `WIDTHxHEIGHT`.
+/// Parses `single`, `double`, `slide` or `WIDTHxHEIGHT` (pixels).
 ///
 /// # Errors
-/// A message when the text is not two whole numbers joined by `x`.
-pub fn parse_size(s: &str) -> std::result::Result<(u32, u32), String> {
+/// A message when the text is none of those.
+pub fn parse_size(s: &str) -> std::result::Result<PlotSize, String> {
+    match s.trim().to_ascii_lowercase().as_str() {
+        "single" => return Ok(PlotSize::Single),
+        "double" => return Ok(PlotSize::Double),
+        "slide" => return Ok(PlotSize::Slide),
+        _ => {}
+    }
     let (w, h) = s
         .split_once(['x', 'X'])
-        .ok_or_else(|| format!("'{s}' is not WIDTHxHEIGHT"))?;
+        .ok_or_else(|| format!("'{s}' is not single, double, slide or WIDTHxHEIGHT"))?;
     let num = |t: &str| {
         t.trim()
             .parse::<u32>()
             .map_err(|_| format!("'{t}' in '{s}' is not a whole number"))
     };
-    Ok((num(w)?, num(h)?))
+    Ok(PlotSize::Pixels(num(w)?, num(h)?))
 }
 
 /// fdtemp's series colours (navy, amber, teal, plum, slate, ochre) with marker shapes.
@@ -115,28 +187,72 @@ const INK: RGBColor = RGBColor(0x20, 0x20, 0x20);
 const BAND: RGBColor = RGBColor(0x9a, 0xa5, 0xb8);
 const REFERENCE: RGBColor = RGBColor(0x80, 0x80, 0x80);
 
-/// Font sizes scaled to the figure width (1000 px wide ≈ 8 pt at 8.5 cm).
+/// Sizes in points (1/72 in) at the figure's physical size, turned into pixels.
+///
+/// Font sizes are what plotters is given: its SVG writes `size / 1.24` as the
+/// `font-size` (plotters-svg 0.3.7, `draw_text`), so each is multiplied by that factor to
+/// put the stated point size into the file.
 struct Scale {
+    /// Axis titles.
     label: f64,
+    /// Tick labels.
     tick: f64,
+    /// Legend entries.
     legend: f64,
+    /// Marker radius.
     marker: i32,
+    /// Data and fit lines.
     line: u32,
+    /// Error bars and thin rules.
+    thin: u32,
+    /// Dash and gap of dashed lines.
+    dash: (u32, u32),
+    /// Length of a legend's line sample.
+    sample: i32,
+    /// Pixels per point.
+    px: f64,
 }
 
-fn scale(width: u32) -> Scale {
-    let s = f64::from(width) / 1000.0;
+/// plotters' SVG font size divisor (plotters-svg 0.3.7).
+const PLOTTERS_EM: f64 = 1.24;
+/// Point sizes of the axis titles, tick labels and legend (journals ask for ≥ 7 pt).
+const LABEL_PT: f64 = 9.0;
+const TICK_PT: f64 = 8.0;
+const LEGEND_PT: f64 = 7.5;
+
+fn scale(fig: Figure) -> Scale {
+    let px = fig.px_per_pt();
+    let len = |pt: f64| (pt * px).round().max(1.0);
     Scale {
-        label: 34.0 * s,
-        tick: 28.0 * s,
-        legend: 25.0 * s,
-        marker: (7.0 * s).round().max(2.0) as i32,
-        line: (3.0 * s).round().max(1.0) as u32,
+        // plotters keeps whole pixels of its font size: round up, never under the size.
+        label: (LABEL_PT * px * PLOTTERS_EM).ceil(),
+        tick: (TICK_PT * px * PLOTTERS_EM).ceil(),
+        legend: (LEGEND_PT * px * PLOTTERS_EM).ceil(),
+        marker: len(2.0).max(2.0) as i32,
+        line: len(1.0) as u32,
+        thin: len(0.5) as u32,
+        dash: (len(4.0) as u32, len(2.5) as u32),
+        sample: len(12.0) as i32,
+        px,
     }
 }
 
 fn err<E: std::fmt::Debug>(what: &str) -> impl Fn(E) -> Error + '_ {
     move |e| Error::Analysis(format!("cannot draw the {what}: {e:?}"))
+}
+
+/// A point on the backend, in pixels.
+type Px = (i32, i32);
+
+/// A legend's filled swatch, `len` pixels wide.
+fn swatch(style: ShapeStyle, len: i32) -> impl Fn(Px) -> Rectangle<Px> {
+    let h = len / 4;
+    move |(x, y)| Rectangle::new([(x, y - h), (x + len, y + h)], style)
+}
+
+/// A legend's line sample, `len` pixels long.
+fn stroke(style: ShapeStyle, len: i32) -> impl Fn(Px) -> PathElement<Px> {
+    move |(x, y)| PathElement::new(vec![(x, y), (x + len, y)], style)
 }
 
 /// The legend, in the same place and style on every figure.
@@ -145,12 +261,27 @@ where
     DB: DrawingBackend + 'a,
     CT: plotters::coord::CoordTranslate,
 {
+    legend_at(chart, sc, SeriesLabelPosition::UpperRight)
+}
+
+/// The legend in a chosen corner.
+fn legend_at<'a, DB, CT>(
+    chart: &mut ChartContext<'a, DB, CT>,
+    sc: &Scale,
+    corner: SeriesLabelPosition,
+) -> Result<()>
+where
+    DB: DrawingBackend + 'a,
+    CT: plotters::coord::CoordTranslate,
+{
     chart
         .configure_series_labels()
-        .position(SeriesLabelPosition::UpperRight)
+        .position(corner)
         .background_style(WHITE.filled())
         .border_style(REFERENCE)
         .label_font(("sans-serif", sc.legend))
+        .legend_area_size(sc.sample + (4.0 * sc.px) as i32)
+        .margin((4.0 * sc.px) as u32)
         .draw()
         .map_err(err::<DrawingAreaErrorKind<DB::ErrorType>>("legend"))
 }
@@ -164,16 +295,14 @@ fn render(
 ) -> Result<Vec<u8>> {
     register_font();
     match fig.format {
-        Format::Svg => {
-            let mut s = String::new();
-            {
-                let root =
-                    SVGBackend::with_string(&mut s, (fig.width, fig.height)).into_drawing_area();
-                root.fill(&WHITE).map_err(err(what))?;
-                draw(root.clone())?;
-                root.present().map_err(err(what))?;
-            }
-            Ok(s.into_bytes())
+        Format::Svg => Ok(physical_svg(svg_string(fig, what, &draw)?, fig).into_bytes()),
+        Format::Pdf => {
+            // The PDF page takes the physical size the SVG states.
+            let fig = Figure {
+                physical: true,
+                ..fig
+            };
+            pdf_from_svg(&physical_svg(svg_string(fig, what, &draw)?, fig))
         }
         Format::Png => {
             let mut buf = vec![0u8; fig.width as usize * fig.height as usize * 3];
@@ -184,15 +313,106 @@ fn render(
                 draw_png(root.clone())?;
                 root.present().map_err(err(what))?;
             }
-            encode_png(&buf, fig.width, fig.height)
+            encode_png(&buf, fig)
         }
     }
 }
 
-fn encode_png(rgb: &[u8], width: u32, height: u32) -> Result<Vec<u8>> {
+/// The drawing as SVG text, sized in pixels.
+fn svg_string(
+    fig: Figure,
+    what: &str,
+    draw: &impl Fn(DrawingArea<SVGBackend<'_>, Shift>) -> Result<()>,
+) -> Result<String> {
+    let mut s = String::new();
+    {
+        let root = SVGBackend::with_string(&mut s, (fig.width, fig.height)).into_drawing_area();
+        root.fill(&WHITE).map_err(err(what))?;
+        draw(root.clone())?;
+        root.present().map_err(err(what))?;
+    }
+    Ok(s)
+}
+
+/// SVG text converted to PDF (svg2pdf), with DejaVu Sans as the sans-serif face so the
+/// text is embedded as text in that font. The page is the SVG's stated size.
+fn pdf_from_svg(svg: &str) -> Result<Vec<u8>> {
+    use svg2pdf::usvg;
+    // usvg reads cm at its dpi; the page at the same dpi keeps the physical size.
+    const DPI: f32 = 96.0;
+    let mut db = usvg::fontdb::Database::new();
+    db.load_font_data(FONT.to_vec());
+    db.set_sans_serif_family("DejaVu Sans");
+    let opt = usvg::Options {
+        dpi: DPI,
+        font_family: "DejaVu Sans".into(),
+        fontdb: std::sync::Arc::new(db),
+        ..usvg::Options::default()
+    };
+    let tree = usvg::Tree::from_str(svg, &opt).map_err(err("PDF"))?;
+    let page = svg2pdf::PageOptions { dpi: DPI };
+    let pdf =
+        svg2pdf::to_pdf(&tree, svg2pdf::ConversionOptions::default(), page).map_err(err("PDF"))?;
+    Ok(sorted_resources(pdf))
+}
+
+/// svg2pdf 0.13 writes the entries of a page's resource dictionaries (`/xo0 8 0 R`, one
+/// per line) in hash-map order, so two runs differ. Sorting each run of such lines that
+/// follows a line ending in `<<` gives the same bytes every time; the run keeps its
+/// length, so the cross-reference offsets stay right.
+fn sorted_resources(pdf: Vec<u8>) -> Vec<u8> {
+    let is_entry = |l: &[u8]| {
+        let t = l.trim_ascii();
+        t.first() == Some(&b'/')
+            && t.ends_with(b" 0 R")
+            && t.iter().all(|b| b.is_ascii_graphic() || *b == b' ')
+    };
+    let mut lines: Vec<&[u8]> = pdf.split(|&b| b == b'\n').collect();
+    let mut i = 0;
+    while i < lines.len() {
+        if lines[i].trim_ascii_end().ends_with(b"<<") {
+            let start = i + 1;
+            let mut end = start;
+            while end < lines.len() && is_entry(lines[end]) {
+                end += 1;
+            }
+            lines[start..end].sort_unstable();
+            i = end.max(i + 1);
+        } else {
+            i += 1;
+        }
+    }
+    lines.join(&b'\n')
+}
+
+/// States the physical size on the `<svg>` element (a preset's width and height in cm,
+/// the pixels kept as the view box), so a viewer or a journal's system places it at
+/// that size.
+fn physical_svg(s: String, fig: Figure) -> String {
+    if !fig.physical {
+        return s;
+    }
+    let cm = |px: u32| super::sig(f64::from(px) / fig.dpi * CM_PER_IN, 3);
+    let old = format!("<svg width=\"{}\" height=\"{}\"", fig.width, fig.height);
+    let new = format!(
+        "<svg width=\"{}cm\" height=\"{}cm\"",
+        cm(fig.width),
+        cm(fig.height)
+    );
+    s.replacen(&old, &new, 1)
+}
+
+/// RGB bytes as PNG, with a pHYs chunk stating the figure's resolution.
+fn encode_png(rgb: &[u8], fig: Figure) -> Result<Vec<u8>> {
     let mut out = Vec::new();
     {
-        let mut enc = png::Encoder::new(&mut out, width, height);
+        let mut enc = png::Encoder::new(&mut out, fig.width, fig.height);
+        let ppm = (fig.dpi / CM_PER_IN * 100.0).round() as u32;
+        enc.set_pixel_dims(Some(png::PixelDimensions {
+            xppu: ppm,
+            yppu: ppm,
+            unit: png::Unit::Meter,
+        }));
         enc.set_color(png::ColorType::Rgb);
         enc.set_depth(png::BitDepth::Eight);
         let mut w = enc.write_header().map_err(err("PNG"))?;
@@ -209,16 +429,8 @@ fn tick(v: f64) -> String {
     let a = v.abs();
     let l = a.log10();
     if !(1e-3..1e4).contains(&a) && (l - l.round()).abs() < 1e-9 {
-        const SUP: [char; 10] = ['⁰', '¹', '²', '³', '⁴', '⁵', '⁶', '⁷', '⁸', '⁹'];
-        let n = l.round() as i64;
-        let digits: String = n
-            .abs()
-            .to_string()
-            .chars()
-            .map(|d| SUP[d as usize - '0' as usize])
-            .collect();
         let sign = if v < 0.0 { "−" } else { "" };
-        return format!("{sign}10{}{digits}", if n < 0 { "⁻" } else { "" });
+        return format!("{sign}{}", superscript_power(l.round() as i64));
     }
     if !(1e-3..1e5).contains(&a) {
         return format!("{v:.1e}");
@@ -226,8 +438,46 @@ fn tick(v: f64) -> String {
     crate::report::format::fmt_num(v)
 }
 
+/// An estimate and its interval, with 3 significant digits or more: digits are added
+/// (up to 6) until an end that differs from the estimate also prints differently.
+/// A log axis's label: decades only, all as 10ⁿ (other ticks stay, unlabelled, as minor
+/// ticks). When the range holds fewer than two decades, every tick is labelled.
+fn log_tick(v: f64, (lo, hi): (f64, f64)) -> String {
+    let decades = (hi.log10().floor() - lo.log10().ceil()) as i64 + 1;
+    if decades < 2 {
+        return tick(v);
+    }
+    let l = v.log10();
+    if (l - l.round()).abs() > 1e-9 {
+        return String::new();
+    }
+    superscript_power(l.round() as i64)
+}
+
+/// 10 to the power `n` with superscript digits (10⁻¹, 10⁰, 10³).
+fn superscript_power(n: i64) -> String {
+    const SUP: [char; 10] = ['⁰', '¹', '²', '³', '⁴', '⁵', '⁶', '⁷', '⁸', '⁹'];
+    let digits: String = n
+        .abs()
+        .to_string()
+        .chars()
+        .map(|d| SUP[d as usize - '0' as usize])
+        .collect();
+    format!("10{}{digits}", if n < 0 { "⁻" } else { "" })
+}
+
 fn fmt_iv(v: Option<f64>, lo: Option<f64>, hi: Option<f64>) -> String {
-    let f = |x: f64| super::sig(x, 3);
+    let digits = v.map_or(3, |v| {
+        (3..=6)
+            .find(|&d| {
+                [lo, hi]
+                    .into_iter()
+                    .flatten()
+                    .all(|e| e.total_cmp(&v).is_eq() || super::sig(e, d) != super::sig(v, d))
+            })
+            .unwrap_or(6)
+    });
+    let f = |x: f64| super::sig(x, digits);
     match (v, lo, hi) {
         (Some(v), Some(lo), Some(hi)) => format!("{} [{}, {}]", f(v), f(lo), f(hi)),
         (Some(v), Some(lo), None) => format!("{} [{}, unbounded]", f(v), f(lo)),
@@ -235,6 +485,9 @@ fn fmt_iv(v: Option<f64>, lo: Option<f64>, hi: Option<f64>) -> String {
         _ => "undefined".into(),
     }
 }
+
+/// The effective temperature as figures write it (no literal underscore).
+const T_EFF: &str = "Teff";
 
 /// What each figure is called in a drawing error.
 const FD: &str = "fluctuation–dissipation plot";
@@ -278,9 +531,9 @@ fn linear_chart<'a, DB: DrawingBackend + 'a>(
     what: &str,
 ) -> Result<Chart<'a, DB>> {
     let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(what);
-    let sc = scale(fig.width);
+    let sc = scale(fig);
     let mut chart = ChartBuilder::on(root)
-        .margin((fig.width / 40) as i32)
+        .margin((6.0 * sc.px) as i32)
         .x_label_area_size((sc.label * 2.4) as i32)
         .y_label_area_size((sc.label * 3.0) as i32)
         .build_cartesian_2d(x, y)
@@ -306,7 +559,6 @@ fn linear_chart<'a, DB: DrawingBackend + 'a>(
 struct FdRanges {
     xmin_data: f64,
     xmax_data: f64,
-    ymax_data: f64,
     x0: f64,
     x1: f64,
     y0: f64,
@@ -330,15 +582,16 @@ fn fd_ranges(pts: &[PointRecord], curve: Curve) -> FdRanges {
         .iter()
         .map(|p| p.y - p.y_se)
         .fold(f64::INFINITY, f64::min);
+    // The data, the fitted curve's level and the origin, with a 4% margin at the top.
+    let y0 = ymin_data.min(0.0);
+    let top = ymax_data.max(curve.intercept);
     FdRanges {
         xmin_data,
         xmax_data,
-        ymax_data,
         x0: xmin_data.min(0.0),
         x1: xmax_data.max(curve.intercept.max(1.0)),
-        y0: ymin_data.min(0.0),
-        // Head room for the legend above the data.
-        y1: ymax_data.max(curve.intercept) * 1.45,
+        y0,
+        y1: top + 0.04 * (top - y0),
     }
 }
 
@@ -369,16 +622,18 @@ fn draw_fd<DB: DrawingBackend>(
     curve: Curve,
     fig: Figure,
 ) -> Result<()> {
-    let sc = scale(fig.width);
+    let sc = scale(fig);
     let joint = &r.fits[0];
-    let rg = fd_ranges(&r.points, curve);
+    let mut rg = fd_ranges(&r.points, curve);
+    let (corner, y1) = fd_layout(r, curve, &rg, fig);
+    rg.y1 = y1;
     let ranges = (rg.x0..rg.x1, rg.y0..rg.y1);
-    let mut chart = linear_chart(&root, fig, ranges, fd_labels(r), 6, FD)?;
-    fd_references(&mut chart, joint, curve, &rg, fig, &sc)?;
-    fd_band(&mut chart, joint, r.settings.given.level, &rg)?;
+    let mut chart = linear_chart(&root, fig, ranges, fd_labels(r), 9, FD)?;
+    fd_references(&mut chart, joint, curve, &rg, &sc)?;
+    fd_band(&mut chart, joint, r.settings.given.level, &rg, &sc)?;
     fd_points(&mut chart, r, &sc)?;
     fd_fit(&mut chart, joint, curve, &rg, &sc)?;
-    legend(&mut chart, &sc)?;
+    legend_at(&mut chart, &sc, corner)?;
     Ok(())
 }
 
@@ -388,42 +643,111 @@ fn fd_references<'a, DB: DrawingBackend + 'a>(
     joint: &GroupFit,
     curve: Curve,
     rg: &FdRanges,
-    fig: Figure,
     sc: &Scale,
 ) -> Result<()> {
     let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(FD);
-    let (x0, x1, y0, ymax_data) = (rg.x0, rg.x1, rg.y0, rg.ymax_data);
-    // The break's interval and estimate.
+    let (x0, x1, y0, y1) = (rg.x0, rg.x1, rg.y0, rg.y1);
+    // The break's interval as a bracket standing on the C axis.
     if let (Some(lo), Some(hi)) = (joint.brk.low, joint.brk.high) {
+        let h = 0.05 * (y1 - y0);
         chart
-            .draw_series(std::iter::once(Rectangle::new(
-                [(lo, y0), (hi, ymax_data + 0.08 * (ymax_data - y0))],
-                BAND.mix(0.18).filled(),
+            .draw_series(std::iter::once(PathElement::new(
+                vec![(lo, y0 + h), (lo, y0), (hi, y0), (hi, y0 + h)],
+                PALETTE[4].stroke_width(sc.line * 2),
             )))
             .map_err(&e)?
-            .label(format!(
-                "break q = {}",
-                fmt_iv(joint.brk.estimate, joint.brk.low, joint.brk.high)
-            ))
-            .legend(move |(x, y)| {
-                Rectangle::new([(x, y - 6), (x + 20, y + 6)], BAND.mix(0.4).filled())
-            });
+            .label(break_label(joint))
+            .legend(stroke(PALETTE[4].stroke_width(sc.line * 2), sc.sample));
     }
     // Equilibrium: slope -1 through the fitted upper segment's level.
     let eq = curve.intercept;
     chart
         .draw_series(DashedLineSeries::new(
             vec![(x0, eq - x0), (x1, eq - x1)],
-            (12.0 * f64::from(fig.width) / 1000.0) as u32,
-            (8.0 * f64::from(fig.width) / 1000.0) as u32,
+            sc.dash.0,
+            sc.dash.1,
             REFERENCE.stroke_width(sc.line),
         ))
         .map_err(&e)?
         .label("equilibrium, slope −1")
-        .legend(move |(x, y)| {
-            PathElement::new(vec![(x, y), (x + 20, y)], REFERENCE.stroke_width(2))
-        });
+        .legend(stroke(REFERENCE.stroke_width(sc.line), sc.sample));
     Ok(())
+}
+
+fn break_label(joint: &GroupFit) -> String {
+    format!(
+        "break q = {}",
+        fmt_iv(joint.brk.estimate, joint.brk.low, joint.brk.high)
+    )
+}
+
+fn fit_label(joint: &GroupFit) -> String {
+    format!(
+        "fit: X = {}",
+        fmt_iv(joint.ratio.estimate, joint.ratio.low, joint.ratio.high)
+    )
+}
+
+fn teff_label(joint: &GroupFit) -> String {
+    let t_eff = fmt_iv(joint.t_eff.estimate, joint.t_eff.low, joint.t_eff.high);
+    format!("{T_EFF} = {t_eff}")
+}
+
+/// Where the FD plot's legend goes and how high the y axis runs: lower left (the empty
+/// side below a fluctuation–dissipation curve) when no point or fitted curve falls under
+/// it, else upper right, with the y axis raised (by 8% steps, up to 1.6 times) until the
+/// data clear it. The legend's box is estimated from its rows and longest label, and the
+/// plot area from the chart's margins (`linear_chart`).
+fn fd_layout(
+    r: &FitReport,
+    curve: Curve,
+    rg: &FdRanges,
+    fig: Figure,
+) -> (SeriesLabelPosition, f64) {
+    let sc = scale(fig);
+    let joint = &r.fits[0];
+    let fs = sc.legend / PLOTTERS_EM;
+    let labels = [break_label(joint), fit_label(joint), teff_label(joint)];
+    let chars = labels
+        .iter()
+        .map(|l| l.chars().count())
+        .max()
+        .unwrap_or(0)
+        .max(22);
+    let rows = r.waiting_times.len() + 5;
+    let pad = 4.0 * sc.px;
+    let w = f64::from(sc.sample) + 3.0 * pad + 0.6 * fs * chars as f64;
+    let h = rows as f64 * 1.6 * fs + 2.0 * pad;
+    let margin = 6.0 * sc.px;
+    let plot_w = f64::from(fig.width) - 2.0 * margin - sc.label * 3.0;
+    let plot_h = f64::from(fig.height) - 2.0 * margin - sc.label * 2.4;
+    // The legend's box as fractions of the axes.
+    let (fx, fy) = ((w + pad) / plot_w, (h + pad) / plot_h);
+    let marks = |y1: f64| -> Vec<(f64, f64)> {
+        let frac = |x: f64, y: f64| ((x - rg.x0) / (rg.x1 - rg.x0), (y - rg.y0) / (y1 - rg.y0));
+        let curve_pts = (0..=50).map(|i| {
+            let x = rg.x0 + (rg.x1 - rg.x0) * f64::from(i) / 50.0;
+            frac(x, curve.eval(x))
+        });
+        r.points
+            .iter()
+            .map(|p| frac(p.x, p.y + p.y_se))
+            .chain(curve_pts)
+            .collect()
+    };
+    if marks(rg.y1).iter().all(|&(x, y)| !(x < fx && y < fy)) {
+        return (SeriesLabelPosition::LowerLeft, rg.y1);
+    }
+    let mut y1 = rg.y1;
+    let limit = rg.y0 + 1.6 * (rg.y1 - rg.y0);
+    while y1 < limit
+        && !marks(y1)
+            .iter()
+            .all(|&(x, y)| !(x > 1.0 - fx && y > 1.0 - fy))
+    {
+        y1 += 0.08 * (rg.y1 - rg.y0);
+    }
+    (SeriesLabelPosition::UpperRight, y1)
 }
 
 /// Bootstrap band of the fitted curve.
@@ -432,6 +756,7 @@ fn fd_band<'a, DB: DrawingBackend + 'a>(
     joint: &GroupFit,
     level: f64,
     rg: &FdRanges,
+    sc: &Scale,
 ) -> Result<()> {
     let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(FD);
     if joint.curve_replicates.len() >= 20 {
@@ -457,9 +782,7 @@ fn fd_band<'a, DB: DrawingBackend + 'a>(
             )))
             .map_err(&e)?
             .label(format!("{:.0}% resampling band", 100.0 * level))
-            .legend(move |(x, y)| {
-                Rectangle::new([(x, y - 6), (x + 20, y + 6)], PALETTE[0].mix(0.3).filled())
-            });
+            .legend(swatch(PALETTE[0].mix(0.3).filled(), sc.sample));
     }
     Ok(())
 }
@@ -485,7 +808,7 @@ fn fd_points<'a, DB: DrawingBackend + 'a>(
                     p.y - p.y_se,
                     p.y,
                     p.y + p.y_se,
-                    c.stroke_width(1),
+                    c.stroke_width(sc.thin),
                     sc.marker as u32,
                 )
             }))
@@ -497,12 +820,12 @@ fn fd_points<'a, DB: DrawingBackend + 'a>(
                     p.x - p.x_se,
                     p.x,
                     p.x + p.x_se,
-                    c.stroke_width(1),
+                    c.stroke_width(sc.thin),
                     sc.marker as u32,
                 )
             }))
             .map_err(&e)?;
-        let (ms, line) = (sc.marker, sc.line);
+        let (ms, line, half) = (sc.marker, sc.line, sc.sample / 2);
         let label = format!("tw = {}", crate::report::format::fmt_num(tw));
         // Shapes differ per series (filled circle, filled triangle, cross, open circle) so
         // the series stay apart without colour.
@@ -512,7 +835,7 @@ fn fd_points<'a, DB: DrawingBackend + 'a>(
                     .draw_series(mine.iter().map(|p| $shape((p.x, p.y))))
                     .map_err(&e)?
                     .label(label)
-                    .legend(move |(x, y)| $shape((x + 10, y)))
+                    .legend(move |(x, y)| $shape((x + half, y)))
             };
         }
         match i % 4 {
@@ -539,19 +862,15 @@ fn fd_fit<'a, DB: DrawingBackend + 'a>(
         .iter()
         .map(|&x| (x, curve.eval(x)))
         .collect();
-    let t_eff = fmt_iv(joint.t_eff.estimate, joint.t_eff.low, joint.t_eff.high);
     chart
         .draw_series(LineSeries::new(fit_pts, INK.stroke_width(sc.line)))
         .map_err(&e)?
-        .label(format!(
-            "fit: X = {}",
-            fmt_iv(joint.ratio.estimate, joint.ratio.low, joint.ratio.high)
-        ))
-        .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], INK.stroke_width(3)));
+        .label(fit_label(joint))
+        .legend(stroke(INK.stroke_width(sc.line), sc.sample));
     chart
         .draw_series(std::iter::empty::<Circle<(f64, f64), i32>>())
         .map_err(&e)?
-        .label(format!("T_eff = {t_eff}"))
+        .label(teff_label(joint))
         .legend(|(x, y)| EmptyElement::at((x, y)));
     Ok(())
 }
@@ -611,6 +930,9 @@ fn hist_bins(reps: &[f64]) -> (Vec<u32>, f64, f64) {
     (counts, lo, w)
 }
 
+/// The resample histogram's y range over its tallest bar.
+const HIST_ROOM: f64 = 1.6;
+
 fn draw_hist<DB: DrawingBackend>(
     root: DrawingArea<DB, Shift>,
     r: &FitReport,
@@ -618,11 +940,12 @@ fn draw_hist<DB: DrawingBackend>(
     fig: Figure,
 ) -> Result<()> {
     let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(HIST);
-    let sc = scale(fig.width);
+    let sc = scale(fig);
     let n = reps.len();
     let (counts, lo, w) = hist_bins(reps);
     let hi = reps[n - 1];
-    let ymax = f64::from(*counts.iter().max().unwrap_or(&1)) * 1.35;
+    // Head room for the three-row legend above the tallest bar.
+    let ymax = f64::from(*counts.iter().max().unwrap_or(&1)) * HIST_ROOM;
     let pad = 0.05 * (hi - lo);
     let mut chart = linear_chart(
         &root,
@@ -645,10 +968,8 @@ fn draw_hist<DB: DrawingBackend>(
         }))
         .map_err(&e)?
         .label(format!("{n} resamples of whole samples"))
-        .legend(|(x, y)| {
-            Rectangle::new([(x, y - 6), (x + 20, y + 6)], PALETTE[0].mix(0.55).filled())
-        });
-    hist_marks(&mut chart, r, ymax / 1.35, fig, &sc)?;
+        .legend(swatch(PALETTE[0].mix(0.55).filled(), sc.sample));
+    hist_marks(&mut chart, r, ymax / HIST_ROOM, &sc)?;
     legend(&mut chart, &sc)?;
     Ok(())
 }
@@ -658,7 +979,6 @@ fn hist_marks<'a, DB: DrawingBackend + 'a>(
     chart: &mut Chart<'a, DB>,
     r: &FitReport,
     top: f64,
-    fig: Figure,
     sc: &Scale,
 ) -> Result<()> {
     let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(HIST);
@@ -671,16 +991,15 @@ fn hist_marks<'a, DB: DrawingBackend + 'a>(
             ))
             .map_err(&e)?
             .label(format!("estimate X = {}", super::sig(est, 3)))
-            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], INK.stroke_width(3)));
+            .legend(stroke(INK.stroke_width(sc.line), sc.sample));
     }
     if let (Some(a), Some(b)) = (joint.ratio.low, joint.ratio.high) {
-        let dash = (10.0 * f64::from(fig.width) / 1000.0) as u32;
         for (i, v) in [a, b].into_iter().enumerate() {
             let s = chart
                 .draw_series(DashedLineSeries::new(
                     vec![(v, 0.0), (v, top)],
-                    dash,
-                    dash,
+                    sc.dash.0,
+                    sc.dash.1,
                     PALETTE[1].stroke_width(sc.line),
                 ))
                 .map_err(&e)?;
@@ -692,9 +1011,7 @@ fn hist_marks<'a, DB: DrawingBackend + 'a>(
                     super::sig(a, 3),
                     super::sig(b, 3)
                 ))
-                .legend(|(x, y)| {
-                    PathElement::new(vec![(x, y), (x + 20, y)], PALETTE[1].stroke_width(3))
-                });
+                .legend(stroke(PALETTE[1].stroke_width(sc.line), sc.sample));
             }
         }
     }
@@ -772,12 +1089,12 @@ fn draw_teff<DB: DrawingBackend>(
     fig: Figure,
 ) -> Result<()> {
     let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(TEFF);
-    let sc = scale(fig.width);
+    let sc = scale(fig);
     let rg = teff_ranges(r);
     let f_range = (rg.f0 / 1.2)..(rg.f1 * 1.2);
     let mut builder = ChartBuilder::on(&root);
     builder
-        .margin((fig.width / 40) as i32)
+        .margin((6.0 * sc.px) as i32)
         .x_label_area_size((sc.label * 2.4) as i32)
         .y_label_area_size((sc.label * 3.2) as i32);
     if rg.log_y {
@@ -787,7 +1104,6 @@ fn draw_teff<DB: DrawingBackend>(
                 .map_err(&e)?,
             r,
             &rg,
-            fig,
             &sc,
         )?;
     } else {
@@ -797,7 +1113,6 @@ fn draw_teff<DB: DrawingBackend>(
                 .map_err(&e)?,
             r,
             &rg,
-            fig,
             &sc,
         )?;
     }
@@ -809,7 +1124,6 @@ fn teff_body<'a, DB, Y>(
     mut chart: ChartContext<'a, DB, Cartesian2d<LogCoord<f64>, Y>>,
     r: &SpectrumReport,
     rg: &TeffRanges,
-    fig: Figure,
     sc: &Scale,
 ) -> Result<()>
 where
@@ -826,23 +1140,37 @@ where
         .configure_mesh()
         .disable_mesh()
         .x_desc("f (Hz)")
-        .y_desc(format!("T_eff{unit}"))
+        .y_desc(format!("{T_EFF}{unit}"))
         .axis_desc_style(("sans-serif", sc.label))
         .label_style(("sans-serif", sc.tick))
-        .x_label_formatter(&|v| tick(*v))
-        .y_label_formatter(&|v| tick(*v))
+        .x_labels(30)
+        .y_labels(30)
+        .x_label_formatter(&|v| log_tick(*v, (rg.f0 / 1.2, rg.f1 * 1.2)))
+        .y_label_formatter(&|v| {
+            if rg.log_y {
+                log_tick(*v, (rg.t0, rg.t1))
+            } else {
+                tick(*v)
+            }
+        })
         .draw()
         .map_err(&e)?;
     for (i, s) in r.spectra.iter().enumerate() {
         let c = PALETTE[i % PALETTE.len()];
-        teff_spectrum(&mut chart, s, c, r.settings.level, rg, fig, sc)?;
+        // One legend entry per kind: the band and the departure are named once.
+        let named = Named {
+            band: i == 0,
+            departure: r.spectra[..i].iter().all(|s| s.departure.is_none()),
+            several: r.spectra.len() > 1,
+        };
+        teff_spectrum(&mut chart, s, c, (r.settings.level, named), rg, sc)?;
     }
     if let Some(t) = r.settings.temperature {
         chart
             .draw_series(DashedLineSeries::new(
                 vec![(rg.f0 / 1.2, t), (rg.f1 * 1.2, t)],
-                (12.0 * f64::from(fig.width) / 1000.0) as u32,
-                (8.0 * f64::from(fig.width) / 1000.0) as u32,
+                sc.dash.0,
+                sc.dash.1,
                 REFERENCE.stroke_width(sc.line),
             ))
             .map_err(&e)?
@@ -851,12 +1179,65 @@ where
                 super::sig(t, 4),
                 unit.replace(['(', ')'], "")
             ))
-            .legend(|(x, y)| {
-                PathElement::new(vec![(x, y), (x + 20, y)], REFERENCE.stroke_width(2))
-            });
+            .legend(stroke(REFERENCE.stroke_width(sc.line), sc.sample));
+    }
+    if let (Some(t), true) = (r.settings.temperature, rg.log_y) {
+        bath_tick(&chart, t, rg, sc)?;
     }
     legend(&mut chart, sc)?;
     Ok(())
+}
+
+/// The bath temperature as a labelled tick on a log T_eff axis, left of the axis like
+/// the decades, unless it would touch a decade's label (then the legend names it).
+fn bath_tick<'a, DB, Y>(
+    chart: &ChartContext<'a, DB, Cartesian2d<LogCoord<f64>, Y>>,
+    t: f64,
+    rg: &TeffRanges,
+    sc: &Scale,
+) -> Result<()>
+where
+    DB: DrawingBackend + 'a,
+    Y: Ranged<ValueType = f64> + ValueFormatter<f64>,
+{
+    let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(TEFF);
+    let x = rg.f0 / 1.2;
+    let (px, py) = chart.backend_coord(&(x, t));
+    let fs = sc.tick / PLOTTERS_EM;
+    let decades = (rg.t0.log10().ceil() as i32)..=(rg.t1.log10().floor() as i32);
+    let clear = decades
+        .map(|d| chart.backend_coord(&(x, 10f64.powi(d))).1)
+        .all(|dy| f64::from((dy - py).abs()) > 1.3 * fs);
+    if !clear {
+        return Ok(());
+    }
+    let area = chart.plotting_area().strip_coord_spec();
+    let (ox, oy) = area.get_base_pixel();
+    let (px, py) = (px - ox, py - oy);
+    let len = (3.0 * sc.px) as i32;
+    area.draw(&PathElement::new(
+        vec![(px - len, py), (px, py)],
+        INK.stroke_width(sc.thin),
+    ))
+    .map_err(&e)?;
+    let style = TextStyle::from(("sans-serif", sc.tick).into_font()).pos(
+        plotters::style::text_anchor::Pos::new(
+            plotters::style::text_anchor::HPos::Right,
+            plotters::style::text_anchor::VPos::Center,
+        ),
+    );
+    area.draw(&Text::new(super::sig(t, 3), (px - 2 * len, py), style))
+        .map_err(&e)?;
+    Ok(())
+}
+
+/// Which of a spectrum's elements get a legend entry, so each kind is named once.
+#[derive(Clone, Copy)]
+struct Named {
+    band: bool,
+    departure: bool,
+    /// More than one spectrum: the departure's entry names no frequency.
+    several: bool,
 }
 
 /// One spectrum in colour `c`: its interval band, its T_eff(f) and its departure.
@@ -864,9 +1245,8 @@ fn teff_spectrum<'a, DB, Y>(
     chart: &mut ChartContext<'a, DB, Cartesian2d<LogCoord<f64>, Y>>,
     s: &SpectrumFit,
     c: RGBColor,
-    level: f64,
+    (level, named): (f64, Named),
     rg: &TeffRanges,
-    fig: Figure,
     sc: &Scale,
 ) -> Result<()>
 where
@@ -882,17 +1262,19 @@ where
         .chain(ok.iter().rev().filter_map(|p| Some((p.f, p.low?.max(t0)))))
         .collect();
     if band.len() > 2 {
-        chart
+        let drawn = chart
             .draw_series(std::iter::once(Polygon::new(band, c.mix(0.2).filled())))
-            .map_err(&e)?
-            .label(format!("{:.0}% interval", 100.0 * level))
-            .legend(move |(x, y)| {
-                Rectangle::new([(x, y - 6), (x + 20, y + 6)], c.mix(0.3).filled())
-            });
+            .map_err(&e)?;
+        if named.band {
+            let swatch_colour = if named.several { BAND } else { c };
+            drawn
+                .label(format!("{:.0}% interval", 100.0 * level))
+                .legend(swatch(swatch_colour.mix(0.4).filled(), sc.sample));
+        }
     }
     let label = s.tw.map_or_else(
-        || "T_eff(f)".to_string(),
-        |t| format!("T_eff(f), tw = {}", crate::report::format::fmt_num(t)),
+        || format!("{T_EFF}(f)"),
+        |t| format!("{T_EFF}(f), tw = {}", crate::report::format::fmt_num(t)),
     );
     chart
         .draw_series(LineSeries::new(
@@ -901,26 +1283,32 @@ where
         ))
         .map_err(&e)?
         .label(label)
-        .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], c.stroke_width(3)));
+        .legend(stroke(c.stroke_width(sc.line), sc.sample));
     if let Some(d) = &s.departure {
         let fd = d.below_hz;
-        chart
+        let drawn = chart
             .draw_series(DashedLineSeries::new(
                 vec![(fd, t0), (fd, t1)],
-                (10.0 * f64::from(fig.width) / 1000.0) as u32,
-                (8.0 * f64::from(fig.width) / 1000.0) as u32,
+                sc.dash.0,
+                sc.dash.1,
                 PALETTE[3].stroke_width(sc.line),
             ))
-            .map_err(&e)?
-            .label(format!(
-                "departs from T below {} Hz ({}: T_eff {} T)",
-                super::sig(fd, 3),
-                d.direction.label(),
-                d.direction.side()
-            ))
-            .legend(|(x, y)| {
-                PathElement::new(vec![(x, y), (x + 20, y)], PALETTE[3].stroke_width(3))
-            });
+            .map_err(&e)?;
+        if named.departure {
+            let label = if named.several {
+                format!("departure from T ({T_EFF} {} T)", d.direction.side())
+            } else {
+                format!(
+                    "departs below {} Hz ({}: {T_EFF} {} T)",
+                    super::sig(fd, 3),
+                    d.direction.label(),
+                    d.direction.side()
+                )
+            };
+            drawn
+                .label(label)
+                .legend(stroke(PALETTE[3].stroke_width(sc.line), sc.sample));
+        }
     }
     Ok(())
 }

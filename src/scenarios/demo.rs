@@ -13,7 +13,7 @@
 
 use crate::error::{Error, Result};
 use crate::output::Output;
-use crate::report::plot::{self, Figure};
+use crate::report::plot::{self, Figure, PlotSize};
 use crate::scenarios::synth::{SpectrumSpec, SynthSpec, generate, generate_spectrum};
 use crate::spectral::analysis::{SpectrumReport, SpectrumSettings, analyze_spectra};
 use crate::spectral::input::write_spectra;
@@ -132,13 +132,13 @@ fn truth(spec: &SynthSpec, spectrum_spec: &SpectrumSpec) -> serde_json::Value {
     })
 }
 
-/// The FD plot, the resample histogram and T_eff(f), each as SVG and as PNG.
+/// The FD plot, the resample histogram and T_eff(f), each as SVG, PNG and PDF.
 fn figures(dir: &Path, report: &FitReport, spectrum: &SpectrumReport) -> Result<Vec<Output>> {
     let mut outputs = Vec::new();
-    for ext in ["svg", "png"] {
+    for ext in ["svg", "png", "pdf"] {
         let fig = |name: &str| {
             let path = dir.join(format!("{name}.{ext}"));
-            Figure::for_path(&path, (1000, 800)).map(|f| (path, f))
+            Figure::for_path(&path, PlotSize::Single).map(|f| (path, f))
         };
         let (path, f) = fig("fd-plot")?;
         outputs.push(Output {
