@@ -458,11 +458,9 @@ fn analyze_group(
     let fit = GroupFit::new(g, s, k, dof.as_deref(), &who)?;
 
     // Intervals per frequency and per band: (low, high) at the band's level.
-    let iv = match errors {
-        ErrorModel::ChiSquare => {
-            let nu = dof.as_ref().expect("chi-square has dof");
-            fit.chi_square_intervals(nu, bin_rho2)
-        }
+    // `choose_errors` picks chi-square only when the degrees of freedom are known.
+    let iv = match (errors, dof.as_ref()) {
+        (ErrorModel::ChiSquare, Some(nu)) => fit.chi_square_intervals(nu, bin_rho2),
         _ => {
             let n_bands = fit.grid.edges.len();
             crate::budget::check_spectrum(s.resamples, g.runs.len(), g.freqs.len(), n_bands)?;
