@@ -62,6 +62,8 @@ pub trait Progress: Sync {
     fn advance(&self, _n: u64) {}
     /// Called when the work is done.
     fn finish(&self) {}
+    /// A line for the user before long work (what runs, how long it should take).
+    fn note(&self, _text: &str) {}
 }
 
 /// A [`Progress`] that shows nothing.

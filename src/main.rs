@@ -14,6 +14,7 @@ fn main() -> ExitCode {
     let threads = cli.command.threads();
     let result = fdtemp::with_threads(threads, || match cli.command {
         Command::Fit(a) => cli::fit::run(a),
+        Command::DesignCheck(a) => cli::design::run(a),
         Command::Spectrum(a) => cli::spectral::spectrum(a),
         Command::Noise(a) => cli::spectral::noise(a),
         Command::Synth(a) => cli::synth::run(a),

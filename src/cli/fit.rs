@@ -7,14 +7,16 @@ use fdtemp::input::ColumnNames;
 use fdtemp::output::{self, Output};
 use fdtemp::report::plot::{self, Figure};
 use fdtemp::resample::IntervalMethod;
+use fdtemp::twotime::design::{DesignSettings, Noise, calibrated_fit};
 use fdtemp::twotime::points::Axes;
 use fdtemp::twotime::settings::{FitSettings, Hold, Model, Weighting};
 use std::path::PathBuf;
 
+/// The options that shape a time-domain fit (shared by `fit` and `design-check`).
 #[derive(clap::Args)]
-pub struct FitArgs {
+pub struct FitOptions {
     /// Tidy CSV: one row per (sample, tw, t) with columns sample, tw, t, corr, resp [, corr_eq].
-    file: PathBuf,
+    pub(super) file: PathBuf,
     /// Bath temperature T (energy units with --units reduced, kelvin with --units si).
     #[arg(long, short = 'T', allow_negative_numbers = true)]
     temperature: f64,
@@ -54,6 +56,72 @@ pub struct FitArgs {
     /// Map a column role to another header name, e.g. --column resp=chi_zfc (repeatable).
     #[arg(long = "column", value_name = "ROLE=NAME")]
     columns: Vec<String>,
+}
+
+impl FitOptions {
+    pub(super) fn settings(&self) -> FitSettings {
+        FitSettings {
+            temperature: self.temperature,
+            units: self.units,
+            axes: self.axes,
+            model: self.model,
+            weights: self.weights,
+            resamples: self.resamples,
+            seed: self.seed,
+            level: self.level,
+            interval: self.interval,
+            min_branch: self.min_branch,
+            hold: self.hold,
+            range: self.range,
+        }
+    }
+
+    /// The column names as mapped by `--column`.
+    pub(super) fn names(&self) -> fdtemp::Result<ColumnNames> {
+        let mut names = ColumnNames::default();
+        for m in &self.columns {
+            names.apply(m)?;
+        }
+        Ok(names)
+    }
+
+    /// The campaign, read with the mapped names.
+    pub(super) fn campaign(&self) -> fdtemp::Result<fdtemp::Campaign> {
+        fdtemp::input::read_campaign(&self.file, &self.names()?)
+    }
+}
+
+/// How simulated campaigns of the user's design are made (`fit --calibrate`,
+/// `design-check`).
+#[derive(clap::Args)]
+pub struct SimArgs {
+    /// How a simulated sample's noise is drawn from the data: resample (residual curves of
+    /// whole samples with replacement) or gaussian (with the samples' covariance).
+    #[arg(long, value_enum, default_value_t = Noise::Resample)]
+    sim_noise: Noise,
+}
+
+impl SimArgs {
+    pub(super) fn design(&self, campaigns: usize, seed: u64) -> DesignSettings {
+        DesignSettings {
+            campaigns,
+            noise: self.sim_noise,
+            seed,
+        }
+    }
+}
+
+#[derive(clap::Args)]
+pub struct FitArgs {
+    #[command(flatten)]
+    opts: FitOptions,
+    /// Also give intervals calibrated on this many campaigns simulated with this design
+    /// (the fitted curve as truth, the data's own noise): formed at the nominal level that
+    /// covered at --level on them.
+    #[arg(long, value_name = "CAMPAIGNS")]
+    calibrate: Option<usize>,
+    #[command(flatten)]
+    sim: SimArgs,
     /// Write the full result as JSON to this file.
     #[arg(long, value_name = "FILE")]
     json: Option<PathBuf>,
@@ -72,34 +140,15 @@ pub struct FitArgs {
     pub(super) run: RunArgs,
 }
 
-impl FitArgs {
-    fn settings(&self) -> FitSettings {
-        FitSettings {
-            temperature: self.temperature,
-            units: self.units,
-            axes: self.axes,
-            model: self.model,
-            weights: self.weights,
-            resamples: self.resamples,
-            seed: self.seed,
-            level: self.level,
-            interval: self.interval,
-            min_branch: self.min_branch,
-            hold: self.hold,
-            range: self.range,
-        }
-    }
-}
-
 /// Checks the settings and output paths, reads the campaign, analyses it, writes the files
 /// asked for, prints the report.
 pub fn run(a: FitArgs) -> fdtemp::Result<()> {
-    let mut names = ColumnNames::default();
-    for m in &a.columns {
-        names.apply(m)?;
-    }
-    let settings = a.settings();
+    let settings = a.opts.settings();
     settings.validate()?;
+    let design = a.calibrate.map(|m| a.sim.design(m, settings.seed));
+    if let Some(d) = &design {
+        d.validate()?;
+    }
     let figure = a.plot.figure()?;
     let resample_figure = a
         .plot_resamples
@@ -108,17 +157,17 @@ pub fn run(a: FitArgs) -> fdtemp::Result<()> {
         .transpose()?;
     output::check_paths(
         &[&a.json, &a.points, &a.plot.plot, &a.plot_resamples],
-        &[a.file.as_path()],
+        &[a.opts.file.as_path()],
         a.overwrite,
     )?;
-    let campaign = fdtemp::input::read_campaign(&a.file, &names)?;
-    let report = fdtemp::analyze(
-        &campaign,
-        &settings,
-        Some(a.file.display().to_string()),
-        &Bar::new(),
-    )
-    .map_err(in_file(&a.file))?;
+    let file = &a.opts.file;
+    let campaign = a.opts.campaign()?;
+    let input = Some(file.display().to_string());
+    let report = match &design {
+        None => fdtemp::analyze(&campaign, &settings, input, &Bar::new()),
+        Some(d) => calibrated_fit(&campaign, &settings, d, input, &Bar::labelled("simulating")),
+    }
+    .map_err(in_file(file))?;
     let outputs = outputs(&report, a.json, a.points, figure, resample_figure)?;
     output::write_all(&outputs, a.overwrite)?;
     print(&fdtemp::report::text::render(&report));

@@ -1,6 +1,7 @@
 //! The command-line definitions (clap) and one module per command; `main.rs` dispatches.
 //!
 //! - `fit.rs`: `fdtemp fit`, the time-domain analysis of a campaign.
+//! - `design.rs`: `fdtemp design-check`, coverage and test levels on the campaign's design.
 //! - `spectral.rs`: `fdtemp spectrum` and `fdtemp noise`, with their shared options.
 //! - `synth.rs`: `fdtemp synth`, a simulated system and its truth file.
 //! - `demo.rs`: `fdtemp demo`, the invented scenario fitted end to end.
@@ -10,6 +11,7 @@
 //! changes `fdtemp --help`.
 
 pub mod demo;
+pub mod design;
 pub mod fit;
 mod progress;
 pub mod spectral;
@@ -35,6 +37,8 @@ pub struct Cli {
 pub enum Command {
     /// Fit X and T_eff from a campaign of C(t,tw) and chi(t,tw) over independent samples.
     Fit(fit::FitArgs),
+    /// Check the fit's intervals and tests on campaigns simulated with this file's design.
+    DesignCheck(design::DesignArgs),
     /// T_eff(f) from a noise spectrum and the dissipation (loss, Re Z or Re Y).
     Spectrum(spectral::SpectrumArgs),
     /// Welch PSD of raw noise records, and T_eff(f) when a dissipation is given.
@@ -50,6 +54,7 @@ impl Command {
     pub fn threads(&self) -> Option<usize> {
         match self {
             Command::Fit(a) => a.run.threads,
+            Command::DesignCheck(a) => a.run.threads,
             Command::Spectrum(a) => a.common.run.threads,
             Command::Noise(a) => a.common.run.threads,
             Command::Synth(a) => a.run.threads,

@@ -4,13 +4,20 @@ use fdtemp::common::Progress;
 use std::io::IsTerminal;
 
 /// An indicatif bar behind the library's [`Progress`] trait; `None` off a terminal.
-pub struct Bar(Option<indicatif::ProgressBar>);
+pub struct Bar(Option<indicatif::ProgressBar>, &'static str);
 
 impl Bar {
     pub fn new() -> Self {
-        Bar(std::io::stderr()
-            .is_terminal()
-            .then(indicatif::ProgressBar::hidden))
+        Self::labelled("resampling")
+    }
+    /// A bar whose line starts with `label`.
+    pub fn labelled(label: &'static str) -> Self {
+        Bar(
+            std::io::stderr()
+                .is_terminal()
+                .then(indicatif::ProgressBar::hidden),
+            label,
+        )
     }
 }
 
@@ -19,8 +26,11 @@ impl Progress for Bar {
         if let Some(b) = &self.0 {
             b.set_length(total);
             b.set_style(
-                indicatif::ProgressStyle::with_template("resampling {bar:40} {pos}/{len} {eta}")
-                    .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+                indicatif::ProgressStyle::with_template(&format!(
+                    "{} {{bar:40}} {{pos}}/{{len}} {{eta}}",
+                    self.1
+                ))
+                .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
             );
             b.set_draw_target(indicatif::ProgressDrawTarget::stderr());
         }
@@ -29,6 +39,9 @@ impl Progress for Bar {
         if let Some(b) = &self.0 {
             b.inc(n);
         }
+    }
+    fn note(&self, text: &str) {
+        eprintln!("{text}");
     }
     fn finish(&self) {
         if let Some(b) = &self.0 {

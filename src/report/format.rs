@@ -125,6 +125,11 @@ pub fn num3(v: f64) -> String {
     distinct(&[v], Digits::Fixed(3), false).remove(0)
 }
 
+/// A share as a percentage with one decimal ("97.2%").
+pub fn percent(v: f64) -> String {
+    format!("{:.1}%", 100.0 * v)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -2,6 +2,7 @@
 //! result structs.
 
 pub mod csv;
+pub mod design;
 pub mod findings;
 pub mod format;
 pub mod json;

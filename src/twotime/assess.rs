@@ -10,7 +10,7 @@
 use super::findings::{Caution, Finding, Side, Subject, Verdict};
 use super::fitting::{BAND_CURVES, Group, Spec};
 use super::model::{Draw, Values};
-use super::result::GroupFit;
+use super::result::{GroupFit, Series as ResampledSeries};
 use super::settings::{FitSettings, Hold, Weighting};
 use crate::common::Estimate;
 use crate::resample::interval;
@@ -60,6 +60,19 @@ impl Series<'_> {
         );
         Estimate::with(estimate, iv.as_ref())
     }
+    /// The estimate with its replicates and leave-one-out values.
+    fn series(&self, estimate: f64, f: fn(&Draw) -> f64) -> ResampledSeries {
+        let jackknife = self
+            .jack
+            .iter()
+            .all(Option::is_some)
+            .then(|| self.jack.iter().flatten().map(f).collect());
+        ResampledSeries {
+            estimate,
+            replicates: self.of(f),
+            jackknife,
+        }
+    }
 }
 
 /// The subject of a group's findings.
@@ -92,6 +105,7 @@ pub fn assess(input: &GroupInput<'_>, spec: Spec, s: &FitSettings, n: usize) -> 
     let violated = pval <= alpha;
     let model = spec.model;
     fit.fast_slope = if e.fast.is_finite() {
+        fit.resampled.slope_above = Some(series.series(e.fast, |d| d.fast));
         series.estimate(e.fast, |d| d.fast)
     } else {
         Estimate::none("fewer than 3 points above the break")
@@ -170,6 +184,7 @@ fn estimates(
     has_break: bool,
 ) {
     fit.ratio = if fit.x_quotable {
+        fit.resampled.x = Some(series.series(e.ratio, |d| d.ratio));
         series.estimate(e.ratio, |d| d.ratio)
     } else if violated {
         let mut x = Estimate::none(
@@ -184,6 +199,7 @@ fn estimates(
     fit.brk = if !has_break {
         Estimate::default()
     } else if violated {
+        fit.resampled.q = Some(series.series(e.q, |d| d.q));
         series.estimate(e.q, |d| d.q)
     } else {
         Estimate::none(format!(
@@ -222,6 +238,8 @@ fn empty_fit(g: &Group, s: &FitSettings, n: usize, profile: &[(f64, f64)]) -> Gr
         cautions: Vec::new(),
         ratio_replicates: Vec::new(),
         curve_replicates: Vec::new(),
+        resampled: Default::default(),
+        calibrated: None,
     }
 }
 

@@ -7,8 +7,10 @@ use super::model::{Draw, FdModel, FitBuffers, GroupPoints, Values};
 /// curves are steady to well under a line width).
 pub const BAND_CURVES: usize = 4000;
 
-/// Bytes kept per resample and group (for the memory estimate).
-pub const BYTES_PER_DRAW: usize = std::mem::size_of::<Option<Draw>>();
+/// Bytes kept per resample and group (for the memory estimate): the draw while the
+/// groups are assessed, then X, q and the slope above kept for the figures and the design
+/// calibration.
+pub const BYTES_PER_DRAW: usize = std::mem::size_of::<Option<Draw>>() + 3 * 8;
 
 /// What every fit of a group shares: the model and the least points per branch.
 #[derive(Clone, Copy)]

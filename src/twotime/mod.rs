@@ -14,6 +14,7 @@
 //! 7. [`result`]: what the JSON carries and the report layer renders.
 
 pub mod campaign;
+pub mod design;
 pub mod findings;
 pub mod model;
 pub mod points;

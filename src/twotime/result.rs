@@ -98,6 +98,71 @@ pub struct GroupFit {
     /// The resampled curves (for the figure's band; not written to JSON).
     #[serde(skip)]
     pub curve_replicates: Vec<Curve>,
+    /// The resampled values behind each printed interval (for the design calibration;
+    /// not written to JSON).
+    #[serde(skip)]
+    pub resampled: Resampled,
+    /// Intervals calibrated on simulated campaigns of this design (`fit --calibrate`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub calibrated: Option<Calibrated>,
+}
+
+/// One quantity's estimate with its resamples and leave-one-out values: what forms its
+/// interval at any level.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct Series {
+    /// The full-data estimate.
+    pub estimate: f64,
+    /// Its bootstrap replicates (failed resamples left out).
+    pub replicates: Vec<f64>,
+    /// Its leave-one-out values, when every one was fitted (BCa's acceleration).
+    pub jackknife: Option<Vec<f64>>,
+}
+
+/// The series behind the intervals a fit prints (`None` where it prints none).
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct Resampled {
+    /// X.
+    pub x: Option<Series>,
+    /// The break q.
+    pub q: Option<Series>,
+    /// The slope above the break.
+    pub slope_above: Option<Series>,
+}
+
+/// An interval at the nominal level that covered at the requested level on simulated
+/// campaigns of the same design.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct CalibratedInterval {
+    /// Lower end.
+    pub low: Option<f64>,
+    /// Upper end (`None`: unbounded, for T_eff when X's calibrated interval reaches 0).
+    pub high: Option<f64>,
+    /// The nominal level used to form it.
+    pub nominal_level: f64,
+    /// The Monte-Carlo range (95%) of that nominal level.
+    pub nominal_range: [f64; 2],
+    /// Simulated campaigns in which the plain interval was printed (the calibration's size).
+    pub campaigns: usize,
+}
+
+/// The calibrated intervals of one fit, and why one is missing.
+#[derive(Debug, Clone, PartialEq, Serialize, Default)]
+pub struct Calibrated {
+    /// The level the intervals are calibrated to cover.
+    pub level: f64,
+    /// X.
+    pub x: Option<CalibratedInterval>,
+    /// T_eff = T/X (X's calibrated interval mapped).
+    pub t_eff: Option<CalibratedInterval>,
+    /// The break q.
+    #[serde(rename = "break")]
+    pub brk: Option<CalibratedInterval>,
+    /// The slope above the break.
+    pub slope_above: Option<CalibratedInterval>,
+    /// Why a quantity has no calibrated interval.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub notes: Vec<String>,
 }
 
 /// A parametric point with its sample errors (for the points CSV and the figures).
