@@ -287,3 +287,51 @@ pub fn covering_level(
     }
     Some(hi)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Replicates 1, 2, …, 1000 and the estimate at their middle.
+    fn uniform_replicates() -> Vec<f64> {
+        (1..=1000).map(f64::from).collect()
+    }
+
+    #[test]
+    fn the_covering_level_is_where_the_interval_starts_to_contain_the_truth() {
+        let reps = uniform_replicates();
+        for method in [IntervalMethod::Percentile, IntervalMethod::Basic] {
+            for truth in [380.0, 500.0, 610.5, 990.0] {
+                let level = covering_level(500.5, &reps, None, method, truth).unwrap();
+                let at = |l: f64| interval(500.5, &reps, None, method, l).unwrap();
+                let (above, below) = (at((level + 1e-6).min(1.0 - 1e-9)), at(level - 1e-6));
+                assert!(
+                    above.low <= truth && truth <= above.high,
+                    "{method:?} {truth}"
+                );
+                assert!(
+                    !(below.low <= truth && truth <= below.high),
+                    "{method:?} {truth}"
+                );
+            }
+        }
+    }
+
+    #[test]
+    fn a_percentile_interval_reaches_the_975th_of_1000_replicates_near_95_percent() {
+        // The 95% percentile interval of 1000 sorted replicates ends near the 975th
+        // (common practice: its ends are the 2.5% and 97.5% quantiles).
+        let reps = uniform_replicates();
+        let level = covering_level(500.5, &reps, None, IntervalMethod::Percentile, 975.0).unwrap();
+        assert!((level - 0.95).abs() < 0.003, "{level}");
+    }
+
+    #[test]
+    fn a_truth_outside_all_replicates_needs_the_whole_level_and_the_estimate_none() {
+        let reps = uniform_replicates();
+        let p = IntervalMethod::Percentile;
+        assert_eq!(covering_level(500.5, &reps, None, p, 5000.0), Some(1.0));
+        let centre = covering_level(500.5, &reps, None, p, 500.5).unwrap();
+        assert!(centre < 0.002, "{centre}");
+    }
+}

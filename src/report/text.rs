@@ -164,11 +164,12 @@ fn calibrated_table(o: &mut String, r: &FitReport) {
         return;
     };
     let held = r.settings.given.hold.name();
-    let mut rows: Vec<[String; 5]> = vec![[
+    let mut rows: Vec<[String; 6]> = vec![[
         held.into(),
         "quantity".into(),
         format!("calibrated {:.0}% interval", 100.0 * level),
         "nominal level used".into(),
+        "plain interval covered".into(),
         "campaigns".into(),
     ]];
     let mut notes = Vec::new();
@@ -198,6 +199,7 @@ fn calibrated_table(o: &mut String, r: &FitReport) {
                     percent(ci.nominal_range[0]),
                     percent(ci.nominal_range[1])
                 ),
+                percent(ci.plain_coverage),
                 ci.campaigns.to_string(),
             ]);
         }
@@ -360,12 +362,15 @@ fn calibration_sentence(r: &FitReport) -> String {
     format!(
         " Calibrated intervals were formed at the nominal level whose intervals covered \
          the truth in {lvl:.0}% of {m} campaigns simulated with this design (the same samples \
-         and points, the joint fit's curve as truth, noise from the data's own samples), each \
-         refitted in the same way (calibration of the confidence coefficient: Loh 1987; Hall \
-         & Martin 1988); for X of the joint fit that level was {nom}.",
+         and points, the joint fit's curve as truth, noise: {noise}), each refitted in the \
+         same way (calibration of the confidence coefficient: Loh 1987; Hall & Martin 1988); \
+         for X of the joint fit that level was {nom}, and the plain {lvl:.0}% interval had \
+         covered in {plain} of them.",
         lvl = 100.0 * c.level,
         m = x.campaigns,
+        noise = c.noise,
         nom = percent(x.nominal_level),
+        plain = percent(x.plain_coverage),
     )
 }
 

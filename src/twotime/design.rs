@@ -731,6 +731,7 @@ pub fn calibrated_fit(
     let Some(truth) = fitted_truth(&report) else {
         report.fits[0].calibrated = Some(Calibrated {
             level: fit.level,
+            noise: design.noise.describe().into(),
             notes: vec![
                 "no calibration: the fit quotes no X, so there is no curve to \
                          simulate from"
@@ -750,15 +751,22 @@ pub fn calibrated_fit(
     progress.finish();
     let ok: Vec<&Outcome> = outs.iter().flatten().collect();
     for (gi, f) in report.fits.iter_mut().enumerate() {
-        f.calibrated = Some(calibrate_fit(f, gi, &ok, fit));
+        f.calibrated = Some(calibrate_fit(f, gi, &ok, fit, design.noise));
     }
     Ok(report)
 }
 
 /// One fit's calibrated intervals from the covering levels of the simulated campaigns.
-fn calibrate_fit(f: &GroupFit, gi: usize, ok: &[&Outcome], fit: &FitSettings) -> Calibrated {
+fn calibrate_fit(
+    f: &GroupFit,
+    gi: usize,
+    ok: &[&Outcome],
+    fit: &FitSettings,
+    noise: Noise,
+) -> Calibrated {
     let mut c = Calibrated {
         level: fit.level,
+        noise: noise.describe().into(),
         ..Calibrated::default()
     };
     for (k, name) in QUANTITIES.iter().enumerate() {
@@ -798,6 +806,8 @@ fn calibrate_fit(f: &GroupFit, gi: usize, ok: &[&Outcome], fit: &FitSettings) ->
             nominal_level: nominal.level,
             nominal_range: nominal.range,
             campaigns: levels.len(),
+            plain_coverage: levels.iter().filter(|&&l| l <= fit.level).count() as f64
+                / levels.len() as f64,
         };
         match k {
             0 => {

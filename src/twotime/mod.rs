@@ -30,7 +30,8 @@ pub use crate::common::{Estimate, Progress, Silent, ToolInfo};
 pub use campaign::{Campaign, GridPoint};
 pub use findings::{Caution, Finding, Subject, Verdict};
 pub use result::{
-    AgingTrend, Curve, FitReport, GroupFit, LeftOut, PointRecord, SCHEMA, SettingsRecord,
+    AgingTrend, Calibrated, CalibratedInterval, Curve, FitReport, GroupFit, LeftOut, PointRecord,
+    SCHEMA, SettingsRecord,
 };
 pub use settings::{FitSettings, Hold, Model, Weighting};
 

@@ -144,6 +144,9 @@ pub struct CalibratedInterval {
     pub nominal_range: [f64; 2],
     /// Simulated campaigns in which the plain interval was printed (the calibration's size).
     pub campaigns: usize,
+    /// The share of those campaigns whose plain interval (at the requested level) covered
+    /// the truth.
+    pub plain_coverage: f64,
 }
 
 /// The calibrated intervals of one fit, and why one is missing.
@@ -151,6 +154,8 @@ pub struct CalibratedInterval {
 pub struct Calibrated {
     /// The level the intervals are calibrated to cover.
     pub level: f64,
+    /// How the simulated campaigns' noise was drawn, in words.
+    pub noise: String,
     /// X.
     pub x: Option<CalibratedInterval>,
     /// T_eff = T/X (X's calibrated interval mapped).
