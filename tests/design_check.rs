@@ -10,7 +10,8 @@
 //! Environment: `FDTEMP_DESIGN_OUTER` outer campaigns per design (default 200),
 //! `FDTEMP_DESIGN_INNER` simulated campaigns per calibration (default 200),
 //! `FDTEMP_DESIGN_B` resamples per fit (default 999), `FDTEMP_DESIGN_SAMPLES`
-//! comma-separated sample sizes (default 12,20,48). About 40 minutes on 2 cores for the
+//! comma-separated sample sizes (default 12,20,48), `FDTEMP_DESIGN_NOISE` `resample`
+//! (default) or `gaussian`. About 40 minutes on 2 cores for the
 //! defaults. Each line it prints is a Markdown row for docs/validation.md.
 
 use assert_cmd::Command;
@@ -282,6 +283,11 @@ fn calibrated_intervals_cover_at_their_stated_rate() {
         .split(',')
         .filter_map(|s| s.trim().parse().ok())
         .collect();
+    let noise = match std::env::var("FDTEMP_DESIGN_NOISE").as_deref() {
+        Ok("gaussian") => Noise::Gaussian,
+        _ => Noise::Resample,
+    };
+    println!("noise: {}", noise.describe());
     println!(
         "| samples | quantity | fit | plain 95% coverage | calibrated coverage | mean \
          nominal level | check's predicted plain coverage | seconds |"
@@ -305,7 +311,7 @@ fn calibrated_intervals_cover_at_their_stated_rate() {
             };
             let sim = DesignSettings {
                 campaigns: inner,
-                noise: Noise::Resample,
+                noise,
                 seed: 91_000 + i,
             };
             let Ok(report) = calibrated_fit(&campaign, &fit, &sim, None, &Silent) else {

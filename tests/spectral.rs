@@ -469,6 +469,9 @@ fn a_white_record_reads_t_in_its_nyquist_bin_within_its_interval() {
         runs: vec![String::new()],
         psd: vec![w.finish().unwrap()],
         bin_rho2: fdtemp::spectral::input::Window::Hann.bin_rho2(),
+        sample_rate: fs,
+        time: None,
+        gain: 1.0,
     };
     let (g, _) = to_group(&rec, &Dissipation::Constant(r)).unwrap();
     let s = SpectrumSettings {

@@ -42,6 +42,9 @@ fn record(seed: u64, a: f64, amp: f64) -> RecordPsd {
         runs: vec![String::new()],
         psd: vec![w.finish().unwrap()],
         bin_rho2: Window::Hann.bin_rho2(),
+        sample_rate: 1.0,
+        time: None,
+        gain: 1.0,
     }
 }
 
@@ -283,6 +286,9 @@ fn run_resampling_study(runs: u64) {
             runs: (0..runs).map(|r| format!("r{r}")).collect(),
             psd: recs.into_iter().map(|r| r.psd[0].clone()).collect(),
             bin_rho2: Window::Hann.bin_rho2(),
+            sample_rate: 1.0,
+            time: None,
+            gain: 1.0,
         };
         let mut st = s.clone();
         st.seed = c;

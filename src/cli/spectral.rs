@@ -36,9 +36,14 @@ pub struct SpectrumArgs {
 pub struct NoiseArgs {
     /// Noise record: one number per line, or one column per run (optional header).
     file: PathBuf,
-    /// Samples per second.
+    /// Samples per second [default: from the record's time column, a first column named
+    /// t or time (any unit suffix) or, without a header, rising in even steps].
     #[arg(long, allow_negative_numbers = true)]
-    sample_rate: f64,
+    sample_rate: Option<f64>,
+    /// Voltage gain between the sample and the recorder: the PSD is divided by GAIN² so
+    /// that it is referred to the sample.
+    #[arg(long, allow_negative_numbers = true)]
+    gain: Option<f64>,
     /// Segment length of Welch's method (samples).
     #[arg(long, default_value_t = 4096)]
     segment: usize,
@@ -48,13 +53,16 @@ pub struct NoiseArgs {
     /// A resistor's resistance R (ohm): the dissipation of voltage noise, Re Z = R.
     #[arg(long, conflicts_with = "loss_file", allow_negative_numbers = true)]
     resistance: Option<f64>,
-    /// CSV of f and the dissipation (loss, Re Z or Re Y per --convention), interpolated.
+    /// CSV of f and the dissipation (loss, Re Z or Re Y), interpolated in log f – log
+    /// value; its column name (loss, Re Z, Re Y, …) sets the convention unless
+    /// --convention is given.
     #[arg(long, value_name = "FILE")]
     loss_file: Option<PathBuf>,
     /// Bath temperature T: enables the departure test.
     #[arg(long, short = 'T', allow_negative_numbers = true)]
     temperature: Option<f64>,
-    /// How PSD and dissipation are normalized [default: voltage with --resistance, else loss].
+    /// How PSD and dissipation are normalized [default: voltage with --resistance; with
+    /// --loss-file, what its column name says].
     #[arg(long, value_enum)]
     convention: Option<Convention>,
     /// Write the PSD as a CSV that `fdtemp spectrum` reads back.
@@ -165,11 +173,6 @@ pub fn spectrum(a: SpectrumArgs) -> fdtemp::Result<()> {
 
 /// `fdtemp noise`: Welch PSD of the records; with a dissipation, T_eff(f) and its report.
 pub fn noise(a: NoiseArgs) -> fdtemp::Result<()> {
-    let NoiseSetup {
-        welch,
-        settings,
-        figure,
-    } = noise_settings(&a)?;
     let mut inputs = vec![a.file.as_path()];
     if let Some(l) = &a.loss_file {
         inputs.push(l.as_path());
@@ -179,13 +182,26 @@ pub fn noise(a: NoiseArgs) -> fdtemp::Result<()> {
         &inputs,
         a.common.overwrite,
     )?;
-    let diss = match (a.resistance, &a.loss_file) {
-        (Some(r), _) => Some(Dissipation::Constant(r)),
-        (None, Some(p)) => Some(noise::read_dissipation(p)?),
-        (None, None) => None,
+    let (diss, column) = match (a.resistance, &a.loss_file) {
+        (Some(r), _) => (Some(Dissipation::Constant(r)), None),
+        (None, Some(p)) => {
+            let (d, name) = noise::read_dissipation(p)?;
+            (Some(d), Some(name))
+        }
+        (None, None) => (None, None),
     };
-    let rec = noise::welch_records(&a.file, welch)?;
+    let NoiseSetup {
+        welch,
+        settings,
+        figure,
+        convention_note,
+    } = noise_settings(&a, column.as_deref())?;
+    let mut rec = noise::welch_records(&a.file, welch, a.sample_rate)?;
+    if let Some(g) = a.gain {
+        rec.divide_gain(g);
+    }
     let mut header = noise_header(&a, &welch, &rec);
+    header.extend(convention_note);
     let mut outputs = Vec::new();
     if let Some(p) = &a.psd_out {
         outputs.push(Output {
@@ -214,28 +230,65 @@ struct NoiseSetup {
     welch: WelchSettings,
     settings: SpectrumSettings,
     figure: Option<(PathBuf, Figure)>,
+    /// A header line when the convention was read from the loss file's column name, or
+    /// when the given one differs from what that name says.
+    convention_note: Option<String>,
 }
 
-/// Welch and analysis settings and the figure of `noise`, checked before any work.
-fn noise_settings(a: &NoiseArgs) -> fdtemp::Result<NoiseSetup> {
+/// Welch and analysis settings and the figure of `noise`, checked before any work;
+/// `column` is the loss file's value column name.
+fn noise_settings(a: &NoiseArgs, column: Option<&str>) -> fdtemp::Result<NoiseSetup> {
     let welch = WelchSettings {
-        sample_rate: a.sample_rate,
+        sample_rate: a.sample_rate.unwrap_or(1.0),
         segment: a.segment,
         overlap: a.overlap.unwrap_or(a.segment / 2),
     };
     welch.validate()?;
-    if let Some(r) = a.resistance
-        && !(r > 0.0 && r.is_finite())
-    {
-        return Err(fdtemp::Error::Setting(format!(
-            "--resistance is {r}, expected a positive number of ohms"
-        )));
+    for (name, v, what) in [
+        ("--resistance", a.resistance, "a positive number of ohms"),
+        ("--gain", a.gain, "a positive voltage gain (output/input)"),
+    ] {
+        if let Some(v) = v
+            && !(v > 0.0 && v.is_finite())
+        {
+            return Err(fdtemp::Error::Setting(format!(
+                "{name} is {v}, expected {what}"
+            )));
+        }
     }
-    let convention = a.convention.unwrap_or(if a.resistance.is_some() {
-        Convention::Voltage
-    } else {
-        Convention::Loss
-    });
+    let named = column.and_then(noise::convention_named);
+    let (convention, convention_note) = match (a.convention, named, column) {
+        (Some(c), Some(n), Some(col)) if c != n => (
+            c,
+            Some(format!(
+                "loss file   column '{col}' reads as {}, but --convention {} was given: \
+                 the given one is used",
+                convention_label(n),
+                convention_label(c)
+            )),
+        ),
+        (Some(c), _, _) => (c, None),
+        (None, _, None) if a.resistance.is_some() => (Convention::Voltage, None),
+        (None, Some(n), Some(col)) => (
+            n,
+            Some(format!(
+                "loss file   column '{col}' read as {}",
+                convention_label(n)
+            )),
+        ),
+        (None, None, Some(col)) => {
+            return Err(fdtemp::Error::input(
+                a.loss_file.as_deref().unwrap_or(a.file.as_path()),
+                Some(1),
+                Some(2),
+                format!(
+                    "column '{col}' does not say which dissipation it is; expected a name \
+                     such as loss, Re Z or Re Y, or give --convention loss|angular|voltage|current"
+                ),
+            ));
+        }
+        (None, _, None) => (Convention::Loss, None),
+    };
     let settings = a.common.settings(a.temperature, convention);
     settings.validate()?;
     let figure = a.common.plot.figure()?;
@@ -248,28 +301,62 @@ fn noise_settings(a: &NoiseArgs) -> fdtemp::Result<NoiseSetup> {
         welch,
         settings,
         figure,
+        convention_note,
     })
 }
 
-/// The report's first lines: the records and the Welch estimate.
+/// A convention's option value.
+fn convention_label(c: Convention) -> &'static str {
+    match c {
+        Convention::Loss => "the loss (convention loss)",
+        Convention::Angular => "the loss (convention angular)",
+        Convention::Voltage => "Re Z (convention voltage)",
+        Convention::Current => "Re Y (convention current)",
+    }
+}
+
+/// The report's first lines: the records, their time column and gain, and the Welch
+/// estimate.
 fn noise_header(a: &NoiseArgs, welch: &WelchSettings, rec: &RecordPsd) -> Vec<String> {
+    use fdtemp::report::format::{fmt_num, sig};
     let p0 = &rec.psd[0];
-    vec![
-        format!(
-            "data        {}: {} run(s) of {} samples at {} Hz",
-            a.file.display(),
-            rec.runs.len(),
-            p0.samples,
-            fdtemp::report::format::fmt_num(a.sample_rate)
-        ),
-        format!(
-            "welch       Hann window, {} samples per segment, overlap {}, {} segments per run, {} degrees of freedom per frequency",
-            welch.segment,
-            welch.overlap,
-            p0.segments,
-            fdtemp::report::sig(p0.dof[1.min(p0.dof.len() - 1)], 4)
-        ),
-    ]
+    let mut lines = vec![format!(
+        "data        {}: {} run(s) of {} samples at {} Hz",
+        a.file.display(),
+        rec.runs.len(),
+        p0.samples,
+        fmt_num(rec.sample_rate)
+    )];
+    if let Some(t) = &rec.time {
+        lines.push(format!(
+            "time        column '{}' (recognised {}) holds the times, not a run: step {} s, \
+             {} Hz{}",
+            t.name,
+            t.by,
+            sig(t.step, 4),
+            fmt_num(1.0 / t.step),
+            if a.sample_rate.is_some() {
+                ", agreeing with --sample-rate"
+            } else {
+                ", used as the sample rate"
+            }
+        ));
+    }
+    if rec.gain != 1.0 {
+        lines.push(format!(
+            "gain        {}: the PSD is divided by {} (referred to the sample)",
+            fmt_num(rec.gain),
+            sig(rec.gain * rec.gain, 4)
+        ));
+    }
+    lines.push(format!(
+        "welch       Hann window, {} samples per segment, overlap {}, {} segments per run, {} degrees of freedom per frequency",
+        welch.segment,
+        welch.overlap,
+        p0.segments,
+        sig(p0.dof[1.min(p0.dof.len() - 1)], 4)
+    ));
+    lines
 }
 
 /// Without a dissipation: writes the PSD if asked and says that T_eff is not computed.

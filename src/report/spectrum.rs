@@ -299,6 +299,14 @@ pub fn caution(c: &SpectralCaution) -> String {
         SpectralFinding::OutsideTable { frequencies } => {
             format!("{frequencies} frequencies outside the dissipation table's range were left out")
         }
+        SpectralFinding::ImplausibleScale { ratio, factor } => format!(
+            "T_eff is {} times the bath temperature (median), and beyond a factor {} from it at \
+             every frequency: an aging system departs at low frequencies, not everywhere, so \
+             check the units (--units), the amplifier gain (--gain) and the convention \
+             (--convention) before reading this as physics",
+            super::format::sig(*ratio, 2),
+            super::format::fmt_num(*factor)
+        ),
     }
 }
 

@@ -335,6 +335,19 @@ pub fn analyze_spectra(
             finding: SpectralFinding::ChiSquareAssumesGaussian,
         });
     }
+    if let Some(t) = settings.temperature {
+        for sp in &spectra {
+            if let Some(ratio) = implausible_scale(&sp.points, t) {
+                warnings.push(SpectralCaution {
+                    tw: sp.tw,
+                    finding: SpectralFinding::ImplausibleScale {
+                        ratio,
+                        factor: SCALE_FACTOR,
+                    },
+                });
+            }
+        }
+    }
     Ok(SpectrumReport {
         schema: SCHEMA,
         tool: ToolInfo::default(),
@@ -348,6 +361,30 @@ pub fn analyze_spectra(
         spectra,
         cautions: warnings,
     })
+}
+
+/// How far from the bath (a factor) T_eff must lie at every frequency to be called
+/// implausible. Aging systems reach T_eff ≫ T at low frequencies, never at all of them:
+/// at high frequencies the fast modes are at the bath's temperature.
+pub const SCALE_FACTOR: f64 = 10.0;
+
+/// The median T_eff / T when every frequency's interval lies above `SCALE_FACTOR · T` (or
+/// every one below `T / SCALE_FACTOR`); frequencies without an interval count by their
+/// estimate.
+fn implausible_scale(points: &[SpectrumPoint], t: f64) -> Option<f64> {
+    if points.is_empty() {
+        return None;
+    }
+    let low = |p: &SpectrumPoint| p.low.unwrap_or(p.t_eff);
+    let high = |p: &SpectrumPoint| p.high.unwrap_or(p.t_eff);
+    let above = points.iter().all(|p| low(p) > SCALE_FACTOR * t);
+    let below = points.iter().all(|p| high(p) < t / SCALE_FACTOR);
+    if !(above || below) {
+        return None;
+    }
+    let mut r: Vec<f64> = points.iter().map(|p| p.t_eff / t).collect();
+    r.sort_by(f64::total_cmp);
+    Some(r[r.len() / 2])
 }
 
 /// The bands: the user's (or all frequencies) first, then the log bands of the test.

@@ -43,6 +43,14 @@ pub enum SpectralFinding {
         /// How many.
         frequencies: usize,
     },
+    /// At every frequency T_eff's interval lies beyond a factor 10 from the bath: more
+    /// likely units, a gain or the convention than physics.
+    ImplausibleScale {
+        /// The median of T_eff / T over the frequencies.
+        ratio: f64,
+        /// The factor beyond which it fires.
+        factor: f64,
+    },
 }
 
 /// A spectral caution with its subject: the spectrum at a waiting time, or all of them.

@@ -377,13 +377,54 @@ impl Pending {
     }
 }
 
-/// Streams a noise record: `sink(run, value)` receives every sample in order. Returns
-/// the run names (from the header, or `1`, `2`, … when the first line is all numbers).
+/// What a record file held besides its samples.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Records {
+    /// Run names (from the header, or `1`, `2`, … when the first line is all numbers).
+    pub runs: Vec<String>,
+    /// The first column, when it holds the sample times rather than a run.
+    pub time: Option<TimeColumn>,
+}
+
+/// A record's column of sample times.
+#[derive(Debug, Clone, PartialEq)]
+pub struct TimeColumn {
+    /// Its header name, or `column 1` in a file without a header.
+    pub name: String,
+    /// How it was recognised, in words.
+    pub by: &'static str,
+    /// The mean step, (last − first)/(rows − 1), in the column's units (seconds).
+    pub step: f64,
+    /// Rows read.
+    pub rows: u64,
+}
+
+/// Whether a column name says it holds times: `t`, `time`, `seconds`, … with any unit
+/// suffix (`time_s`, `t (s)`, `Time[s]`).
+pub fn is_time_name(name: &str) -> bool {
+    let lower = name.trim().to_lowercase();
+    let base = lower
+        .split(|c: char| !c.is_alphanumeric())
+        .next()
+        .unwrap_or("");
+    matches!(
+        base,
+        "t" | "time" | "times" | "timestamp" | "seconds" | "sec" | "secs" | "s"
+    )
+}
+
+/// Data lines read before deciding whether a file without a header has a time column.
+const PRESCAN: usize = 64;
+
+/// Streams a noise record: `sink(run, value)` receives every sample in order. A first
+/// column of times — named as one ([`is_time_name`]), or, without a header, strictly
+/// increasing with even steps over the first 64 lines — is not a run: it is checked for
+/// even steps throughout and returned as [`Records::time`].
 ///
 /// # Errors
-/// [`Error::Input`] for an empty file, a line whose field count differs, or a field that
-/// is not a finite number (with line and column).
-pub fn stream_records(path: &Path, sink: impl FnMut(usize, f64)) -> Result<Vec<String>> {
+/// [`Error::Input`] for an empty file, a line whose field count differs, a field that is
+/// not a finite number, or a time that breaks the even steps (with line and column).
+pub fn stream_records(path: &Path, sink: impl FnMut(usize, f64)) -> Result<Records> {
     stream_records_from(open(path)?, path, sink)
 }
 
@@ -399,28 +440,183 @@ pub fn stream_records_from<R: Read>(
     reader: R,
     file: &Path,
     mut sink: impl FnMut(usize, f64),
-) -> Result<Vec<String>> {
+) -> Result<Records> {
     let mut lines = BlockLines::new(reader);
     let mut line_no: u64 = 0;
     let mut names: Option<Vec<String>> = None;
+    // Lines held back (without a header) until the time column is decided.
+    let mut held: Vec<(u64, String)> = Vec::new();
+    let mut time: Option<TimeTracker> = None;
+    let mut decided = false;
     while let Some(line) = lines.next_line(file)? {
         line_no += 1;
         let Some(text) = record_text(line, line_no, file)? else {
             continue;
         };
-        match &names {
-            None => names = Some(first_record_line(text, line_no, file, &mut sink)?),
-            Some(n) => emit(text, line_no, file, n, &mut sink)?,
+        let Some(n) = &names else {
+            let (n, numeric) = first_record_line(text, line_no, file)?;
+            if numeric && n.len() > 1 {
+                held.push((line_no, text.to_string()));
+            } else {
+                if numeric {
+                    emit(text, line_no, file, &n, &mut sink)?;
+                } else if n.len() > 1 && is_time_name(&n[0]) {
+                    time = Some(TimeTracker::new(&n[0], "by its name"));
+                }
+                decided = true;
+            }
+            names = Some(n);
+            continue;
+        };
+        if decided {
+            emit_line(text, line_no, file, n, &mut time, &mut sink)?;
+            continue;
+        }
+        held.push((line_no, text.to_string()));
+        if held.len() >= PRESCAN {
+            time = even_first_column(&held);
+            for (l, t) in std::mem::take(&mut held) {
+                emit_line(&t, l, file, n, &mut time, &mut sink)?;
+            }
+            decided = true;
         }
     }
-    names.ok_or_else(|| {
-        Error::input(
+    let Some(mut names) = names else {
+        return Err(Error::input(
             file,
             None,
             None,
             "the record is empty; expected one number per line (or one column per run)",
-        )
-    })
+        ));
+    };
+    if !decided {
+        time = even_first_column(&held);
+        for (l, t) in std::mem::take(&mut held) {
+            emit_line(&t, l, file, &names, &mut time, &mut sink)?;
+        }
+    }
+    let time = match time {
+        Some(t) => {
+            names.remove(0);
+            if t.name == "column 1" {
+                // Runs of a file without a header are numbered from 1 again.
+                names = (1..=names.len()).map(|i| i.to_string()).collect();
+            }
+            Some(t.finish(file)?)
+        }
+        None => None,
+    };
+    Ok(Records { runs: names, time })
+}
+
+/// A time column being checked for even steps.
+struct TimeTracker {
+    name: String,
+    by: &'static str,
+    first: f64,
+    prev: f64,
+    step: f64,
+    rows: u64,
+}
+
+impl TimeTracker {
+    fn new(name: &str, by: &'static str) -> Self {
+        TimeTracker {
+            name: name.to_string(),
+            by,
+            first: f64::NAN,
+            prev: f64::NAN,
+            step: f64::NAN,
+            rows: 0,
+        }
+    }
+
+    /// Takes the time of one row; an error names the line when the step is off by more
+    /// than half the first step (a gap, a repeat, a jump or a reversal).
+    fn push(&mut self, v: f64, line: u64, file: &Path) -> Result<()> {
+        self.rows += 1;
+        if self.rows == 1 {
+            self.first = v;
+        } else {
+            let d = v - self.prev;
+            if self.rows == 2 {
+                self.step = d;
+            }
+            if !(self.step > 0.0 && (d - self.step).abs() <= 0.5 * self.step) {
+                return Err(Error::input(
+                    file,
+                    Some(line),
+                    Some(1),
+                    format!(
+                        "time column '{}' goes from {} to {}, a step of {}; expected even \
+                         steps of about {} (a gap, a repeated or a reordered row?)",
+                        self.name, self.prev, v, d, self.step
+                    ),
+                ));
+            }
+        }
+        self.prev = v;
+        Ok(())
+    }
+
+    fn finish(self, file: &Path) -> Result<TimeColumn> {
+        if self.rows < 2 {
+            return Err(Error::input(
+                file,
+                None,
+                None,
+                format!(
+                    "time column '{}' has {} row(s); expected a record of many samples",
+                    self.name, self.rows
+                ),
+            ));
+        }
+        Ok(TimeColumn {
+            name: self.name,
+            by: self.by,
+            step: (self.prev - self.first) / (self.rows - 1) as f64,
+            rows: self.rows,
+        })
+    }
+}
+
+/// A time tracker when the first column of the held lines (a file without a header)
+/// rises with even steps: at least 8 lines, every step within 1% of their mean.
+fn even_first_column(held: &[(u64, String)]) -> Option<TimeTracker> {
+    let first: Vec<f64> = held
+        .iter()
+        .map(|(_, t)| t.split(',').next().and_then(|f| f.trim().parse().ok()))
+        .collect::<Option<Vec<f64>>>()?;
+    if first.len() < 8 {
+        return None;
+    }
+    let steps: Vec<f64> = first.windows(2).map(|w| w[1] - w[0]).collect();
+    let mean = steps.iter().sum::<f64>() / steps.len() as f64;
+    (mean > 0.0 && steps.iter().all(|d| (d - mean).abs() <= 0.01 * mean))
+        .then(|| TimeTracker::new("column 1", "by its even steps"))
+}
+
+/// One data line: the time (if any) to the tracker, the rest to `sink` as runs.
+fn emit_line(
+    text: &str,
+    line: u64,
+    file: &Path,
+    names: &[String],
+    time: &mut Option<TimeTracker>,
+    sink: &mut impl FnMut(usize, f64),
+) -> Result<()> {
+    let Some(tracker) = time else {
+        return emit(text, line, file, names, sink);
+    };
+    let mut t = f64::NAN;
+    emit(text, line, file, names, &mut |i, v| {
+        if i == 0 {
+            t = v;
+        } else {
+            sink(i - 1, v);
+        }
+    })?;
+    tracker.push(t, line, file)
 }
 
 /// The lines of a reader, read in blocks of 64 KiB.
@@ -502,18 +698,13 @@ fn record_text<'a>(line: &'a [u8], line_no: u64, file: &Path) -> Result<Option<&
     Ok((!text.is_empty() && !text.starts_with('#')).then_some(text))
 }
 
-/// The run names from a record's first line: its header, or `1`, `2`, … when it is all
-/// numbers (then its numbers go to `sink`).
+/// The column names from a record's first line: its header, or `1`, `2`, … when it is
+/// all numbers (then the second value is `true` and the line is data).
 ///
 /// # Errors
-/// [`Error::Input`] for a line separated by something other than commas, a name that
-/// appears twice, or (for a data line) a bad number.
-fn first_record_line(
-    text: &str,
-    line_no: u64,
-    file: &Path,
-    sink: &mut impl FnMut(usize, f64),
-) -> Result<Vec<String>> {
+/// [`Error::Input`] for a line separated by something other than commas, or a name that
+/// appears twice.
+fn first_record_line(text: &str, line_no: u64, file: &Path) -> Result<(Vec<String>, bool)> {
     let fields: Vec<&str> = text.split(',').map(str::trim).collect();
     if fields.len() == 1 && (text.contains(';') || text.contains('\t')) {
         return Err(Error::input(
@@ -528,8 +719,7 @@ fn first_record_line(
     }
     if fields.iter().all(|f| f.parse::<f64>().is_ok()) {
         let names: Vec<String> = (1..=fields.len()).map(|i| i.to_string()).collect();
-        emit(text, line_no, file, &names, sink)?;
-        return Ok(names);
+        return Ok((names, true));
     }
     let mut seen = std::collections::HashSet::new();
     for (i, f) in fields.iter().enumerate() {
@@ -542,7 +732,7 @@ fn first_record_line(
             ));
         }
     }
-    Ok(fields.iter().map(|f| f.to_string()).collect())
+    Ok((fields.iter().map(|f| f.to_string()).collect(), false))
 }
 
 fn memchr_newline(b: &[u8]) -> Option<usize> {

@@ -205,6 +205,12 @@ impl Welch {
         }
     }
 
+    /// Sets the sample rate the PSD is scaled with (it is used only by [`Welch::finish`],
+    /// so a rate read from the record's own time column can be set after streaming).
+    pub fn set_sample_rate(&mut self, fs: f64) {
+        self.settings.sample_rate = fs;
+    }
+
     /// Finishes the estimate.
     ///
     /// # Errors
