@@ -14,11 +14,8 @@ use fdtemp::twotime::{Caution, Finding, FitReport, Silent, Verdict, analyze};
 
 fn design(samples: usize, seed: u64) -> SynthSpec {
     SynthSpec {
-        samples,
-        points_per_tw: 20,
-        noise_growth: 2.0,
         seed,
-        ..SynthSpec::default()
+        ..SynthSpec::study(samples)
     }
 }
 

@@ -238,14 +238,7 @@ struct Batch {
 /// triples from C = 1 to C = 0), C–χ noise correlation −0.4 and AR(1) correlation 0.8
 /// along t (the synth defaults).
 fn design(samples: usize) -> SynthSpec {
-    SynthSpec {
-        samples,
-        points_per_tw: 20,
-        noise_growth: 2.0,
-        cross: -0.4,
-        along_t: 0.8,
-        ..SynthSpec::default()
-    }
+    SynthSpec::study(samples)
 }
 
 fn equilibrium(samples: usize) -> SynthSpec {

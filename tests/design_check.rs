@@ -31,13 +31,8 @@ fn fdtemp() -> Command {
 /// along t. Truth: X = 0.45 below q = 0.6, T = 0.6.
 fn design(samples: usize, seed: u64) -> SynthSpec {
     SynthSpec {
-        samples,
-        points_per_tw: 20,
-        noise_growth: 2.0,
-        cross: -0.4,
-        along_t: 0.8,
         seed,
-        ..SynthSpec::default()
+        ..SynthSpec::study(samples)
     }
 }
 

@@ -118,6 +118,18 @@ impl Default for SynthSpec {
 }
 
 impl SynthSpec {
+    /// The design of the calibration studies (docs/validation.md): `samples` samples, 3
+    /// waiting times × 20 later times, the noise growing as C decays
+    /// (`noise_growth` 2), the default truth X = 0.45 below q = 0.6 at T = 0.6.
+    pub fn study(samples: usize) -> Self {
+        SynthSpec {
+            samples,
+            points_per_tw: 20,
+            noise_growth: 2.0,
+            ..SynthSpec::default()
+        }
+    }
+
     /// The true mean correlation at `(tw, t)`.
     pub fn correlation(&self, tw: f64, t: f64) -> f64 {
         let fast = (1.0 - self.plateau) * (-(t - tw)).exp();
