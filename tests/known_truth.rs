@@ -176,12 +176,10 @@ fn a_ratio_that_still_changes_with_age_is_flagged() {
         },
         1000,
     );
-    assert!(
-        !steady
-            .cautions
-            .iter()
-            .any(|c| matches!(c.finding, Finding::XChangesWithAge { .. }))
-    );
+    assert!(!steady.cautions.iter().any(|c| matches!(
+        c.finding,
+        Finding::XChangesWithAge { .. } | Finding::XChangesWithAgeCurved { .. }
+    )));
 }
 
 #[test]
@@ -298,9 +296,10 @@ fn a_break_near_the_edge_of_the_data_is_flagged() {
     };
     assert!(f.cautions.iter().any(edge), "{:?}", f.cautions);
     assert!(
-        !f.cautions
-            .iter()
-            .any(|c| matches!(c.finding, Finding::SlopeAboveNotMinusOne { .. })),
+        !f.cautions.iter().any(|c| matches!(
+            c.finding,
+            Finding::SlopeAboveNotMinusOne { .. } | Finding::SlopeAboveCurved { .. }
+        )),
         "{:?}",
         f.cautions
     );

@@ -123,13 +123,13 @@ fn lack_of_fit_false_alarms_and_power() {
     }
     for w in [Weighting::InverseVariance, Weighting::Uniform] {
         cases.push((
-            "curved X(C) = 0.3 + 0.7 C/q (power), noise 0.03".into(),
+            "curved X(C) = 0.3 + 0.7 C/q, noise 0.03".into(),
             curved(20, 0.03),
             Model::Broken,
             w,
         ));
         cases.push((
-            "curved X(C) = 0.3 + 0.7 C/q (power), noise 0.01".into(),
+            "curved X(C) = 0.3 + 0.7 C/q, noise 0.01".into(),
             curved(48, 0.01),
             Model::Broken,
             w,
