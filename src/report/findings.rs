@@ -346,4 +346,48 @@ mod tests {
              level (p ≤ 5.0e-4 for equilibrium)"
         );
     }
+
+    #[test]
+    fn lack_of_fit_words_name_curvature_and_never_one_clean_break() {
+        let v = Verdict::Curved {
+            p: 0.001,
+            resamples: 999,
+            alpha: 0.05,
+            p_equilibrium: 0.001,
+        };
+        let words = verdict(&v);
+        assert!(words.starts_with("curved: "), "{words}");
+        assert!(!words.contains("one break:"), "{words}");
+        assert!(words.contains("--model free"), "{words}");
+        let lof = finding(&Finding::LackOfFit {
+            p: 0.004,
+            level: 0.05 / 3.0,
+            resamples: 999,
+        });
+        assert!(
+            lof.contains("curvature") && lof.contains("tested at 1.67%"),
+            "{lof}"
+        );
+        let slope = finding(&Finding::SlopeAboveCurved {
+            slope: -0.9,
+            low: Some(-0.95),
+            high: Some(-0.85),
+            p: 0.002,
+            resamples: 999,
+        });
+        assert!(slope.contains("curvature may cause this"), "{slope}");
+        let aging = finding(&Finding::XChangesWithAgeCurved {
+            hold: Hold::Tw,
+            change_per_decade: 0.05,
+            low: 0.02,
+            high: 0.08,
+            curves: 3,
+            first: 100.0,
+            last: 10000.0,
+        });
+        assert!(
+            aging.contains("curvature may cause this change rather than aging"),
+            "{aging}"
+        );
+    }
 }
