@@ -40,8 +40,12 @@ fn cautions(r: &FitReport) -> Vec<&Finding> {
         .collect()
 }
 
+/// The thermometer caution in either wording (with lack of fit it names curvature).
 fn thermometer(c: &Caution) -> bool {
-    matches!(c.finding, Finding::SlopeAboveNotMinusOne { .. })
+    matches!(
+        c.finding,
+        Finding::SlopeAboveNotMinusOne { .. } | Finding::SlopeAboveCurved { .. }
+    )
 }
 
 #[test]
@@ -98,9 +102,10 @@ fn a_break_pinned_at_the_edge_gets_no_x_interval_and_raises_no_aging_alarm() {
         };
         let r = fit(&spec, 1 + k, Weighting::InverseVariance, Model::Broken);
         assert!(
-            !cautions(&r)
-                .iter()
-                .any(|f| matches!(f, Finding::XChangesWithAge { .. })),
+            !cautions(&r).iter().any(|f| matches!(
+                f,
+                Finding::XChangesWithAge { .. } | Finding::XChangesWithAgeCurved { .. }
+            )),
             "{:?}",
             cautions(&r)
         );
@@ -209,4 +214,47 @@ fn an_absurd_number_of_resamples_is_refused_before_the_work() {
         "{err}"
     );
     assert!(!json.exists());
+}
+
+fn lack_of_fit_flagged(r: &FitReport) -> bool {
+    cautions(r)
+        .iter()
+        .any(|f| matches!(f, Finding::LackOfFit { .. }))
+}
+
+#[test]
+fn a_strongly_curved_campaign_is_flagged_and_a_straight_one_mostly_is_not() {
+    // Curved truth: slope −1 above q = 0.6, then X(C) = 0.3 + 0.7 (C/q) rising gradually to
+    // 1 at q (no kink), at 48 samples and a third of the standard noise: every campaign
+    // must be flagged, with the verdict `curved`. Straight truth (two lines, X = 0.45) at
+    // the standard design (20 samples): at most 4 of 20 flagged anywhere (a 5% joint test
+    // and three curves at α/3 each: expected about 1 of 20; 4 is ~2.5 SD above it).
+    for k in 0..4 {
+        let spec = SynthSpec {
+            ratio: 0.3,
+            noise: 0.01,
+            shape: fdtemp::scenarios::synth::Shape::Smooth { power: 1.0 },
+            ..design(48, 91_000 + k)
+        };
+        let r = fit(&spec, 3, Weighting::InverseVariance, Model::Broken);
+        assert!(lack_of_fit_flagged(&r), "curved campaign {k} not flagged");
+        assert!(
+            matches!(r.verdict, Verdict::Curved { .. }),
+            "curved campaign {k}: verdict {:?}",
+            r.verdict
+        );
+        assert!(r.fits[0].lack_of_fit_p.is_some_and(|p| p <= 0.05));
+    }
+    let mut flagged = 0;
+    for k in 0..20 {
+        let r = fit(
+            &design(20, 92_000 + k),
+            5,
+            Weighting::InverseVariance,
+            Model::Broken,
+        );
+        assert!(r.fits.iter().all(|f| f.lack_of_fit_p.is_some()));
+        flagged += usize::from(lack_of_fit_flagged(&r));
+    }
+    assert!(flagged <= 4, "{flagged} of 20 straight campaigns flagged");
 }

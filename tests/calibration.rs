@@ -114,12 +114,22 @@ fn all_findings(r: &FitReport) -> impl Iterator<Item = &Finding> {
 
 /// The thermometer caution ("the slope above the break is … not -1") on any fit.
 fn thermometer_flagged(r: &FitReport) -> bool {
-    all_findings(r).any(|f| matches!(f, Finding::SlopeAboveNotMinusOne { .. }))
+    all_findings(r).any(|f| {
+        matches!(
+            f,
+            Finding::SlopeAboveNotMinusOne { .. } | Finding::SlopeAboveCurved { .. }
+        )
+    })
 }
 
 /// The caution "X changes with age".
 fn aging_flagged(r: &FitReport) -> bool {
-    all_findings(r).any(|f| matches!(f, Finding::XChangesWithAge { .. }))
+    all_findings(r).any(|f| {
+        matches!(
+            f,
+            Finding::XChangesWithAge { .. } | Finding::XChangesWithAgeCurved { .. }
+        )
+    })
 }
 
 // ─── Statements ─────────────────────────────────────────────────────────────────────────

@@ -29,7 +29,7 @@ pub fn finding(f: &Finding) -> String {
         Finding::VarianceFloored => "some points have (almost) no spread over samples; their \
              variance was floored at 1e-6 of the median for the weights"
             .into(),
-        Finding::XChangesWithAge { .. } => aging(f),
+        Finding::XChangesWithAge { .. } | Finding::XChangesWithAgeCurved { .. } => aging(f),
         Finding::IdenticalSamples => "the samples are (almost) identical: there is no \
              sample-to-sample spread, so the intervals only reflect rounding; check that the \
              samples are independent runs"
@@ -100,6 +100,38 @@ fn break_finding(f: &Finding) -> String {
                 p_clause(*p, *resamples)
             )
         }
+        Finding::SlopeAboveCurved {
+            slope,
+            low,
+            high,
+            p,
+            resamples,
+        } => {
+            let slope = match (low, high) {
+                (Some(lo), Some(hi)) => with_interval(*slope, *lo, *hi),
+                _ => num3(*slope),
+            };
+            format!(
+                "the slope above the break is {slope}, not -1 ({}), but the points do not \
+                 follow the model's shape (lack of fit): a curve that bends gradually tilts \
+                 the line above the break, so curvature may cause this; do not read it as a \
+                 wrong thermometer or wrong response units before --model free shows a \
+                 straight upper branch",
+                p_clause(*p, *resamples)
+            )
+        }
+        Finding::LackOfFit {
+            p,
+            level,
+            resamples,
+        } => format!(
+            "lack of fit ({}, tested at {}): the points bend where the model is straight, \
+             so its shape is not the data's (curvature, a gradual change of slope); one \
+             break and one X do not describe this curve — try --model free, or a \
+             continuous model of X(C)",
+            p_clause(*p, *resamples),
+            fmt_level(*level)
+        ),
         Finding::RatioAboveOne { ratio } => format!(
             "X = {} > 1 (T_eff below the bath temperature): reported as measured; this \
              happens after heating, or when the response units are off",
@@ -114,8 +146,18 @@ fn break_finding(f: &Finding) -> String {
     }
 }
 
+/// A test level as a percentage ("5%", "1.7%").
+fn fmt_level(level: f64) -> String {
+    let pct = 100.0 * level;
+    if (pct - pct.round()).abs() < 1e-9 {
+        format!("{pct:.0}%")
+    } else {
+        format!("{pct:.2}%")
+    }
+}
+
 fn aging(f: &Finding) -> String {
-    let Finding::XChangesWithAge {
+    let (Finding::XChangesWithAge {
         hold,
         change_per_decade,
         low,
@@ -123,16 +165,36 @@ fn aging(f: &Finding) -> String {
         curves,
         first,
         last,
-    } = f
+    }
+    | Finding::XChangesWithAgeCurved {
+        hold,
+        change_per_decade,
+        low,
+        high,
+        curves,
+        first,
+        last,
+    }) = f
     else {
         return String::new();
     };
     let h = hold.name();
     let s = distinct(&[*change_per_decade, *low, *high], Digits::Fixed(3), true);
+    let why = if matches!(f, Finding::XChangesWithAgeCurved { .. }) {
+        format!(
+            "but the curves do not follow the model's shape (lack of fit): when the curve \
+             bends gradually, X below one break depends on how far along it each {h} \
+             reaches, so curvature may cause this change rather than aging"
+        )
+    } else {
+        format!(
+            "the slow regime has not reached its aging limit, so the joint fit mixes ages — \
+             quote the per-{h} values or the oldest one"
+        )
+    };
     format!(
         "X changes with age: {} [{}, {}] per decade of {h} \
-         over {curves} curves ({h} = {} to {}); the slow regime has not reached its aging \
-         limit, so the joint fit mixes ages — quote the per-{h} values or the oldest one",
+         over {curves} curves ({h} = {} to {}); {why}",
         s[0],
         s[1],
         s[2],
@@ -231,6 +293,18 @@ fn break_verdict(v: &Verdict) -> String {
             100.0 * level,
             pr(p, resamples)
         ),
+        Verdict::Curved {
+            p,
+            resamples,
+            alpha,
+            p_equilibrium: _,
+        } => format!(
+            "curved: the points do not follow the model's straight segments (lack of fit, {}, \
+             tested at {}); the slope changes gradually rather than at one break, so no \
+             single q and X describe this curve — try --model free or a continuous model",
+            pr(p, resamples),
+            fmt_level(*alpha)
+        ),
         Verdict::ColderThanBath {
             ratio,
             p,
@@ -270,6 +344,50 @@ mod tests {
             verdict(&v),
             "one break: slope -1 down to C = 0.600, then X = 0.0012 [3.1e-4, 0.0029] at the 95% \
              level (p ≤ 5.0e-4 for equilibrium)"
+        );
+    }
+
+    #[test]
+    fn lack_of_fit_words_name_curvature_and_never_one_clean_break() {
+        let v = Verdict::Curved {
+            p: 0.001,
+            resamples: 999,
+            alpha: 0.05,
+            p_equilibrium: 0.001,
+        };
+        let words = verdict(&v);
+        assert!(words.starts_with("curved: "), "{words}");
+        assert!(!words.contains("one break:"), "{words}");
+        assert!(words.contains("--model free"), "{words}");
+        let lof = finding(&Finding::LackOfFit {
+            p: 0.004,
+            level: 0.05 / 3.0,
+            resamples: 999,
+        });
+        assert!(
+            lof.contains("curvature") && lof.contains("tested at 1.67%"),
+            "{lof}"
+        );
+        let slope = finding(&Finding::SlopeAboveCurved {
+            slope: -0.9,
+            low: Some(-0.95),
+            high: Some(-0.85),
+            p: 0.002,
+            resamples: 999,
+        });
+        assert!(slope.contains("curvature may cause this"), "{slope}");
+        let aging = finding(&Finding::XChangesWithAgeCurved {
+            hold: Hold::Tw,
+            change_per_decade: 0.05,
+            low: 0.02,
+            high: 0.08,
+            curves: 3,
+            first: 100.0,
+            last: 10000.0,
+        });
+        assert!(
+            aging.contains("curvature may cause this change rather than aging"),
+            "{aging}"
         );
     }
 }

@@ -124,7 +124,7 @@ fn fits_table(o: &mut String, r: &FitReport) {
     let g = &r.settings.given;
     let _ = writeln!(o);
     let held = g.hold.name();
-    let mut rows: Vec<[String; 8]> = vec![[
+    let mut rows: Vec<[String; 9]> = vec![[
         held.into(),
         "points".into(),
         "break q".into(),
@@ -133,6 +133,7 @@ fn fits_table(o: &mut String, r: &FitReport) {
         "slope above q".into(),
         "p(equilibrium)".into(),
         "p(slope -1)".into(),
+        "p(lack of fit)".into(),
     ]];
     for f in &r.fits {
         rows.push([
@@ -145,6 +146,8 @@ fn fits_table(o: &mut String, r: &FitReport) {
             f.equilibrium_p
                 .map_or("—".into(), |p| fmt_p_resampled(p, f.null_resamples)),
             f.thermometer_p
+                .map_or("—".into(), |p| fmt_p_resampled(p, f.null_resamples)),
+            f.lack_of_fit_p
                 .map_or("—".into(), |p| fmt_p_resampled(p, f.null_resamples)),
         ]);
     }
@@ -403,7 +406,12 @@ fn interval_phrase(method: crate::resample::IntervalMethod) -> &'static str {
 
 /// The tests in sentences, with the joint fit's equilibrium p-value.
 fn test_sentences(m: &dyn model::FdModel, p: &str) -> String {
-    if !m.has_break() {
+    let shape = "The model's shape was tested on each curve by a lack-of-fit statistic, the \
+         squared weighted mean residual in up to 8 equal-count bins of C summed over the \
+         bins, calibrated by the same resamples moved onto the fitted model and refitted \
+         (jointly: the sum over the curves at the test level; each curve at the level \
+         divided by the number of curves).";
+    let tests = if !m.has_break() {
         format!(
             "The hypothesis of equilibrium (slope -1) was tested with the statistic SSE(slope \
              -1) − SSE(free slope), calibrated by the same resamples moved onto the fitted \
@@ -419,7 +427,8 @@ fn test_sentences(m: &dyn model::FdModel, p: &str) -> String {
              (a check of the thermometer and the response units) with the resamples centred on \
              its estimate."
         )
-    }
+    };
+    format!("{tests} {shape}")
 }
 
 /// Wraps text at `width` columns with an indent.

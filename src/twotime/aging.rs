@@ -78,17 +78,37 @@ fn left_out_reason(f: &GroupFit, held: f64) -> Option<&'static str> {
     }
 }
 
-/// The finding "X changes with age", when the trend's interval excludes 0.
-pub fn aging_finding(a: &AgingTrend) -> Option<Finding> {
+/// The finding "X changes with age", when the trend's interval excludes 0; when lack of
+/// fit was found (`curved`), the variant that names curvature as a possible cause.
+pub fn aging_finding(a: &AgingTrend, curved: bool) -> Option<Finding> {
     let e = &a.change_per_decade;
-    a.changes.then(|| Finding::XChangesWithAge {
-        hold: a.hold,
-        change_per_decade: e.estimate.unwrap_or(f64::NAN),
-        low: e.low.unwrap_or(f64::NAN),
-        high: e.high.unwrap_or(f64::NAN),
-        curves: a.curves_used.len(),
-        first: a.curves_used.first().copied().unwrap_or(f64::NAN),
-        last: a.curves_used.last().copied().unwrap_or(f64::NAN),
+    let (hold, change_per_decade) = (a.hold, e.estimate.unwrap_or(f64::NAN));
+    let (low, high) = (e.low.unwrap_or(f64::NAN), e.high.unwrap_or(f64::NAN));
+    let curves = a.curves_used.len();
+    let first = a.curves_used.first().copied().unwrap_or(f64::NAN);
+    let last = a.curves_used.last().copied().unwrap_or(f64::NAN);
+    a.changes.then_some({
+        if curved {
+            Finding::XChangesWithAgeCurved {
+                hold,
+                change_per_decade,
+                low,
+                high,
+                curves,
+                first,
+                last,
+            }
+        } else {
+            Finding::XChangesWithAge {
+                hold,
+                change_per_decade,
+                low,
+                high,
+                curves,
+                first,
+                last,
+            }
+        }
     })
 }
 

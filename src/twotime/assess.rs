@@ -9,6 +9,7 @@
 
 use super::findings::{Caution, Finding, Side, Subject, Verdict};
 use super::fitting::{BAND_CURVES, Group, Spec};
+use super::lack_of_fit;
 use super::model::{Draw, Values};
 use super::result::{GroupFit, Series as ResampledSeries};
 use super::settings::{FitSettings, Hold, Weighting};
@@ -32,6 +33,11 @@ pub struct GroupInput<'a> {
     pub jack: &'a [Option<Draw>],
     /// `(q, SSE)` over every candidate break.
     pub profile: &'a [(f64, f64)],
+    /// The lack-of-fit statistic and its resampled statistics (moved onto the fitted
+    /// model), `None` where the group was not fitted.
+    pub lack_of_fit: Option<&'a (f64, Vec<f64>)>,
+    /// The number of curves the per-curve lack-of-fit tests share the level among.
+    pub curves: usize,
 }
 
 /// The resampled values of one group, with the interval rule of the settings.
@@ -104,6 +110,7 @@ pub fn assess(input: &GroupInput<'_>, spec: Spec, s: &FitSettings, n: usize) -> 
     let alpha = s.test_level();
     let violated = pval <= alpha;
     let model = spec.model;
+    let curved = lack_of_fit_test(&mut fit, input, s, n);
     fit.fast_slope = if e.fast.is_finite() {
         fit.resampled.slope_above = Some(series.series(e.fast, |d| d.fast));
         series.estimate(e.fast, |d| d.fast)
@@ -131,14 +138,33 @@ pub fn assess(input: &GroupInput<'_>, spec: Spec, s: &FitSettings, n: usize) -> 
         if g.held.is_none()
             && let Some(p) = fit.thermometer_p.filter(|p| *p <= alpha)
         {
-            found.push(Finding::SlopeAboveNotMinusOne {
-                slope: fit.fast_slope.estimate.unwrap_or(f64::NAN),
-                low: fit.fast_slope.low,
-                high: fit.fast_slope.high,
-                p,
-                resamples: nulls,
+            let (slope, low, high) = (
+                fit.fast_slope.estimate.unwrap_or(f64::NAN),
+                fit.fast_slope.low,
+                fit.fast_slope.high,
+            );
+            // With lack of fit, curvature can tilt the upper line as well as a thermometer.
+            found.push(if curved.is_some() {
+                Finding::SlopeAboveCurved {
+                    slope,
+                    low,
+                    high,
+                    p,
+                    resamples: nulls,
+                }
+            } else {
+                Finding::SlopeAboveNotMinusOne {
+                    slope,
+                    low,
+                    high,
+                    p,
+                    resamples: nulls,
+                }
             });
         }
+    }
+    if let Some(f) = curved.clone() {
+        found.push(f);
     }
     if fit.failed_resamples * 100 > input.reps.len() {
         found.push(Finding::FailedResamples {
@@ -154,7 +180,52 @@ pub fn assess(input: &GroupInput<'_>, spec: Spec, s: &FitSettings, n: usize) -> 
         .map(|finding| Caution { subject, finding })
         .collect();
     fit.verdict = verdict(&fit, model.has_break(), violated, pval, nulls, s);
+    if let Some(Finding::LackOfFit {
+        p,
+        level,
+        resamples,
+    }) = curved
+        && !matches!(
+            fit.verdict,
+            Verdict::NotFitted { .. } | Verdict::NoInterval | Verdict::BreakAtEdge { .. }
+        )
+    {
+        // A break at the edge already withholds X and names the cause (a regime barely
+        // reached); every other verdict would claim one clean break or a clean line.
+        fit.verdict = Verdict::Curved {
+            p,
+            resamples,
+            alpha: level,
+            p_equilibrium: pval,
+        };
+    }
     fit
+}
+
+/// The lack-of-fit test (`lack_of_fit` module): records the statistic and its p-value
+/// in `fit`, and returns the finding when it rejects, at α for the joint fit and at
+/// α/K for each of K curves (one family of tests, Bonferroni).
+fn lack_of_fit_test(
+    fit: &mut GroupFit,
+    input: &GroupInput<'_>,
+    s: &FitSettings,
+    n: usize,
+) -> Option<Finding> {
+    let (stat, nulls) = input.lack_of_fit?;
+    let c = lack_of_fit::factor(s.weights, n);
+    let (p, resamples) = lack_of_fit::p_value(*stat, nulls, c, 1e-13 * input.group.scale);
+    fit.lack_of_fit_stat = Some(*stat);
+    fit.lack_of_fit_p = Some(p);
+    let level = if input.group.held.is_none() {
+        s.test_level()
+    } else {
+        s.test_level() / input.curves.max(1) as f64
+    };
+    (p <= level).then_some(Finding::LackOfFit {
+        p,
+        level,
+        resamples,
+    })
 }
 
 fn not_fitted(mut fit: GroupFit, g: &Group, s: &FitSettings) -> GroupFit {
@@ -229,6 +300,8 @@ fn empty_fit(g: &Group, s: &FitSettings, n: usize, profile: &[(f64, f64)]) -> Gr
         null_resamples: 0,
         equilibrium_stat: None,
         thermometer_p: None,
+        lack_of_fit_p: None,
+        lack_of_fit_stat: None,
         x_quotable: false,
         curve: None,
         profile: profile.iter().map(|&(q, e)| [q, e]).collect(),

@@ -70,6 +70,24 @@ pub enum Finding {
         /// The last held time used.
         last: f64,
     },
+    /// The aging trend's interval excludes 0, but lack of fit was found: the change may
+    /// come from curvature (each curve reaching a different part of a bending line).
+    XChangesWithAgeCurved {
+        /// Which time is held along the curves.
+        hold: Hold,
+        /// `dX / d log₁₀(held)`.
+        change_per_decade: f64,
+        /// Lower end of its interval.
+        low: f64,
+        /// Upper end of its interval.
+        high: f64,
+        /// Curves in the trend.
+        curves: usize,
+        /// The first held time used.
+        first: f64,
+        /// The last held time used.
+        last: f64,
+    },
     /// No sample-to-sample spread: the intervals only reflect rounding.
     IdenticalSamples,
     /// 20–39 samples: intervals run a little short (measured).
@@ -122,6 +140,29 @@ pub enum Finding {
         high: Option<f64>,
         /// The test's p-value.
         p: f64,
+        /// Resamples that calibrated it.
+        resamples: usize,
+    },
+    /// The thermometer test rejects, but the fit shows lack of fit: curvature may tilt the
+    /// upper line.
+    SlopeAboveCurved {
+        /// The slope.
+        slope: f64,
+        /// Lower end of its interval.
+        low: Option<f64>,
+        /// Upper end of its interval.
+        high: Option<f64>,
+        /// The thermometer test's p-value.
+        p: f64,
+        /// Resamples that calibrated it.
+        resamples: usize,
+    },
+    /// The lack-of-fit test rejects: the points do not follow the model's shape.
+    LackOfFit {
+        /// Its p-value.
+        p: f64,
+        /// The level it was tested at (α jointly, α/K per curve).
+        level: f64,
         /// Resamples that calibrated it.
         resamples: usize,
     },
@@ -235,6 +276,18 @@ pub enum Verdict {
         p: f64,
         /// Resamples that calibrated it.
         resamples: usize,
+    },
+    /// The lack-of-fit test rejects: the curve bends where the model is straight, so no
+    /// single break and X describe it.
+    Curved {
+        /// The lack-of-fit p-value.
+        p: f64,
+        /// Resamples that calibrated it.
+        resamples: usize,
+        /// The level it was tested at.
+        alpha: f64,
+        /// The equilibrium test's p-value.
+        p_equilibrium: f64,
     },
     /// One break with X above 1.
     ColderThanBath {

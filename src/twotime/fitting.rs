@@ -1,6 +1,7 @@
 //! One fit of one group of points: gather the group's points, weights and responses, let
 //! the model fit them, and (for resamples) the null-imposed equilibrium statistic.
 
+use super::lack_of_fit::{Bins, LofNull};
 use super::model::{Draw, FdModel, FitBuffers, GroupPoints, Values};
 
 /// Resampled curves kept for the figure's band (the first ones; quantiles of this many
@@ -50,6 +51,7 @@ pub struct Scratch {
     r: Vec<f64>,
     w: Vec<f64>,
     buf: FitBuffers,
+    sums: Vec<[f64; 2]>,
 }
 
 impl Scratch {
@@ -65,6 +67,7 @@ impl Scratch {
             r: Vec::with_capacity(x.len()),
             w: Vec::with_capacity(x.len()),
             buf,
+            sums: Vec::new(),
         }
     }
 
@@ -115,6 +118,41 @@ pub fn null_statistic(spec: Spec, sc: &mut Scratch, shift: &[f64]) -> f64 {
     let gap = spec.model.sse_gap(sc.points(), spec.min_branch, &mut buf);
     sc.buf = buf;
     gap.unwrap_or(f64::NAN)
+}
+
+/// The lack-of-fit statistic of the resample whose points [`fit_group`] just left in `sc`
+/// (x, y and its own weights), after moving it onto the fitted model (`r − shift`):
+/// refitted with its own weights, its residuals binned with the full-data weights.
+pub fn lof_statistic(spec: Spec, sc: &mut Scratch, null: &LofNull) -> f64 {
+    sc.r.clear();
+    for ((x, y), d) in sc.x.iter().zip(&sc.y).zip(&null.shift) {
+        sc.r.push(spec.model.response(*x, *y) - d);
+    }
+    let mut buf = std::mem::take(&mut sc.buf);
+    let sol = spec.model.solve(sc.points(), spec.min_branch, &mut buf);
+    sc.buf = buf;
+    let Some(sol) = sol else {
+        return f64::NAN;
+    };
+    // The residuals overwrite the responses: nothing reads them after this.
+    for (r, x) in sc.r.iter_mut().zip(&sc.x) {
+        *r -= sol.eval(*x);
+    }
+    null.bins.statistic(&sc.r, &null.w, &mut sc.sums)
+}
+
+/// The full-data fit's lack-of-fit statistic of a group, and what its resamples need.
+pub fn lof_null(g: &Group, pts: Points<'_>, spec: Spec, est: &Values) -> (f64, LofNull) {
+    let x: Vec<f64> = g.idx.iter().map(|&j| pts.x[j]).collect();
+    let w: Vec<f64> = g.idx.iter().map(|&j| pts.w[j]).collect();
+    let shift: Vec<f64> = g
+        .idx
+        .iter()
+        .map(|&j| spec.model.response(pts.x[j], pts.y[j]) - est.sol.eval(pts.x[j]))
+        .collect();
+    let bins = Bins::new(&x);
+    let stat = bins.statistic(&shift, &w, &mut Vec::new());
+    (stat, LofNull { shift, bins, w })
 }
 
 /// `r̂ − f̂₀` per point of the group, where f̂₀ is the model's fitted null.

@@ -24,6 +24,7 @@ pub mod settings;
 mod aging;
 mod assess;
 mod fitting;
+mod lack_of_fit;
 mod resampling;
 
 pub use crate::common::{Estimate, Progress, Silent, ToolInfo};
@@ -40,7 +41,7 @@ pub(crate) use resampling::CHUNK;
 
 use crate::error::{Error, Result};
 use findings::{FEW_SAMPLES, SMALL_SAMPLES};
-use fitting::{Group, Points, Scratch, Spec, fit_group, null_shift};
+use fitting::{Group, Points, Scratch, Spec, fit_group, lof_null, null_shift};
 use model::{Draw, Values};
 use points::{Axes, Parametric};
 use resampling::Prepared;
@@ -69,10 +70,15 @@ pub fn analyze(
     crate::budget::check_fit(n, prep.data.ncols(), p, groups.len(), settings.resamples)?;
     let fits = fit_all(&prep, &groups, spec, settings, progress)?;
     let aging = aging::aging_trend(&groups, &fits.0, &fits.1, settings);
+    let curved = fits.0.iter().any(|f| {
+        f.cautions
+            .iter()
+            .any(|c| matches!(c.finding, Finding::LackOfFit { .. }))
+    });
     cautions.extend(
         aging
             .as_ref()
-            .and_then(aging::aging_finding)
+            .and_then(|a| aging::aging_finding(a, curved))
             .map(campaign_caution),
     );
     campaign_cautions(&prep.pm, n, &mut cautions);
@@ -113,10 +119,29 @@ fn fit_all(
         .zip(&est)
         .map(|(g, e)| e.map(|_| null_shift(g, full, spec)))
         .collect();
-    let jack = resampling::jackknife(prep, groups, &est, spec, &scratch);
-    let reps = resampling::bootstrap(prep, groups, &shifts, spec, &scratch, settings, progress);
     let ng = groups.len();
+    // Lack of fit per curve; with several curves, the joint statistic is their sum (the
+    // joint fit's own statistic only when no single curve could be fitted).
+    let own_joint = est.iter().skip(1).all(Option::is_none);
+    let lof: Vec<Option<(f64, lack_of_fit::LofNull)>> = groups
+        .iter()
+        .zip(&est)
+        .enumerate()
+        .map(|(gi, (g, e))| {
+            let e = e.as_ref().filter(|_| gi > 0 || own_joint)?;
+            Some(lof_null(g, full, spec, e))
+        })
+        .collect();
+    let lof_nulls: Vec<Option<lack_of_fit::LofNull>> = lof
+        .iter()
+        .map(|l| l.as_ref().map(|l| l.1.clone()))
+        .collect();
+    let jack = resampling::jackknife(prep, groups, &est, spec, &scratch);
+    let reps = resampling::bootstrap(
+        prep, groups, &shifts, &lof_nulls, spec, &scratch, settings, progress,
+    );
     let n = prep.data.nrows();
+    let lof_tests = lof_series(&lof, &reps, ng);
     let fits = groups
         .iter()
         .enumerate()
@@ -129,11 +154,45 @@ fn fit_all(
                 reps: &series,
                 jack: &jk,
                 profile: &profiles[gi],
+                lack_of_fit: lof_tests[gi].as_ref(),
+                curves: ng.saturating_sub(1).max(1),
             };
             assess::assess(&input, spec, settings, n)
         })
         .collect();
     Ok((fits, reps))
+}
+
+/// Each group's lack-of-fit statistic with its resampled statistics (`b·G + g` in `reps`);
+/// the joint fit of several curves gets the sums over the curves, and a resample counts
+/// only when every fitted curve's statistic is defined in it.
+fn lof_series(
+    lof: &[Option<(f64, lack_of_fit::LofNull)>],
+    reps: &[Option<Draw>],
+    ng: usize,
+) -> Vec<Option<(f64, Vec<f64>)>> {
+    let per_group = |gi: usize| -> Vec<f64> {
+        reps.iter()
+            .skip(gi)
+            .step_by(ng)
+            .map(|d| d.map_or(f64::NAN, |d| d.lof_stat))
+            .collect()
+    };
+    let mut out: Vec<Option<(f64, Vec<f64>)>> = (0..ng)
+        .map(|gi| lof[gi].as_ref().map(|(t, _)| (*t, per_group(gi))))
+        .collect();
+    if ng > 1 && out[0].is_none() {
+        let curves: Vec<&(f64, Vec<f64>)> = out[1..].iter().flatten().collect();
+        if !curves.is_empty() {
+            let stat = curves.iter().map(|c| c.0).sum();
+            let b = curves[0].1.len();
+            let sums = (0..b)
+                .map(|k| curves.iter().map(|c| c.1[k]).sum())
+                .collect();
+            out[0] = Some((stat, sums));
+        }
+    }
+    out
 }
 
 /// The report: the fits, the points and what shaped them.

@@ -5,7 +5,8 @@
 
 use super::campaign::Campaign;
 use super::findings::{Caution, Finding, Subject};
-use super::fitting::{Group, Points, Scratch, Spec, fit_group, null_statistic};
+use super::fitting::{Group, Points, Scratch, Spec, fit_group, lof_statistic, null_statistic};
+use super::lack_of_fit::LofNull;
 use super::model::{Draw, Values};
 use super::points::{Axes, Parametric, PointVariance, Transform, data_matrix};
 use super::settings::{FitSettings, Hold, Weighting};
@@ -243,11 +244,13 @@ pub fn jackknife(
 
 /// The cluster bootstrap: replicate `b`'s groups are `out[b·G .. (b+1)·G]`. One chunk of
 /// replicates is one product `W · D`; chunks are fixed, so results do not depend on threads.
+/// Each resample also gets its lack-of-fit statistic where `lofs` has the group's null.
 #[allow(clippy::too_many_arguments)]
 pub fn bootstrap(
     prep: &Prepared,
     groups: &[Group],
     shifts: &[Option<Vec<f64>>],
+    lofs: &[Option<LofNull>],
     spec: Spec,
     scratch: &[Scratch],
     settings: &FitSettings,
@@ -280,11 +283,20 @@ pub fn bootstrap(
                 prep.tf.apply(means.row(row), x, y);
                 prep.rule.weights(means.row(row), n, var, w);
                 let pts = Points { x, y, w };
-                for (((g, s), shift), rep) in groups.iter().zip(sc.iter_mut()).zip(shifts).zip(reps)
+                for ((((g, s), shift), lof), rep) in groups
+                    .iter()
+                    .zip(sc.iter_mut())
+                    .zip(shifts)
+                    .zip(lofs)
+                    .zip(reps)
                 {
                     *rep = shift.as_deref().and_then(|shift| {
                         let v = fit_group(g, pts, spec, s, None)?;
-                        Some(v.draw(null_statistic(spec, s, shift)))
+                        let mut d = v.draw(null_statistic(spec, s, shift));
+                        if let Some(lof) = lof {
+                            d.lof_stat = lof_statistic(spec, s, lof);
+                        }
+                        Some(d)
                     });
                 }
             }

@@ -7,7 +7,7 @@ use crate::common::{Estimate, ToolInfo};
 use serde::Serialize;
 
 /// The JSON schema version of [`FitReport`].
-pub const SCHEMA: u32 = 3;
+pub const SCHEMA: u32 = 4;
 
 /// The fitted two-segment curve in plot coordinates: `y = intercept + slope_above · x`
 /// for `x >= q`, and slope `slope_below` for `x < q` (continuous at `q`).
@@ -77,6 +77,15 @@ pub struct GroupFit {
     /// JSON `p_slope_minus_one` (the report's column "p(slope -1)").
     #[serde(rename = "p_slope_minus_one")]
     pub thermometer_p: Option<f64>,
+    /// The p-value of the lack-of-fit test of the model's shape (binned residuals,
+    /// calibrated by resamples moved onto the fitted model); for the joint fit of several
+    /// curves, of the sum of the curves' statistics. `None` where not fitted.
+    /// JSON `p_lack_of_fit` (the report's column "p(lack of fit)").
+    #[serde(rename = "p_lack_of_fit")]
+    pub lack_of_fit_p: Option<f64>,
+    /// The lack-of-fit statistic `Σ_bins (Σ w e)² / Σ w`. JSON `lack_of_fit_statistic`.
+    #[serde(rename = "lack_of_fit_statistic")]
+    pub lack_of_fit_stat: Option<f64>,
     /// X and its interval can be quoted: a break was detected away from the edge of the
     /// points (always true for the line model).
     pub x_quotable: bool,

@@ -4,7 +4,7 @@
 //! through the points above it.
 
 use super::{Draw, FdModel, FitBuffers, GroupPoints, Values, minus_one_shift};
-use crate::fit::{Base, broken, fit_line};
+use crate::fit::{Base, BreakSolution, broken, fit_line};
 use crate::twotime::result::Curve;
 use crate::twotime::settings::Model;
 
@@ -66,9 +66,8 @@ impl FdModel for FixedSlope {
         })
     }
 
-    fn sse_gap(&self, pts: GroupPoints<'_>, m: usize, buf: &mut FitBuffers) -> Option<f64> {
+    fn solve(&self, pts: GroupPoints<'_>, m: usize, buf: &mut FitBuffers) -> Option<BreakSolution> {
         broken::search(pts.x, pts.r, pts.w, Base::Constant, m, &mut buf.ws, None)
-            .map(|s| s.sse_null - s.sse)
     }
 
     fn null_shift(&self, pts: GroupPoints<'_>) -> Vec<f64> {

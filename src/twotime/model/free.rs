@@ -3,7 +3,7 @@
 //! thermometer's check.
 
 use super::{FdModel, FitBuffers, GroupPoints, Values};
-use crate::fit::{Base, broken, fit_line};
+use crate::fit::{Base, BreakSolution, broken, fit_line};
 use crate::twotime::settings::Model;
 
 /// Both slopes fitted.
@@ -47,9 +47,8 @@ impl FdModel for FreeSlopes {
         })
     }
 
-    fn sse_gap(&self, pts: GroupPoints<'_>, m: usize, buf: &mut FitBuffers) -> Option<f64> {
+    fn solve(&self, pts: GroupPoints<'_>, m: usize, buf: &mut FitBuffers) -> Option<BreakSolution> {
         broken::search(pts.x, pts.r, pts.w, Base::Line, m, &mut buf.ws, None)
-            .map(|s| s.sse_null - s.sse)
     }
 
     fn null_shift(&self, pts: GroupPoints<'_>) -> Vec<f64> {

@@ -60,9 +60,8 @@ impl FdModel for SingleLine {
         })
     }
 
-    fn sse_gap(&self, pts: GroupPoints<'_>, m: usize, buf: &mut FitBuffers) -> Option<f64> {
-        self.fit(pts, m, buf, None)
-            .map(|v| v.sol.sse_null - v.sol.sse)
+    fn solve(&self, pts: GroupPoints<'_>, m: usize, buf: &mut FitBuffers) -> Option<BreakSolution> {
+        self.fit(pts, m, buf, None).map(|v| v.sol)
     }
 
     fn null_shift(&self, pts: GroupPoints<'_>) -> Vec<f64> {

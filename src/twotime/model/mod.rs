@@ -77,13 +77,15 @@ impl Values {
             fast: self.fast,
             intercept: self.sol.a,
             null_stat,
+            lof_stat: f64::NAN,
             edge: self.at_edge(),
         }
     }
 }
 
 /// What one resample (or leave-one-out fit) of one group keeps: only the scalars the
-/// intervals, tests and figures need, so memory grows as 48 bytes per resample and group.
+/// intervals, tests and figures need, so memory grows as 56 bytes per resample and group
+/// (`fitting::BYTES_PER_DRAW` follows its size).
 #[derive(Debug, Clone, Copy)]
 pub struct Draw {
     /// X.
@@ -96,6 +98,10 @@ pub struct Draw {
     pub intercept: f64,
     /// The null-imposed equilibrium statistic (NaN for leave-one-out fits).
     pub null_stat: f64,
+    /// The lack-of-fit statistic of the resample moved onto the fitted model (NaN for
+    /// leave-one-out fits and for the joint fit of several curves, whose statistic is the
+    /// sum over the curves).
+    pub lof_stat: f64,
     /// The break sits at the edge of the allowed intervals.
     pub edge: bool,
 }
@@ -131,9 +137,22 @@ pub trait FdModel: Sync {
         buf: &mut FitBuffers,
         profile: Option<&mut Vec<(f64, f64)>>,
     ) -> Option<Values>;
+    /// The least-squares solution for the responses `r` alone (no secondary quantities).
+    fn solve(
+        &self,
+        pts: GroupPoints<'_>,
+        min_branch: usize,
+        buf: &mut FitBuffers,
+    ) -> Option<BreakSolution>;
     /// `SSE(null) − SSE(model)` for the responses `r` (no secondary quantities).
-    fn sse_gap(&self, pts: GroupPoints<'_>, min_branch: usize, buf: &mut FitBuffers)
-    -> Option<f64>;
+    fn sse_gap(
+        &self,
+        pts: GroupPoints<'_>,
+        min_branch: usize,
+        buf: &mut FitBuffers,
+    ) -> Option<f64> {
+        self.solve(pts, min_branch, buf).map(|s| s.sse_null - s.sse)
+    }
     /// `r̂ − f̂₀` per point: subtracting it moves a resample onto the fitted null model.
     fn null_shift(&self, pts: GroupPoints<'_>) -> Vec<f64>;
     /// The fitted curve in plot coordinates (by default: the fitted slope above the
