@@ -53,6 +53,7 @@ fn test_name(t: &str) -> &'static str {
     match t {
         "equilibrium" => "equilibrium (no break)",
         "slope_minus_one" => "slope above q = -1",
+        "lack_of_fit" => "lack of fit (shape of the model)",
         _ => "aging alarm (X changes with age)",
     }
 }
@@ -210,7 +211,7 @@ fn tests(o: &mut String, r: &DesignReport) {
             truth_name(t.truth).into(),
             rate(&t.rejected),
             if t.null_true {
-                format!("actual level (stated {})", percent(r.fit.test_level()))
+                format!("actual level (stated {})", percent(t.level))
             } else {
                 "power".into()
             },
@@ -249,7 +250,7 @@ fn findings(r: &DesignReport, k: usize) -> Vec<String> {
         }
     }
     for t in &r.tests {
-        out.extend(test_finding(t, r.fit.test_level(), &who(t.held), k));
+        out.extend(test_finding(t, t.level, &who(t.held), k));
     }
     out
 }

@@ -219,8 +219,10 @@ pub struct CoverageRow {
 /// How often one test rejected over the simulated campaigns.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct TestRow {
-    /// `equilibrium`, `slope_minus_one` or `aging`.
+    /// `equilibrium`, `slope_minus_one`, `lack_of_fit` or `aging`.
     pub test: &'static str,
+    /// The level the report tests at (the lack-of-fit test of one curve is at α/K).
+    pub level: f64,
     /// The fit: `None` for all curves together (or the campaign), else the held time.
     pub held: Option<f64>,
     /// The truth simulated.
@@ -417,6 +419,7 @@ struct FitOutcome {
     t_eff_error: Option<f64>,
     p_equilibrium: Option<f64>,
     p_slope: Option<f64>,
+    p_lack_of_fit: Option<f64>,
 }
 
 const QUANTITIES: [&str; 3] = ["x", "break", "slope_above"];
@@ -445,6 +448,7 @@ fn outcome(r: &FitReport, truth: &Truth, method: IntervalMethod, temperature: f6
             let mut o = FitOutcome {
                 p_equilibrium: f.equilibrium_p,
                 p_slope: f.thermometer_p,
+                p_lack_of_fit: f.lack_of_fit_p,
                 ..FitOutcome::default()
             };
             for k in 0..3 {
@@ -615,6 +619,7 @@ fn test_rows(
         }) {
             rows.push(TestRow {
                 test: "equilibrium",
+                level: alpha,
                 held: *held,
                 truth: truth.kind,
                 null_true: truth.kind == TruthKind::Equilibrium,
@@ -630,6 +635,34 @@ fn test_rows(
         {
             rows.push(TestRow {
                 test: "slope_minus_one",
+                level: alpha,
+                held: *held,
+                truth: truth.kind,
+                null_true: true,
+                rejected,
+            });
+        }
+    }
+    // The fitted curve is the model's own shape, so the lack-of-fit null holds: the joint
+    // test at α, each of the K curves at α/K, as the report's caution uses them.
+    let curves = helds.len().saturating_sub(1).max(1);
+    for (gi, held) in helds.iter().enumerate() {
+        let level = if gi == 0 {
+            alpha
+        } else {
+            alpha / curves as f64
+        };
+        if truth.kind == TruthKind::Fitted
+            && let Some(rejected) = count(&|o| {
+                o.fits
+                    .get(gi)
+                    .and_then(|f| f.p_lack_of_fit)
+                    .map(|p| p <= level)
+            })
+        {
+            rows.push(TestRow {
+                test: "lack_of_fit",
+                level,
                 held: *held,
                 truth: truth.kind,
                 null_true: true,
@@ -642,6 +675,7 @@ fn test_rows(
     {
         rows.push(TestRow {
             test: "aging",
+            level: alpha,
             held: None,
             truth: truth.kind,
             null_true: true,
