@@ -1,0 +1,349 @@
+//! The fluctuation–dissipation plot: points per waiting time, the equilibrium line, the
+//! fitted curve with its resampling band and the break's interval.
+
+use super::*;
+
+/// The fluctuation–dissipation plot of a fit.
+///
+/// # Errors
+/// [`Error::Analysis`] when the joint fit has no curve or the drawing fails.
+pub fn fd_plot(r: &FitReport, fig: Figure) -> Result<Vec<u8>> {
+    let joint = &r.fits[0];
+    let curve = joint.curve.ok_or_else(|| {
+        Error::Analysis(
+            "cannot draw the fluctuation–dissipation plot: the joint fit has no curve".into(),
+        )
+    })?;
+    if r.points.is_empty() {
+        return Err(Error::Analysis(
+            "cannot draw the fluctuation–dissipation plot: no points".into(),
+        ));
+    }
+    render(
+        fig,
+        FD,
+        |a| draw_fd(a, r, curve, fig),
+        |a| draw_fd(a, r, curve, fig),
+    )
+}
+
+/// The extent of the fluctuation–dissipation plot's data (with standard errors) and its
+/// axes' ranges.
+pub(super) struct FdRanges {
+    xmin_data: f64,
+    xmax_data: f64,
+    x0: f64,
+    x1: f64,
+    y0: f64,
+    y1: f64,
+}
+
+pub(super) fn fd_ranges(pts: &[PointRecord], curve: Curve) -> FdRanges {
+    let xmax_data = pts
+        .iter()
+        .map(|p| p.x + p.x_se)
+        .fold(f64::NEG_INFINITY, f64::max);
+    let xmin_data = pts
+        .iter()
+        .map(|p| p.x - p.x_se)
+        .fold(f64::INFINITY, f64::min);
+    let ymax_data = pts
+        .iter()
+        .map(|p| p.y + p.y_se)
+        .fold(f64::NEG_INFINITY, f64::max);
+    let ymin_data = pts
+        .iter()
+        .map(|p| p.y - p.y_se)
+        .fold(f64::INFINITY, f64::min);
+    // The data, the fitted curve's level and the origin, with a 4% margin at the top.
+    let y0 = ymin_data.min(0.0);
+    let top = ymax_data.max(curve.intercept);
+    FdRanges {
+        xmin_data,
+        xmax_data,
+        x0: xmin_data.min(0.0),
+        x1: xmax_data.max(curve.intercept.max(1.0)),
+        y0,
+        y1: top + 0.04 * (top - y0),
+    }
+}
+
+/// The axis titles: normalized or plain, with `(k = 1)` in reduced units.
+pub(super) fn fd_labels(r: &FitReport) -> (&'static str, String) {
+    let normalized = r.settings.axes_used == Axes::Normalized;
+    let xlabel = if normalized {
+        "C(t,tw) / C(t,t)"
+    } else {
+        "C(t,tw)"
+    };
+    let k = if r.settings.given.units == Units::Si {
+        ""
+    } else {
+        "   (k = 1)"
+    };
+    let ylabel = if normalized {
+        format!("k T χ(t,tw) / C(t,t){k}")
+    } else {
+        format!("k T χ(t,tw){k}")
+    };
+    (xlabel, ylabel)
+}
+
+pub(super) fn draw_fd<DB: DrawingBackend>(
+    root: DrawingArea<DB, Shift>,
+    r: &FitReport,
+    curve: Curve,
+    fig: Figure,
+) -> Result<()> {
+    let sc = scale(fig);
+    let joint = &r.fits[0];
+    let mut rg = fd_ranges(&r.points, curve);
+    let (corner, y1) = fd_layout(r, curve, &rg, fig);
+    rg.y1 = y1;
+    let ranges = (rg.x0..rg.x1, rg.y0..rg.y1);
+    let mut chart = linear_chart(&root, fig, ranges, fd_labels(r), 9, FD)?;
+    fd_references(&mut chart, joint, curve, &rg, &sc)?;
+    fd_band(&mut chart, joint, r.settings.given.level, &rg, &sc)?;
+    fd_points(&mut chart, r, &sc)?;
+    fd_fit(&mut chart, joint, curve, &rg, &sc)?;
+    legend_at(&mut chart, &sc, corner)?;
+    Ok(())
+}
+
+/// The break's interval and the equilibrium line.
+pub(super) fn fd_references<'a, DB: DrawingBackend + 'a>(
+    chart: &mut Chart<'a, DB>,
+    joint: &GroupFit,
+    curve: Curve,
+    rg: &FdRanges,
+    sc: &Scale,
+) -> Result<()> {
+    let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(FD);
+    let (x0, x1, y0, y1) = (rg.x0, rg.x1, rg.y0, rg.y1);
+    // The break's interval as a bracket standing on the C axis.
+    if let (Some(lo), Some(hi)) = (joint.brk.low, joint.brk.high) {
+        let h = 0.05 * (y1 - y0);
+        chart
+            .draw_series(std::iter::once(PathElement::new(
+                vec![(lo, y0 + h), (lo, y0), (hi, y0), (hi, y0 + h)],
+                PALETTE[4].stroke_width(sc.line * 2),
+            )))
+            .map_err(&e)?
+            .label(break_label(joint))
+            .legend(stroke(PALETTE[4].stroke_width(sc.line * 2), sc.sample));
+    }
+    // Equilibrium: slope -1 through the fitted upper segment's level.
+    let eq = curve.intercept;
+    chart
+        .draw_series(DashedLineSeries::new(
+            vec![(x0, eq - x0), (x1, eq - x1)],
+            sc.dash.0,
+            sc.dash.1,
+            REFERENCE.stroke_width(sc.line),
+        ))
+        .map_err(&e)?
+        .label("equilibrium, slope −1")
+        .legend(stroke(REFERENCE.stroke_width(sc.line), sc.sample));
+    Ok(())
+}
+
+pub(super) fn break_label(joint: &GroupFit) -> String {
+    format!(
+        "break q = {}",
+        fmt_iv(joint.brk.estimate, joint.brk.low, joint.brk.high)
+    )
+}
+
+pub(super) fn fit_label(joint: &GroupFit) -> String {
+    format!(
+        "fit: X = {}",
+        fmt_iv(joint.ratio.estimate, joint.ratio.low, joint.ratio.high)
+    )
+}
+
+pub(super) fn teff_label(joint: &GroupFit) -> String {
+    let t_eff = fmt_iv(joint.t_eff.estimate, joint.t_eff.low, joint.t_eff.high);
+    format!("{T_EFF} = {t_eff}")
+}
+
+/// Where the FD plot's legend goes and how high the y axis runs: lower left (the empty
+/// side below a fluctuation–dissipation curve) when no point or fitted curve falls under
+/// it, else upper right, with the y axis raised (by 8% steps, up to 1.6 times) until the
+/// data clear it. The legend's box is estimated from its rows and longest label, and the
+/// plot area from the chart's margins (`linear_chart`).
+pub(super) fn fd_layout(
+    r: &FitReport,
+    curve: Curve,
+    rg: &FdRanges,
+    fig: Figure,
+) -> (SeriesLabelPosition, f64) {
+    let sc = scale(fig);
+    let joint = &r.fits[0];
+    let fs = sc.legend / PLOTTERS_EM;
+    let labels = [break_label(joint), fit_label(joint), teff_label(joint)];
+    let chars = labels
+        .iter()
+        .map(|l| l.chars().count())
+        .max()
+        .unwrap_or(0)
+        .max(22);
+    let rows = r.waiting_times.len() + 5;
+    let pad = 4.0 * sc.px;
+    let w = f64::from(sc.sample) + 3.0 * pad + 0.6 * fs * chars as f64;
+    let h = rows as f64 * 1.6 * fs + 2.0 * pad;
+    let margin = 6.0 * sc.px;
+    let plot_w = f64::from(fig.width) - 2.0 * margin - sc.label * 3.0;
+    let plot_h = f64::from(fig.height) - 2.0 * margin - sc.label * 2.4;
+    // The legend's box as fractions of the axes.
+    let (fx, fy) = ((w + pad) / plot_w, (h + pad) / plot_h);
+    let marks = |y1: f64| -> Vec<(f64, f64)> {
+        let frac = |x: f64, y: f64| ((x - rg.x0) / (rg.x1 - rg.x0), (y - rg.y0) / (y1 - rg.y0));
+        let curve_pts = (0..=50).map(|i| {
+            let x = rg.x0 + (rg.x1 - rg.x0) * f64::from(i) / 50.0;
+            frac(x, curve.eval(x))
+        });
+        r.points
+            .iter()
+            .map(|p| frac(p.x, p.y + p.y_se))
+            .chain(curve_pts)
+            .collect()
+    };
+    if marks(rg.y1).iter().all(|&(x, y)| !(x < fx && y < fy)) {
+        return (SeriesLabelPosition::LowerLeft, rg.y1);
+    }
+    let mut y1 = rg.y1;
+    let limit = rg.y0 + 1.6 * (rg.y1 - rg.y0);
+    while y1 < limit
+        && !marks(y1)
+            .iter()
+            .all(|&(x, y)| !(x > 1.0 - fx && y > 1.0 - fy))
+    {
+        y1 += 0.08 * (rg.y1 - rg.y0);
+    }
+    (SeriesLabelPosition::UpperRight, y1)
+}
+
+/// Bootstrap band of the fitted curve.
+pub(super) fn fd_band<'a, DB: DrawingBackend + 'a>(
+    chart: &mut Chart<'a, DB>,
+    joint: &GroupFit,
+    level: f64,
+    rg: &FdRanges,
+    sc: &Scale,
+) -> Result<()> {
+    let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(FD);
+    if joint.curve_replicates.len() >= 20 {
+        let n = 160;
+        let (a, b) = (rg.xmin_data.max(rg.x0), rg.xmax_data.min(rg.x1));
+        let mut upper = Vec::with_capacity(n);
+        let mut lower = Vec::with_capacity(n);
+        let mut ys = vec![0.0; joint.curve_replicates.len()];
+        for i in 0..n {
+            let x = a + (b - a) * i as f64 / (n - 1) as f64;
+            for (y, c) in ys.iter_mut().zip(&joint.curve_replicates) {
+                *y = c.eval(x);
+            }
+            ys.sort_by(f64::total_cmp);
+            lower.push((x, quantile_sorted(&ys, (1.0 - level) / 2.0)));
+            upper.push((x, quantile_sorted(&ys, (1.0 + level) / 2.0)));
+        }
+        upper.extend(lower.into_iter().rev());
+        chart
+            .draw_series(std::iter::once(Polygon::new(
+                upper,
+                PALETTE[0].mix(0.22).filled(),
+            )))
+            .map_err(&e)?
+            .label(format!("{:.0}% resampling band", 100.0 * level))
+            .legend(swatch(PALETTE[0].mix(0.3).filled(), sc.sample));
+    }
+    Ok(())
+}
+
+/// Points per waiting time, with standard errors.
+pub(super) fn fd_points<'a, DB: DrawingBackend + 'a>(
+    chart: &mut Chart<'a, DB>,
+    r: &FitReport,
+    sc: &Scale,
+) -> Result<()> {
+    let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(FD);
+    for (i, &tw) in r.waiting_times.iter().enumerate() {
+        let c = PALETTE[i % PALETTE.len()];
+        let mine: Vec<_> = r
+            .points
+            .iter()
+            .filter(|p| p.tw.total_cmp(&tw).is_eq())
+            .collect();
+        chart
+            .draw_series(mine.iter().map(|p| {
+                ErrorBar::new_vertical(
+                    p.x,
+                    p.y - p.y_se,
+                    p.y,
+                    p.y + p.y_se,
+                    c.stroke_width(sc.thin),
+                    sc.marker as u32,
+                )
+            }))
+            .map_err(&e)?;
+        chart
+            .draw_series(mine.iter().map(|p| {
+                ErrorBar::new_horizontal(
+                    p.y,
+                    p.x - p.x_se,
+                    p.x,
+                    p.x + p.x_se,
+                    c.stroke_width(sc.thin),
+                    sc.marker as u32,
+                )
+            }))
+            .map_err(&e)?;
+        let (ms, line, half) = (sc.marker, sc.line, sc.sample / 2);
+        let label = format!("tw = {}", crate::report::format::fmt_num(tw));
+        // Shapes differ per series (filled circle, filled triangle, cross, open circle) so
+        // the series stay apart without colour.
+        macro_rules! series {
+            ($shape:expr) => {
+                chart
+                    .draw_series(mine.iter().map(|p| $shape((p.x, p.y))))
+                    .map_err(&e)?
+                    .label(label)
+                    .legend(move |(x, y)| $shape((x + half, y)))
+            };
+        }
+        match i % 4 {
+            0 => series!(|at| Circle::new(at, ms, c.filled())),
+            1 => series!(|at| TriangleMarker::new(at, ms + 2, c.filled())),
+            2 => series!(|at| Cross::new(at, ms, c.stroke_width(line))),
+            _ => series!(|at| Circle::new(at, ms, c.stroke_width(line))),
+        };
+    }
+    Ok(())
+}
+
+/// The fitted broken stick, with X and T_eff in the legend.
+pub(super) fn fd_fit<'a, DB: DrawingBackend + 'a>(
+    chart: &mut Chart<'a, DB>,
+    joint: &GroupFit,
+    curve: Curve,
+    rg: &FdRanges,
+    sc: &Scale,
+) -> Result<()> {
+    let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(FD);
+    // The fitted broken stick.
+    let fit_pts: Vec<(f64, f64)> = [rg.xmin_data.max(rg.x0), curve.q, rg.xmax_data.min(rg.x1)]
+        .iter()
+        .map(|&x| (x, curve.eval(x)))
+        .collect();
+    chart
+        .draw_series(LineSeries::new(fit_pts, INK.stroke_width(sc.line)))
+        .map_err(&e)?
+        .label(fit_label(joint))
+        .legend(stroke(INK.stroke_width(sc.line), sc.sample));
+    chart
+        .draw_series(std::iter::empty::<Circle<(f64, f64), i32>>())
+        .map_err(&e)?
+        .label(teff_label(joint))
+        .legend(|(x, y)| EmptyElement::at((x, y)));
+    Ok(())
+}
