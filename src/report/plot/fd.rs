@@ -38,6 +38,9 @@ pub(super) struct FdRanges {
     y1: f64,
 }
 
+/// The margin of the FD plot's ranges, as a fraction of the data's span.
+const FD_MARGIN: f64 = 0.04;
+
 pub(super) fn fd_ranges(pts: &[PointRecord], curve: Curve) -> FdRanges {
     let xmax_data = pts
         .iter()
@@ -55,16 +58,27 @@ pub(super) fn fd_ranges(pts: &[PointRecord], curve: Curve) -> FdRanges {
         .iter()
         .map(|p| p.y - p.y_se)
         .fold(f64::INFINITY, f64::min);
-    // The data, the fitted curve's level and the origin, with a 4% margin at the top.
-    let y0 = ymin_data.min(0.0);
-    let top = ymax_data.max(curve.intercept);
+    // The data with their errors and the fitted curve over them, with a 4% margin on
+    // each side. (The x range used to run to the curve's intercept, a level on the y
+    // axis, so it reached 1.45 when the data stopped at 0.67.)
+    let (x0, x1) = axes::padded_range([xmin_data, xmax_data], FD_MARGIN).unwrap_or((0.0, 1.0));
+    let fit_ends = [
+        curve.eval(xmin_data),
+        curve.eval(xmax_data),
+        curve.eval(curve.q.clamp(xmin_data, xmax_data)),
+    ];
+    let (y0, y1) = axes::padded_range(
+        [ymin_data, ymax_data].into_iter().chain(fit_ends),
+        FD_MARGIN,
+    )
+    .unwrap_or((0.0, 1.0));
     FdRanges {
         xmin_data,
         xmax_data,
-        x0: xmin_data.min(0.0),
-        x1: xmax_data.max(curve.intercept.max(1.0)),
+        x0,
+        x1,
         y0,
-        y1: top + 0.04 * (top - y0),
+        y1,
     }
 }
 
@@ -99,15 +113,149 @@ pub(super) fn draw_fd<DB: DrawingBackend>(
     let joint = &r.fits[0];
     let mut rg = fd_ranges(&r.points, curve);
     let (corner, y1) = fd_layout(r, curve, &rg, fig);
+    // No corner is free: the legend goes below the axes, in two columns.
+    let entries = legend_entries(r);
+    let (area, below) = match corner {
+        Some(_) => (root.clone(), None),
+        None => {
+            let rows = entries.iter().map(|c| c.len()).max().unwrap_or(0);
+            let h = (rows as f64 * LEGEND_ROW * sc.legend / PLOTTERS_EM + 8.0 * sc.px) as u32;
+            let (top, bottom) = root.split_vertically(fig.height.saturating_sub(h));
+            (top, Some(bottom))
+        }
+    };
     rg.y1 = y1;
     let ranges = (rg.x0..rg.x1, rg.y0..rg.y1);
-    let mut chart = linear_chart(&root, fig, ranges, fd_labels(r), 9, FD)?;
+    let mut chart = linear_chart(&area, fig, ranges, fd_labels(r), 9, FD)?;
     fd_references(&mut chart, joint, curve, &rg, &sc)?;
     fd_band(&mut chart, joint, r.settings.given.level, &rg, &sc)?;
     fd_points(&mut chart, r, &sc)?;
     fd_fit(&mut chart, joint, curve, &rg, &sc)?;
-    legend_at(&mut chart, &sc, corner)?;
+    match (corner, below) {
+        (Some(c), _) => legend_at(&mut chart, &sc, c)?,
+        (None, Some(b)) => legend_below(&b, &entries, &sc)?,
+        (None, None) => {}
+    }
     Ok(())
+}
+
+/// A legend row's height in font sizes, when fdtemp draws the legend itself.
+const LEGEND_ROW: f64 = 1.45;
+
+/// What a legend row shows before its text.
+enum Mark {
+    Line(RGBColor, u32),
+    Dashed(RGBColor, u32),
+    Swatch(RGBAColor),
+    /// The marker of waiting time number `i`.
+    Series(usize),
+    Nothing,
+}
+
+/// The FD plot's legend in two columns: the waiting times, then the references and the
+/// fit's numbers.
+fn legend_entries(r: &FitReport) -> [Vec<(Mark, String)>; 2] {
+    let joint = &r.fits[0];
+    let mut left = Vec::new();
+    let mut right = Vec::new();
+    right.push((
+        Mark::Dashed(REFERENCE, 1),
+        "equilibrium, slope −1".to_string(),
+    ));
+    if joint.curve_replicates.len() >= 20 {
+        right.push((
+            Mark::Swatch(PALETTE[0].mix(0.3)),
+            format!("{:.0}% resampling band", 100.0 * r.settings.given.level),
+        ));
+    }
+    for (i, &tw) in r.waiting_times.iter().enumerate() {
+        left.push((
+            Mark::Series(i),
+            format!("tw = {}", crate::report::format::fmt_num(tw)),
+        ));
+    }
+    if let (Some(_), Some(_)) = (joint.brk.low, joint.brk.high) {
+        right.push((Mark::Line(PALETTE[4], 2), break_label(joint)));
+    }
+    right.push((Mark::Line(INK, 1), fit_label(joint)));
+    right.push((Mark::Nothing, teff_label(joint)));
+    [left, right]
+}
+
+/// Draws the two legend columns in `area` (below the axes), each column as wide as its
+/// longest text, measured with the font.
+fn legend_below<DB: DrawingBackend>(
+    area: &DrawingArea<DB, Shift>,
+    columns: &[Vec<(Mark, String)>; 2],
+    sc: &Scale,
+) -> Result<()> {
+    let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(FD);
+    let font = ("sans-serif", sc.legend).into_font();
+    let fs = sc.legend / PLOTTERS_EM;
+    let gap = (4.0 * sc.px) as i32;
+    let row = (LEGEND_ROW * fs) as i32;
+    let style = TextStyle::from(font).pos(plotters::style::text_anchor::Pos::new(
+        plotters::style::text_anchor::HPos::Left,
+        plotters::style::text_anchor::VPos::Center,
+    ));
+    let widths: Vec<i32> = columns
+        .iter()
+        .map(|c| {
+            c.iter()
+                .map(|(_, t)| area.estimate_text_size(t, &style).map_or(0, |s| s.0 as i32))
+                .max()
+                .unwrap_or(0)
+                + sc.sample
+                + 2 * gap
+        })
+        .collect();
+    let total = widths.iter().sum::<i32>() + gap;
+    let (w, _) = area.dim_in_pixel();
+    let mut x = ((w as i32 - total) / 2).max(0);
+    for (col, width) in columns.iter().zip(&widths) {
+        for (k, (mark, text)) in col.iter().enumerate() {
+            let y = gap + row / 2 + k as i32 * row;
+            draw_mark(area, mark, (x, y), sc).map_err(&e)?;
+            area.draw(&Text::new(text.as_str(), (x + sc.sample + gap, y), &style))
+                .map_err(&e)?;
+        }
+        x += width + gap;
+    }
+    Ok(())
+}
+
+/// One legend mark with its left end at `(x, y)`.
+fn draw_mark<DB: DrawingBackend>(
+    area: &DrawingArea<DB, Shift>,
+    mark: &Mark,
+    (x, y): Px,
+    sc: &Scale,
+) -> std::result::Result<(), DrawingAreaErrorKind<DB::ErrorType>> {
+    let len = sc.sample;
+    match *mark {
+        Mark::Line(c, w) => area.draw(&stroke(c.stroke_width(sc.line * w), len)((x, y))),
+        Mark::Dashed(c, w) => {
+            let third = len / 3;
+            let style = c.stroke_width(sc.line * w);
+            area.draw(&PathElement::new(vec![(x, y), (x + third, y)], style))?;
+            area.draw(&PathElement::new(
+                vec![(x + 2 * third, y), (x + len, y)],
+                style,
+            ))
+        }
+        Mark::Swatch(c) => area.draw(&swatch(c.filled(), len)((x, y))),
+        Mark::Series(i) => {
+            let c = PALETTE[i % PALETTE.len()];
+            let (ms, at) = (sc.marker, (x + len / 2, y));
+            match i % 4 {
+                0 => area.draw(&Circle::new(at, ms, c.filled())),
+                1 => area.draw(&TriangleMarker::new(at, ms + 2, c.filled())),
+                2 => area.draw(&Cross::new(at, ms, c.stroke_width(sc.line))),
+                _ => area.draw(&Circle::new(at, ms, c.stroke_width(sc.line))),
+            }
+        }
+        Mark::Nothing => Ok(()),
+    }
 }
 
 /// The break's interval and the equilibrium line.
@@ -133,10 +281,18 @@ pub(super) fn fd_references<'a, DB: DrawingBackend + 'a>(
             .legend(stroke(PALETTE[4].stroke_width(sc.line * 2), sc.sample));
     }
     // Equilibrium: slope -1 through the fitted upper segment's level.
+    // plotters moves a point outside the axes onto their edge, which turns the line
+    // (a shallower slope when its end lies above the y range): it is cut to the axes
+    // here, so it keeps slope −1.
     let eq = curve.intercept;
+    let (a, b) = (x0.max(eq - y1), x1.min(eq - y0));
     chart
         .draw_series(DashedLineSeries::new(
-            vec![(x0, eq - x0), (x1, eq - x1)],
+            if a < b {
+                vec![(a, eq - a), (b, eq - b)]
+            } else {
+                vec![]
+            },
             sc.dash.0,
             sc.dash.1,
             REFERENCE.stroke_width(sc.line),
@@ -169,14 +325,14 @@ pub(super) fn teff_label(joint: &GroupFit) -> String {
 /// Where the FD plot's legend goes and how high the y axis runs: lower left (the empty
 /// side below a fluctuation–dissipation curve) when no point or fitted curve falls under
 /// it, else upper right, with the y axis raised (by 8% steps, up to 1.6 times) until the
-/// data clear it. The legend's box is estimated from its rows and longest label, and the
+/// data clear it; `None` (the legend goes below the axes) when neither corner clears. The legend's box is estimated from its rows and longest label, and the
 /// plot area from the chart's margins (`linear_chart`).
 pub(super) fn fd_layout(
     r: &FitReport,
     curve: Curve,
     rg: &FdRanges,
     fig: Figure,
-) -> (SeriesLabelPosition, f64) {
+) -> (Option<SeriesLabelPosition>, f64) {
     let sc = scale(fig);
     let joint = &r.fits[0];
     let fs = sc.legend / PLOTTERS_EM;
@@ -209,7 +365,7 @@ pub(super) fn fd_layout(
             .collect()
     };
     if marks(rg.y1).iter().all(|&(x, y)| !(x < fx && y < fy)) {
-        return (SeriesLabelPosition::LowerLeft, rg.y1);
+        return (Some(SeriesLabelPosition::LowerLeft), rg.y1);
     }
     let mut y1 = rg.y1;
     let limit = rg.y0 + 1.6 * (rg.y1 - rg.y0);
@@ -220,7 +376,14 @@ pub(super) fn fd_layout(
     {
         y1 += 0.08 * (rg.y1 - rg.y0);
     }
-    (SeriesLabelPosition::UpperRight, y1)
+    if marks(y1)
+        .iter()
+        .all(|&(x, y)| !(x > 1.0 - fx && y > 1.0 - fy))
+    {
+        (Some(SeriesLabelPosition::UpperRight), y1)
+    } else {
+        (None, rg.y1)
+    }
 }
 
 /// Bootstrap band of the fitted curve.
@@ -331,10 +494,16 @@ pub(super) fn fd_fit<'a, DB: DrawingBackend + 'a>(
 ) -> Result<()> {
     let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(FD);
     // The fitted broken stick.
-    let fit_pts: Vec<(f64, f64)> = [rg.xmin_data.max(rg.x0), curve.q, rg.xmax_data.min(rg.x1)]
-        .iter()
-        .map(|&x| (x, curve.eval(x)))
-        .collect();
+    // Its ends and the break (a line model has none: q is undefined).
+    let fit_pts: Vec<(f64, f64)> = [
+        rg.xmin_data,
+        curve.q.clamp(rg.xmin_data, rg.xmax_data),
+        rg.xmax_data,
+    ]
+    .iter()
+    .filter(|x| x.is_finite())
+    .map(|&x| (x, curve.eval(x)))
+    .collect();
     chart
         .draw_series(LineSeries::new(fit_pts, INK.stroke_width(sc.line)))
         .map_err(&e)?

@@ -16,13 +16,12 @@ use crate::twotime::points::Axes;
 use crate::twotime::{Curve, FitReport, GroupFit, PointRecord};
 use plotters::coord::Shift;
 use plotters::coord::ranged1d::ValueFormatter;
-use plotters::coord::types::RangedCoordf64;
 use plotters::prelude::*;
 use std::ops::Range;
 use std::path::Path;
 use std::sync::Once;
 
-mod axes;
+pub mod axes;
 mod fd;
 mod hist;
 mod teff;
@@ -462,9 +461,13 @@ const HIST: &str = "resample histogram";
 const TEFF: &str = "T_eff(f) figure";
 
 /// The linear chart of the fluctuation–dissipation plot and the resample histogram.
-type Chart<'a, DB> = ChartContext<'a, DB, Cartesian2d<RangedCoordf64, RangedCoordf64>>;
+type Chart<'a, DB> = ChartContext<'a, DB, Cartesian2d<axes::Fixed, axes::Fixed>>;
 
-/// The margin, label areas and mesh (no grid, 6 ticks on x) of a linear chart.
+/// Major tick length in points (outward); minor ticks are half as long.
+const TICK_LEN_PT: f64 = 3.5;
+
+/// The margin, label areas and mesh (no grid) of a linear chart: nice major ticks
+/// ([`axes::nice_ticks`], at most 6 on x and `y_labels` on y) and minor ticks between.
 fn linear_chart<'a, DB: DrawingBackend + 'a>(
     root: &'a DrawingArea<DB, Shift>,
     fig: Figure,
@@ -475,12 +478,20 @@ fn linear_chart<'a, DB: DrawingBackend + 'a>(
 ) -> Result<Chart<'a, DB>> {
     let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(what);
     let sc = scale(fig);
+    let (xt, yt) = (
+        axes::nice_ticks(x.start, x.end, 6),
+        axes::nice_ticks(y.start, y.end, y_labels),
+    );
     let mut chart = ChartBuilder::on(root)
         .margin((6.0 * sc.px) as i32)
         .x_label_area_size((sc.label * 2.4) as i32)
         .y_label_area_size((sc.label * 3.0) as i32)
-        .build_cartesian_2d(x, y)
+        .build_cartesian_2d(
+            axes::Fixed::new(x.clone(), xt.major.clone()),
+            axes::Fixed::new(y.clone(), yt.major.clone()),
+        )
         .map_err(&e)?;
+    let len = (TICK_LEN_PT * sc.px).round() as i32;
     chart
         .configure_mesh()
         .disable_mesh()
@@ -488,11 +499,21 @@ fn linear_chart<'a, DB: DrawingBackend + 'a>(
         .y_desc(ylabel)
         .axis_desc_style(("sans-serif", sc.label))
         .label_style(("sans-serif", sc.tick))
-        .x_labels(6)
-        .y_labels(y_labels)
+        .set_all_tick_mark_size(len)
         .x_label_formatter(&|v| tick(*v))
         .y_label_formatter(&|v| tick(*v))
         .draw()
         .map_err(&e)?;
+    let style = INK.stroke_width(sc.thin);
+    for v in &xt.minor {
+        let (px, py) = chart.backend_coord(&(*v, y.start));
+        root.draw(&PathElement::new(vec![(px, py), (px, py + len / 2)], style))
+            .map_err(&e)?;
+    }
+    for v in &yt.minor {
+        let (px, py) = chart.backend_coord(&(x.start, *v));
+        root.draw(&PathElement::new(vec![(px - len / 2, py), (px, py)], style))
+            .map_err(&e)?;
+    }
     Ok(chart)
 }
