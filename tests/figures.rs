@@ -355,6 +355,9 @@ fn the_demo_figures_have_print_sized_text_without_overlaps_at_one_and_two_column
         .arg(&out)
         .assert()
         .success();
+    // The demo's band is hidden under the fit's line: the legend says so.
+    let fd_svg = std::fs::read_to_string(out.join("fd-plot.svg")).unwrap();
+    assert!(fd_svg.contains("95% resampling band narrower than the line"));
     for f in ["fd-plot", "ratio-resamples", "teff-spectrum"] {
         let svg = std::fs::read_to_string(out.join(format!("{f}.svg"))).unwrap();
         check_print_text(&format!("{f} single"), &svg);

@@ -114,7 +114,8 @@ pub(super) fn draw_fd<DB: DrawingBackend>(
     let mut rg = fd_ranges(&r.points, curve);
     let (corner, y1) = fd_layout(r, curve, &rg, fig);
     // No corner is free: the legend goes below the axes, in two columns.
-    let entries = legend_entries(r);
+    // The rows (the band's entry is settled once the band is drawn).
+    let entries = legend_entries(r, (joint.curve_replicates.len() >= 20).then_some(true));
     let (area, below) = match corner {
         Some(_) => (root.clone(), None),
         None => {
@@ -128,12 +129,12 @@ pub(super) fn draw_fd<DB: DrawingBackend>(
     let ranges = (rg.x0..rg.x1, rg.y0..rg.y1);
     let mut chart = linear_chart(&area, fig, ranges, fd_labels(r), 9, FD)?;
     fd_references(&mut chart, joint, curve, &rg, &sc)?;
-    fd_band(&mut chart, joint, r.settings.given.level, &rg, &sc)?;
+    let band = fd_band(&mut chart, joint, r.settings.given.level, &rg, &sc)?;
     fd_points(&mut chart, r, &sc)?;
     fd_fit(&mut chart, joint, curve, &rg, &sc)?;
     match (corner, below) {
         (Some(c), _) => legend_at(&mut chart, &sc, c)?,
-        (None, Some(b)) => legend_below(&b, &entries, &sc)?,
+        (None, Some(b)) => legend_below(&b, &legend_entries(r, band), &sc)?,
         (None, None) => {}
     }
     Ok(())
@@ -154,7 +155,7 @@ enum Mark {
 
 /// The FD plot's legend in two columns: the waiting times, then the references and the
 /// fit's numbers.
-fn legend_entries(r: &FitReport) -> [Vec<(Mark, String)>; 2] {
+fn legend_entries(r: &FitReport, band: Option<bool>) -> [Vec<(Mark, String)>; 2] {
     let joint = &r.fits[0];
     let mut left = Vec::new();
     let mut right = Vec::new();
@@ -162,11 +163,13 @@ fn legend_entries(r: &FitReport) -> [Vec<(Mark, String)>; 2] {
         Mark::Dashed(REFERENCE, 1),
         "equilibrium, slope −1".to_string(),
     ));
-    if joint.curve_replicates.len() >= 20 {
-        right.push((
-            Mark::Swatch(PALETTE[0].mix(0.3)),
-            format!("{:.0}% resampling band", 100.0 * r.settings.given.level),
-        ));
+    if let Some(visible) = band {
+        let mark = if visible {
+            Mark::Swatch(PALETTE[0].mix(0.3))
+        } else {
+            Mark::Nothing
+        };
+        right.push((mark, band_label(r.settings.given.level, visible)));
     }
     for (i, &tw) in r.waiting_times.iter().enumerate() {
         left.push((
@@ -386,14 +389,15 @@ pub(super) fn fd_layout(
     }
 }
 
-/// Bootstrap band of the fitted curve.
+/// Bootstrap band of the fitted curve; whether it is wider than the line (`None`
+/// without enough resamples to draw one).
 pub(super) fn fd_band<'a, DB: DrawingBackend + 'a>(
     chart: &mut Chart<'a, DB>,
     joint: &GroupFit,
     level: f64,
     rg: &FdRanges,
     sc: &Scale,
-) -> Result<()> {
+) -> Result<Option<bool>> {
     let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(FD);
     if joint.curve_replicates.len() >= 20 {
         let n = 160;
@@ -410,17 +414,45 @@ pub(super) fn fd_band<'a, DB: DrawingBackend + 'a>(
             lower.push((x, quantile_sorted(&ys, (1.0 - level) / 2.0)));
             upper.push((x, quantile_sorted(&ys, (1.0 + level) / 2.0)));
         }
+        // The band's widest point in pixels: within twice the fit's line, it is hidden
+        // under it, and the legend says so instead of showing a swatch.
+        let px_per_y = f64::from(chart.plotting_area().dim_in_pixel().1) / (rg.y1 - rg.y0);
+        let widest = upper
+            .iter()
+            .zip(&lower)
+            .map(|(u, l)| u.1 - l.1)
+            .fold(0.0f64, f64::max);
+        // Centred on the line, it shows once it passes it by half a line width on each side.
+        let visible = widest * px_per_y > 2.0 * f64::from(sc.line);
         upper.extend(lower.into_iter().rev());
-        chart
+        let drawn = chart
             .draw_series(std::iter::once(Polygon::new(
                 upper,
                 PALETTE[0].mix(0.22).filled(),
             )))
-            .map_err(&e)?
-            .label(format!("{:.0}% resampling band", 100.0 * level))
-            .legend(swatch(PALETTE[0].mix(0.3).filled(), sc.sample));
+            .map_err(&e)?;
+        if visible {
+            drawn
+                .label(band_label(level, true))
+                .legend(swatch(PALETTE[0].mix(0.3).filled(), sc.sample));
+        } else {
+            drawn
+                .label(band_label(level, false))
+                .legend(|(x, y)| EmptyElement::at((x, y)));
+        }
+        return Ok(Some(visible));
     }
-    Ok(())
+    Ok(None)
+}
+
+/// The band's legend entry: named with a swatch when it shows, else said to be hidden.
+fn band_label(level: f64, visible: bool) -> String {
+    let what = format!("{:.0}% resampling band", 100.0 * level);
+    if visible {
+        what
+    } else {
+        format!("{what} narrower than the line")
+    }
 }
 
 /// Points per waiting time, with standard errors.
