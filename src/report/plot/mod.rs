@@ -24,11 +24,13 @@ use std::sync::Once;
 pub mod axes;
 mod fd;
 mod hist;
+mod panels;
 mod teff;
 
 use axes::{log_tick, tick};
 pub use fd::fd_plot;
 pub use hist::ratio_histogram;
+pub use panels::{fd_panels, panels_figure};
 pub use teff::teff_plot;
 
 static FONT: &[u8] = include_bytes!("../../../assets/fonts/DejaVuSans.ttf");
