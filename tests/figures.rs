@@ -355,6 +355,9 @@ fn the_demo_figures_have_print_sized_text_without_overlaps_at_one_and_two_column
         .arg(&out)
         .assert()
         .success();
+    // The demo's band is hidden under the fit's line: the legend says so.
+    let fd_svg = std::fs::read_to_string(out.join("fd-plot.svg")).unwrap();
+    assert!(fd_svg.contains("95% resampling band narrower than the line"));
     for f in ["fd-plot", "ratio-resamples", "teff-spectrum"] {
         let svg = std::fs::read_to_string(out.join(format!("{f}.svg"))).unwrap();
         check_print_text(&format!("{f} single"), &svg);
@@ -389,4 +392,38 @@ fn the_demo_figures_have_print_sized_text_without_overlaps_at_one_and_two_column
         assert!(svg.starts_with("<svg width=\"17.8cm\""));
         check_print_text(&format!("{} double", p.display()), &svg);
     }
+}
+
+#[test]
+fn the_panels_figure_is_drawn_at_double_size_and_refused_at_another() {
+    let dir = tempfile::tempdir().unwrap();
+    let input = campaign(dir.path(), 0.03);
+    let png = dir.path().join("panels.png");
+    fdtemp()
+        .arg("fit")
+        .arg(&input)
+        .args([
+            "-T",
+            "0.6",
+            "-B",
+            "200",
+            "--plot-size",
+            "double",
+            "--plot-panels",
+        ])
+        .arg(&png)
+        .assert()
+        .success();
+    assert_eq!(png_size(&png), (2102, 1299));
+    let single = dir.path().join("single.png");
+    fdtemp()
+        .arg("fit")
+        .arg(&input)
+        .args(["-T", "0.6", "-B", "200", "--plot-panels"])
+        .arg(&single)
+        .assert()
+        .code(2)
+        .stdout("")
+        .stderr("error: --plot-panels draws two panels side by side at double-column size: give --plot-size double\n");
+    assert!(!single.exists());
 }

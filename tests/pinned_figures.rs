@@ -1,6 +1,6 @@
 //! The three figures (fluctuation–dissipation plot, resample histogram, T_eff(f)) pinned
 //! byte for byte as SVG on invented campaigns and spectra, so that a change of layout in
-//! `src/report/plot.rs` cannot change what is drawn. The pinned files are in
+//! `src/report/plot/` cannot change what is drawn. The pinned files are in
 //! `fixtures/pinned/figures/`; after an intended change of a figure, remake them with
 //!
 //!     FDTEMP_BLESS=1 cargo test --release --test pinned_figures

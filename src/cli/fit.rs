@@ -134,6 +134,10 @@ pub struct FitArgs {
     /// Draw the histogram of the resampled X into this file (.svg, .png or .pdf).
     #[arg(long, value_name = "FILE")]
     plot_resamples: Option<PathBuf>,
+    /// Draw the FD plot and X against tw side by side into this file (needs
+    /// --plot-size double: each panel one column wide).
+    #[arg(long, value_name = "FILE")]
+    plot_panels: Option<PathBuf>,
     #[command(flatten)]
     plot: PlotArgs,
     #[command(flatten)]
@@ -155,8 +159,19 @@ pub fn run(a: FitArgs) -> fdtemp::Result<()> {
         .as_ref()
         .map(|p| Figure::for_path(p, a.plot.plot_size).map(|f| (p.clone(), f)))
         .transpose()?;
+    let panels = a
+        .plot_panels
+        .as_ref()
+        .map(|p| plot::panels_figure(p, a.plot.plot_size).map(|f| (p.clone(), f)))
+        .transpose()?;
     output::check_paths(
-        &[&a.json, &a.points, &a.plot.plot, &a.plot_resamples],
+        &[
+            &a.json,
+            &a.points,
+            &a.plot.plot,
+            &a.plot_resamples,
+            &a.plot_panels,
+        ],
         &[a.opts.file.as_path()],
         a.overwrite,
     )?;
@@ -168,7 +183,11 @@ pub fn run(a: FitArgs) -> fdtemp::Result<()> {
         Some(d) => calibrated_fit(&campaign, &settings, d, input, &Bar::labelled("simulating")),
     }
     .map_err(in_file(file))?;
-    let outputs = outputs(&report, a.json, a.points, figure, resample_figure)?;
+    let mut outputs = outputs(&report, a.json, a.points, figure, resample_figure)?;
+    if let Some((path, fig)) = panels {
+        let bytes = plot::fd_panels(&report, fig)?;
+        outputs.push(Output { path, bytes });
+    }
     output::write_all(&outputs, a.overwrite)?;
     print(&fdtemp::report::text::render(&report));
     Ok(())

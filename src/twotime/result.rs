@@ -24,10 +24,11 @@ pub struct Curve {
 }
 
 impl Curve {
-    /// The curve's y at x.
+    /// The curve's y at x. Without a break (`q` undefined, as in the line model) the
+    /// curve is the one straight line `intercept + slope_above · x`.
     pub fn eval(&self, x: f64) -> f64 {
         let y_q = self.intercept + self.slope_above * self.q;
-        if x >= self.q {
+        if x >= self.q || self.q.is_nan() {
             self.intercept + self.slope_above * x
         } else {
             y_q + self.slope_below * (x - self.q)
@@ -257,4 +258,24 @@ pub struct FitReport {
     pub cautions: Vec<Caution>,
     /// The parametric points.
     pub points: Vec<PointRecord>,
+}
+
+#[cfg(test)]
+mod curve_tests {
+    use super::Curve;
+
+    #[test]
+    fn a_curve_without_a_break_is_its_straight_line() {
+        // The line model's curve has no break; it used to evaluate to NaN everywhere, so
+        // the FD plot drew its fit along the bottom of the axes.
+        let c = Curve {
+            q: f64::NAN,
+            intercept: 0.84,
+            slope_above: -0.84,
+            slope_below: -0.84,
+        };
+        assert!((c.eval(0.5) - 0.42).abs() < 1e-12);
+        let b = Curve { q: 0.6, ..c };
+        assert!((b.eval(0.2) - (0.84 - 0.84 * 0.2)).abs() < 1e-12);
+    }
 }
