@@ -95,9 +95,10 @@ impl FitOptions {
 /// `design-check`).
 #[derive(clap::Args)]
 pub struct SimArgs {
-    /// How a simulated sample's noise is drawn from the data: resample (residual curves of
-    /// whole samples with replacement) or gaussian (with the samples' covariance).
-    #[arg(long, value_enum, default_value_t = Noise::Resample)]
+    /// How a simulated sample's noise is drawn from the data: gaussian (with the samples'
+    /// covariance across all points; calibrates best in docs/validation.md) or resample
+    /// (residual curves of whole samples with replacement, no distributional assumption).
+    #[arg(long, value_enum, default_value_t = Noise::Gaussian)]
     sim_noise: Noise,
 }
 

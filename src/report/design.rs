@@ -284,6 +284,10 @@ fn coverage_finding(c: &CoverageRow, level: f64, who: &str, k: usize) -> Option<
             percent(n.level),
             100.0 * level
         ),
+        None if gap < 0.0 && cov.of < crate::twotime::design::MIN_CAMPAIGNS => format!(
+            "; printed in {} campaigns only, too few to calibrate",
+            cov.of
+        ),
         None if gap < 0.0 => "; no nominal level these resamples allow covers often enough \
                               (more samples, or a larger B, are needed)"
             .into(),

@@ -576,7 +576,10 @@ fn coverage_rows(
                 }),
                 coverage: Rate::of(covered, got.len()),
                 bias: mean_of(&errors),
-                calibrated: nominal_level(&levels, fit.level),
+                // A level from fewer campaigns than `fit --calibrate` accepts is not shown.
+                calibrated: (levels.len() >= MIN_CAMPAIGNS)
+                    .then(|| nominal_level(&levels, fit.level))
+                    .flatten(),
             });
             if k == 0 && truth.ratio() != 0.0 {
                 let te: Vec<f64> = outcomes
