@@ -76,5 +76,44 @@ fn whole_fit(c: &mut Criterion) {
     g.finish();
 }
 
-criterion_group!(benches, break_search, resampling_product, whole_fit);
+/// `fit --calibrate 200` on a 100-sample × 120-point campaign (3 × 40 points), B = 2000:
+/// the budget is under a minute on 2 cores for the default design check (twice
+/// this: 200 campaigns about each of two truths).
+fn calibrated_fit(c: &mut Criterion) {
+    let camp = generate(&SynthSpec {
+        samples: 100,
+        ..SynthSpec::default()
+    })
+    .unwrap();
+    let s = FitSettings {
+        temperature: 0.6,
+        resamples: 2000,
+        ..FitSettings::default()
+    };
+    let d = fdtemp::twotime::design::DesignSettings {
+        campaigns: 200,
+        noise: fdtemp::twotime::design::Noise::Gaussian,
+        seed: 1,
+    };
+    let mut g = c.benchmark_group("design check");
+    g.sample_size(10);
+    g.bench_function(
+        "fit --calibrate 200: 100 samples x 120 points, B = 2000",
+        |b| {
+            b.iter(|| {
+                fdtemp::twotime::design::calibrated_fit(black_box(&camp), &s, &d, None, &Silent)
+                    .unwrap()
+            })
+        },
+    );
+    g.finish();
+}
+
+criterion_group!(
+    benches,
+    break_search,
+    resampling_product,
+    whole_fit,
+    calibrated_fit
+);
 criterion_main!(benches);
