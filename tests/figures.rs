@@ -24,6 +24,18 @@ fn campaign(dir: &Path, noise: f64) -> PathBuf {
     path
 }
 
+/// The SVG with its `<tspan>` tags taken out, so "T<tspan …>eff</tspan>" reads "Teff".
+fn flat(svg: &str) -> String {
+    let mut out = String::new();
+    let mut rest = svg;
+    while let Some(i) = rest.find("<tspan") {
+        out.push_str(&rest[..i]);
+        rest = &rest[i + rest[i..].find('>').unwrap() + 1..];
+    }
+    out.push_str(rest);
+    out.replace("</tspan>", "")
+}
+
 fn png_size(path: &Path) -> (u32, u32) {
     let decoder = png::Decoder::new(std::io::BufReader::new(std::fs::File::open(path).unwrap()));
     let reader = decoder.read_info().unwrap();
@@ -55,7 +67,7 @@ fn the_fluctuation_dissipation_plot_has_every_element_in_svg_and_png() {
         .arg(&hist)
         .assert()
         .success();
-    let text = std::fs::read_to_string(&svg).unwrap();
+    let text = flat(&std::fs::read_to_string(&svg).unwrap());
     for label in [
         "\ntw = 100\n",
         "\ntw = 1000\n",
@@ -65,8 +77,8 @@ fn the_fluctuation_dissipation_plot_has_every_element_in_svg_and_png() {
         "Teff = ",
         "break q = ",
         "95% resampling band",
-        "C(t,tw)",
-        "k T χ(t,tw)",
+        "C(t, tw)",
+        "kB T χ(t, tw)",
     ] {
         assert!(text.contains(label), "the SVG lacks '{label}'");
     }
@@ -135,7 +147,7 @@ fn the_effective_temperature_plot_marks_the_bath_and_the_departure() {
         .arg(&svg)
         .assert()
         .success();
-    let text = std::fs::read_to_string(&svg).unwrap();
+    let text = flat(&std::fs::read_to_string(&svg).unwrap());
     for label in [
         "bath T = 295",
         "departs below",
@@ -274,13 +286,18 @@ fn svg_texts(svg: &str) -> (Vec<TextBox>, f64) {
     let mut out = Vec::new();
     for chunk in svg.split("<text").skip(1) {
         let tag = &chunk[..chunk.find('>').unwrap()];
-        let text = chunk[tag.len() + 1..chunk.find("</text>").unwrap()]
-            .trim()
-            .to_string();
+        let body = &chunk[tag.len() + 1..chunk.find("</text>").unwrap()];
         let num = |n: &str| attr(tag, n).unwrap().parse::<f64>().unwrap();
         let (x, y, fs) = (num("x"), num("y"), num("font-size"));
-        // DejaVu Sans averages about 0.6 em per character in these labels (from memory).
-        let w = 0.6 * fs * text.chars().count() as f64;
+        let runs = text_runs(body, fs);
+        let text: String = runs.iter().map(|r| r.0.as_str()).collect::<String>();
+        let text = text.trim().to_string();
+        // DejaVu Sans averages about 0.6 em per character in these labels (from memory);
+        // a subscript's characters count at its own, smaller size.
+        let w: f64 = runs
+            .iter()
+            .map(|(t, size)| 0.6 * size * t.trim_matches('\n').chars().count() as f64)
+            .sum();
         let x0 = match attr(tag, "text-anchor").as_deref() {
             Some("end") => x - w,
             Some("middle") => x - w / 2.0,
@@ -303,6 +320,97 @@ fn svg_texts(svg: &str) -> (Vec<TextBox>, f64) {
         });
     }
     (out, pt_per_px)
+}
+
+/// The runs of a `<text>`'s content with their font sizes: the text's own size, or a
+/// `<tspan>`'s `font-size` (a subscript).
+fn text_runs(body: &str, fs: f64) -> Vec<(String, f64)> {
+    let mut runs = Vec::new();
+    for (i, part) in body.split("<tspan").enumerate() {
+        let part = part.replace("</tspan>", "");
+        if i == 0 {
+            runs.push((part, fs));
+            continue;
+        }
+        let end = part.find('>').unwrap();
+        let size = attr(&part[..end], "font-size").map_or(fs, |v| v.parse().unwrap());
+        runs.push((part[end + 1..].to_string(), size));
+    }
+    runs
+}
+
+/// Every subscript of a figure: (the text it belongs to, the subscript, its size in
+/// points, the text's size in points, how far it is lowered in pixels).
+fn subscripts(svg: &str) -> Vec<(String, String, f64, f64, f64)> {
+    let (_, pt_per_px) = svg_texts(svg);
+    let mut out = Vec::new();
+    for chunk in svg.split("<text").skip(1) {
+        let tag = &chunk[..chunk.find('>').unwrap()];
+        let fs: f64 = attr(tag, "font-size").unwrap().parse().unwrap();
+        let body = &chunk[tag.len() + 1..chunk.find("</text>").unwrap()];
+        let whole: String = text_runs(body, fs).into_iter().map(|r| r.0).collect();
+        for part in body.split("<tspan").skip(1) {
+            let end = part.find('>').unwrap();
+            let (Some(size), Some(dy)) =
+                (attr(&part[..end], "font-size"), attr(&part[..end], "dy"))
+            else {
+                continue;
+            };
+            let sub = part[end + 1..part.find("</tspan>").unwrap()].to_string();
+            out.push((
+                whole.trim().to_string(),
+                sub,
+                size.parse::<f64>().unwrap() * pt_per_px,
+                fs * pt_per_px,
+                dy.parse().unwrap(),
+            ));
+        }
+    }
+    out
+}
+
+#[test]
+fn subscripts_are_smaller_lowered_tspans_of_at_least_seven_points() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("demo");
+    fdtemp()
+        .args(["demo", "--out"])
+        .arg(&out)
+        .assert()
+        .success();
+    let fd = std::fs::read_to_string(out.join("fd-plot.svg")).unwrap();
+    let teff = std::fs::read_to_string(out.join("teff-spectrum.svg")).unwrap();
+    for (name, svg) in [("fd", &fd), ("teff", &teff)] {
+        assert!(
+            !svg.contains("_{"),
+            "{name}: subscript markup left in the SVG"
+        );
+        assert!(
+            !svg.contains("Teff") && !svg.contains("tw ="),
+            "{name}: flat subscript"
+        );
+        for (text, sub, size, base, dy) in subscripts(svg) {
+            assert!(size >= 7.0, "{name}: '{sub}' of '{text}' at {size:.2} pt");
+            assert!(size < base, "{name}: '{sub}' of '{text}' not smaller");
+            assert!(dy > 0.0, "{name}: '{sub}' of '{text}' not lowered");
+        }
+    }
+    let fd_subs = subscripts(&fd);
+    let has = |text: &str, sub: &str| fd_subs.iter().any(|s| s.0 == text && s.1 == sub);
+    assert!(has("kB T χ(t, tw)   (kB = 1)", "B"), "{fd_subs:?}");
+    assert!(has("kB T χ(t, tw)   (kB = 1)", "w"));
+    assert!(has("C(t, tw)", "w"));
+    assert!(
+        fd_subs
+            .iter()
+            .any(|s| s.0.starts_with("Teff = ") && s.1 == "eff")
+    );
+    assert!(fd_subs.iter().any(|s| s.0 == "tw = 100" && s.1 == "w"));
+    assert!(
+        subscripts(&teff)
+            .iter()
+            .any(|s| s.0 == "Teff (K)" && s.1 == "eff")
+    );
 }
 
 /// Font sizes of at least 7 pt at the stated size, and no two text boxes overlapping

@@ -19,12 +19,7 @@ pub fn fd_plot(r: &FitReport, fig: Figure) -> Result<Vec<u8>> {
             "cannot draw the fluctuation–dissipation plot: no points".into(),
         ));
     }
-    render(
-        fig,
-        FD,
-        |a| draw_fd(a, r, curve, fig),
-        |a| draw_fd(a, r, curve, fig),
-    )
+    render(fig, FD, |a| draw_fd(a, r, curve, fig))
 }
 
 /// The extent of the fluctuation–dissipation plot's data (with standard errors) and its
@@ -86,19 +81,19 @@ pub(super) fn fd_ranges(pts: &[PointRecord], curve: Curve) -> FdRanges {
 pub(super) fn fd_labels(r: &FitReport) -> (&'static str, String) {
     let normalized = r.settings.axes_used == Axes::Normalized;
     let xlabel = if normalized {
-        "C(t,tw) / C(t,t)"
+        "C(t, t_{w}) / C(t, t)"
     } else {
-        "C(t,tw)"
+        "C(t, t_{w})"
     };
     let k = if r.settings.given.units == Units::Si {
         ""
     } else {
-        "   (k = 1)"
+        "   (k_{B} = 1)"
     };
     let ylabel = if normalized {
-        format!("k T χ(t,tw) / C(t,t){k}")
+        format!("k_{{B}} T χ(t, t_{{w}}) / C(t, t){k}")
     } else {
-        format!("k T χ(t,tw){k}")
+        format!("k_{{B}} T χ(t, t_{{w}}){k}")
     };
     (xlabel, ylabel)
 }
@@ -174,7 +169,7 @@ fn legend_entries(r: &FitReport, band: Option<bool>) -> [Vec<(Mark, String)>; 2]
     for (i, &tw) in r.waiting_times.iter().enumerate() {
         left.push((
             Mark::Series(i),
-            format!("tw = {}", crate::report::format::fmt_num(tw)),
+            format!("{T_W} = {}", crate::report::format::fmt_num(tw)),
         ));
     }
     if let (Some(_), Some(_)) = (joint.brk.low, joint.brk.high) {
@@ -494,7 +489,7 @@ pub(super) fn fd_points<'a, DB: DrawingBackend + 'a>(
             }))
             .map_err(&e)?;
         let (ms, line, half) = (sc.marker, sc.line, sc.sample / 2);
-        let label = format!("tw = {}", crate::report::format::fmt_num(tw));
+        let label = format!("{T_W} = {}", crate::report::format::fmt_num(tw));
         // Shapes differ per series (filled circle, filled triangle, cross, open circle) so
         // the series stay apart without colour.
         macro_rules! series {

@@ -28,12 +28,7 @@ pub fn ratio_histogram(r: &FitReport, fig: Figure) -> Result<Vec<u8>> {
             crate::report::sig(lo, 4)
         )));
     }
-    render(
-        fig,
-        HIST,
-        |a| draw_hist(a, r, &reps, fig),
-        |a| draw_hist(a, r, &reps, fig),
-    )
+    render(fig, HIST, |a| draw_hist(a, r, &reps, fig))
 }
 
 /// Freedman–Diaconis bins of the sorted resamples: the counts, the first edge and the

@@ -297,36 +297,130 @@ where
         .map_err(err::<DrawingAreaErrorKind<DB::ErrorType>>("legend"))
 }
 
-/// Renders with the backend of the figure's format.
+/// Draws the figure once, as SVG, and gives it in the figure's format: the SVG itself,
+/// or the same SVG rendered to PNG (resvg) or converted to PDF (svg2pdf), so subscripts
+/// and every other detail are the same in all three.
 fn render(
     fig: Figure,
     what: &str,
     draw: impl Fn(DrawingArea<SVGBackend<'_>, Shift>) -> Result<()>,
-    draw_png: impl Fn(DrawingArea<BitMapBackend<'_>, Shift>) -> Result<()>,
 ) -> Result<Vec<u8>> {
     register_font();
+    let svg = subscripts(&svg_string(fig, what, &draw)?, fig);
     match fig.format {
-        Format::Svg => Ok(physical_svg(svg_string(fig, what, &draw)?, fig).into_bytes()),
+        Format::Svg => Ok(physical_svg(svg, fig).into_bytes()),
         Format::Pdf => {
             // The PDF page takes the physical size the SVG states.
             let fig = Figure {
                 physical: true,
                 ..fig
             };
-            pdf_from_svg(&physical_svg(svg_string(fig, what, &draw)?, fig))
+            pdf_from_svg(&physical_svg(svg, fig))
         }
-        Format::Png => {
-            let mut buf = vec![0u8; fig.width as usize * fig.height as usize * 3];
-            {
-                let root = BitMapBackend::with_buffer(&mut buf, (fig.width, fig.height))
-                    .into_drawing_area();
-                root.fill(&WHITE).map_err(err(what))?;
-                draw_png(root.clone())?;
-                root.present().map_err(err(what))?;
-            }
-            encode_png(&buf, fig)
-        }
+        Format::Png => encode_png(&png_from_svg(&svg, fig)?, fig),
     }
+}
+
+/// How figure text marks a subscript: `T_{eff}`, `k_{B}`, `t_{w}`.
+const SUB_OPEN: &str = "_{";
+
+/// Subscripts: each `_{…}` in an SVG `<text>` becomes a `<tspan>` with a smaller
+/// `font-size` (four fifths of the text's, never under 7 pt at the figure's size) lowered
+/// by `dy`; the text after it is raised back by a second `<tspan>`. `dy` rather than
+/// `baseline-shift`, which some browsers ignore.
+fn subscripts(svg: &str, fig: Figure) -> String {
+    let min_px = SUB_MIN_PT * fig.px_per_pt();
+    let mut out = String::with_capacity(svg.len() + 256);
+    let mut rest = svg;
+    while let Some(at) = rest.find("<text") {
+        let (before, from) = rest.split_at(at);
+        out.push_str(before);
+        let (Some(tag_end), Some(close)) = (from.find('>'), from.find("</text>")) else {
+            rest = from;
+            break;
+        };
+        let (tag, body) = (&from[..=tag_end], &from[tag_end + 1..close]);
+        out.push_str(tag);
+        let base = tag
+            .split(" font-size=\"")
+            .nth(1)
+            .and_then(|t| t.split('"').next())
+            .and_then(|t| t.parse::<f64>().ok());
+        match base {
+            Some(base) if body.contains(SUB_OPEN) => {
+                let size = (SUB_RATIO * base).max(min_px).min(base);
+                let drop = SUB_DROP * base;
+                let mut b = body;
+                while let Some(i) = b.find(SUB_OPEN) {
+                    let Some(j) = b[i..].find('}') else { break };
+                    out.push_str(&b[..i]);
+                    out.push_str(&format!(
+                        "<tspan font-size=\"{size:.2}\" dy=\"{drop:.2}\">{}</tspan>",
+                        &b[i + SUB_OPEN.len()..i + j]
+                    ));
+                    b = &b[i + j + 1..];
+                    let tail = b.split_once('\n').map_or(b, |(t, _)| t);
+                    if !tail.trim().is_empty() || b.contains(SUB_OPEN) {
+                        out.push_str(&format!("<tspan dy=\"{:.2}\">", -drop));
+                        let k = b.find(SUB_OPEN).unwrap_or(b.len());
+                        out.push_str(&b[..k]);
+                        out.push_str("</tspan>");
+                        b = &b[k..];
+                    }
+                }
+                out.push_str(b);
+            }
+            _ => out.push_str(body),
+        }
+        rest = &from[close..];
+    }
+    out.push_str(rest);
+    out
+}
+
+/// A subscript's size relative to its text, its least size in points, and how far it
+/// is lowered (in ems of the text).
+const SUB_RATIO: f64 = 0.8;
+const SUB_MIN_PT: f64 = 7.05;
+const SUB_DROP: f64 = 0.22;
+
+/// usvg's options with DejaVu Sans as the sans-serif face.
+fn usvg_options() -> svg2pdf::usvg::Options<'static> {
+    use svg2pdf::usvg;
+    let mut db = usvg::fontdb::Database::new();
+    db.load_font_data(FONT.to_vec());
+    db.set_sans_serif_family("DejaVu Sans");
+    usvg::Options {
+        // usvg reads cm at its dpi; the PDF page at the same dpi keeps the physical size.
+        dpi: USVG_DPI,
+        font_family: "DejaVu Sans".into(),
+        fontdb: std::sync::Arc::new(db),
+        ..usvg::Options::default()
+    }
+}
+
+const USVG_DPI: f32 = 96.0;
+
+/// The SVG (sized in pixels) rendered by resvg into RGB bytes on white.
+fn png_from_svg(svg: &str, fig: Figure) -> Result<Vec<u8>> {
+    use resvg::tiny_skia;
+    let tree = svg2pdf::usvg::Tree::from_str(svg, &usvg_options()).map_err(err("PNG"))?;
+    let mut pixmap = tiny_skia::Pixmap::new(fig.width, fig.height)
+        .ok_or_else(|| Error::Analysis("cannot draw the PNG: empty size".into()))?;
+    pixmap.fill(tiny_skia::Color::WHITE);
+    let sx = fig.width as f32 / tree.size().width();
+    let sy = fig.height as f32 / tree.size().height();
+    resvg::render(
+        &tree,
+        tiny_skia::Transform::from_scale(sx, sy),
+        &mut pixmap.as_mut(),
+    );
+    // Opaque on white: the premultiplied RGBA is the RGB with alpha 255.
+    Ok(pixmap
+        .data()
+        .chunks_exact(4)
+        .flat_map(|p| [p[0], p[1], p[2]])
+        .collect())
 }
 
 /// The drawing as SVG text, sized in pixels.
@@ -348,20 +442,8 @@ fn svg_string(
 /// SVG text converted to PDF (svg2pdf), with DejaVu Sans as the sans-serif face so the
 /// text is embedded as text in that font. The page is the SVG's stated size.
 fn pdf_from_svg(svg: &str) -> Result<Vec<u8>> {
-    use svg2pdf::usvg;
-    // usvg reads cm at its dpi; the page at the same dpi keeps the physical size.
-    const DPI: f32 = 96.0;
-    let mut db = usvg::fontdb::Database::new();
-    db.load_font_data(FONT.to_vec());
-    db.set_sans_serif_family("DejaVu Sans");
-    let opt = usvg::Options {
-        dpi: DPI,
-        font_family: "DejaVu Sans".into(),
-        fontdb: std::sync::Arc::new(db),
-        ..usvg::Options::default()
-    };
-    let tree = usvg::Tree::from_str(svg, &opt).map_err(err("PDF"))?;
-    let page = svg2pdf::PageOptions { dpi: DPI };
+    let tree = svg2pdf::usvg::Tree::from_str(svg, &usvg_options()).map_err(err("PDF"))?;
+    let page = svg2pdf::PageOptions { dpi: USVG_DPI };
     let pdf =
         svg2pdf::to_pdf(&tree, svg2pdf::ConversionOptions::default(), page).map_err(err("PDF"))?;
     Ok(sorted_resources(pdf))
@@ -454,8 +536,10 @@ fn fmt_iv(v: Option<f64>, lo: Option<f64>, hi: Option<f64>) -> String {
     }
 }
 
-/// The effective temperature as figures write it (no literal underscore).
-const T_EFF: &str = "Teff";
+/// The effective temperature as figures write it: T with a subscript "eff".
+const T_EFF: &str = "T_{eff}";
+/// The waiting time, t with a subscript "w".
+const T_W: &str = "t_{w}";
 
 /// What each figure is called in a drawing error.
 const FD: &str = "fluctuation–dissipation plot";

@@ -38,12 +38,7 @@ pub fn fd_panels(r: &FitReport, fig: Figure) -> Result<Vec<u8>> {
             "cannot draw the {PANELS}: no waiting time has an X"
         )));
     }
-    render(
-        fig,
-        PANELS,
-        |a| draw_panels(a, r, curve, fig),
-        |a| draw_panels(a, r, curve, fig),
-    )
+    render(fig, PANELS, |a| draw_panels(a, r, curve, fig))
 }
 
 /// (held time, X, low, high) of each group with an X.
@@ -97,7 +92,7 @@ fn draw_aging<DB: DrawingBackend>(
     let y1 = y1 + 0.35 * (y1 - y0);
     let yt = axes::nice_ticks(y0, y1, 8);
     let held = if r.fits[1..].iter().any(|g| g.tw.is_some()) {
-        "tw"
+        T_W
     } else {
         "t"
     };

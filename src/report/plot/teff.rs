@@ -18,12 +18,7 @@ pub fn teff_plot(r: &SpectrumReport, fig: Figure) -> Result<Vec<u8>> {
             "cannot draw T_eff(f): no positive effective temperature".into(),
         ));
     }
-    render(
-        fig,
-        TEFF,
-        |a| draw_teff(a, r, fig),
-        |a| draw_teff(a, r, fig),
-    )
+    render(fig, TEFF, |a| draw_teff(a, r, fig))
 }
 
 /// The ranges of T_eff(f): frequencies of the positive points, temperatures of their
@@ -263,7 +258,7 @@ where
     }
     let label = s.tw.map_or_else(
         || format!("{T_EFF}(f)"),
-        |t| format!("{T_EFF}(f), tw = {}", crate::report::format::fmt_num(t)),
+        |t| format!("{T_EFF}(f), {T_W} = {}", crate::report::format::fmt_num(t)),
     );
     chart
         .draw_series(LineSeries::new(
