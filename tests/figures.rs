@@ -76,7 +76,9 @@ fn the_fluctuation_dissipation_plot_has_every_element_in_svg_and_png() {
         "fit: X = ",
         "Teff = ",
         "break q = ",
-        "95% resampling band",
+        // "95% resampling band", or "95% band: within the line" when it is hidden.
+        "95% ",
+        "band",
         "C(t, tw)",
         "kB T χ(t, tw)",
     ] {
@@ -465,7 +467,7 @@ fn the_demo_figures_have_print_sized_text_without_overlaps_at_one_and_two_column
         .success();
     // The demo's band is hidden under the fit's line: the legend says so.
     let fd_svg = std::fs::read_to_string(out.join("fd-plot.svg")).unwrap();
-    assert!(fd_svg.contains("95% resampling band narrower than the line"));
+    assert!(fd_svg.contains("95% band: within the line"));
     for f in ["fd-plot", "ratio-resamples", "teff-spectrum"] {
         let svg = std::fs::read_to_string(out.join(format!("{f}.svg"))).unwrap();
         check_print_text(&format!("{f} single"), &svg);

@@ -442,11 +442,11 @@ pub(super) fn fd_band<'a, DB: DrawingBackend + 'a>(
 
 /// The band's legend entry: named with a swatch when it shows, else said to be hidden.
 fn band_label(level: f64, visible: bool) -> String {
-    let what = format!("{:.0}% resampling band", 100.0 * level);
     if visible {
-        what
+        format!("{:.0}% resampling band", 100.0 * level)
     } else {
-        format!("{what} narrower than the line")
+        // Short enough for the legend's column at single-column width.
+        format!("{:.0}% band: within the line", 100.0 * level)
     }
 }
 

@@ -282,11 +282,11 @@ where
             let label = if named.several {
                 format!("departure from T ({T_EFF} {} T)", d.direction.side())
             } else {
+                // Short: the legend sits in a corner of the axes at single-column width.
                 format!(
-                    "departs below {} Hz ({}: {T_EFF} {} T)",
+                    "departs below {} Hz ({})",
                     crate::report::sig(fd, 3),
-                    d.direction.label(),
-                    d.direction.side()
+                    d.direction.label()
                 )
             };
             drawn
