@@ -89,10 +89,7 @@ fn break_finding(f: &Finding) -> String {
             p,
             resamples,
         } => {
-            let slope = match (low, high) {
-                (Some(lo), Some(hi)) => with_interval(*slope, *lo, *hi),
-                _ => num3(*slope),
-            };
+            let slope = value_and_interval(*slope, *low, *high);
             format!(
                 "the slope above the break is {slope}, not -1 ({}): the thermometer or the \
                  response units may be off, the system may be driven, or the curve bends \
@@ -107,10 +104,7 @@ fn break_finding(f: &Finding) -> String {
             p,
             resamples,
         } => {
-            let slope = match (low, high) {
-                (Some(lo), Some(hi)) => with_interval(*slope, *lo, *hi),
-                _ => num3(*slope),
-            };
+            let slope = value_and_interval(*slope, *low, *high);
             format!(
                 "the slope above the break is {slope}, not -1 ({}), but the points do not \
                  follow the model's shape (lack of fit): a curve that bends gradually tilts \
@@ -324,6 +318,14 @@ fn break_verdict(v: &Verdict) -> String {
             pr(p, resamples)
         ),
         _ => verdict(v),
+    }
+}
+
+/// A value with its interval when both ends are known, else the value alone.
+fn value_and_interval(v: f64, low: Option<f64>, high: Option<f64>) -> String {
+    match (low, high) {
+        (Some(lo), Some(hi)) => with_interval(v, lo, hi),
+        _ => num3(v),
     }
 }
 
