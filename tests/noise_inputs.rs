@@ -292,3 +292,71 @@ fn an_aging_spectrum_hot_at_low_frequencies_is_not_called_implausible() {
         r.cautions
     );
 }
+
+/// One spectrum of `n` bins with chi-square noise of `nu` degrees of freedom about
+/// T_eff(f) = `t_of(f)`, in the loss convention with χ'' = 10⁻³.
+fn noisy_spectrum(
+    seed: u64,
+    nu: f64,
+    t_of: &dyn Fn(f64) -> f64,
+) -> fdtemp::spectral::input::SpectrumGroup {
+    use rand_distr::{ChiSquared, Distribution};
+    let mut rng = fdtemp::resample::replicate_rng(seed, 0);
+    let chi = ChiSquared::new(nu).unwrap();
+    let freqs: Vec<f64> = (1..=400).map(|k| k as f64 * 5.0).collect();
+    let n = freqs.len();
+    let psd: Vec<f64> = freqs
+        .iter()
+        .map(|&f| {
+            let mean = 2.0 * K_B * t_of(f) * 1e-3 / (std::f64::consts::PI * f);
+            mean * chi.sample(&mut rng) / nu
+        })
+        .collect();
+    fdtemp::spectral::input::SpectrumGroup {
+        tw: None,
+        runs: vec!["1".into()],
+        psd: ndarray::Array2::from_shape_vec((1, n), psd).unwrap(),
+        loss: ndarray::Array2::from_elem((1, n), 1e-3),
+        dof: Some(ndarray::Array2::from_elem((1, n), nu)),
+        freqs,
+    }
+}
+
+/// The share of 200 noisy spectra (chi-square, ν = 20 per bin) on which the scale caution
+/// fires, for the truth `t_of` against a bath of 300 K.
+fn scale_caution_rate(t_of: &dyn Fn(f64) -> f64, seed0: u64) -> f64 {
+    let s = SpectrumSettings {
+        temperature: Some(300.0),
+        ..SpectrumSettings::default()
+    };
+    let fired = (0..200)
+        .filter(|i| {
+            let g = noisy_spectrum(seed0 + i, 20.0, t_of);
+            let r = analyze_spectra(&[g], &[], &s, None).unwrap();
+            r.cautions.iter().any(|c| {
+                matches!(
+                    c.finding,
+                    fdtemp::spectral::findings::SpectralFinding::ImplausibleScale { .. }
+                )
+            })
+        })
+        .count();
+    fired as f64 / 200.0
+}
+
+#[test]
+fn the_scale_caution_fires_where_it_is_true_and_not_elsewhere() {
+    // Measured rates over 200 spectra each (docs/validation.md).
+    let at_bath = scale_caution_rate(&|_| 300.0, 1000);
+    let hot_at_low_f = scale_caution_rate(&|f| 300.0 * (1.0 + (500.0 / f).powi(2)), 2000);
+    let ten_times = scale_caution_rate(&|_| 3000.0, 3000);
+    let gain_left_in = scale_caution_rate(&|_| 300.0 * 1e6, 4000);
+    println!(
+        "at bath {at_bath}, hot below 500 Hz {hot_at_low_f}, 10 T {ten_times}, gain 1e6 {gain_left_in}"
+    );
+    assert_eq!(at_bath, 0.0);
+    assert_eq!(hot_at_low_f, 0.0);
+    assert_eq!(gain_left_in, 1.0);
+    // A factor exactly 10: the intervals straddle the threshold; it fires in some only.
+    assert!(ten_times < 1.0, "{ten_times}");
+}
