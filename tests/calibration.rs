@@ -655,6 +655,7 @@ fn model_name(m: Model) -> &'static str {
         Model::Broken => "broken",
         Model::Free => "free",
         Model::Line => "line",
+        Model::Smooth => "smooth",
     }
 }
 

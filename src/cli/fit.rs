@@ -9,7 +9,7 @@ use fdtemp::report::plot::{self, Figure};
 use fdtemp::resample::IntervalMethod;
 use fdtemp::twotime::design::{DesignSettings, Noise, calibrated_fit};
 use fdtemp::twotime::points::Axes;
-use fdtemp::twotime::settings::{FitSettings, Hold, Model, Weighting};
+use fdtemp::twotime::settings::{Constraint, FitSettings, Hold, Model, Weighting};
 use std::path::PathBuf;
 
 /// The options that shape a time-domain fit (shared by `fit` and `design-check`).
@@ -26,9 +26,14 @@ pub struct FitOptions {
     /// Parametric axes: auto (normalized when corr_eq is present), plain or normalized.
     #[arg(long, value_enum, default_value_t = Axes::Auto)]
     axes: Axes,
-    /// Model: broken (first slope fixed at -1), free (both slopes fitted), or line (one slope).
+    /// Model: broken (first slope fixed at -1), free (both slopes fitted), line (one slope),
+    /// or smooth (the broken stick and a smooth X(C) beside it, with the shape verdict).
     #[arg(long, value_enum, default_value_t = Model::Broken)]
     model: Model,
+    /// With --model smooth: monotone (X non-decreasing in C and at most 1, the aging shape)
+    /// or none (X free to fall and to exceed 1; reported, never clamped).
+    #[arg(long, value_enum, value_name = "RULE")]
+    smooth_shape: Option<Constraint>,
     /// Point weights.
     #[arg(long, value_enum, default_value_t = Weighting::InverseVariance)]
     weights: Weighting,
@@ -73,6 +78,10 @@ impl FitOptions {
             min_branch: self.min_branch,
             hold: self.hold,
             range: self.range,
+            smooth: match (self.model, self.smooth_shape) {
+                (Model::Smooth, None) => Some(Constraint::Monotone),
+                (_, given) => given,
+            },
         }
     }
 
@@ -129,6 +138,12 @@ pub struct FitArgs {
     /// Write the parametric points with their errors as CSV to this file.
     #[arg(long, value_name = "FILE")]
     points: Option<PathBuf>,
+    /// With --model smooth: write every fit's X(C) and T_eff(C) with their bands as CSV.
+    #[arg(long, value_name = "FILE")]
+    x_of_c: Option<PathBuf>,
+    /// With --model smooth: draw X(C) with its band into this file (.svg, .png or .pdf).
+    #[arg(long, value_name = "FILE")]
+    plot_x_of_c: Option<PathBuf>,
     /// Replace output files that exist already.
     #[arg(long)]
     overwrite: bool,
@@ -154,6 +169,21 @@ pub fn run(a: FitArgs) -> fdtemp::Result<()> {
     if let Some(d) = &design {
         d.validate()?;
     }
+    for (given, name) in [
+        (a.x_of_c.is_some(), "--x-of-c"),
+        (a.plot_x_of_c.is_some(), "--plot-x-of-c"),
+    ] {
+        if given && settings.model != Model::Smooth {
+            return Err(fdtemp::Error::Setting(format!(
+                "{name} shows the smooth X(C): it needs --model smooth"
+            )));
+        }
+    }
+    let x_of_c_figure = a
+        .plot_x_of_c
+        .as_ref()
+        .map(|p| Figure::for_path(p, a.plot.plot_size).map(|f| (p.clone(), f)))
+        .transpose()?;
     let figure = a.plot.figure()?;
     let resample_figure = a
         .plot_resamples
@@ -172,6 +202,8 @@ pub fn run(a: FitArgs) -> fdtemp::Result<()> {
             &a.plot.plot,
             &a.plot_resamples,
             &a.plot_panels,
+            &a.x_of_c,
+            &a.plot_x_of_c,
         ],
         &[a.opts.file.as_path()],
         a.overwrite,
@@ -187,6 +219,14 @@ pub fn run(a: FitArgs) -> fdtemp::Result<()> {
     let mut outputs = outputs(&report, a.json, a.points, figure, resample_figure)?;
     if let Some((path, fig)) = panels {
         let bytes = plot::fd_panels(&report, fig)?;
+        outputs.push(Output { path, bytes });
+    }
+    if let Some(path) = a.x_of_c {
+        let bytes = fdtemp::report::shape::curve_csv(&report);
+        outputs.push(Output { path, bytes });
+    }
+    if let Some((path, fig)) = x_of_c_figure {
+        let bytes = plot::x_of_c_plot(&report, fig)?;
         outputs.push(Output { path, bytes });
     }
     output::write_all(&outputs, a.overwrite)?;

@@ -121,8 +121,8 @@ fn break_finding(f: &Finding) -> String {
         } => format!(
             "lack of fit ({}, tested at {}): the points bend where the model is straight, \
              so its shape is not the data's (curvature, a gradual change of slope); one \
-             break and one X do not describe this curve — try --model free, or a \
-             continuous model of X(C)",
+             break and one X do not describe this curve — try --model free, or --model \
+             smooth for a continuous X(C)",
             p_clause(*p, *resamples),
             fmt_level(*level)
         ),

@@ -57,7 +57,9 @@ pub fn render(r: &FitReport) -> Vec<u8> {
     header(&mut o, r);
     fits_table(&mut o, r);
     calibrated_table(&mut o, r);
+    super::shape::section(&mut o, r);
     verdicts(&mut o, r);
+    super::shape::verdicts(&mut o, r);
     aging_line(&mut o, r);
     cautions(&mut o, r);
     let _ = writeln!(o);
@@ -271,6 +273,7 @@ fn cautions(o: &mut String, r: &FitReport) {
             |t| format!("{held} = {}", fmt_num(t)),
         );
         cautions.extend(f.cautions.iter().map(sentence));
+        cautions.extend(super::shape::cautions(f, &who));
         for (what, e) in [("break q", &f.brk), ("X", &f.ratio), ("T_eff", &f.t_eff)] {
             if let Some(n) = &e.note
                 && f.ratio.estimate.is_some()
@@ -335,8 +338,9 @@ pub fn methods(r: &FitReport) -> String {
          T_eff = T/X. Fits were made jointly over all curves and for each curve (fixed {held}) \
          separately{range}. Uncertainties are {lvl:.0}% {interval} from {b} bootstrap \
          resamples of whole samples, so that the correlations between the points of one \
-         sample are kept (seed {seed}). {test}{aging}{calibration}",
+         sample are kept (seed {seed}). {test}{aging}{shape}{calibration}",
         calibration = calibration_sentence(r),
+        shape = super::shape::methods(r),
         ver = r.tool.version,
         model = m.methods_phrase(),
         held = g.hold.name(),

@@ -313,6 +313,7 @@ fn empty_fit(g: &Group, s: &FitSettings, n: usize, profile: &[(f64, f64)]) -> Gr
         curve_replicates: Vec::new(),
         resampled: Default::default(),
         calibrated: None,
+        shape: None,
     }
 }
 
@@ -420,7 +421,7 @@ fn sign_finding(ratio: f64) -> Option<Finding> {
 }
 
 /// Maps X's interval to T_eff = T/X (monotone), with `None` ends where X's interval reaches 0.
-fn t_eff_estimate(temperature: f64, ratio: &Estimate) -> Estimate {
+pub(super) fn t_eff_estimate(temperature: f64, ratio: &Estimate) -> Estimate {
     let Some(x) = ratio.estimate else {
         return Estimate::none("X is undefined");
     };

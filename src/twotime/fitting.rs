@@ -3,6 +3,8 @@
 
 use super::lack_of_fit::{Bins, LofNull};
 use super::model::{Draw, FdModel, FitBuffers, GroupPoints, Values};
+use super::shape::Setup;
+use crate::fit::smooth::{Constraint, SmoothFit};
 
 /// Resampled curves kept for the figure's band (the first ones; quantiles of this many
 /// curves are steady to well under a line width).
@@ -141,8 +143,9 @@ pub fn lof_statistic(spec: Spec, sc: &mut Scratch, null: &LofNull) -> f64 {
     null.bins.statistic(&sc.r, &null.w, &mut sc.sums)
 }
 
-/// The full-data fit's lack-of-fit statistic of a group, and what its resamples need.
-pub fn lof_null(g: &Group, pts: Points<'_>, spec: Spec, est: &Values) -> (f64, LofNull) {
+/// A group's x, weights and `r̂ − f̂` (the full-data fit's residuals): subtracting them
+/// moves a resample onto the fitted model.
+fn residual_shift(g: &Group, pts: Points<'_>, spec: Spec, est: &Values) -> [Vec<f64>; 3] {
     let x: Vec<f64> = g.idx.iter().map(|&j| pts.x[j]).collect();
     let w: Vec<f64> = g.idx.iter().map(|&j| pts.w[j]).collect();
     let shift: Vec<f64> = g
@@ -150,6 +153,58 @@ pub fn lof_null(g: &Group, pts: Points<'_>, spec: Spec, est: &Values) -> (f64, L
         .iter()
         .map(|&j| spec.model.response(pts.x[j], pts.y[j]) - est.sol.eval(pts.x[j]))
         .collect();
+    [x, w, shift]
+}
+
+/// The full-data smooth fit of a group beside its broken stick: the setup its resamples
+/// share, the fit, and the shape statistic `SSE(one break) − SSE(smooth)`.
+pub fn shape_full(
+    g: &Group,
+    pts: Points<'_>,
+    spec: Spec,
+    est: &Values,
+    constraint: Constraint,
+) -> Option<(Setup, SmoothFit, f64)> {
+    let [x, w, shift] = residual_shift(g, pts, spec, est);
+    let z: Vec<f64> = g
+        .idx
+        .iter()
+        .map(|&j| spec.model.response(pts.x[j], pts.y[j]))
+        .collect();
+    let fitted: Vec<f64> = z.iter().zip(&shift).map(|(z, d)| z - d).collect();
+    let setup = Setup::new(&x, &z, &fitted, constraint)?;
+    let fit = setup.fit(&x, &z, &w)?;
+    let stat = est.sol.sse - fit.sse;
+    Some((setup, fit, stat))
+}
+
+/// X on the grid and where X leaves 1 for the resample whose points [`fit_group`] just left
+/// in `sc` (call before [`null_statistic`], which overwrites the responses).
+pub fn shape_record(sc: &Scratch, setup: &Setup, row: &mut [f64]) {
+    if let Some(f) = setup.fit(&sc.x, &sc.r, &sc.w) {
+        setup.record(&f, row);
+    }
+}
+
+/// The shape statistic of the resample whose points [`fit_group`] left in `sc`, after
+/// moving it onto the fitted broken stick: both models refitted with its own weights.
+pub fn shape_null(spec: Spec, sc: &mut Scratch, setup: &Setup) -> f64 {
+    sc.r.clear();
+    for ((x, y), d) in sc.x.iter().zip(&sc.y).zip(&setup.shift) {
+        sc.r.push(spec.model.response(*x, *y) - d);
+    }
+    let mut buf = std::mem::take(&mut sc.buf);
+    let sol = spec.model.solve(sc.points(), spec.min_branch, &mut buf);
+    sc.buf = buf;
+    match (sol, setup.fit(&sc.x, &sc.r, &sc.w)) {
+        (Some(b), Some(f)) => b.sse - f.sse,
+        _ => f64::NAN,
+    }
+}
+
+/// The full-data fit's lack-of-fit statistic of a group, and what its resamples need.
+pub fn lof_null(g: &Group, pts: Points<'_>, spec: Spec, est: &Values) -> (f64, LofNull) {
+    let [x, w, shift] = residual_shift(g, pts, spec, est);
     let bins = Bins::new(&x);
     let stat = bins.statistic(&shift, &w, &mut Vec::new());
     (stat, LofNull { shift, bins, w })

@@ -26,6 +26,7 @@ mod assess;
 mod fitting;
 mod lack_of_fit;
 mod resampling;
+pub mod shape;
 
 pub use crate::common::{Estimate, Progress, Silent, ToolInfo};
 pub use campaign::{Campaign, GridPoint};
@@ -34,14 +35,16 @@ pub use result::{
     AgingTrend, Calibrated, CalibratedInterval, Curve, FitReport, GroupFit, LeftOut, PointRecord,
     SCHEMA, SettingsRecord,
 };
+pub use result::{ShapeFit, ShapeTest, ShapeVerdict, XAtC};
 pub use settings::{FitSettings, Hold, Model, Weighting};
 
 pub(crate) use fitting::BYTES_PER_DRAW;
 pub(crate) use resampling::CHUNK;
 
 use crate::error::{Error, Result};
+use crate::fit::smooth::SmoothFit;
 use findings::{FEW_SAMPLES, SMALL_SAMPLES};
-use fitting::{Group, Points, Scratch, Spec, fit_group, lof_null, null_shift};
+use fitting::{Group, Points, Scratch, Spec, fit_group, lof_null, null_shift, shape_full};
 use model::{Draw, Values};
 use points::{Axes, Parametric};
 use resampling::Prepared;
@@ -136,12 +139,30 @@ fn fit_all(
         .iter()
         .map(|l| l.as_ref().map(|l| l.1.clone()))
         .collect();
+    // The smooth X(C) beside the broken stick, per group.
+    let shapes: Vec<Option<(shape::Setup, SmoothFit, f64)>> = groups
+        .iter()
+        .zip(&est)
+        .map(|(g, e)| {
+            let e = e.as_ref().filter(|_| settings.model == Model::Smooth)?;
+            shape_full(g, full, spec, e, settings.constraint())
+        })
+        .collect();
+    let setups: Vec<Option<shape::Setup>> = shapes
+        .iter()
+        .map(|s| s.as_ref().map(|s| s.0.clone()))
+        .collect();
     let jack = resampling::jackknife(prep, groups, &est, spec, &scratch);
-    let reps = resampling::bootstrap(
-        prep, groups, &shifts, &lof_nulls, spec, &scratch, settings, progress,
-    );
+    let nulls = resampling::Nulls {
+        equilibrium: &shifts,
+        lack_of_fit: &lof_nulls,
+        shape: &setups,
+    };
+    let resampling::Replicates { draws: reps, rows } =
+        resampling::bootstrap(prep, groups, &nulls, spec, &scratch, settings, progress);
     let n = prep.data.nrows();
     let lof_tests = lof_series(&lof, &reps, ng);
+    let curves = ng.saturating_sub(1).max(1);
     let fits = groups
         .iter()
         .enumerate()
@@ -155,9 +176,33 @@ fn fit_all(
                 jack: &jk,
                 profile: &profiles[gi],
                 lack_of_fit: lof_tests[gi].as_ref(),
-                curves: ng.saturating_sub(1).max(1),
+                curves,
             };
-            assess::assess(&input, spec, settings, n)
+            let mut fit = assess::assess(&input, spec, settings, n);
+            if let Some((setup, full, stat)) = &shapes[gi] {
+                let level = if g.held.is_none() {
+                    settings.test_level()
+                } else {
+                    settings.test_level() / curves as f64
+                };
+                let group_rows: Vec<f64> = rows
+                    .chunks_exact(shape::ROW)
+                    .skip(gi)
+                    .step_by(ng)
+                    .flatten()
+                    .copied()
+                    .collect();
+                let input = shape::ShapeInput {
+                    setup,
+                    full: *full,
+                    stat: *stat,
+                    rows: &group_rows,
+                    level,
+                    scale: g.scale,
+                };
+                fit.shape = Some(shape::assess(&input, &fit, settings));
+            }
+            fit
         })
         .collect();
     Ok((fits, reps))

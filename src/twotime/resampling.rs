@@ -5,11 +5,15 @@
 
 use super::campaign::Campaign;
 use super::findings::{Caution, Finding, Subject};
-use super::fitting::{Group, Points, Scratch, Spec, fit_group, lof_statistic, null_statistic};
+use super::fitting::{
+    Group, Points, Scratch, Spec, fit_group, lof_statistic, null_statistic, shape_null,
+    shape_record,
+};
 use super::lack_of_fit::LofNull;
 use super::model::{Draw, Values};
 use super::points::{Axes, Parametric, PointVariance, Transform, data_matrix};
 use super::settings::{FitSettings, Hold, Weighting};
+use super::shape::{self, Setup};
 use crate::common::Progress;
 use crate::error::{Error, Result};
 use crate::resample;
@@ -242,69 +246,121 @@ pub fn jackknife(
         .collect()
 }
 
-/// The cluster bootstrap: replicate `b`'s groups are `out[b·G .. (b+1)·G]`. One chunk of
-/// replicates is one product `W · D`; chunks are fixed, so results do not depend on threads.
-/// Each resample also gets its lack-of-fit statistic where `lofs` has the group's null.
-#[allow(clippy::too_many_arguments)]
+/// What moves each group's resamples onto a null model, per group: the equilibrium line
+/// (`r̂ − f̂₀`), the fitted model for the lack-of-fit test, and the broken stick for the
+/// shape test of the smooth X(C).
+pub struct Nulls<'a> {
+    /// `r̂ − f̂₀` per group (`None`: not fitted).
+    pub equilibrium: &'a [Option<Vec<f64>>],
+    /// The lack-of-fit null per group.
+    pub lack_of_fit: &'a [Option<LofNull>],
+    /// The smooth curve's setup per group (`--model smooth`).
+    pub shape: &'a [Option<Setup>],
+}
+
+/// What the bootstrap keeps: replicate `b`'s groups are `draws[b·G .. (b+1)·G]`, and with
+/// the smooth model their rows of [`shape::ROW`] values are `rows[(b·G + g)·ROW ..]`.
+pub struct Replicates {
+    /// The scalars of every resample and group.
+    pub draws: Vec<Option<Draw>>,
+    /// The smooth curve's values per resample and group (empty without the smooth model).
+    pub rows: Vec<f64>,
+}
+
+/// The cluster bootstrap. One chunk of replicates is one product `W · D`; chunks are
+/// fixed, so results do not depend on threads. Each resample also gets its null-moved
+/// statistics where `nulls` has the group's null.
 pub fn bootstrap(
     prep: &Prepared,
     groups: &[Group],
-    shifts: &[Option<Vec<f64>>],
-    lofs: &[Option<LofNull>],
+    nulls: &Nulls<'_>,
     spec: Spec,
     scratch: &[Scratch],
     settings: &FitSettings,
     progress: &dyn Progress,
-) -> Vec<Option<Draw>> {
+) -> Replicates {
     let (n, p, ng) = (prep.data.nrows(), prep.tf.points, groups.len());
     let b_total = settings.resamples;
-    let mut out: Vec<Option<Draw>> = vec![None; b_total * ng];
+    let mut draws: Vec<Option<Draw>> = vec![None; b_total * ng];
+    let row = if nulls.shape.iter().any(Option::is_some) {
+        shape::ROW
+    } else {
+        0
+    };
+    let mut rows = vec![f64::NAN; b_total * ng * row];
+    // A chunk of rows per chunk of draws (a dummy one each when there are no rows).
+    let mut dummy = vec![f64::NAN; draws.len().div_ceil(CHUNK * ng)];
+    let row_chunks: Vec<&mut [f64]> = if row > 0 {
+        rows.chunks_mut(CHUNK * ng * row).collect()
+    } else {
+        dummy.chunks_mut(1).collect()
+    };
     progress.start(b_total as u64);
-    out.par_chunks_mut(CHUNK * ng).enumerate().for_each_init(
-        || {
-            let bufs = vec![vec![0.0; p]; 4];
-            (scratch.to_vec(), vec![0u32; n], bufs)
-        },
-        |(sc, counts, bufs), (c, slot)| {
-            let b0 = c * CHUNK;
-            let rows = slot.len() / ng;
-            let mut wm = Array2::<f64>::zeros((rows, n));
-            for row in 0..rows {
-                resample::draw_counts(settings.seed, (b0 + row) as u64, n, counts);
-                for (i, &cnt) in counts.iter().enumerate() {
-                    wm[[row, i]] = f64::from(cnt) / n as f64;
+    draws
+        .par_chunks_mut(CHUNK * ng)
+        .zip(row_chunks)
+        .enumerate()
+        .for_each_init(
+            || {
+                let bufs = vec![vec![0.0; p]; 4];
+                (scratch.to_vec(), vec![0u32; n], bufs)
+            },
+            |(sc, counts, bufs), (c, (slot, rows))| {
+                let b0 = c * CHUNK;
+                let reps_here = slot.len() / ng;
+                let mut wm = Array2::<f64>::zeros((reps_here, n));
+                for r in 0..reps_here {
+                    resample::draw_counts(settings.seed, (b0 + r) as u64, n, counts);
+                    for (i, &cnt) in counts.iter().enumerate() {
+                        wm[[r, i]] = f64::from(cnt) / n as f64;
+                    }
                 }
-            }
-            let means = wm.dot(&prep.data);
-            for (row, reps) in slot.chunks_mut(ng).enumerate() {
-                let [x, y, var, w] = &mut bufs[..] else {
-                    return;
-                };
-                prep.tf.apply(means.row(row), x, y);
-                prep.rule.weights(means.row(row), n, var, w);
-                let pts = Points { x, y, w };
-                for ((((g, s), shift), lof), rep) in groups
-                    .iter()
-                    .zip(sc.iter_mut())
-                    .zip(shifts)
-                    .zip(lofs)
-                    .zip(reps)
-                {
-                    *rep = shift.as_deref().and_then(|shift| {
-                        let v = fit_group(g, pts, spec, s, None)?;
-                        let mut d = v.draw(null_statistic(spec, s, shift));
-                        if let Some(lof) = lof {
-                            d.lof_stat = lof_statistic(spec, s, lof);
-                        }
-                        Some(d)
-                    });
+                let means = wm.dot(&prep.data);
+                for (r, reps) in slot.chunks_mut(ng).enumerate() {
+                    let [x, y, var, w] = &mut bufs[..] else {
+                        return;
+                    };
+                    prep.tf.apply(means.row(r), x, y);
+                    prep.rule.weights(means.row(r), n, var, w);
+                    let pts = Points { x, y, w };
+                    for (gi, (g, s)) in groups.iter().zip(sc.iter_mut()).enumerate() {
+                        let shape_row = (row > 0)
+                            .then(|| &mut rows[(r * ng + gi) * row..(r * ng + gi + 1) * row]);
+                        reps[gi] = replicate(g, pts, spec, s, nulls, gi, shape_row);
+                    }
                 }
-            }
-            progress.advance(rows as u64);
-        },
-    );
+                progress.advance(reps_here as u64);
+            },
+        );
     progress.finish();
-    out
+    Replicates { draws, rows }
+}
+
+/// One resample of one group: its fit and its null-moved statistics.
+fn replicate(
+    g: &Group,
+    pts: Points<'_>,
+    spec: Spec,
+    s: &mut Scratch,
+    nulls: &Nulls<'_>,
+    gi: usize,
+    shape_row: Option<&mut [f64]>,
+) -> Option<Draw> {
+    let shift = nulls.equilibrium[gi].as_deref()?;
+    let v = fit_group(g, pts, spec, s, None)?;
+    let setup = nulls.shape.get(gi).and_then(Option::as_ref);
+    let mut shape_row = shape_row;
+    if let (Some(setup), Some(row)) = (setup, shape_row.as_deref_mut()) {
+        shape_record(s, setup, row);
+    }
+    let mut d = v.draw(null_statistic(spec, s, shift));
+    if let Some(lof) = &nulls.lack_of_fit[gi] {
+        d.lof_stat = lof_statistic(spec, s, lof);
+    }
+    if let (Some(setup), Some(row)) = (setup, shape_row) {
+        row[shape::GRID + 1] = shape_null(spec, s, setup);
+    }
+    Some(d)
 }
 
 fn campaign_caution(finding: Finding) -> Caution {

@@ -7,7 +7,7 @@ use crate::common::{Estimate, ToolInfo};
 use serde::Serialize;
 
 /// The JSON schema version of [`FitReport`].
-pub const SCHEMA: u32 = 4;
+pub const SCHEMA: u32 = 5;
 
 /// The fitted two-segment curve in plot coordinates: `y = intercept + slope_above · x`
 /// for `x >= q`, and slope `slope_below` for `x < q` (continuous at `q`).
@@ -115,6 +115,115 @@ pub struct GroupFit {
     /// Intervals calibrated on simulated campaigns of this design (`fit --calibrate`).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub calibrated: Option<Calibrated>,
+    /// The smooth X(C) beside the broken stick (`--model smooth`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub shape: Option<ShapeFit>,
+}
+
+/// The smooth X(C) of one fit, with its bands, the shape test and the verdict.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct ShapeFit {
+    /// The constraint on X(C).
+    pub constraint: crate::fit::smooth::Constraint,
+    /// The knots of the ramps (in C).
+    pub knots: Vec<f64>,
+    /// X "leaves 1" where it falls to `1 − departure`.
+    pub departure: f64,
+    /// The largest C where X(C) ≤ 1 − departure (the end of the quasi-equilibrium regime),
+    /// with its percentile interval.
+    pub leaves_one: Estimate,
+    /// One break against the smooth curve.
+    pub test: ShapeTest,
+    /// Grid points below the break where the one-break X lies inside the X(C) band.
+    pub constant_inside: Option<usize>,
+    /// Grid points below the break that were checked.
+    pub constant_checked: Option<usize>,
+    /// The farthest end of the X(C) band from the one-break X among the checked points.
+    pub band_reach_below_break: Option<f64>,
+    /// One step is claimed only when that reach is at most this.
+    pub one_step_margin: f64,
+    /// `[C, X]` where X exceeds 1 by more than its band, at its largest (unconstrained
+    /// curve only).
+    pub x_above_one: Option<[f64; 2]>,
+    /// The verdict between shapes.
+    pub verdict: ShapeVerdict,
+    /// X(C) and T_eff(C) on the grid, with pointwise percentile bands.
+    pub x_of_c: Vec<XAtC>,
+}
+
+/// X and T_eff at one C of the grid.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct XAtC {
+    /// C (or C/C(t,t) on normalized axes).
+    pub c: f64,
+    /// The smooth curve's fitted y (k·T·chi, normalized like the axes) at this C.
+    pub y: f64,
+    /// X(C) with its pointwise band.
+    pub x: Estimate,
+    /// T_eff(C) = T/X(C) with its band.
+    pub t_eff: Estimate,
+}
+
+/// The test of one break against the smooth X(C).
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct ShapeTest {
+    /// `SSE(one break) − SSE(smooth)`.
+    pub statistic: f64,
+    /// Its p-value from resamples moved onto the broken stick.
+    pub p: f64,
+    /// Resamples that calibrated it.
+    pub resamples: usize,
+    /// The level it is read at (α, or α/K per curve for K curves).
+    pub level: f64,
+}
+
+/// Which shape the data show, at this precision.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+#[serde(tag = "kind", rename_all = "snake_case")]
+pub enum ShapeVerdict {
+    /// The equilibrium test does not reject: X = 1 at this precision.
+    Equilibrium {
+        /// The equilibrium p-value.
+        p_equilibrium: f64,
+        /// Its level.
+        alpha: f64,
+    },
+    /// One break describes the data: X constant below q (two temperatures).
+    OneStep {
+        /// The shape test's p-value.
+        p: f64,
+        /// Its level.
+        level: f64,
+        /// The one-break X with its interval.
+        x: Option<[f64; 3]>,
+        /// The break.
+        q: f64,
+        /// The farthest end of the X(C) band below the break from X: variations smaller
+        /// than this are not excluded.
+        band_reach: f64,
+    },
+    /// The smooth curve fits better than one break: X changes continuously with C.
+    Continuous {
+        /// The shape test's p-value.
+        p: f64,
+        /// Its level.
+        level: f64,
+        /// X at the smallest fitted C, with its band.
+        x_lowest_c: Option<[f64; 3]>,
+        /// The smallest fitted C.
+        lowest_c: f64,
+        /// Where X leaves 1, with its interval.
+        leaves_one: Option<[f64; 3]>,
+    },
+    /// Neither shape is established at this precision.
+    Undecided {
+        /// The shape test's p-value.
+        p: f64,
+        /// Its level.
+        level: f64,
+        /// Why one step is not claimed.
+        reason: String,
+    },
 }
 
 /// One quantity's estimate with its resamples and leave-one-out values: what forms its

@@ -3,6 +3,7 @@
 use super::points::Axes;
 use crate::common::{Units, check_level, check_resamples};
 use crate::error::{Error, Result};
+pub use crate::fit::smooth::Constraint;
 use crate::resample::IntervalMethod;
 
 /// Which broken-stick model is fitted.
@@ -16,6 +17,10 @@ pub enum Model {
     Free,
     /// One straight line of free slope −X through all points (no break); null: slope −1.
     Line,
+    /// The broken stick, and beside it a smooth X(C) (monotone ramps, X = 1 at the largest
+    /// C) with pointwise bands, where X leaves 1, and a test of one break against the
+    /// smooth curve; null: slope −1.
+    Smooth,
 }
 
 /// Which time is held fixed along one curve of the parametric plot.
@@ -75,6 +80,9 @@ pub struct FitSettings {
     pub hold: Hold,
     /// Only points with x in `[lo, hi]` are fitted (all when `None`).
     pub range: Option<[f64; 2]>,
+    /// The smooth model's constraint on X(C) (`Some` exactly when the model is smooth).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub smooth: Option<Constraint>,
 }
 
 impl Default for FitSettings {
@@ -92,6 +100,7 @@ impl Default for FitSettings {
             min_branch: 5,
             hold: Hold::Tw,
             range: None,
+            smooth: None,
         }
     }
 }
@@ -102,6 +111,11 @@ impl FitSettings {
     /// level exactly `α` when `α (B + 1)` is a whole number (B = 999, 1999, …).
     pub fn test_level(&self) -> f64 {
         ((1.0 - self.level) * 1e12).round() / 1e12
+    }
+
+    /// The smooth model's constraint (monotone unless given).
+    pub fn constraint(&self) -> Constraint {
+        self.smooth.unwrap_or(Constraint::Monotone)
     }
 
     /// Checks every field's range.
@@ -123,6 +137,11 @@ impl FitSettings {
             return Err(Error::Setting(format!(
                 "--range is {lo}:{hi}, expected CMIN:CMAX with CMIN < CMAX"
             )));
+        }
+        if self.smooth.is_some() && self.model != Model::Smooth {
+            return Err(Error::Setting(
+                "--smooth-shape applies only with --model smooth".into(),
+            ));
         }
         if self.min_branch < 2 {
             return Err(Error::Setting(format!(

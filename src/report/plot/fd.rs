@@ -127,6 +127,7 @@ pub(super) fn draw_fd<DB: DrawingBackend>(
     let band = fd_band(&mut chart, joint, r.settings.given.level, &rg, &sc)?;
     fd_points(&mut chart, r, &sc)?;
     fd_fit(&mut chart, joint, curve, &rg, &sc)?;
+    fd_smooth(&mut chart, joint, &sc)?;
     match (corner, below) {
         (Some(c), _) => legend_at(&mut chart, &sc, c)?,
         (None, Some(b)) => legend_below(&b, &legend_entries(r, band), &sc)?,
@@ -177,6 +178,9 @@ fn legend_entries(r: &FitReport, band: Option<bool>) -> [Vec<(Mark, String)>; 2]
     }
     right.push((Mark::Line(INK, 1), fit_label(joint)));
     right.push((Mark::Nothing, teff_label(joint)));
+    if joint.shape.is_some() {
+        right.push((Mark::Dashed(SMOOTH, 2), SMOOTH_LABEL.into()));
+    }
     [left, right]
 }
 
@@ -541,5 +545,33 @@ pub(super) fn fd_fit<'a, DB: DrawingBackend + 'a>(
         .map_err(&e)?
         .label(teff_label(joint))
         .legend(|(x, y)| EmptyElement::at((x, y)));
+    Ok(())
+}
+
+/// The smooth curve's colour and legend entry.
+const SMOOTH: RGBColor = PALETTE[3];
+const SMOOTH_LABEL: &str = "smooth X(C) fit";
+
+/// The smooth X(C) fit's curve (`--model smooth`), dashed over the broken stick.
+pub(super) fn fd_smooth<'a, DB: DrawingBackend + 'a>(
+    chart: &mut Chart<'a, DB>,
+    joint: &GroupFit,
+    sc: &Scale,
+) -> Result<()> {
+    let Some(shape) = &joint.shape else {
+        return Ok(());
+    };
+    let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(FD);
+    let style = SMOOTH.stroke_width(2 * sc.line);
+    chart
+        .draw_series(DashedLineSeries::new(
+            shape.x_of_c.iter().map(|p| (p.c, p.y)),
+            (4.0 * sc.px) as u32,
+            (3.0 * sc.px) as u32,
+            style,
+        ))
+        .map_err(&e)?
+        .label(SMOOTH_LABEL)
+        .legend(stroke(style, sc.sample));
     Ok(())
 }

@@ -26,12 +26,14 @@ mod fd;
 mod hist;
 mod panels;
 mod teff;
+mod xofc;
 
 use axes::{log_tick, tick};
 pub use fd::fd_plot;
 pub use hist::ratio_histogram;
 pub use panels::{fd_panels, panels_figure};
 pub use teff::teff_plot;
+pub use xofc::x_of_c_plot;
 
 static FONT: &[u8] = include_bytes!("../../../assets/fonts/DejaVuSans.ttf");
 static REGISTER: Once = Once::new();

@@ -9,6 +9,7 @@
 mod broken;
 mod free;
 mod line;
+mod smooth;
 
 use super::result::Curve;
 use super::settings::Model;
@@ -20,6 +21,7 @@ pub fn of(kind: Model) -> &'static dyn FdModel {
         Model::Broken => &broken::FixedSlope,
         Model::Free => &free::FreeSlopes,
         Model::Line => &line::SingleLine,
+        Model::Smooth => &smooth::BrokenBesideSmooth,
     }
 }
 

@@ -1,0 +1,169 @@
+//! (ignored) The smooth X(C) and the shape verdict over many independent synthetic
+//! campaigns (invented data, known truth; `fdtemp::scenarios::synth` with the design of
+//! the calibration studies: 3 waiting times × 20 points, noise growing as C decays, C–χ
+//! noise correlation −0.4, AR(1) correlation 0.8 along t). Truths: one step (X = 0.3 below
+//! q = 0.6) and two continuous shapes (X(C) = 0.3 + 0.7 (C/q)^p below q = 0.6, p = 1 and
+//! p = 2), at the standard design (20 samples, noise 0.03) and a precise one (48 samples,
+//! noise 0.01). Prints one Markdown row per case: the joint fit's verdict rates, the rate of
+//! a per-curve "continuous" verdict, the pointwise coverage of the joint X(C) band over the
+//! grid (and the share of campaigns whose band covers ≥ 90% of the grid), and the coverage
+//! of the interval of where X leaves 1 (continuous truths). Rates ± binomial SD
+//! sqrt(p(1 − p)/N); the grid coverage's SD counts campaigns, not grid points.
+//!
+//! ```sh
+//! RAYON_NUM_THREADS=2 cargo test --release --test shape_study -- --ignored --nocapture
+//! FDTEMP_SHAPE_CAMPAIGNS=400 FDTEMP_SHAPE_B=999 RAYON_NUM_THREADS=2 \
+//!   cargo test --release --test shape_study -- --ignored --nocapture
+//! ```
+
+use fdtemp::FitSettings;
+use fdtemp::scenarios::synth::{Shape, SynthSpec, generate};
+use fdtemp::twotime::points::Axes;
+use fdtemp::twotime::settings::{Constraint, Model};
+use fdtemp::twotime::{ShapeVerdict, Silent, analyze};
+
+fn env(name: &str, default: usize) -> usize {
+    std::env::var(name)
+        .ok()
+        .and_then(|v| v.parse().ok())
+        .unwrap_or(default)
+}
+
+fn design(samples: usize, noise: f64, shape: Shape) -> SynthSpec {
+    SynthSpec {
+        ratio: 0.3,
+        noise,
+        shape,
+        ..SynthSpec::study(samples)
+    }
+}
+
+#[derive(Default)]
+struct Tally {
+    campaigns: usize,
+    equilibrium: usize,
+    one_step: usize,
+    continuous: usize,
+    undecided: usize,
+    curve_continuous: usize,
+    grid_points: usize,
+    grid_covered: usize,
+    most_covered: usize,
+    star_tried: usize,
+    star_covered: usize,
+}
+
+/// Where the true X(C) falls to 1 − δ (bisection on the monotone truth; q for one step).
+fn true_leaves_one(spec: &SynthSpec, delta: f64) -> f64 {
+    let (mut lo, mut hi) = (0.0, spec.plateau);
+    for _ in 0..100 {
+        let mid = 0.5 * (lo + hi);
+        if spec.local_ratio(100.0, mid) <= 1.0 - delta {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+    }
+    0.5 * (lo + hi)
+}
+
+fn run(spec: &SynthSpec, campaigns: usize, b: usize) -> Tally {
+    let mut t = Tally {
+        campaigns,
+        ..Tally::default()
+    };
+    let star = true_leaves_one(spec, 0.05);
+    for k in 0..campaigns {
+        let spec = SynthSpec {
+            seed: 700_000 + k as u64,
+            ..spec.clone()
+        };
+        let c = generate(&spec).unwrap();
+        let s = FitSettings {
+            temperature: spec.temperature,
+            resamples: b,
+            seed: 11 + k as u64,
+            model: Model::Smooth,
+            smooth: Some(Constraint::Monotone),
+            axes: Axes::Plain,
+            ..FitSettings::default()
+        };
+        let rep = analyze(&c, &s, None, &Silent).unwrap();
+        let joint = rep.fits[0]
+            .shape
+            .as_ref()
+            .expect("the smooth model was fitted");
+        match joint.verdict {
+            ShapeVerdict::Equilibrium { .. } => t.equilibrium += 1,
+            ShapeVerdict::OneStep { .. } => t.one_step += 1,
+            ShapeVerdict::Continuous { .. } => t.continuous += 1,
+            ShapeVerdict::Undecided { .. } => t.undecided += 1,
+        }
+        t.curve_continuous += usize::from(rep.fits[1..].iter().any(|f| {
+            f.shape
+                .as_ref()
+                .is_some_and(|s| matches!(s.verdict, ShapeVerdict::Continuous { .. }))
+        }));
+        let (mut pts, mut cov) = (0, 0);
+        for p in &joint.x_of_c {
+            if let (Some(lo), Some(hi)) = (p.x.low, p.x.high) {
+                let truth = spec.local_ratio(100.0, p.c);
+                pts += 1;
+                cov += usize::from(lo - 1e-12 <= truth && truth <= hi + 1e-12);
+            }
+        }
+        t.grid_points += pts;
+        t.grid_covered += cov;
+        t.most_covered += usize::from(cov * 10 >= pts * 9);
+        if let (Some(lo), Some(hi)) = (joint.leaves_one.low, joint.leaves_one.high) {
+            t.star_tried += 1;
+            t.star_covered += usize::from(lo <= star && star <= hi);
+        }
+    }
+    t
+}
+
+fn rate(k: usize, n: usize) -> String {
+    let p = k as f64 / n.max(1) as f64;
+    format!("{p:.3} ± {:.3}", (p * (1.0 - p) / n.max(1) as f64).sqrt())
+}
+
+#[test]
+#[ignore = "long: the shape verdict and X(C) band table (docs/validation.md)"]
+fn shape_verdicts_and_band_coverage() {
+    let campaigns = env("FDTEMP_SHAPE_CAMPAIGNS", 200);
+    let b = env("FDTEMP_SHAPE_B", 399);
+    println!(
+        "| truth | samples, noise | campaigns | one step | continuous | undecided | equilibrium | any curve continuous | X(C) band pointwise | band covers ≥ 90% of grid | C where X leaves 1 |"
+    );
+    println!("|---|---|---|---|---|---|---|---|---|---|---|");
+    let shapes = [
+        ("one step X = 0.3, q = 0.6", Shape::TwoLines),
+        ("X(C) = 0.3 + 0.7 C/q", Shape::Smooth { power: 1.0 }),
+        ("X(C) = 0.3 + 0.7 (C/q)²", Shape::Smooth { power: 2.0 }),
+    ];
+    for (label, shape) in shapes {
+        for (n, noise) in [(20, 0.03), (48, 0.01)] {
+            let spec = design(n, noise, shape);
+            let t = run(&spec, campaigns, b);
+            let grid_sd = {
+                // Campaign-level SD of the per-campaign covered share.
+                let p = t.grid_covered as f64 / t.grid_points.max(1) as f64;
+                (p * (1.0 - p) / t.campaigns as f64).sqrt()
+            };
+            println!(
+                "| {label} | {n}, {noise} | {} | {} | {} | {} | {} | {} | {:.3} (≥ ± {grid_sd:.3}) | {} | {} of {} |",
+                t.campaigns,
+                rate(t.one_step, t.campaigns),
+                rate(t.continuous, t.campaigns),
+                rate(t.undecided, t.campaigns),
+                rate(t.equilibrium, t.campaigns),
+                rate(t.curve_continuous, t.campaigns),
+                t.grid_covered as f64 / t.grid_points.max(1) as f64,
+                rate(t.most_covered, t.campaigns),
+                rate(t.star_covered, t.star_tried),
+                t.star_tried,
+            );
+        }
+    }
+}
