@@ -56,7 +56,29 @@ fn cases() -> Vec<Case> {
         ratio_per_decade: 0.1,
         ..two_lines.clone()
     };
+    let curved = SynthSpec {
+        samples: 48,
+        noise: 0.01,
+        ratio: 0.3,
+        shape: fdtemp::scenarios::synth::Shape::Smooth { power: 1.0 },
+        ..two_lines.clone()
+    };
     vec![
+        Case {
+            name: "smooth_curved",
+            campaign: Source::Spec(curved),
+            args: &["-T", "0.6", "--model", "smooth"],
+        },
+        Case {
+            name: "smooth_one_step",
+            campaign: Source::Spec(SynthSpec {
+                samples: 48,
+                noise: 0.01,
+                ratio: 0.3,
+                ..two_lines.clone()
+            }),
+            args: &["-T", "0.6", "--model", "smooth"],
+        },
         Case {
             name: "broken",
             campaign: Source::Spec(two_lines.clone()),

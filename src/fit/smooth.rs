@@ -21,10 +21,10 @@
 #![allow(clippy::needless_range_loop)]
 
 /// Most pieces (knot intervals) a fit uses.
-pub const MAX_PIECES: usize = 12;
+pub const MAX_PIECES: usize = 16;
 
 /// Distinct C values per piece in the knot rule.
-pub const VALUES_PER_PIECE: usize = 5;
+pub const VALUES_PER_PIECE: usize = 4;
 
 /// The first ramp in the basis: ramp 0 (over the first piece) is left out, so X is
 /// constant on `[t_0, t_1]` and y straight there, as at a natural spline's end: the slope
@@ -41,7 +41,7 @@ pub struct Knots {
 }
 
 impl Knots {
-    /// The stated rule: K = ⌊m / 5⌋ pieces for m distinct C values, between 3 and
+    /// The stated rule: K = ⌊m / 4⌋ pieces for m distinct C values, between 3 and
     /// [`MAX_PIECES`] (and at most m − 1), with knots at the equal-count quantiles of the distinct values (the
     /// first and last at the smallest and largest C). `None` with fewer than 3 distinct values.
     pub fn from_data(x: &[f64]) -> Option<Knots> {
@@ -380,14 +380,18 @@ mod tests {
     fn knots_follow_the_stated_rule() {
         let x = grid(40, 0.1, 0.9);
         let k = Knots::from_data(&x).unwrap();
-        assert_eq!(k.pieces, 8);
+        assert_eq!(k.pieces, 10);
         assert_eq!(k.values()[0].to_bits(), 0.1f64.to_bits());
-        assert_eq!(k.values()[8].to_bits(), 0.9f64.to_bits());
+        assert_eq!(k.values()[10].to_bits(), 0.9f64.to_bits());
         assert!(k.values().windows(2).all(|w| w[1] > w[0]));
         assert_eq!(Knots::from_data(&[0.1, 0.2, 0.2]), None);
-        assert_eq!(Knots::from_data(&grid(1000, 0.0, 1.0)).unwrap().pieces, 12);
+        assert_eq!(
+            Knots::from_data(&grid(1000, 0.0, 1.0)).unwrap().pieces,
+            MAX_PIECES
+        );
         assert_eq!(Knots::from_data(&grid(3, 0.0, 1.0)).unwrap().pieces, 2);
-        assert_eq!(Knots::from_data(&grid(20, 0.0, 1.0)).unwrap().pieces, 4);
+        assert_eq!(Knots::from_data(&grid(20, 0.0, 1.0)).unwrap().pieces, 5);
+        assert_eq!(Knots::from_data(&grid(8, 0.0, 1.0)).unwrap().pieces, 3);
     }
 
     #[test]

@@ -295,7 +295,7 @@ fn break_verdict(v: &Verdict) -> String {
         } => format!(
             "curved: the points do not follow the model's straight segments (lack of fit, {}, \
              tested at {}); the slope changes gradually rather than at one break, so no \
-             single q and X describe this curve — try --model free or a continuous model",
+             single q and X describe this curve — try --model free, or --model smooth for a continuous X(C)",
             pr(p, resamples),
             fmt_level(*alpha)
         ),

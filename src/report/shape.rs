@@ -20,9 +20,9 @@ pub fn section(o: &mut String, r: &FitReport) {
     let _ = writeln!(o);
     let _ = writeln!(
         o,
-        "smooth X(C): {}; {} pointwise percentile bands",
+        "smooth X(C): {}; {:.0}% pointwise percentile bands",
         constraint_words(joint.constraint),
-        percent(r.settings.given.level)
+        100.0 * r.settings.given.level
     );
     let mut rows: Vec<[String; 5]> = vec![[
         held.into(),
@@ -43,6 +43,16 @@ pub fn section(o: &mut String, r: &FitReport) {
         ]);
     }
     o.push_str(&table(&rows));
+    if r.fits
+        .iter()
+        .any(|f| f.shape.as_ref().is_some_and(|s| s.leaves_one.low.is_none()))
+    {
+        let _ = writeln!(
+            o,
+            "(where X leaves 1 has an interval only for a continuous shape: with a step the \
+             smooth curve leaves 1 up to one knot piece above the break, so quote q instead)"
+        );
+    }
     let _ = writeln!(
         o,
         "(the per-curve shape tests are read at {} each: one family over the curves)",

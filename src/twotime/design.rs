@@ -632,7 +632,7 @@ fn test_rows(
         // The thermometer's null (slope −1 above the break) holds on the fitted curve of
         // the fixed-slope model only.
         if truth.kind == TruthKind::Fitted
-            && fit.model == Model::Broken
+            && matches!(fit.model, Model::Broken | Model::Smooth)
             && let Some(rejected) =
                 count(&|o| o.fits.get(gi).and_then(|f| f.p_slope).map(|p| p <= alpha))
         {

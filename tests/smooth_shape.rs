@@ -1,0 +1,230 @@
+//! The smooth X(C) (`fit --model smooth`) end to end: a user's file, its outputs and
+//! messages, and known-truth synthetic campaigns (invented data; the long rates are in
+//! `tests/shape_study.rs` and docs/validation.md).
+
+use assert_cmd::Command;
+use fdtemp::scenarios::synth::{Shape, SynthSpec, generate};
+use fdtemp::twotime::points::Axes;
+use fdtemp::twotime::settings::{Constraint, Model};
+use fdtemp::twotime::{FitSettings, ShapeVerdict, Silent, analyze};
+use predicates::prelude::*;
+use std::path::{Path, PathBuf};
+
+fn fdtemp() -> Command {
+    Command::cargo_bin("fdtemp").unwrap()
+}
+
+/// The precise design of the shape study: 48 samples, noise 0.01, X∞ = 0.3 below q = 0.6.
+fn precise(shape: Shape) -> SynthSpec {
+    SynthSpec {
+        ratio: 0.3,
+        noise: 0.01,
+        shape,
+        seed: 4242,
+        ..SynthSpec::study(48)
+    }
+}
+
+fn write(dir: &Path, spec: &SynthSpec) -> PathBuf {
+    let c = generate(spec).unwrap();
+    let path = dir.join("bent curve.csv");
+    std::fs::write(&path, fdtemp::input::write_campaign(&c)).unwrap();
+    path
+}
+
+fn settings(spec: &SynthSpec, constraint: Constraint) -> FitSettings {
+    FitSettings {
+        temperature: spec.temperature,
+        model: Model::Smooth,
+        smooth: Some(constraint),
+        resamples: 999,
+        axes: Axes::Plain,
+        ..FitSettings::default()
+    }
+}
+
+#[test]
+fn a_user_file_gives_the_curve_its_csv_figure_and_json() {
+    let dir = tempfile::tempdir().unwrap();
+    let file = write(dir.path(), &precise(Shape::Smooth { power: 1.0 }));
+    let (csv, svg, json) = (
+        dir.path().join("xc.csv"),
+        dir.path().join("xc.svg"),
+        dir.path().join("fit.json"),
+    );
+    fdtemp()
+        .arg("fit")
+        .arg(&file)
+        .args(["-T", "0.6", "--model", "smooth", "-B", "400"])
+        .arg("--x-of-c")
+        .arg(&csv)
+        .arg("--plot-x-of-c")
+        .arg(&svg)
+        .arg("--json")
+        .arg(&json)
+        .assert()
+        .success()
+        .stdout(predicate::str::contains(
+            "smooth X(C): X non-decreasing in C and at most 1, 1 at the largest C; 95% \
+             pointwise percentile bands",
+        ))
+        .stdout(predicate::str::contains(
+            "shape      continuous X(C): the smooth curve fits better than one break (p ≤ 0.002",
+        ))
+        .stdout(predicate::str::contains("Lawson–Hanson"));
+    let text = std::fs::read_to_string(&csv).unwrap();
+    let mut lines = text.lines();
+    assert_eq!(
+        lines.next(),
+        Some("fit,tw,c,x,x_low,x_high,t_eff,t_eff_low,t_eff_high")
+    );
+    // 41 grid points for the joint fit and for each of the 3 curves.
+    assert_eq!(lines.count(), 4 * 41);
+    assert!(std::fs::read_to_string(&svg).unwrap().contains("<svg"));
+    let v: serde_json::Value = serde_json::from_slice(&std::fs::read(&json).unwrap()).unwrap();
+    let shape = &v["fits"][0]["shape"];
+    assert_eq!(shape["x_of_c"].as_array().unwrap().len(), 41);
+    assert_eq!(shape["verdict"]["kind"], "continuous");
+    assert!(shape["x_of_c"][0]["x"]["low"].is_number());
+}
+
+#[test]
+fn the_smooth_options_need_the_smooth_model_and_write_nothing_without_it() {
+    let dir = tempfile::tempdir().unwrap();
+    let file = write(dir.path(), &precise(Shape::TwoLines));
+    let csv = dir.path().join("xc.csv");
+    fdtemp()
+        .arg("fit")
+        .arg(&file)
+        .args(["-T", "0.6", "--x-of-c"])
+        .arg(&csv)
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains(
+            "--x-of-c shows the smooth X(C): it needs --model smooth",
+        ));
+    assert!(!csv.exists());
+    fdtemp()
+        .arg("fit")
+        .arg(&file)
+        .args(["-T", "0.6", "--smooth-shape", "none"])
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains(
+            "--smooth-shape applies only with --model smooth",
+        ));
+}
+
+/// Known truth X(C) = 0.3 + 0.7 C/q below q = 0.6 (invented): the joint band covers the
+/// true curve on at least 90% of the grid, the verdict is continuous and X leaves 1 near
+/// the true crossing of 0.95 (C = 0.557).
+#[test]
+fn a_continuous_truth_is_called_continuous_and_its_band_covers_the_curve() {
+    let spec = precise(Shape::Smooth { power: 1.0 });
+    let r = analyze(
+        &generate(&spec).unwrap(),
+        &settings(&spec, Constraint::Monotone),
+        None,
+        &Silent,
+    )
+    .unwrap();
+    let s = r.fits[0].shape.as_ref().unwrap();
+    assert!(matches!(s.verdict, ShapeVerdict::Continuous { .. }));
+    let covered = s
+        .x_of_c
+        .iter()
+        .filter(|p| {
+            let truth = spec.local_ratio(100.0, p.c);
+            p.x.low.unwrap() - 1e-12 <= truth && truth <= p.x.high.unwrap() + 1e-12
+        })
+        .count();
+    assert!(covered * 10 >= 9 * s.x_of_c.len(), "{covered} of 41");
+    let star = 0.6 * (0.65 / 0.7);
+    let (lo, hi) = (s.leaves_one.low.unwrap(), s.leaves_one.high.unwrap());
+    assert!(
+        lo - 0.02 < star && star < hi + 0.02,
+        "[{lo}, {hi}] against {star}"
+    );
+}
+
+/// Known truth: one step (X = 0.3 below q = 0.6, invented). Not called continuous, and
+/// the smooth curve's X below the break agrees with the one-break X.
+#[test]
+fn a_one_step_truth_is_not_called_continuous() {
+    let spec = precise(Shape::TwoLines);
+    let r = analyze(
+        &generate(&spec).unwrap(),
+        &settings(&spec, Constraint::Monotone),
+        None,
+        &Silent,
+    )
+    .unwrap();
+    let s = r.fits[0].shape.as_ref().unwrap();
+    assert!(!matches!(s.verdict, ShapeVerdict::Continuous { .. }));
+    assert!(s.test.p > 0.05);
+    let mid = s.x_of_c.iter().find(|p| p.c > 0.3).unwrap();
+    assert!((mid.x.estimate.unwrap() - 0.3).abs() < 0.03);
+    // Without a continuous shape, where X leaves 1 is not given an interval.
+    assert!(s.leaves_one.low.is_none() && s.leaves_one.note.is_some());
+}
+
+/// X above 1 below the break (a response stronger than equilibrium, invented truth
+/// X = 1.4): the monotone curve cannot show it, the unconstrained one reports it.
+#[test]
+fn the_unconstrained_curve_reports_x_above_one_and_the_monotone_one_stays_at_most_one() {
+    let spec = SynthSpec {
+        ratio: 1.4,
+        ..precise(Shape::TwoLines)
+    };
+    let c = generate(&spec).unwrap();
+    let free = analyze(&c, &settings(&spec, Constraint::None), None, &Silent).unwrap();
+    let s = free.fits[0].shape.as_ref().unwrap();
+    let [_, x] = s.x_above_one.expect("X above 1 is reported");
+    assert!(x > 1.2, "{x}");
+    let text = String::from_utf8(fdtemp::report::text::render(&free)).unwrap();
+    assert!(text.contains("X(C) exceeds 1 beyond its band"));
+    let mono = analyze(&c, &settings(&spec, Constraint::Monotone), None, &Silent).unwrap();
+    let s = mono.fits[0].shape.as_ref().unwrap();
+    assert!(
+        s.x_of_c
+            .iter()
+            .all(|p| p.x.estimate.unwrap() <= 1.0 + 1e-12)
+    );
+    assert!(s.x_above_one.is_none());
+}
+
+/// A small CI-sized check of the verdict's rates (the full table is in docs/validation.md):
+/// of 20 one-step campaigns at the standard design (20 samples, noise 0.03) at most 4 are
+/// called continuous (the test's level is 5%: P(more than 4 of 20) = 0.016 at that level),
+/// and none of 8 continuous campaigns at the standard design is called one step.
+#[test]
+fn the_verdict_calls_one_step_continuous_rarely_and_continuous_one_step_never() {
+    let standard = |shape, k: u64| SynthSpec {
+        ratio: 0.3,
+        shape,
+        seed: 9100 + k,
+        ..SynthSpec::study(20)
+    };
+    let verdict = |spec: &SynthSpec| {
+        let mut s = settings(spec, Constraint::Monotone);
+        s.resamples = 399;
+        let r = analyze(&generate(spec).unwrap(), &s, None, &Silent).unwrap();
+        r.fits[0].shape.as_ref().unwrap().verdict.clone()
+    };
+    let called_continuous = (0..20)
+        .filter(|&k| {
+            matches!(
+                verdict(&standard(Shape::TwoLines, k)),
+                ShapeVerdict::Continuous { .. }
+            )
+        })
+        .count();
+    assert!(called_continuous <= 4, "{called_continuous} of 20");
+    for k in 0..8 {
+        let v = verdict(&standard(Shape::Smooth { power: 1.0 }, 100 + k));
+        assert!(
+            !matches!(v, ShapeVerdict::OneStep { .. }),
+            "campaign {k}: {v:?}"
+        );
+    }
+}
