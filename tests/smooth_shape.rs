@@ -228,3 +228,87 @@ fn the_verdict_calls_one_step_continuous_rarely_and_continuous_one_step_never() 
         );
     }
 }
+
+/// Samples of an overlap distribution whose x(q) is known, at the quantiles (no noise):
+/// a fraction `at_zero` at q = 0, the rest uniform on [0, q_max] or all at q_max.
+fn overlap_samples(dir: &Path, name: &str, at_zero: f64, q_max: f64, uniform: bool) -> PathBuf {
+    let n = 4000;
+    let mut text = String::from("q\n");
+    for i in 0..n {
+        let u = (i as f64 + 0.5) / n as f64;
+        let q = if u < at_zero {
+            0.0
+        } else if uniform {
+            q_max * (u - at_zero) / (1.0 - at_zero)
+        } else {
+            q_max
+        };
+        // Zero-field overlaps come in ± pairs; the sign is folded away.
+        let q = if i % 2 == 0 { q } else { -q };
+        text.push_str(&format!("{q}\n"));
+    }
+    let path = dir.join(name);
+    std::fs::write(&path, text).unwrap();
+    path
+}
+
+/// The static–dynamic comparison: X(C) = 0.3 + 0.7 C/0.6 below 0.6 (invented truth) is the
+/// x(q) of P(q) = 0.3 δ(q) + 0.7 uniform on [0, 0.6] (x(q) = ∫₀^q P, Franz, Mézard, Parisi
+/// & Peliti, Phys. Rev. Lett. 81, 1758 (1998)); the matching P(q) is found inside the band
+/// with a mean difference whose interval holds 0, a one-step P(q) is not.
+#[test]
+fn a_matching_overlap_distribution_agrees_and_a_wrong_one_does_not() {
+    let dir = tempfile::tempdir().unwrap();
+    let file = write(dir.path(), &precise(Shape::Smooth { power: 1.0 }));
+    let matching = overlap_samples(dir.path(), "pq.csv", 0.3, 0.6, true);
+    let wrong = overlap_samples(dir.path(), "pq_step.csv", 0.3, 0.6, false);
+    let run = |pq: &Path, json: &str| -> serde_json::Value {
+        let out = dir.path().join(json);
+        fdtemp()
+            .arg("fit")
+            .arg(&file)
+            .args(["-T", "0.6", "--model", "smooth", "-B", "999", "--overlap"])
+            .arg(pq)
+            .arg("--json")
+            .arg(&out)
+            .assert()
+            .success()
+            .stdout(predicate::str::contains(
+                "static     x(q) from the overlap samples (negative q folded onto |q|)",
+            ));
+        serde_json::from_slice(&std::fs::read(&out).unwrap()).unwrap()
+    };
+    let good = run(&matching, "good.json");
+    let s = &good["fits"][0]["shape"]["static_comparison"];
+    let (lo, hi) = (
+        s["mean_difference"]["low"].as_f64().unwrap(),
+        s["mean_difference"]["high"].as_f64().unwrap(),
+    );
+    assert!(lo <= 0.0 && 0.0 <= hi, "[{lo}, {hi}]");
+    assert!(s["inside_band"].as_u64().unwrap() >= 37, "{s}");
+    let bad = run(&wrong, "bad.json");
+    let s = &bad["fits"][0]["shape"]["static_comparison"];
+    assert!(s["mean_difference"]["low"].as_f64().unwrap() > 0.05, "{s}");
+}
+
+#[test]
+fn a_bad_overlap_file_names_its_line_and_column_and_writes_nothing() {
+    let dir = tempfile::tempdir().unwrap();
+    let file = write(dir.path(), &precise(Shape::Smooth { power: 1.0 }));
+    let pq = dir.path().join("pq.csv");
+    std::fs::write(&pq, "q,p\n0.1,2\n0.2,oops\n").unwrap();
+    let json = dir.path().join("fit.json");
+    fdtemp()
+        .arg("fit")
+        .arg(&file)
+        .args(["-T", "0.6", "--model", "smooth", "--overlap"])
+        .arg(&pq)
+        .arg("--json")
+        .arg(&json)
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains(
+            "pq.csv:3:2: p is \"oops\", expected a finite number",
+        ));
+    assert!(!json.exists());
+}

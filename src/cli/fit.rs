@@ -141,6 +141,11 @@ pub struct FitArgs {
     /// With --model smooth: write every fit's X(C) and T_eff(C) with their bands as CSV.
     #[arg(long, value_name = "FILE")]
     x_of_c: Option<PathBuf>,
+    /// With --model smooth: compare X(C) with the static x(q) = ∫₀^q P(q') dq' of this
+    /// equilibrium overlap distribution (CSV: columns q, p for a histogram, or q alone for
+    /// samples; negative q folded onto |q|).
+    #[arg(long, value_name = "FILE")]
+    overlap: Option<PathBuf>,
     /// With --model smooth: draw X(C) with its band into this file (.svg, .png or .pdf).
     #[arg(long, value_name = "FILE")]
     plot_x_of_c: Option<PathBuf>,
@@ -205,9 +210,16 @@ pub fn run(a: FitArgs) -> fdtemp::Result<()> {
             &a.x_of_c,
             &a.plot_x_of_c,
         ],
-        &[a.opts.file.as_path()],
+        &std::iter::once(a.opts.file.as_path())
+            .chain(a.overlap.as_deref())
+            .collect::<Vec<_>>(),
         a.overwrite,
     )?;
+    let overlap = a
+        .overlap
+        .as_deref()
+        .map(fdtemp::twotime::overlap::read_overlap)
+        .transpose()?;
     let file = &a.opts.file;
     let campaign = a.opts.campaign()?;
     let input = Some(file.display().to_string());
@@ -216,6 +228,15 @@ pub fn run(a: FitArgs) -> fdtemp::Result<()> {
         Some(d) => calibrated_fit(&campaign, &settings, d, input, &Bar::labelled("simulating")),
     }
     .map_err(in_file(file))?;
+    let mut report = report;
+    if let Some(ov) = &overlap {
+        for f in &mut report.fits {
+            if let Some(shape) = f.shape.as_mut() {
+                shape.static_comparison =
+                    Some(fdtemp::twotime::overlap::compare(shape, ov, settings.level));
+            }
+        }
+    }
     let mut outputs = outputs(&report, a.json, a.points, figure, resample_figure)?;
     if let Some((path, fig)) = panels {
         let bytes = plot::fd_panels(&report, fig)?;

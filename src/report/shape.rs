@@ -74,11 +74,44 @@ pub fn section(o: &mut String, r: &FitReport) {
         },
         joint.x_of_c.len()
     );
-    let mut rows: Vec<[String; 3]> = vec![["C".into(), "X(C)".into(), "T_eff(C)".into()]];
-    for p in joint.x_of_c.iter().step_by(GRID_STEP) {
-        rows.push([sig(p.c, 3), est(&p.x), est(&p.t_eff)]);
+    let stat = joint.static_comparison.as_ref();
+    let mut rows: Vec<[String; 4]> = vec![[
+        "C".into(),
+        "X(C)".into(),
+        "T_eff(C)".into(),
+        if stat.is_some() {
+            "static x(q = C)".into()
+        } else {
+            String::new()
+        },
+    ]];
+    for (k, p) in joint.x_of_c.iter().enumerate().step_by(GRID_STEP) {
+        rows.push([
+            sig(p.c, 3),
+            est(&p.x),
+            est(&p.t_eff),
+            stat.map_or(String::new(), |s| sig(s.x_static[k], 3)),
+        ]);
     }
     o.push_str(&table(&rows));
+    if let Some(s) = stat {
+        let _ = writeln!(
+            o,
+            "static     x(q) from the overlap {}{}: mean of X(C) − x(C) over the grid {}; x(C) \
+             inside the X(C) band at {} of {} C values; largest difference {} at C = {}",
+            if s.histogram { "histogram" } else { "samples" },
+            if s.folded {
+                " (negative q folded onto |q|)"
+            } else {
+                ""
+            },
+            est(&s.mean_difference),
+            s.inside_band,
+            s.points,
+            sig(s.largest_difference[1], 3),
+            sig(s.largest_difference[0], 3),
+        );
+    }
 }
 
 /// One or two words for the table.

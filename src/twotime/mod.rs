@@ -25,6 +25,7 @@ mod aging;
 mod assess;
 mod fitting;
 mod lack_of_fit;
+pub mod overlap;
 mod resampling;
 pub mod shape;
 
@@ -35,7 +36,7 @@ pub use result::{
     AgingTrend, Calibrated, CalibratedInterval, Curve, FitReport, GroupFit, LeftOut, PointRecord,
     SCHEMA, SettingsRecord,
 };
-pub use result::{ShapeFit, ShapeTest, ShapeVerdict, XAtC};
+pub use result::{ShapeFit, ShapeTest, ShapeVerdict, StaticComparison, XAtC};
 pub use settings::{FitSettings, Hold, Model, Weighting};
 
 pub(crate) use fitting::BYTES_PER_DRAW;

@@ -149,6 +149,31 @@ pub struct ShapeFit {
     pub verdict: ShapeVerdict,
     /// X(C) and T_eff(C) on the grid, with pointwise percentile bands.
     pub x_of_c: Vec<XAtC>,
+    /// The comparison with a static x(q) (`--overlap`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub static_comparison: Option<StaticComparison>,
+    /// X on the grid per resample (`x_of_c.len()` values each; not written to JSON).
+    #[serde(skip)]
+    pub replicates: Vec<f64>,
+}
+
+/// The dynamic X(C) against the static x(q) at q = C.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct StaticComparison {
+    /// The mean of X(C) − x(C) over the grid, with its percentile interval.
+    pub mean_difference: Estimate,
+    /// `[C, X(C) − x(C)]` where the difference is largest in size.
+    pub largest_difference: [f64; 2],
+    /// Grid points where x(C) lies inside the X(C) band.
+    pub inside_band: usize,
+    /// Grid points compared.
+    pub points: usize,
+    /// Negative overlaps were folded onto |q|.
+    pub folded: bool,
+    /// P(q) was a histogram (else samples).
+    pub histogram: bool,
+    /// x(q) at each grid C.
+    pub x_static: Vec<f64>,
 }
 
 /// X and T_eff at one C of the grid.

@@ -176,6 +176,12 @@ pub fn assess(input: &ShapeInput<'_>, fit: &GroupFit, s: &FitSettings) -> ShapeF
         x_above_one: outside,
         verdict,
         x_of_c,
+        static_comparison: None,
+        replicates: input
+            .rows
+            .chunks_exact(ROW)
+            .flat_map(|r| r[..GRID].iter().copied())
+            .collect(),
     }
 }
 
