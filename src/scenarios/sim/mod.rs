@@ -24,6 +24,8 @@
 //! - `ou-equilibrium`: one Ornstein–Uhlenbeck mode in equilibrium: X = 1.
 //! - `resistor`: Johnson–Nyquist noise of a resistor, white with one-sided PSD 4kTR
 //!   (Nyquist, Phys. Rev. 32, 110 (1928)), for `noise`.
+//! - `two-baths-twins`: the two-bath system as raw twin runs (`sample, tw, t, h, corr, m`)
+//!   with a real force at two amplitudes and both signs, for `reduce` (`twins.rs`).
 //! - `two-lines`: the invented campaign of [`super::synth`] at benchmark size.
 //!
 //! One file per system: `ou.rs` (two-baths, ou-equilibrium), `brownian.rs`, `ising.rs`,
@@ -33,6 +35,7 @@ mod brownian;
 mod ising;
 mod ou;
 mod resistor;
+pub mod twins;
 mod two_lines;
 
 use crate::error::{Error, Result};
@@ -52,6 +55,8 @@ pub enum Scenario {
     OuEquilibrium,
     /// Johnson–Nyquist noise records of a resistor (for `noise`).
     Resistor,
+    /// Raw twin runs of the two-bath system (fields ±0.05, ±0.1 from tw) for `reduce`.
+    TwoBathsTwins,
     /// Invented two-line campaign with a built-in answer (not a simulation; for
     /// benchmarks): 12 waiting times × 100 times (3 × 40 with `--quick`).
     TwoLines,
@@ -97,6 +102,7 @@ pub fn simulate(spec: &SimSpec) -> Result<SimOutput> {
         Scenario::IsingChain => ising::ising_chain(spec),
         Scenario::Resistor => resistor::resistor(spec),
         Scenario::TwoLines => two_lines::two_lines(spec)?,
+        Scenario::TwoBathsTwins => twins::two_baths(spec),
     })
 }
 

@@ -1,0 +1,335 @@
+//! `fdtemp reduce`: raw twin runs reduced to a campaign, checked against closed forms and
+//! known-truth nonlinear responses; the linear-response test's false-alarm rate (ignored
+//! study); bad inputs with their exact messages.
+
+use assert_cmd::Command;
+use fdtemp::reduce::twin::{Combine, TwinRuns, TwinSettings, parse_twins, reduce_twins};
+use fdtemp::scenarios::sim::twins::{TwinSpec, exact_chi, exact_corr, twin_csv};
+use fdtemp::twotime::campaign::GridPoint;
+use ndarray::Array2;
+use predicates::prelude::*;
+use rand::RngExt;
+use rand_distr::StandardNormal;
+use std::path::Path;
+
+fn reduce(spec: &TwinSpec, combine: Combine) -> fdtemp::reduce::TwinReduction {
+    let bytes = twin_csv(spec);
+    let runs = parse_twins(bytes.as_slice(), Path::new("raw.csv")).unwrap();
+    let settings = TwinSettings {
+        combine,
+        resamples: 499,
+        ..Default::default()
+    };
+    reduce_twins(&runs, &settings).unwrap()
+}
+
+#[test]
+fn reduced_two_bath_twins_match_the_closed_forms() {
+    let r = reduce(&TwinSpec::linear(40, 3, true), Combine::Extrapolate);
+    let c = &r.campaign;
+    let n = c.n_samples() as f64;
+    let mut worst_z: f64 = 0.0;
+    for (j, g) in c.points().iter().enumerate() {
+        let lag = g.t - g.tw;
+        let col = c.corr().column(j);
+        let mean = col.sum() / n;
+        let se = (col.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / (n - 1.0) / n).sqrt();
+        worst_z = worst_z.max(((mean - exact_corr(lag)) / se).abs());
+        // Source: closed-form mean response of independent Ornstein–Uhlenbeck modes to a
+        // constant force (Gardiner, Stochastic Methods, 4th ed. (2009), §3.8.4, section
+        // from memory); the twins share the noise, so χ is exact to rounding.
+        let chi = c.resp().column(j).sum() / n;
+        assert!(
+            ((chi - exact_chi(lag)) / exact_chi(lag)).abs() < 1e-9,
+            "chi at lag {lag}: {chi} against {}",
+            exact_chi(lag)
+        );
+    }
+    // Source: stationary covariance of the Ornstein–Uhlenbeck process (same reference).
+    // 32 points: the largest |z| of correlated normal errors stays below 4.
+    assert!(
+        worst_z < 4.0,
+        "C off its closed form by {worst_z} standard errors"
+    );
+    let t = r.test.as_ref().unwrap();
+    assert!(!t.rejects, "a linear system flagged as nonlinear: {t:?}");
+    assert!(r.early.is_none());
+}
+
+#[test]
+fn an_injected_cubic_response_is_detected_and_removed_by_the_extrapolation() {
+    let spec = TwinSpec {
+        cubic: 30.0,
+        ..TwinSpec::linear(20, 5, true)
+    };
+    let ex = reduce(&spec, Combine::Extrapolate);
+    let t = ex.test.as_ref().unwrap();
+    assert!(t.rejects, "cubic response not detected: {t:?}");
+    let small = reduce(&spec, Combine::Smallest);
+    let n = ex.campaign.n_samples() as f64;
+    for (j, g) in ex.campaign.points().iter().enumerate() {
+        let exact = exact_chi(g.t - g.tw);
+        let e = ex.campaign.resp().column(j).sum() / n;
+        let s = small.campaign.resp().column(j).sum() / n;
+        // χ(h) = χ₁(1 + κ₃h²): two-level Richardson in h² is exact (common practice).
+        assert!(
+            ((e - exact) / exact).abs() < 1e-9,
+            "extrapolated {e} vs {exact}"
+        );
+        // The smallest amplitude alone keeps κ₃h² = 30 × 0.05² = 7.5% of bias.
+        assert!((s / exact - 1.075).abs() < 1e-9, "smallest {s} vs {exact}");
+    }
+}
+
+#[test]
+fn a_quadratic_response_is_cancelled_by_the_plus_minus_combination() {
+    let spec = TwinSpec {
+        quadratic: 3.0,
+        ..TwinSpec::linear(20, 6, true)
+    };
+    let sym = reduce(&spec, Combine::Extrapolate);
+    assert!(sym.design.symmetric);
+    assert!(!sym.test.as_ref().unwrap().rejects);
+    let n = sym.campaign.n_samples() as f64;
+    for (j, g) in sym.campaign.points().iter().enumerate() {
+        let exact = exact_chi(g.t - g.tw);
+        let v = sym.campaign.resp().column(j).sum() / n;
+        assert!(((v - exact) / exact).abs() < 1e-9);
+    }
+    // The same system with positive fields only: the h² term shows as a dependence on h.
+    let one_sided = reduce(
+        &TwinSpec {
+            fields: vec![0.05, 0.1],
+            ..spec
+        },
+        Combine::Extrapolate,
+    );
+    assert!(!one_sided.design.symmetric);
+    assert!(one_sided.test.as_ref().unwrap().rejects);
+}
+
+/// Invented known-truth twin runs with sample-to-sample noise: per sample and point
+/// χ_k = c_p (1 + κ u_k) + e_i(p) + d_ik(p), with e and d correlated along the points
+/// (AR(1), ρ = 0.8), fields ±0.05, ±0.1 (u = h²). κ = 0 is the null of the linearity test.
+fn noisy_twins(seed: u64, n: usize, kappa: f64) -> TwinRuns {
+    let np = 24;
+    let amps = [0.05, 0.1];
+    let mut rng = fdtemp::resample::replicate_rng(seed, 0);
+    let points: Vec<GridPoint> = (0..np)
+        .map(|j| GridPoint {
+            tw: 10.0,
+            t: 11.0 + j as f64,
+        })
+        .collect();
+    let c: Vec<f64> = (0..np)
+        .map(|j| 1.0 - (-(j as f64 + 1.0) / 8.0).exp())
+        .collect();
+    let ar = |rng: &mut rand_chacha::ChaCha8Rng, sd: f64| {
+        let mut x: f64 = rng.sample(StandardNormal);
+        (0..np)
+            .map(|_| {
+                let v = x * sd;
+                x = 0.8 * x + (1.0f64 - 0.64).sqrt() * rng.sample::<f64, _>(StandardNormal);
+                v
+            })
+            .collect::<Vec<f64>>()
+    };
+    let corr = Array2::<f64>::from_elem((n, np), 0.5);
+    let m0 = Array2::<f64>::zeros((n, np));
+    let fields = vec![-0.1, -0.05, 0.05, 0.1];
+    let mut mh = vec![Array2::<f64>::zeros((n, np)); 4];
+    for i in 0..n {
+        let e = ar(&mut rng, 0.05);
+        for (k, &a) in amps.iter().enumerate() {
+            let d = ar(&mut rng, 0.02);
+            for p in 0..np {
+                let chi = c[p] * (1.0 + kappa * a * a) + e[p] + d[p];
+                // m(±a) = ±a χ: the ±h combination gives χ back.
+                mh[if k == 0 { 1 } else { 0 }][[i, p]] = -a * chi;
+                mh[if k == 0 { 2 } else { 3 }][[i, p]] = a * chi;
+            }
+        }
+    }
+    let ids = (0..n).map(|i| format!("s{i:03}")).collect();
+    TwinRuns::new(ids, points, fields, corr, m0, mh).unwrap()
+}
+
+fn rejection_rate(campaigns: usize, n: usize, kappa: f64, resamples: usize) -> f64 {
+    let settings = TwinSettings {
+        resamples,
+        ..Default::default()
+    };
+    let hits = (0..campaigns)
+        .filter(|&s| {
+            let r = reduce_twins(&noisy_twins(1000 + s as u64, n, kappa), &settings).unwrap();
+            r.test.unwrap().rejects
+        })
+        .count();
+    hits as f64 / campaigns as f64
+}
+
+#[test]
+fn the_linearity_test_rarely_fires_on_a_linear_response_and_finds_a_strong_cubic() {
+    // 60 null campaigns at nominal 5%: more than 12 rejections (20%) is a broken test.
+    let null = rejection_rate(60, 20, 0.0, 199);
+    assert!(null <= 0.2, "false alarms {null}");
+    // κ = 20: χ changes by 15% of c between the amplitudes, several standard errors.
+    let power = rejection_rate(20, 20, 20.0, 199);
+    assert!(power >= 0.9, "power {power}");
+}
+
+/// The false-alarm rate and the power of the linearity test over many invented campaigns
+/// (docs/validation.md, section "reduce").
+///
+/// `cargo test --release --test reduce -- --ignored --nocapture linearity_study`
+#[test]
+#[ignore]
+fn linearity_study() {
+    let m = 400;
+    for n in [12, 20, 48] {
+        let p = rejection_rate(m, n, 0.0, 999);
+        let sd = (p * (1.0 - p) / m as f64).sqrt();
+        println!("null n = {n}: false alarms {p:.4} ± {sd:.4} over {m} campaigns (nominal 0.05)");
+    }
+    for kappa in [2.0, 5.0, 10.0] {
+        let p = rejection_rate(200, 20, kappa, 999);
+        let sd = (p * (1.0 - p) / 200.0).sqrt();
+        println!("kappa = {kappa}, n = 20: rejections {p:.4} ± {sd:.4} over 200 campaigns");
+    }
+}
+
+fn fdtemp() -> Command {
+    Command::cargo_bin("fdtemp").unwrap()
+}
+
+fn raw_file(dir: &Path) -> std::path::PathBuf {
+    let p = dir.join("raw.csv");
+    std::fs::write(&p, twin_csv(&TwinSpec::linear(6, 2, true))).unwrap();
+    p
+}
+
+#[test]
+fn reduce_writes_a_campaign_that_fit_reads() {
+    let dir = tempfile::tempdir().unwrap();
+    let raw = raw_file(dir.path());
+    let out = dir.path().join("campaign.csv");
+    fdtemp()
+        .arg("reduce")
+        .arg(&raw)
+        .arg("--out")
+        .arg(&out)
+        .args(["-B", "199"])
+        .assert()
+        .success()
+        .stdout(predicate::str::contains(
+            "twin runs  ",
+        ))
+        .stdout(predicate::str::contains(
+            ": 6 samples, 2 waiting times, 32 points; fields ±0.05, ±0.1",
+        ))
+        .stdout(predicate::str::contains(
+            "linearity  no dependence of chi on h detected: max |t| = 0 over 32 points (p = 1.000; level 0.05)",
+        ));
+    let text = std::fs::read_to_string(&out).unwrap();
+    assert!(text.starts_with("sample,tw,t,corr,resp\n"));
+    fdtemp()
+        .arg("fit")
+        .arg(&out)
+        .args(["-T", "1", "-B", "199"])
+        .assert()
+        .success();
+    // The campaign is not replaced without --overwrite.
+    fdtemp()
+        .arg("reduce")
+        .arg(&raw)
+        .arg("--out")
+        .arg(&out)
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains(
+            "exists already; pass --overwrite to replace it",
+        ));
+}
+
+#[test]
+fn twins_whose_times_do_not_line_up_are_refused_with_sample_run_and_time() {
+    let dir = tempfile::tempdir().unwrap();
+    let raw = raw_file(dir.path());
+    let text = std::fs::read_to_string(&raw).unwrap();
+    // Move one time of the h = 0.05 twin of sample s0002 at tw = 50.
+    let bad = text.replacen("s0002,50.0,50.02,0.05,", "s0002,50.0,50.025,0.05,", 1);
+    assert_ne!(bad, text);
+    std::fs::write(&raw, &bad).unwrap();
+    let line = bad
+        .lines()
+        .position(|l| l.starts_with("s0002,50.0,50.025,0.05,"))
+        .unwrap()
+        + 1;
+    let out = dir.path().join("campaign.csv");
+    fdtemp()
+        .arg("reduce")
+        .arg(&raw)
+        .arg("--out")
+        .arg(&out)
+        .assert()
+        .code(2)
+        .stderr(format!(
+            "error: {}:{line}: sample 's0002', run tw = 50, h = 0.05: time t = 50.025 is not among \
+             the times of its unperturbed run; twin runs must be recorded at the same times\n",
+            raw.display()
+        ));
+    assert!(!out.exists());
+}
+
+#[test]
+fn a_field_that_moves_the_observable_before_tw_is_flagged() {
+    let dir = tempfile::tempdir().unwrap();
+    let raw = raw_file(dir.path());
+    let text = std::fs::read_to_string(&raw).unwrap();
+    // The h = 0.1 twin of s0003 differs from its unperturbed run at t = tw = 500.
+    let mut lines: Vec<String> = text.lines().map(String::from).collect();
+    let i = lines
+        .iter()
+        .position(|l| l.starts_with("s0003,500.0,500.0,0.1,"))
+        .unwrap();
+    let m: f64 = lines[i].rsplit(',').next().unwrap().parse().unwrap();
+    lines[i] = format!("s0003,500.0,500.0,0.1,,{:?}", m + 0.25);
+    std::fs::write(&raw, lines.join("\n") + "\n").unwrap();
+    fdtemp()
+        .arg("reduce")
+        .arg(&raw)
+        .arg("--out")
+        .arg(dir.path().join("c.csv"))
+        .args(["-B", "199"])
+        .assert()
+        .success()
+        .stdout(predicate::str::contains(
+            "caution    the field moved the observable before tw: sample 's0003', tw = 500, h = 0.1: m(h) − m(0) = 0.250 at t = 500 (1 perturbed run(s) differ before tw)",
+        ));
+}
+
+#[test]
+fn reduce_can_fit_at_once() {
+    let dir = tempfile::tempdir().unwrap();
+    let raw = raw_file(dir.path());
+    fdtemp()
+        .arg("reduce")
+        .arg(&raw)
+        .arg("--out")
+        .arg(dir.path().join("c.csv"))
+        .args(["-B", "199", "--fit"])
+        .assert()
+        .code(2)
+        .stderr("error: --fit needs --temperature (the bath temperature T)\n");
+    fdtemp()
+        .arg("reduce")
+        .arg(&raw)
+        .arg("--out")
+        .arg(dir.path().join("c.csv"))
+        .args(["-B", "199", "--fit", "-T", "1"])
+        .assert()
+        .success()
+        .stdout(predicate::str::contains(
+            "fluctuation–dissipation fit in the time domain",
+        ));
+}
