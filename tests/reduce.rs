@@ -333,3 +333,148 @@ fn reduce_can_fit_at_once() {
             "fluctuation–dissipation fit in the time domain",
         ));
 }
+
+mod quenches {
+    use fdtemp::reduce::quench::{QuenchSettings, reduce_quenches};
+    use fdtemp::scenarios::sim::twins::{QuenchSpec, exact_chi, exact_corr, quench_csv};
+    use predicates::prelude::*;
+
+    fn write(dir: &std::path::Path, spec: &QuenchSpec) -> std::path::PathBuf {
+        let p = dir.join("quenches.csv");
+        std::fs::write(&p, quench_csv(spec)).unwrap();
+        p
+    }
+
+    #[test]
+    fn reduced_quenches_cover_the_closed_forms() {
+        let dir = tempfile::tempdir().unwrap();
+        let file = write(dir.path(), &QuenchSpec::standard(3000, 7, true));
+        let settings = QuenchSettings {
+            resamples: 499,
+            ..Default::default()
+        };
+        let r = reduce_quenches(&file, &settings).unwrap();
+        assert_eq!(r.unperturbed, 1000);
+        assert_eq!(r.perturbed, vec![(50.0, 1000), (500.0, 1000)]);
+        assert!(r.early.is_none());
+        let n = r.points.len() as f64;
+        // Source: stationary covariance and mean response of independent Ornstein–Uhlenbeck
+        // modes (Gardiner, Stochastic Methods, 4th ed. (2009), §3.8.4, section from
+        // memory). 95% pointwise intervals; the points of one tw are strongly correlated,
+        // so the covered fraction of one campaign varies a lot: at least 70% is required.
+        let c_cov = r
+            .points
+            .iter()
+            .filter(|p| {
+                let e = exact_corr(p.t - p.tw);
+                p.corr_low <= e && e <= p.corr_high
+            })
+            .count() as f64
+            / n;
+        let x_cov = r
+            .points
+            .iter()
+            .filter(|p| {
+                let e = exact_chi(p.t - p.tw);
+                p.chi_low.unwrap() <= e && e <= p.chi_high.unwrap()
+            })
+            .count() as f64
+            / n;
+        assert!(
+            c_cov >= 0.7 && x_cov >= 0.7,
+            "covered: C {c_cov}, chi {x_cov}"
+        );
+    }
+
+    #[test]
+    fn a_field_switched_on_before_tw_is_flagged() {
+        let dir = tempfile::tempdir().unwrap();
+        let spec = QuenchSpec {
+            lead: 100.0,
+            ..QuenchSpec::standard(3000, 7, true)
+        };
+        let file = write(dir.path(), &spec);
+        let settings = QuenchSettings {
+            resamples: 199,
+            ..Default::default()
+        };
+        let e = reduce_quenches(&file, &settings).unwrap().early.unwrap();
+        assert!(e.t < e.tw && e.z.abs() > e.bound, "{e:?}");
+    }
+
+    #[test]
+    fn quench_runs_that_do_not_line_up_are_refused_with_run_and_time() {
+        let dir = tempfile::tempdir().unwrap();
+        let file = write(dir.path(), &QuenchSpec::standard(30, 1, true));
+        let text = std::fs::read_to_string(&file).unwrap();
+        let bad = text.replacen("q00005,25.0,", "q00005,26.0,", 1);
+        std::fs::write(&file, &bad).unwrap();
+        let line = bad
+            .lines()
+            .position(|l| l.starts_with("q00005,26.0,"))
+            .unwrap()
+            + 1;
+        super::fdtemp()
+            .arg("reduce")
+            .arg(&file)
+            .arg("--out")
+            .arg(dir.path().join("p.csv"))
+            .assert()
+            .code(2)
+            .stderr(format!(
+                "error: {}:{line}: run 'q00005': time t = 26 is not among the times of run \
+                 'q00001'; every run needs the same times\n",
+                file.display()
+            ));
+        // A run split in two places.
+        let mut lines: Vec<&str> = text.lines().collect();
+        let moved = lines.remove(1);
+        lines.push(moved);
+        std::fs::write(&file, lines.join("\n") + "\n").unwrap();
+        super::fdtemp()
+            .arg("reduce")
+            .arg(&file)
+            .arg("--out")
+            .arg(dir.path().join("p.csv"))
+            .assert()
+            .code(2)
+            .stderr(predicate::str::contains(
+                "run 'q00001' appears again after other runs; expected the rows of one run together",
+            ));
+        assert!(!dir.path().join("p.csv").exists());
+    }
+
+    #[test]
+    fn quenches_are_reduced_from_the_cli_and_fit_is_refused_with_the_reason() {
+        let dir = tempfile::tempdir().unwrap();
+        let file = write(dir.path(), &QuenchSpec::standard(300, 1, true));
+        let out = dir.path().join("p.csv");
+        super::fdtemp()
+            .arg("reduce")
+            .arg(&file)
+            .arg("--out")
+            .arg(&out)
+            .args(["-B", "199"])
+            .assert()
+            .success()
+            .stdout(predicate::str::contains(
+                ": 100 unperturbed runs, perturbed 100 from tw = 50, 100 from tw = 500; 36 times, 53 points",
+            ));
+        assert!(
+            std::fs::read_to_string(&out)
+                .unwrap()
+                .starts_with("tw,t,corr,corr_low,corr_high,chi,chi_low,chi_high\n")
+        );
+        super::fdtemp()
+            .arg("reduce")
+            .arg(&file)
+            .arg("--out")
+            .arg(dir.path().join("q.csv"))
+            .args(["--fit", "-T", "1"])
+            .assert()
+            .code(2)
+            .stderr(predicate::str::starts_with(
+                "error: --fit is not available for repeated quenches yet",
+            ));
+    }
+}

@@ -4,6 +4,7 @@
 use super::progress::Bar;
 use super::{RunArgs, in_file, print};
 use fdtemp::output::{self, Output};
+use fdtemp::reduce::quench::{QuenchReduction, QuenchSettings, reduce_quenches};
 use fdtemp::reduce::twin::{Combine, TwinReduction, TwinSettings};
 use fdtemp::report::format::{fmt_num, p_clause, sig};
 use std::fmt::Write;
@@ -46,6 +47,13 @@ pub struct ReduceArgs {
     /// Confidence level of the intervals; the tests reject at 1 − level.
     #[arg(long, default_value_t = 0.95, allow_negative_numbers = true)]
     level: f64,
+    /// Quenches: plain C = <A(t)A(tw)> instead of the connected one.
+    #[arg(long)]
+    plain: bool,
+    /// Quenches: waiting times to form C at (comma-separated; default: the perturbed runs'
+    /// switch-on times).
+    #[arg(long, value_name = "TW,...", value_delimiter = ',')]
+    tw: Vec<f64>,
     /// Fit the reduced campaign at once (defaults of `fit`; needs --temperature).
     #[arg(long)]
     fit: bool,
@@ -127,8 +135,28 @@ pub fn run(a: ReduceArgs) -> fdtemp::Result<()> {
         Protocol::Auto => detect(&a.file)?,
         p => p,
     };
-    let (campaign, text, table) = match protocol {
-        Protocol::Quenches => quenches(&a)?,
+    if protocol == Protocol::Quenches && fit_settings.is_some() {
+        return Err(fdtemp::Error::Setting(
+            "--fit is not available for repeated quenches yet: fit resamples whole samples, and \
+             these data need runs resampled within each stratum (docs/reduce.md); use the \
+             pointwise C and chi that reduce writes"
+                .into(),
+        ));
+    }
+    let (campaign, text, out_bytes, table) = match protocol {
+        Protocol::Quenches => {
+            let settings = QuenchSettings {
+                connected: !a.plain,
+                tws: a.tw.clone(),
+                resamples: a.resamples,
+                seed: a.seed,
+                level: a.level,
+            };
+            let red = reduce_quenches(&a.file, &settings).map_err(in_file(&a.file))?;
+            let text = render_quenches(&red, &a.file.display().to_string());
+            let bytes = table_quenches(&red);
+            (None, text, bytes, None)
+        }
         _ => {
             let settings = TwinSettings {
                 combine: a.combine,
@@ -140,17 +168,23 @@ pub fn run(a: ReduceArgs) -> fdtemp::Result<()> {
             let runs = fdtemp::reduce::read_twins(&a.file)?;
             let red = fdtemp::reduce::reduce_twins(&runs, &settings).map_err(in_file(&a.file))?;
             let text = render_twins(&red, &a.file.display().to_string());
-            (red.campaign.clone(), text, table_twins(&red))
+            let bytes = fdtemp::input::write_campaign(&red.campaign);
+            (
+                Some(red.campaign.clone()),
+                text,
+                bytes,
+                Some(table_twins(&red)),
+            )
         }
     };
     let mut outputs = vec![Output {
         path: a.out.clone(),
-        bytes: fdtemp::input::write_campaign(&campaign),
+        bytes: out_bytes,
     }];
     if let Some(p) = &a.table {
         outputs.push(Output {
             path: p.clone(),
-            bytes: table,
+            bytes: table.unwrap_or_else(|| b"".to_vec()),
         });
     }
     output::write_all(&outputs, a.overwrite)?;
@@ -159,8 +193,8 @@ pub fn run(a: ReduceArgs) -> fdtemp::Result<()> {
     if let Some(p) = &a.table {
         let _ = writeln!(text, "wrote      {}", p.display());
     }
-    match fit_settings {
-        None => {
+    match (fit_settings, campaign) {
+        (None, Some(_)) => {
             let _ = writeln!(
                 text,
                 "analyse    fdtemp fit {} --temperature T",
@@ -168,7 +202,11 @@ pub fn run(a: ReduceArgs) -> fdtemp::Result<()> {
             );
             print(text.as_bytes());
         }
-        Some(s) => {
+        (None, None) => print(text.as_bytes()),
+        (Some(s), campaign) => {
+            let Some(campaign) = campaign else {
+                return Ok(());
+            };
             print(text.as_bytes());
             let input = Some(a.out.display().to_string());
             let report =
@@ -287,10 +325,82 @@ fn table_twins(r: &TwinReduction) -> Vec<u8> {
     s.into_bytes()
 }
 
-/// Repeated quenches: reduce, render, table.
-fn quenches(a: &ReduceArgs) -> fdtemp::Result<(fdtemp::Campaign, String, Vec<u8>)> {
-    Err(fdtemp::Error::Setting(format!(
-        "{}: repeated quenches are not reduced yet",
-        a.file.display()
-    )))
+/// The quench reduction in words.
+fn render_quenches(r: &QuenchReduction, file: &str) -> String {
+    let mut s = String::new();
+    let groups: Vec<String> = r
+        .perturbed
+        .iter()
+        .map(|(tw, n)| format!("{n} from tw = {}", fmt_num(*tw)))
+        .collect();
+    let _ = writeln!(
+        s,
+        "quenches   {file}: {} unperturbed runs, perturbed {}; {} times, {} points",
+        r.unperturbed,
+        groups.join(", "),
+        r.times,
+        r.points.len()
+    );
+    let _ = writeln!(
+        s,
+        "C          {} over the unperturbed runs; chi = (<A(t)>_h − <A(t)>_0)/h",
+        if r.settings.connected {
+            "connected <A(t)A(tw)> − <A(t)><A(tw)>"
+        } else {
+            "plain <A(t)A(tw)>"
+        }
+    );
+    let _ = writeln!(
+        s,
+        "intervals  {}% percentile, {} Poisson-bootstrap replicates of runs, unperturbed and perturbed runs apart (seed {})",
+        fmt_num(100.0 * r.settings.level),
+        r.settings.resamples,
+        r.settings.seed
+    );
+    match &r.early {
+        None => {
+            let _ = writeln!(
+                s,
+                "early      no perturbed group's mean differs from the unperturbed one before its tw (level {})",
+                fmt_num(1.0 - r.settings.level)
+            );
+        }
+        Some(e) => {
+            let _ = writeln!(
+                s,
+                "caution    the field moved the observable before tw: runs switched on at tw = {} differ from the unperturbed mean at t = {} by z = {} (bound {} over {} comparisons)",
+                fmt_num(e.tw),
+                fmt_num(e.t),
+                sig(e.z, 3),
+                sig(e.bound, 3),
+                e.comparisons
+            );
+        }
+    }
+    let _ = writeln!(
+        s,
+        "note       the output is pointwise C and chi, not a campaign of samples: fit cannot resample these runs by stratum yet"
+    );
+    s
+}
+
+/// The per-point table of a quench reduction.
+fn table_quenches(r: &QuenchReduction) -> Vec<u8> {
+    let mut s = String::from("tw,t,corr,corr_low,corr_high,chi,chi_low,chi_high\n");
+    let opt = |v: Option<f64>| v.map_or(String::new(), |x| format!("{x:?}"));
+    for p in &r.points {
+        let _ = writeln!(
+            s,
+            "{:?},{:?},{:?},{:?},{:?},{},{},{}",
+            p.tw,
+            p.t,
+            p.corr,
+            p.corr_low,
+            p.corr_high,
+            opt(p.chi),
+            opt(p.chi_low),
+            opt(p.chi_high)
+        );
+    }
+    s.into_bytes()
 }

@@ -18,6 +18,7 @@
 //! studentized bootstrap max-statistic over many points: Westfall & Young, *Resampling-
 //! Based Multiple Testing* (1993), ch. 2; Davison & Hinkley (1997), §4.4.
 
+pub mod quench;
 pub mod twin;
 
 pub use twin::{FieldTest, TwinReduction, TwinRuns, TwinSettings, read_twins, reduce_twins};

@@ -26,6 +26,8 @@
 //!   (Nyquist, Phys. Rev. 32, 110 (1928)), for `noise`.
 //! - `two-baths-twins`: the two-bath system as raw twin runs (`sample, tw, t, h, corr, m`)
 //!   with a real force at two amplitudes and both signs, for `reduce` (`twins.rs`).
+//! - `two-baths-quenches`: the same system as repeated quenches (`run, t, value, h, tw`),
+//!   for `reduce` (`twins.rs`).
 //! - `two-lines`: the invented campaign of [`super::synth`] at benchmark size.
 //!
 //! One file per system: `ou.rs` (two-baths, ou-equilibrium), `brownian.rs`, `ising.rs`,
@@ -57,6 +59,9 @@ pub enum Scenario {
     Resistor,
     /// Raw twin runs of the two-bath system (fields ±0.05, ±0.1 from tw) for `reduce`.
     TwoBathsTwins,
+    /// Raw repeated quenches of the two-bath system (runs, a third unperturbed, field 0.5
+    /// from tw = 50 or 500) for `reduce`.
+    TwoBathsQuenches,
     /// Invented two-line campaign with a built-in answer (not a simulation; for
     /// benchmarks): 12 waiting times × 100 times (3 × 40 with `--quick`).
     TwoLines,
@@ -103,6 +108,7 @@ pub fn simulate(spec: &SimSpec) -> Result<SimOutput> {
         Scenario::Resistor => resistor::resistor(spec),
         Scenario::TwoLines => two_lines::two_lines(spec)?,
         Scenario::TwoBathsTwins => twins::two_baths(spec),
+        Scenario::TwoBathsQuenches => twins::two_baths_quenches(spec),
     })
 }
 
