@@ -198,6 +198,36 @@ fn linearity_study() {
     }
 }
 
+/// Coverage of X when `fit` runs on reduced twin campaigns: `two-baths-twins --quick`
+/// reduced (±h, Richardson), fitted with the defaults (broken stick, BCa, B = 999), X
+/// against the exact T/T_slow = 0.4 (docs/validation.md, section "reduce").
+///
+/// `cargo test --release --test reduce -- --ignored --nocapture twin_fit_coverage`
+#[test]
+#[ignore]
+fn twin_fit_coverage() {
+    let campaigns = 200;
+    let mut hits = 0usize;
+    for s in 0..campaigns {
+        let spec = TwinSpec::linear(20, 20_000 + s as u64, true);
+        let r = reduce(&spec, Combine::Extrapolate);
+        let fit = fdtemp::FitSettings {
+            temperature: 1.0,
+            resamples: 999,
+            seed: s as u64,
+            ..Default::default()
+        };
+        let f = fdtemp::analyze(&r.campaign, &fit, None, &fdtemp::twotime::Silent)
+            .unwrap()
+            .fits
+            .remove(0);
+        hits += usize::from(matches!((f.ratio.low, f.ratio.high), (Some(lo), Some(hi)) if lo <= 0.4 && 0.4 <= hi));
+    }
+    let p = hits as f64 / campaigns as f64;
+    let sd = (p * (1.0 - p) / campaigns as f64).sqrt();
+    println!("X coverage of fit on reduced twin campaigns (20 samples): {p:.4} ± {sd:.4} over {campaigns} (nominal 0.95)");
+}
+
 fn fdtemp() -> Command {
     Command::cargo_bin("fdtemp").unwrap()
 }
@@ -476,5 +506,51 @@ mod quenches {
             .stderr(predicate::str::starts_with(
                 "error: --fit is not available for repeated quenches yet",
             ));
+    }
+
+    /// Pointwise coverage of the quench intervals (C and χ against the closed forms,
+    /// averaged over the points) and the early-field caution's false alarms, over many
+    /// campaigns of the two-bath system (docs/validation.md, section "reduce").
+    ///
+    /// `cargo test --release --test reduce -- --ignored --nocapture quench_study`
+    #[test]
+    #[ignore]
+    fn quench_study() {
+        let campaigns = 200;
+        let dir = tempfile::tempdir().unwrap();
+        let settings = QuenchSettings {
+            resamples: 399,
+            ..Default::default()
+        };
+        let (mut c_frac, mut x_frac, mut alarms) = (Vec::new(), Vec::new(), 0usize);
+        for s in 0..campaigns {
+            let file = write(dir.path(), &QuenchSpec::standard(900, 5000 + s as u64, true));
+            let r = reduce_quenches(&file, &settings).unwrap();
+            let n = r.points.len() as f64;
+            let (mut c_in, mut x_in) = (0.0, 0.0);
+            for p in &r.points {
+                let (ec, ex) = (exact_corr(p.t - p.tw), exact_chi(p.t - p.tw));
+                c_in += f64::from(u8::from(p.corr_low <= ec && ec <= p.corr_high));
+                x_in += f64::from(u8::from(p.chi_low.unwrap() <= ex && ex <= p.chi_high.unwrap()));
+            }
+            c_frac.push(c_in / n);
+            x_frac.push(x_in / n);
+            alarms += usize::from(r.early.is_some());
+        }
+        // Mean over campaigns ± its standard error (the points of one campaign are
+        // correlated, the campaigns independent).
+        let summary = |v: &[f64]| {
+            let m = v.len() as f64;
+            let mean = v.iter().sum::<f64>() / m;
+            let sd = (v.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (m - 1.0)).sqrt();
+            (mean, sd / m.sqrt())
+        };
+        let (pc, sc) = summary(&c_frac);
+        let (px, sx) = summary(&x_frac);
+        let pa = alarms as f64 / campaigns as f64;
+        let sa = (pa * (1.0 - pa) / campaigns as f64).sqrt();
+        println!("{campaigns} campaigns of 900 runs (300 unperturbed, 300 per tw)");
+        println!("pointwise 95% coverage averaged over points: C {pc:.4} ± {sc:.4}, chi {px:.4} ± {sx:.4}");
+        println!("early-field caution with the field switched on at tw: {pa:.4} ± {sa:.4} (level at most 0.05)");
     }
 }
