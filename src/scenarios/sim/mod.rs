@@ -28,6 +28,8 @@
 //!   with a real force at two amplitudes and both signs, for `reduce` (`twins.rs`).
 //! - `two-baths-quenches`: the same system as repeated quenches (`run, t, value, h, tw`),
 //!   for `reduce` (`twins.rs`).
+//! - `ising-twins`: the Glauber–Ising chain as raw twin runs with a random-sign field at
+//!   two amplitudes, both signs, for `reduce` (`ising_twins.rs`).
 //! - `two-lines`: the invented campaign of [`super::synth`] at benchmark size.
 //!
 //! One file per system: `ou.rs` (two-baths, ou-equilibrium), `brownian.rs`, `ising.rs`,
@@ -35,6 +37,7 @@
 
 mod brownian;
 mod ising;
+pub mod ising_twins;
 mod ou;
 mod resistor;
 pub mod twins;
@@ -62,6 +65,9 @@ pub enum Scenario {
     /// Raw repeated quenches of the two-bath system (runs, a third unperturbed, field 0.5
     /// from tw = 50 or 500) for `reduce`.
     TwoBathsQuenches,
+    /// Raw twin runs of the Glauber–Ising chain with a random-sign field (±0.05, ±0.1)
+    /// for `reduce`; unperturbed rows carry the field-free estimator as `chi_free`.
+    IsingTwins,
     /// Invented two-line campaign with a built-in answer (not a simulation; for
     /// benchmarks): 12 waiting times × 100 times (3 × 40 with `--quick`).
     TwoLines,
@@ -109,6 +115,7 @@ pub fn simulate(spec: &SimSpec) -> Result<SimOutput> {
         Scenario::TwoLines => two_lines::two_lines(spec)?,
         Scenario::TwoBathsTwins => twins::two_baths(spec),
         Scenario::TwoBathsQuenches => twins::two_baths_quenches(spec),
+        Scenario::IsingTwins => ising_twins::ising_twins(spec),
     })
 }
 
