@@ -515,6 +515,19 @@ mod quenches {
             .stderr(predicate::str::starts_with(
                 "error: --fit is not available for repeated quenches yet",
             ));
+        super::fdtemp()
+            .arg("reduce")
+            .arg(&file)
+            .arg("--out")
+            .arg(dir.path().join("q.csv"))
+            .arg("--table")
+            .arg(dir.path().join("t.csv"))
+            .assert()
+            .code(2)
+            .stderr(
+                "error: --table is for twin runs; for repeated quenches --out is already the \
+                 per-point table\n",
+            );
     }
 
     /// Pointwise coverage of the quench intervals (C and χ against the closed forms,

@@ -135,6 +135,12 @@ pub fn run(a: ReduceArgs) -> fdtemp::Result<()> {
         Protocol::Auto => detect(&a.file)?,
         p => p,
     };
+    if protocol == Protocol::Quenches && a.table.is_some() {
+        return Err(fdtemp::Error::Setting(
+            "--table is for twin runs; for repeated quenches --out is already the per-point table"
+                .into(),
+        ));
+    }
     if protocol == Protocol::Quenches && fit_settings.is_some() {
         return Err(fdtemp::Error::Setting(
             "--fit is not available for repeated quenches yet: fit resamples whole samples, and \
@@ -184,7 +190,7 @@ pub fn run(a: ReduceArgs) -> fdtemp::Result<()> {
     if let Some(p) = &a.table {
         outputs.push(Output {
             path: p.clone(),
-            bytes: table.unwrap_or_else(|| b"".to_vec()),
+            bytes: table.unwrap_or_default(),
         });
     }
     output::write_all(&outputs, a.overwrite)?;
