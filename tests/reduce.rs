@@ -672,3 +672,47 @@ fn ising_twins_agree_with_the_field_free_estimator() {
         "reduced chi off the field-free estimator by {worst} SE"
     );
 }
+
+/// The same seed gives byte-identical files at 1 and 2 worker threads (both protocols).
+#[test]
+fn reduce_output_does_not_depend_on_the_thread_count() {
+    let dir = tempfile::tempdir().unwrap();
+    let twins = raw_file(dir.path());
+    let quenches = dir.path().join("q.csv");
+    std::fs::write(
+        &quenches,
+        fdtemp::scenarios::sim::twins::quench_csv(
+            &fdtemp::scenarios::sim::twins::QuenchSpec::standard(600, 2, true),
+        ),
+    )
+    .unwrap();
+    for (input, extra) in [(&twins, true), (&quenches, false)] {
+        let mut outs = Vec::new();
+        for threads in ["1", "2"] {
+            let out = dir.path().join(format!("out{threads}.csv"));
+            let table = dir.path().join(format!("table{threads}.csv"));
+            let mut cmd = fdtemp();
+            cmd.arg("reduce").arg(input).arg("--out").arg(&out).args([
+                "-B",
+                "199",
+                "--overwrite",
+                "--threads",
+                threads,
+            ]);
+            if extra {
+                cmd.arg("--table").arg(&table);
+            }
+            cmd.assert().success();
+            let mut bytes = std::fs::read(&out).unwrap();
+            if extra {
+                bytes.extend(std::fs::read(&table).unwrap());
+            }
+            outs.push(bytes);
+        }
+        assert!(
+            outs[0] == outs[1],
+            "{} differs between 1 and 2 threads",
+            input.display()
+        );
+    }
+}
