@@ -203,7 +203,7 @@ fn linearity_study() {
 /// against the exact T/T_slow = 0.4 (docs/validation.md, section "reduce").
 ///
 /// `FDTEMP_REDUCE_SAMPLES=40 cargo test --release --test reduce -- --ignored --nocapture twin_fit_coverage`
-/// (samples per campaign, 20 by default)
+/// (samples per campaign, 20 by default; `FDTEMP_REDUCE_FULL=1` for the full time grid)
 #[test]
 #[ignore]
 fn twin_fit_coverage() {
@@ -212,9 +212,10 @@ fn twin_fit_coverage() {
         .ok()
         .and_then(|v| v.parse().ok())
         .unwrap_or(20);
+    let quick = std::env::var("FDTEMP_REDUCE_FULL").is_err();
     let mut hits = 0usize;
     for s in 0..campaigns {
-        let spec = TwinSpec::linear(samples, 20_000 + s as u64, true);
+        let spec = TwinSpec::linear(samples, 20_000 + s as u64, quick);
         let r = reduce(&spec, Combine::Extrapolate);
         let fit = fdtemp::FitSettings {
             temperature: 1.0,
