@@ -17,6 +17,7 @@ pub mod error;
 pub mod fit;
 pub mod input;
 pub mod output;
+pub mod reduce;
 pub mod report;
 pub mod resample;
 pub mod scenarios;

@@ -17,6 +17,7 @@ fn main() -> ExitCode {
         Command::DesignCheck(a) => cli::design::run(a),
         Command::Spectrum(a) => cli::spectral::spectrum(a),
         Command::Noise(a) => cli::spectral::noise(a),
+        Command::Reduce(a) => cli::reduce::run(a),
         Command::Synth(a) => cli::synth::run(a),
         Command::Demo(a) => cli::demo::run(a),
     });

@@ -127,7 +127,7 @@ fn the_json_uses_the_report_words_and_the_text_says_p_at_its_floor_as_a_bound() 
         .stdout(predicate::str::contains("for the joint fit p ≤ 0.002"))
         .stdout(predicate::str::contains("p = ≤").not());
     let v: serde_json::Value = serde_json::from_slice(&std::fs::read(&json).unwrap()).unwrap();
-    assert_eq!(v["schema"], 4);
+    assert_eq!(v["schema"], fdtemp::twotime::SCHEMA);
     let f = &v["fits"][0];
     for key in [
         "x",

@@ -3,6 +3,7 @@
 //! - `fit.rs`: `fdtemp fit`, the time-domain analysis of a campaign.
 //! - `design.rs`: `fdtemp design-check`, coverage and test levels on the campaign's design.
 //! - `spectral.rs`: `fdtemp spectrum` and `fdtemp noise`, with their shared options.
+//! - `reduce.rs`: `fdtemp reduce`, raw runs to a campaign with the linear-response check.
 //! - `synth.rs`: `fdtemp synth`, a simulated system and its truth file.
 //! - `demo.rs`: `fdtemp demo`, the invented scenario fitted end to end.
 //! - `progress.rs`: the resampling progress bar.
@@ -14,6 +15,7 @@ pub mod demo;
 pub mod design;
 pub mod fit;
 mod progress;
+pub mod reduce;
 pub mod spectral;
 pub mod synth;
 
@@ -43,6 +45,9 @@ pub enum Command {
     Spectrum(spectral::SpectrumArgs),
     /// Welch PSD of raw noise records, and T_eff(f) when a dissipation is given.
     Noise(spectral::NoiseArgs),
+    /// Reduce raw runs (twin runs or repeated quenches) to a campaign, with the
+    /// linear-response check; optionally fit it at once.
+    Reduce(reduce::ReduceArgs),
     /// Simulate a system with a known or published ratio into a file that fit/noise read.
     Synth(synth::SynthArgs),
     /// Generate an invented aging scenario with a known answer, fit it, and compare.
@@ -57,6 +62,7 @@ impl Command {
             Command::DesignCheck(a) => a.run.threads,
             Command::Spectrum(a) => a.common.run.threads,
             Command::Noise(a) => a.common.run.threads,
+            Command::Reduce(a) => a.run.threads,
             Command::Synth(a) => a.run.threads,
             Command::Demo(a) => a.run.threads,
         }

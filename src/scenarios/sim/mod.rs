@@ -24,6 +24,12 @@
 //! - `ou-equilibrium`: one Ornstein–Uhlenbeck mode in equilibrium: X = 1.
 //! - `resistor`: Johnson–Nyquist noise of a resistor, white with one-sided PSD 4kTR
 //!   (Nyquist, Phys. Rev. 32, 110 (1928)), for `noise`.
+//! - `two-baths-twins`: the two-bath system as raw twin runs (`sample, tw, t, h, corr, m`)
+//!   with a real force at two amplitudes and both signs, for `reduce` (`twins.rs`).
+//! - `two-baths-quenches`: the same system as repeated quenches (`run, t, value, h, tw`),
+//!   for `reduce` (`twins.rs`).
+//! - `ising-twins`: the Glauber–Ising chain as raw twin runs with a random-sign field at
+//!   two amplitudes, both signs, for `reduce` (`ising_twins.rs`).
 //! - `two-lines`: the invented campaign of [`super::synth`] at benchmark size.
 //!
 //! One file per system: `ou.rs` (two-baths, ou-equilibrium), `brownian.rs`, `ising.rs`,
@@ -31,8 +37,10 @@
 
 mod brownian;
 mod ising;
+pub mod ising_twins;
 mod ou;
 mod resistor;
+pub mod twins;
 mod two_lines;
 
 use crate::error::{Error, Result};
@@ -52,6 +60,14 @@ pub enum Scenario {
     OuEquilibrium,
     /// Johnson–Nyquist noise records of a resistor (for `noise`).
     Resistor,
+    /// Raw twin runs of the two-bath system (fields ±0.05, ±0.1 from tw) for `reduce`.
+    TwoBathsTwins,
+    /// Raw repeated quenches of the two-bath system (runs, a third unperturbed, field 0.5
+    /// from tw = 50 or 500) for `reduce`.
+    TwoBathsQuenches,
+    /// Raw twin runs of the Glauber–Ising chain with a random-sign field (±0.05, ±0.1)
+    /// for `reduce`; unperturbed rows carry the field-free estimator as `chi_free`.
+    IsingTwins,
     /// Invented two-line campaign with a built-in answer (not a simulation; for
     /// benchmarks): 12 waiting times × 100 times (3 × 40 with `--quick`).
     TwoLines,
@@ -97,6 +113,9 @@ pub fn simulate(spec: &SimSpec) -> Result<SimOutput> {
         Scenario::IsingChain => ising::ising_chain(spec),
         Scenario::Resistor => resistor::resistor(spec),
         Scenario::TwoLines => two_lines::two_lines(spec)?,
+        Scenario::TwoBathsTwins => twins::two_baths(spec),
+        Scenario::TwoBathsQuenches => twins::two_baths_quenches(spec),
+        Scenario::IsingTwins => ising_twins::ising_twins(spec),
     })
 }
 

@@ -11,31 +11,31 @@ use serde_json::json;
 
 /// One Ornstein–Uhlenbeck mode: `dx = −x/τ dt + μ h dt + √(2 μ T) dW`.
 #[derive(Debug, Clone, Copy)]
-struct Mode {
-    temperature: f64,
-    mobility: f64,
-    time: f64,
+pub(super) struct Mode {
+    pub(super) temperature: f64,
+    pub(super) mobility: f64,
+    pub(super) time: f64,
 }
 
 impl Mode {
-    const FAST: Mode = Mode {
+    pub(super) const FAST: Mode = Mode {
         temperature: 1.0,
         mobility: 1.0,
         time: 1.0,
     };
-    const SLOW: Mode = Mode {
+    pub(super) const SLOW: Mode = Mode {
         temperature: 2.5,
         mobility: 0.0004,
         time: 1000.0,
     };
 
     /// Stationary variance `μ T τ`.
-    fn variance(self) -> f64 {
+    pub(super) fn variance(self) -> f64 {
         self.mobility * self.temperature * self.time
     }
 
     /// Exact step of length `dt` under force `h`: `(decay, drift, noise sd)`.
-    fn step(self, dt: f64, h: f64) -> (f64, f64, f64) {
+    pub(super) fn step(self, dt: f64, h: f64) -> (f64, f64, f64) {
         let e = (-dt / self.time).exp();
         let sd = (self.variance() * (1.0 - e * e)).sqrt();
         (e, self.mobility * h * self.time * (1.0 - e), sd)

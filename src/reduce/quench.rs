@@ -1,0 +1,662 @@
+//! Protocol 2, repeated quenches: many runs of one system, each a record of one
+//! observable A at common times t; unperturbed runs (h = 0) and runs with a step field h
+//! switched on at tw.
+//!
+//! Input: the long CSV `run, t, value, h, tw` (`tw` may be empty when h = 0), the rows of
+//! one run together. The file is read twice, streaming: the first pass finds the runs'
+//! switch-on times, the second folds each run into moment sums as soon as it ends, so
+//! memory does not grow with the number of runs.
+//!
+//! # Formula
+//! Over the `n₀` unperturbed runs, `C(t,tw) = ⟨A(t)A(tw)⟩ − ⟨A(t)⟩⟨A(tw)⟩` (connected,
+//! the default) or `⟨A(t)A(tw)⟩` (plain). Over the perturbed runs r switched on at tw,
+//! `χ(t,tw) = mean_r [A_r(t)/h_r] − ⟨A(t)⟩₀ · mean_r [1/h_r]`, which is
+//! `(⟨A(t)⟩_h − ⟨A(t)⟩₀)/h` when every run has the same h.
+//!
+//! Pointwise intervals: a stratified bootstrap of runs by Poisson(1) weights (each run
+//! gets an independent Poisson(1) count in every replicate, drawn from its own random
+//! stream; the unperturbed runs and each tw group of perturbed runs are normalized by
+//! their own total weight), so C and χ are recomputed from the weighted moments in every
+//! replicate without keeping the runs (Hanley & MacGibbon, Comput. Methods Programs Biomed.
+//! 83, 57 (2006), from memory; Chamandy et al., Google technical report (2012), from
+//! memory). Intervals are percentile intervals.
+//!
+//! Early field: at every recorded time t < tw, the perturbed runs' mean is compared with
+//! the unperturbed mean by a two-sample z statistic; the caution fires when the largest
+//! |z| exceeds the Bonferroni bound `Φ⁻¹(1 − α/(2m))` over the m comparisons (a level of at
+//! most α under the normal approximation).
+
+use crate::error::{Error, Result};
+use crate::resample::{self, replicate_rng};
+use rand::RngExt;
+use rayon::prelude::*;
+use statrs::distribution::{ContinuousCDF, Normal};
+use std::collections::{HashMap, HashSet};
+use std::path::Path;
+
+/// Settings of the quench reduction.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct QuenchSettings {
+    /// Connected C (the default) or plain `⟨A(t)A(tw)⟩`.
+    pub connected: bool,
+    /// Waiting times to form C at; empty = the perturbed runs' switch-on times.
+    pub tws: Vec<f64>,
+    /// Poisson-bootstrap replicates.
+    pub resamples: usize,
+    /// Seed: run k (in file order) uses random stream k.
+    pub seed: u64,
+    /// Confidence level of the intervals; the early-field caution's level is `1 − level`.
+    pub level: f64,
+}
+
+impl Default for QuenchSettings {
+    fn default() -> Self {
+        QuenchSettings {
+            connected: true,
+            tws: Vec::new(),
+            resamples: 999,
+            seed: 1,
+            level: 0.95,
+        }
+    }
+}
+
+/// One (tw, t) point of the reduction.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct QuenchPoint {
+    /// Waiting time.
+    pub tw: f64,
+    /// Later time.
+    pub t: f64,
+    /// C(t,tw) over the unperturbed runs.
+    pub corr: f64,
+    /// Percentile interval of C.
+    pub corr_low: f64,
+    /// Upper end.
+    pub corr_high: f64,
+    /// χ(t,tw); `None` when no perturbed run was switched on at tw.
+    pub chi: Option<f64>,
+    /// Percentile interval of χ.
+    pub chi_low: Option<f64>,
+    /// Upper end.
+    pub chi_high: Option<f64>,
+}
+
+/// A perturbed group whose mean moved before its field was switched on.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct EarlyDrift {
+    /// The group's switch-on time.
+    pub tw: f64,
+    /// The time before tw with the largest |z|.
+    pub t: f64,
+    /// That z.
+    pub z: f64,
+    /// The Bonferroni bound it exceeded.
+    pub bound: f64,
+    /// Number of comparisons.
+    pub comparisons: usize,
+}
+
+/// The reduction of repeated quenches.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct QuenchReduction {
+    /// Unperturbed runs.
+    pub unperturbed: usize,
+    /// Perturbed runs per switch-on time `(tw, runs)`.
+    pub perturbed: Vec<(f64, usize)>,
+    /// Recorded times per run.
+    pub times: usize,
+    /// Per point: C and χ with intervals.
+    pub points: Vec<QuenchPoint>,
+    /// The early-field caution, when it fires.
+    pub early: Option<EarlyDrift>,
+    /// The settings used.
+    pub settings: QuenchSettings,
+}
+
+const COLUMNS: [&str; 5] = ["run", "t", "value", "h", "tw"];
+
+fn key(v: f64) -> u64 {
+    if v == 0.0 { 0 } else { v.to_bits() }
+}
+
+/// One row as read.
+struct Rec {
+    run: String,
+    t: f64,
+    value: f64,
+    h: f64,
+    tw: Option<f64>,
+    line: u64,
+}
+
+/// Streams the rows of the file to `each`, checking fields.
+fn stream(path: &Path, mut each: impl FnMut(Rec) -> Result<()>) -> Result<()> {
+    let mut rdr = crate::input::csv_reader(crate::input::open(path)?);
+    let mut rec = csv::StringRecord::new();
+    if !rdr
+        .read_record(&mut rec)
+        .map_err(|e| crate::input::csv_error(path, e))?
+    {
+        return Err(Error::input(
+            path,
+            None,
+            None,
+            format!(
+                "the file is empty; expected a header line with columns {}",
+                COLUMNS.join(", ")
+            ),
+        ));
+    }
+    let header = crate::input::Header::new(path, &rec)?;
+    let idx = header.require(path, &COLUMNS)?;
+    while rdr
+        .read_record(&mut rec)
+        .map_err(|e| crate::input::csv_error(path, e))?
+    {
+        if crate::input::is_blank(&rec) {
+            continue;
+        }
+        header.check_width(path, &rec)?;
+        let line = crate::input::line_of(&rec);
+        let err = |c: usize, m: String| Error::input(path, Some(line), Some(c as u64 + 1), m);
+        let num = |c: usize| {
+            crate::input::parse_number(&rec[idx[c]], COLUMNS[c]).map_err(|m| err(idx[c], m))
+        };
+        if rec[idx[0]].is_empty() {
+            return Err(err(
+                idx[0],
+                "column 'run' is empty, expected a run name".into(),
+            ));
+        }
+        let h = num(3)?;
+        let tw = if h == 0.0 {
+            None
+        } else if rec[idx[4]].is_empty() {
+            return Err(err(
+                idx[4],
+                format!("column 'tw' is empty in a run with h = {h}, expected the switch-on time"),
+            ));
+        } else {
+            Some(num(4)?)
+        };
+        each(Rec {
+            run: rec[idx[0]].to_string(),
+            t: num(1)?,
+            value: num(2)?,
+            h,
+            tw,
+            line,
+        })?;
+    }
+    Ok(())
+}
+
+/// Poisson(1) by inversion.
+fn poisson1(rng: &mut rand_chacha::ChaCha8Rng) -> f64 {
+    let u: f64 = rng.random();
+    let (mut k, mut p) = (0u32, (-1.0f64).exp());
+    let mut cum = p;
+    while u > cum && k < 30 {
+        k += 1;
+        p /= f64::from(k);
+        cum += p;
+    }
+    f64::from(k)
+}
+
+/// Where each quantity sits in a moment vector.
+struct Layout {
+    /// Grid times.
+    times: Vec<f64>,
+    /// Points: (tw index in `tws`, grid index of tw, grid index of t).
+    points: Vec<(usize, usize, usize)>,
+    /// Waiting times.
+    tws: Vec<f64>,
+    /// Number of moments.
+    len: usize,
+}
+
+impl Layout {
+    fn w0(&self) -> usize {
+        0
+    }
+    fn s0(&self, g: usize) -> usize {
+        1 + g
+    }
+    fn q0(&self, p: usize) -> usize {
+        1 + self.times.len() + p
+    }
+    fn ng(&self, w: usize) -> usize {
+        1 + self.times.len() + self.points.len() + 2 * w
+    }
+    fn hg(&self, w: usize) -> usize {
+        self.ng(w) + 1
+    }
+    fn sg(&self, p: usize) -> usize {
+        1 + self.times.len() + self.points.len() + 2 * self.tws.len() + p
+    }
+}
+
+/// A finished run: its values on the grid.
+struct Run {
+    h: f64,
+    tw: Option<f64>,
+    values: Vec<f64>,
+}
+
+/// Adds run `r` with weight `w` into the moment vector `m`.
+fn fold(lay: &Layout, m: &mut [f64], r: &Run, w: f64) {
+    if w == 0.0 {
+        return;
+    }
+    let a = &r.values;
+    match r.tw {
+        None => {
+            m[lay.w0()] += w;
+            for (g, v) in a.iter().enumerate() {
+                m[lay.s0(g)] += w * v;
+            }
+            for (p, &(_, gw, gt)) in lay.points.iter().enumerate() {
+                m[lay.q0(p)] += w * a[gt] * a[gw];
+            }
+        }
+        Some(tw) => {
+            let Some(wi) = lay.tws.iter().position(|&x| key(x) == key(tw)) else {
+                return;
+            };
+            m[lay.ng(wi)] += w;
+            m[lay.hg(wi)] += w / r.h;
+            for (p, &(pw, _, gt)) in lay.points.iter().enumerate() {
+                if pw == wi {
+                    m[lay.sg(p)] += w * a[gt] / r.h;
+                }
+            }
+        }
+    }
+}
+
+/// C and χ per point from a moment vector (None where a stratum has no weight).
+fn estimates(lay: &Layout, m: &[f64], connected: bool) -> Vec<(f64, Option<f64>)> {
+    let w0 = m[lay.w0()];
+    lay.points
+        .iter()
+        .enumerate()
+        .map(|(p, &(wi, gw, gt))| {
+            let mt = m[lay.s0(gt)] / w0;
+            let mut c = m[lay.q0(p)] / w0;
+            if connected {
+                c -= mt * m[lay.s0(gw)] / w0;
+            }
+            let ng = m[lay.ng(wi)];
+            let chi = (ng > 0.0).then(|| m[lay.sg(p)] / ng - mt * m[lay.hg(wi)] / ng);
+            (c, chi)
+        })
+        .collect()
+}
+
+/// Runs per block folded into the replicates together (in file order, so the sums do not
+/// depend on the thread count).
+const BLOCK: usize = 256;
+
+/// Reduces a file of repeated quenches.
+///
+/// # Errors
+/// [`Error::Io`], [`Error::Input`] naming line, run and time for rows that do not line up
+/// or a run whose rows are not together; [`Error::Setting`] for bad settings;
+/// [`Error::Analysis`] naming the stratum with too few runs.
+pub fn reduce_quenches(path: &Path, settings: &QuenchSettings) -> Result<QuenchReduction> {
+    crate::common::check_level(settings.level)?;
+    crate::common::check_resamples(settings.resamples)?;
+    // Pass 1: the grid (first run's times), the switch-on times, runs kept together.
+    let mut grid: Vec<f64> = Vec::new();
+    let mut first: Option<String> = None;
+    let mut switch_on: Vec<f64> = Vec::new();
+    let mut finished: HashSet<String> = HashSet::new();
+    let mut current: Option<(String, f64, Option<f64>, u64)> = None;
+    stream(path, |r| {
+        let same = current.as_ref().is_some_and(|c| c.0 == r.run);
+        if !same {
+            if let Some(c) = current.take() {
+                finished.insert(c.0);
+            }
+            if finished.contains(&r.run) {
+                return Err(Error::input(
+                    path,
+                    Some(r.line),
+                    None,
+                    format!(
+                        "run '{}' appears again after other runs; expected the rows of one run together",
+                        r.run
+                    ),
+                ));
+            }
+            if first.is_none() {
+                first = Some(r.run.clone());
+            }
+            if let Some(tw) = r.tw
+                && !switch_on.iter().any(|&x| key(x) == key(tw))
+            {
+                switch_on.push(tw);
+            }
+            current = Some((r.run.clone(), r.h, r.tw, r.line));
+        }
+        let c = current
+            .as_ref()
+            .map(|c| (c.1, c.2, c.3))
+            .unwrap_or((0.0, None, 0));
+        if key(c.0) != key(r.h) || c.1.map(key) != r.tw.map(key) {
+            return Err(Error::input(
+                path,
+                Some(r.line),
+                None,
+                format!(
+                    "run '{}' changes its field or switch-on time (h = {}, tw = {} on line {}); \
+                     expected one h and one tw per run",
+                    r.run,
+                    c.0,
+                    c.1.map_or("none".to_string(), |v| v.to_string()),
+                    c.2
+                ),
+            ));
+        }
+        if first.as_deref() == Some(r.run.as_str()) {
+            grid.push(r.t);
+        }
+        Ok(())
+    })?;
+    if grid.is_empty() {
+        return Err(Error::input(
+            path,
+            None,
+            None,
+            "no data rows after the header",
+        ));
+    }
+    grid.sort_by(f64::total_cmp);
+    let first = first.unwrap_or_default();
+    if let Some(w) = grid.windows(2).find(|w| key(w[0]) == key(w[1])) {
+        return Err(Error::input(
+            path,
+            None,
+            None,
+            format!(
+                "run '{first}' has t = {} twice; expected one row per (run, t)",
+                w[0]
+            ),
+        ));
+    }
+    let at: HashMap<u64, usize> = grid.iter().enumerate().map(|(i, &t)| (key(t), i)).collect();
+    let mut tws = if settings.tws.is_empty() {
+        switch_on.clone()
+    } else {
+        settings.tws.clone()
+    };
+    tws.sort_by(f64::total_cmp);
+    tws.dedup_by(|a, b| key(*a) == key(*b));
+    if tws.is_empty() {
+        return Err(Error::Analysis(
+            "no perturbed run (h ≠ 0) and no --tw given: no waiting time to form C(t,tw) at".into(),
+        ));
+    }
+    let mut points = Vec::new();
+    for (wi, &tw) in tws.iter().enumerate() {
+        let gw = *at.get(&key(tw)).ok_or_else(|| {
+            Error::Analysis(format!(
+                "tw = {tw} is not one of the recorded times of run '{first}'; C(t,tw) needs A at tw"
+            ))
+        })?;
+        for gt in gw + 1..grid.len() {
+            points.push((wi, gw, gt));
+        }
+    }
+    let np = points.len();
+    let ntw = tws.len();
+    let lay = Layout {
+        len: 1 + grid.len() + np + 2 * ntw + np,
+        times: grid,
+        points,
+        tws,
+    };
+    // Pass 2: fold every run as it ends.
+    let b = settings.resamples;
+    let mut full = vec![0.0; lay.len];
+    let mut reps: Vec<Vec<f64>> = vec![vec![0.0; lay.len]; b];
+    // For the early-field check: Σ A, Σ A² per grid time, unperturbed and per tw group.
+    let g = lay.times.len();
+    let mut pre0 = vec![[0.0f64; 2]; g];
+    let mut pre = vec![vec![[0.0f64; 2]; g]; switch_on.len()];
+    let mut pre_n = vec![0usize; switch_on.len()];
+    let mut n0 = 0usize;
+    let mut block: Vec<(Run, Vec<f64>)> = Vec::with_capacity(BLOCK);
+    let mut index: u64 = 0;
+    let mut cur: Option<(String, Run, Vec<u64>)> = None;
+    let flush = |block: &mut Vec<(Run, Vec<f64>)>, reps: &mut Vec<Vec<f64>>| {
+        reps.par_iter_mut().enumerate().for_each(|(k, m)| {
+            for (r, w) in block.iter() {
+                fold(&lay, m, r, w[k]);
+            }
+        });
+        block.clear();
+    };
+    let mut finish = |name: String,
+                      run: Run,
+                      lines: Vec<u64>,
+                      block: &mut Vec<(Run, Vec<f64>)>,
+                      reps: &mut Vec<Vec<f64>>|
+     -> Result<()> {
+        if let Some(gi) = lines.iter().position(|&l| l == 0) {
+            return Err(Error::input(
+                path,
+                None,
+                None,
+                format!(
+                    "run '{name}' has no row at t = {}, which run '{first}' has; every run needs \
+                     the same times",
+                    lay.times[gi]
+                ),
+            ));
+        }
+        fold(&lay, &mut full, &run, 1.0);
+        match run.tw {
+            None => {
+                n0 += 1;
+                for (s, v) in pre0.iter_mut().zip(&run.values) {
+                    s[0] += v;
+                    s[1] += v * v;
+                }
+            }
+            Some(tw) => {
+                let wi = switch_on
+                    .iter()
+                    .position(|&x| key(x) == key(tw))
+                    .unwrap_or(0);
+                pre_n[wi] += 1;
+                for (s, v) in pre[wi].iter_mut().zip(&run.values) {
+                    s[0] += v;
+                    s[1] += v * v;
+                }
+            }
+        }
+        let mut rng = replicate_rng(settings.seed, index);
+        index += 1;
+        let w: Vec<f64> = (0..b).map(|_| poisson1(&mut rng)).collect();
+        block.push((run, w));
+        if block.len() == BLOCK {
+            flush(block, reps);
+        }
+        Ok(())
+    };
+    stream(path, |r| {
+        if cur.as_ref().is_none_or(|c| c.0 != r.run) {
+            if let Some((name, run, lines)) = cur.take() {
+                finish(name, run, lines, &mut block, &mut reps)?;
+            }
+            cur = Some((
+                r.run.clone(),
+                Run {
+                    h: r.h,
+                    tw: r.tw,
+                    values: vec![0.0; g],
+                },
+                vec![0; g],
+            ));
+        }
+        let Some((name, run, lines)) = cur.as_mut() else {
+            return Ok(());
+        };
+        let Some(&gi) = at.get(&key(r.t)) else {
+            return Err(Error::input(
+                path,
+                Some(r.line),
+                None,
+                format!(
+                    "run '{name}': time t = {} is not among the times of run '{first}'; every run \
+                     needs the same times",
+                    r.t
+                ),
+            ));
+        };
+        if lines[gi] != 0 {
+            return Err(Error::input(
+                path,
+                Some(r.line),
+                None,
+                format!(
+                    "run '{name}' has t = {} again (first on line {}); expected one row per (run, t)",
+                    r.t, lines[gi]
+                ),
+            ));
+        }
+        lines[gi] = r.line;
+        run.values[gi] = r.value;
+        Ok(())
+    })?;
+    if let Some((name, run, lines)) = cur.take() {
+        finish(name, run, lines, &mut block, &mut reps)?;
+    }
+    flush(&mut block, &mut reps);
+    let n0 = n0;
+    if n0 < 2 {
+        return Err(Error::Analysis(format!(
+            "{n0} unperturbed run(s) (h = 0); at least 2 are needed for C and its interval"
+        )));
+    }
+    let perturbed: Vec<(f64, usize)> = lay
+        .tws
+        .iter()
+        .map(|&tw| {
+            let n = switch_on
+                .iter()
+                .position(|&x| key(x) == key(tw))
+                .map_or(0, |i| pre_n[i]);
+            (tw, n)
+        })
+        .collect();
+    if let Some((tw, n)) = perturbed.iter().find(|(_, n)| *n == 1) {
+        return Err(Error::Analysis(format!(
+            "only {n} perturbed run switched on at tw = {tw}; at least 2 are needed for χ and its interval"
+        )));
+    }
+    let est = estimates(&lay, &full, settings.connected);
+    let rep_est: Vec<Vec<(f64, Option<f64>)>> = reps
+        .par_iter()
+        .map(|m| estimates(&lay, m, settings.connected))
+        .collect();
+    let alpha = (1.0 - settings.level) / 2.0;
+    let q = |mut v: Vec<f64>| {
+        v.retain(|x| x.is_finite());
+        v.sort_by(f64::total_cmp);
+        if v.len() < 2 {
+            (f64::NAN, f64::NAN)
+        } else {
+            (
+                resample::quantile_sorted(&v, alpha),
+                resample::quantile_sorted(&v, 1.0 - alpha),
+            )
+        }
+    };
+    let points: Vec<QuenchPoint> = lay
+        .points
+        .iter()
+        .enumerate()
+        .map(|(p, &(wi, _, gt))| {
+            let (cl, ch) = q(rep_est.iter().map(|r| r[p].0).collect());
+            let chi = est[p].1;
+            let (xl, xh) = q(rep_est.iter().filter_map(|r| r[p].1).collect());
+            QuenchPoint {
+                tw: lay.tws[wi],
+                t: lay.times[gt],
+                corr: est[p].0,
+                corr_low: cl,
+                corr_high: ch,
+                chi,
+                chi_low: chi.map(|_| xl),
+                chi_high: chi.map(|_| xh),
+            }
+        })
+        .collect();
+    let early = early_drift(
+        &lay.times,
+        &switch_on,
+        &pre0,
+        n0,
+        &pre,
+        &pre_n,
+        1.0 - settings.level,
+    );
+    Ok(QuenchReduction {
+        unperturbed: n0,
+        perturbed,
+        times: g,
+        points,
+        early,
+        settings: settings.clone(),
+    })
+}
+
+/// The early-field check (module docs).
+fn early_drift(
+    times: &[f64],
+    switch_on: &[f64],
+    pre0: &[[f64; 2]],
+    n0: usize,
+    pre: &[Vec<[f64; 2]>],
+    pre_n: &[usize],
+    alpha: f64,
+) -> Option<EarlyDrift> {
+    let moments = |s: [f64; 2], n: usize| {
+        let nf = n as f64;
+        let m = s[0] / nf;
+        (m, ((s[1] - s[0] * m) / (nf - 1.0)).max(0.0) / nf)
+    };
+    let mut zs: Vec<(f64, f64, f64)> = Vec::new();
+    for (wi, &tw) in switch_on.iter().enumerate() {
+        if pre_n[wi] < 2 {
+            continue;
+        }
+        for (gi, &t) in times.iter().enumerate().filter(|(_, t)| **t < tw) {
+            let (m0, v0) = moments(pre0[gi], n0);
+            let (mh, vh) = moments(pre[wi][gi], pre_n[wi]);
+            let se = (v0 + vh).sqrt();
+            if se > 0.0 {
+                zs.push((tw, t, (mh - m0) / se));
+            }
+        }
+    }
+    let m = zs.len();
+    if m == 0 {
+        return None;
+    }
+    let bound = Normal::standard().inverse_cdf(1.0 - alpha / (2.0 * m as f64));
+    let worst = zs.iter().copied().fold((0.0f64, 0.0f64, 0.0f64), |a, z| {
+        if z.2.abs() > a.2.abs() { z } else { a }
+    });
+    (worst.2.abs() > bound).then_some(EarlyDrift {
+        tw: worst.0,
+        t: worst.1,
+        z: worst.2,
+        bound,
+        comparisons: m,
+    })
+}

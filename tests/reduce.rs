@@ -1,0 +1,719 @@
+//! `fdtemp reduce`: raw twin runs reduced to a campaign, checked against closed forms and
+//! known-truth nonlinear responses; the linear-response test's false-alarm rate (ignored
+//! study); bad inputs with their exact messages.
+
+use assert_cmd::Command;
+use fdtemp::reduce::twin::{Combine, TwinRuns, TwinSettings, parse_twins, reduce_twins};
+use fdtemp::scenarios::sim::twins::{TwinSpec, exact_chi, exact_corr, twin_csv};
+use fdtemp::twotime::campaign::GridPoint;
+use ndarray::Array2;
+use predicates::prelude::*;
+use rand::RngExt;
+use rand_distr::StandardNormal;
+use std::path::Path;
+
+fn reduce(spec: &TwinSpec, combine: Combine) -> fdtemp::reduce::TwinReduction {
+    let bytes = twin_csv(spec);
+    let runs = parse_twins(bytes.as_slice(), Path::new("raw.csv")).unwrap();
+    let settings = TwinSettings {
+        combine,
+        resamples: 499,
+        ..Default::default()
+    };
+    reduce_twins(&runs, &settings).unwrap()
+}
+
+#[test]
+fn reduced_two_bath_twins_match_the_closed_forms() {
+    let r = reduce(&TwinSpec::linear(40, 3, true), Combine::Extrapolate);
+    let c = &r.campaign;
+    let n = c.n_samples() as f64;
+    let mut worst_z: f64 = 0.0;
+    for (j, g) in c.points().iter().enumerate() {
+        let lag = g.t - g.tw;
+        let col = c.corr().column(j);
+        let mean = col.sum() / n;
+        let se = (col.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / (n - 1.0) / n).sqrt();
+        worst_z = worst_z.max(((mean - exact_corr(lag)) / se).abs());
+        // Source: closed-form mean response of independent Ornstein–Uhlenbeck modes to a
+        // constant force (Gardiner, Stochastic Methods, 4th ed. (2009), §3.8.4, section
+        // from memory); the twins share the noise, so χ is exact to rounding.
+        let chi = c.resp().column(j).sum() / n;
+        assert!(
+            ((chi - exact_chi(lag)) / exact_chi(lag)).abs() < 1e-9,
+            "chi at lag {lag}: {chi} against {}",
+            exact_chi(lag)
+        );
+    }
+    // Source: stationary covariance of the Ornstein–Uhlenbeck process (same reference).
+    // 32 points: the largest |z| of correlated normal errors stays below 4.
+    assert!(
+        worst_z < 4.0,
+        "C off its closed form by {worst_z} standard errors"
+    );
+    let t = r.test.as_ref().unwrap();
+    assert!(!t.rejects, "a linear system flagged as nonlinear: {t:?}");
+    assert!(r.early.is_none());
+}
+
+#[test]
+fn an_injected_cubic_response_is_detected_and_removed_by_the_extrapolation() {
+    let spec = TwinSpec {
+        cubic: 30.0,
+        ..TwinSpec::linear(20, 5, true)
+    };
+    let ex = reduce(&spec, Combine::Extrapolate);
+    let t = ex.test.as_ref().unwrap();
+    assert!(t.rejects, "cubic response not detected: {t:?}");
+    let small = reduce(&spec, Combine::Smallest);
+    let n = ex.campaign.n_samples() as f64;
+    for (j, g) in ex.campaign.points().iter().enumerate() {
+        let exact = exact_chi(g.t - g.tw);
+        let e = ex.campaign.resp().column(j).sum() / n;
+        let s = small.campaign.resp().column(j).sum() / n;
+        // χ(h) = χ₁(1 + κ₃h²): two-level Richardson in h² is exact (common practice).
+        assert!(
+            ((e - exact) / exact).abs() < 1e-9,
+            "extrapolated {e} vs {exact}"
+        );
+        // The smallest amplitude alone keeps κ₃h² = 30 × 0.05² = 7.5% of bias.
+        assert!((s / exact - 1.075).abs() < 1e-9, "smallest {s} vs {exact}");
+    }
+}
+
+#[test]
+fn a_quadratic_response_is_cancelled_by_the_plus_minus_combination() {
+    let spec = TwinSpec {
+        quadratic: 3.0,
+        ..TwinSpec::linear(20, 6, true)
+    };
+    let sym = reduce(&spec, Combine::Extrapolate);
+    assert!(sym.design.symmetric);
+    assert!(!sym.test.as_ref().unwrap().rejects);
+    let n = sym.campaign.n_samples() as f64;
+    for (j, g) in sym.campaign.points().iter().enumerate() {
+        let exact = exact_chi(g.t - g.tw);
+        let v = sym.campaign.resp().column(j).sum() / n;
+        assert!(((v - exact) / exact).abs() < 1e-9);
+    }
+    // The same system with positive fields only: the h² term shows as a dependence on h.
+    let one_sided = reduce(
+        &TwinSpec {
+            fields: vec![0.05, 0.1],
+            ..spec
+        },
+        Combine::Extrapolate,
+    );
+    assert!(!one_sided.design.symmetric);
+    assert!(one_sided.test.as_ref().unwrap().rejects);
+}
+
+/// Invented known-truth twin runs with sample-to-sample noise: per sample and point
+/// χ_k = c_p (1 + κ u_k) + e_i(p) + d_ik(p), with e and d correlated along the points
+/// (AR(1), ρ = 0.8), fields ±0.05, ±0.1 (u = h²). κ = 0 is the null of the linearity test.
+fn noisy_twins(seed: u64, n: usize, kappa: f64) -> TwinRuns {
+    let np = 24;
+    let amps = [0.05, 0.1];
+    let mut rng = fdtemp::resample::replicate_rng(seed, 0);
+    let points: Vec<GridPoint> = (0..np)
+        .map(|j| GridPoint {
+            tw: 10.0,
+            t: 11.0 + j as f64,
+        })
+        .collect();
+    let c: Vec<f64> = (0..np)
+        .map(|j| 1.0 - (-(j as f64 + 1.0) / 8.0).exp())
+        .collect();
+    let ar = |rng: &mut rand_chacha::ChaCha8Rng, sd: f64| {
+        let mut x: f64 = rng.sample(StandardNormal);
+        (0..np)
+            .map(|_| {
+                let v = x * sd;
+                x = 0.8 * x + (1.0f64 - 0.64).sqrt() * rng.sample::<f64, _>(StandardNormal);
+                v
+            })
+            .collect::<Vec<f64>>()
+    };
+    let corr = Array2::<f64>::from_elem((n, np), 0.5);
+    let m0 = Array2::<f64>::zeros((n, np));
+    let fields = vec![-0.1, -0.05, 0.05, 0.1];
+    let mut mh = vec![Array2::<f64>::zeros((n, np)); 4];
+    for i in 0..n {
+        let e = ar(&mut rng, 0.05);
+        for (k, &a) in amps.iter().enumerate() {
+            let d = ar(&mut rng, 0.02);
+            for p in 0..np {
+                let chi = c[p] * (1.0 + kappa * a * a) + e[p] + d[p];
+                // m(±a) = ±a χ: the ±h combination gives χ back.
+                mh[if k == 0 { 1 } else { 0 }][[i, p]] = -a * chi;
+                mh[if k == 0 { 2 } else { 3 }][[i, p]] = a * chi;
+            }
+        }
+    }
+    let ids = (0..n).map(|i| format!("s{i:03}")).collect();
+    TwinRuns::new(ids, points, fields, corr, m0, mh).unwrap()
+}
+
+fn rejection_rate(campaigns: usize, n: usize, kappa: f64, resamples: usize) -> f64 {
+    let settings = TwinSettings {
+        resamples,
+        ..Default::default()
+    };
+    let hits = (0..campaigns)
+        .filter(|&s| {
+            let r = reduce_twins(&noisy_twins(1000 + s as u64, n, kappa), &settings).unwrap();
+            r.test.unwrap().rejects
+        })
+        .count();
+    hits as f64 / campaigns as f64
+}
+
+#[test]
+fn the_linearity_test_rarely_fires_on_a_linear_response_and_finds_a_strong_cubic() {
+    // 60 null campaigns at nominal 5%: more than 12 rejections (20%) is a broken test.
+    let null = rejection_rate(60, 20, 0.0, 199);
+    assert!(null <= 0.2, "false alarms {null}");
+    // κ = 20: χ changes by 15% of c between the amplitudes, several standard errors.
+    let power = rejection_rate(20, 20, 20.0, 199);
+    assert!(power >= 0.9, "power {power}");
+}
+
+/// The false-alarm rate and the power of the linearity test over many invented campaigns
+/// (docs/validation.md, section "reduce").
+///
+/// `cargo test --release --test reduce -- --ignored --nocapture linearity_study`
+#[test]
+#[ignore]
+fn linearity_study() {
+    let m = 400;
+    for n in [12, 20, 48] {
+        let p = rejection_rate(m, n, 0.0, 999);
+        let sd = (p * (1.0 - p) / m as f64).sqrt();
+        println!("null n = {n}: false alarms {p:.4} ± {sd:.4} over {m} campaigns (nominal 0.05)");
+    }
+    for kappa in [2.0, 5.0, 10.0] {
+        let p = rejection_rate(200, 20, kappa, 999);
+        let sd = (p * (1.0 - p) / 200.0).sqrt();
+        println!("kappa = {kappa}, n = 20: rejections {p:.4} ± {sd:.4} over 200 campaigns");
+    }
+}
+
+/// Coverage of X when `fit` runs on reduced twin campaigns: `two-baths-twins --quick`
+/// reduced (±h, Richardson), fitted with the defaults (broken stick, BCa, B = 999), X
+/// against the exact T/T_slow = 0.4 (docs/validation.md, section "reduce").
+///
+/// `FDTEMP_REDUCE_SAMPLES=40 cargo test --release --test reduce -- --ignored --nocapture twin_fit_coverage`
+/// (samples per campaign, 20 by default; `FDTEMP_REDUCE_FULL=1` for the full time grid)
+#[test]
+#[ignore]
+fn twin_fit_coverage() {
+    let campaigns = 200;
+    let samples: usize = std::env::var("FDTEMP_REDUCE_SAMPLES")
+        .ok()
+        .and_then(|v| v.parse().ok())
+        .unwrap_or(20);
+    let quick = std::env::var("FDTEMP_REDUCE_FULL").is_err();
+    let mut hits = 0usize;
+    for s in 0..campaigns {
+        let spec = TwinSpec::linear(samples, 20_000 + s as u64, quick);
+        let r = reduce(&spec, Combine::Extrapolate);
+        let fit = fdtemp::FitSettings {
+            temperature: 1.0,
+            resamples: 999,
+            seed: s as u64,
+            ..Default::default()
+        };
+        let f = fdtemp::analyze(&r.campaign, &fit, None, &fdtemp::twotime::Silent)
+            .unwrap()
+            .fits
+            .remove(0);
+        hits += usize::from(
+            matches!((f.ratio.low, f.ratio.high), (Some(lo), Some(hi)) if lo <= 0.4 && 0.4 <= hi),
+        );
+    }
+    let p = hits as f64 / campaigns as f64;
+    let sd = (p * (1.0 - p) / campaigns as f64).sqrt();
+    println!(
+        "X coverage of fit on reduced twin campaigns ({samples} samples): {p:.4} ± {sd:.4} over {campaigns} (nominal 0.95)"
+    );
+}
+
+fn fdtemp() -> Command {
+    Command::cargo_bin("fdtemp").unwrap()
+}
+
+fn raw_file(dir: &Path) -> std::path::PathBuf {
+    let p = dir.join("raw.csv");
+    std::fs::write(&p, twin_csv(&TwinSpec::linear(6, 2, true))).unwrap();
+    p
+}
+
+#[test]
+fn reduce_writes_a_campaign_that_fit_reads() {
+    let dir = tempfile::tempdir().unwrap();
+    let raw = raw_file(dir.path());
+    let out = dir.path().join("campaign.csv");
+    fdtemp()
+        .arg("reduce")
+        .arg(&raw)
+        .arg("--out")
+        .arg(&out)
+        .args(["-B", "199"])
+        .assert()
+        .success()
+        .stdout(predicate::str::contains(
+            "twin runs  ",
+        ))
+        .stdout(predicate::str::contains(
+            ": 6 samples, 2 waiting times, 32 points; fields ±0.05, ±0.1",
+        ))
+        .stdout(predicate::str::contains(
+            "linearity  no dependence of chi on h detected: max |t| = 0 over 32 points (p = 1.000; level 0.05)",
+        ));
+    let text = std::fs::read_to_string(&out).unwrap();
+    assert!(text.starts_with("sample,tw,t,corr,resp\n"));
+    fdtemp()
+        .arg("fit")
+        .arg(&out)
+        .args(["-T", "1", "-B", "199"])
+        .assert()
+        .success();
+    // The campaign is not replaced without --overwrite.
+    fdtemp()
+        .arg("reduce")
+        .arg(&raw)
+        .arg("--out")
+        .arg(&out)
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains(
+            "exists already; pass --overwrite to replace it",
+        ));
+}
+
+#[test]
+fn twins_whose_times_do_not_line_up_are_refused_with_sample_run_and_time() {
+    let dir = tempfile::tempdir().unwrap();
+    let raw = raw_file(dir.path());
+    let text = std::fs::read_to_string(&raw).unwrap();
+    // Move one time of the h = 0.05 twin of sample s0002 at tw = 50.
+    let bad = text.replacen("s0002,50.0,50.02,0.05,", "s0002,50.0,50.025,0.05,", 1);
+    assert_ne!(bad, text);
+    std::fs::write(&raw, &bad).unwrap();
+    let line = bad
+        .lines()
+        .position(|l| l.starts_with("s0002,50.0,50.025,0.05,"))
+        .unwrap()
+        + 1;
+    let out = dir.path().join("campaign.csv");
+    fdtemp()
+        .arg("reduce")
+        .arg(&raw)
+        .arg("--out")
+        .arg(&out)
+        .assert()
+        .code(2)
+        .stderr(format!(
+            "error: {}:{line}: sample 's0002', run tw = 50, h = 0.05: time t = 50.025 is not among \
+             the times of its unperturbed run; twin runs must be recorded at the same times\n",
+            raw.display()
+        ));
+    assert!(!out.exists());
+}
+
+#[test]
+fn a_field_that_moves_the_observable_before_tw_is_flagged() {
+    let dir = tempfile::tempdir().unwrap();
+    let raw = raw_file(dir.path());
+    let text = std::fs::read_to_string(&raw).unwrap();
+    // The h = 0.1 twin of s0003 differs from its unperturbed run at t = tw = 500.
+    let mut lines: Vec<String> = text.lines().map(String::from).collect();
+    let i = lines
+        .iter()
+        .position(|l| l.starts_with("s0003,500.0,500.0,0.1,"))
+        .unwrap();
+    let m: f64 = lines[i].rsplit(',').next().unwrap().parse().unwrap();
+    lines[i] = format!("s0003,500.0,500.0,0.1,,{:?}", m + 0.25);
+    std::fs::write(&raw, lines.join("\n") + "\n").unwrap();
+    fdtemp()
+        .arg("reduce")
+        .arg(&raw)
+        .arg("--out")
+        .arg(dir.path().join("c.csv"))
+        .args(["-B", "199"])
+        .assert()
+        .success()
+        .stdout(predicate::str::contains(
+            "caution    the field moved the observable before tw: sample 's0003', tw = 500, h = 0.1: m(h) − m(0) = 0.250 at t = 500 (1 perturbed run(s) differ before tw)",
+        ));
+}
+
+#[test]
+fn reduce_can_fit_at_once() {
+    let dir = tempfile::tempdir().unwrap();
+    let raw = raw_file(dir.path());
+    fdtemp()
+        .arg("reduce")
+        .arg(&raw)
+        .arg("--out")
+        .arg(dir.path().join("c.csv"))
+        .args(["-B", "199", "--fit"])
+        .assert()
+        .code(2)
+        .stderr("error: --fit needs --temperature (the bath temperature T)\n");
+    fdtemp()
+        .arg("reduce")
+        .arg(&raw)
+        .arg("--out")
+        .arg(dir.path().join("c.csv"))
+        .args(["-B", "199", "--fit", "-T", "1"])
+        .assert()
+        .success()
+        .stdout(predicate::str::contains(
+            "fluctuation–dissipation fit in the time domain",
+        ));
+}
+
+mod quenches {
+    use fdtemp::reduce::quench::{QuenchSettings, reduce_quenches};
+    use fdtemp::scenarios::sim::twins::{QuenchSpec, exact_chi, exact_corr, quench_csv};
+    use predicates::prelude::*;
+
+    fn write(dir: &std::path::Path, spec: &QuenchSpec) -> std::path::PathBuf {
+        let p = dir.join("quenches.csv");
+        std::fs::write(&p, quench_csv(spec)).unwrap();
+        p
+    }
+
+    #[test]
+    fn reduced_quenches_cover_the_closed_forms() {
+        let dir = tempfile::tempdir().unwrap();
+        let file = write(dir.path(), &QuenchSpec::standard(3000, 7, true));
+        let settings = QuenchSettings {
+            resamples: 499,
+            ..Default::default()
+        };
+        let r = reduce_quenches(&file, &settings).unwrap();
+        assert_eq!(r.unperturbed, 1000);
+        assert_eq!(r.perturbed, vec![(50.0, 1000), (500.0, 1000)]);
+        assert!(r.early.is_none());
+        let n = r.points.len() as f64;
+        // Source: stationary covariance and mean response of independent Ornstein–Uhlenbeck
+        // modes (Gardiner, Stochastic Methods, 4th ed. (2009), §3.8.4, section from
+        // memory). 95% pointwise intervals; the points of one tw are strongly correlated,
+        // so the covered fraction of one campaign varies a lot: at least 70% is required.
+        let c_cov = r
+            .points
+            .iter()
+            .filter(|p| {
+                let e = exact_corr(p.t - p.tw);
+                p.corr_low <= e && e <= p.corr_high
+            })
+            .count() as f64
+            / n;
+        let x_cov = r
+            .points
+            .iter()
+            .filter(|p| {
+                let e = exact_chi(p.t - p.tw);
+                p.chi_low.unwrap() <= e && e <= p.chi_high.unwrap()
+            })
+            .count() as f64
+            / n;
+        assert!(
+            c_cov >= 0.7 && x_cov >= 0.7,
+            "covered: C {c_cov}, chi {x_cov}"
+        );
+    }
+
+    #[test]
+    fn a_field_switched_on_before_tw_is_flagged() {
+        let dir = tempfile::tempdir().unwrap();
+        let spec = QuenchSpec {
+            lead: 100.0,
+            ..QuenchSpec::standard(3000, 7, true)
+        };
+        let file = write(dir.path(), &spec);
+        let settings = QuenchSettings {
+            resamples: 199,
+            ..Default::default()
+        };
+        let e = reduce_quenches(&file, &settings).unwrap().early.unwrap();
+        assert!(e.t < e.tw && e.z.abs() > e.bound, "{e:?}");
+    }
+
+    #[test]
+    fn quench_runs_that_do_not_line_up_are_refused_with_run_and_time() {
+        let dir = tempfile::tempdir().unwrap();
+        let file = write(dir.path(), &QuenchSpec::standard(30, 1, true));
+        let text = std::fs::read_to_string(&file).unwrap();
+        let bad = text.replacen("q00005,25.0,", "q00005,26.0,", 1);
+        std::fs::write(&file, &bad).unwrap();
+        let line = bad
+            .lines()
+            .position(|l| l.starts_with("q00005,26.0,"))
+            .unwrap()
+            + 1;
+        super::fdtemp()
+            .arg("reduce")
+            .arg(&file)
+            .arg("--out")
+            .arg(dir.path().join("p.csv"))
+            .assert()
+            .code(2)
+            .stderr(format!(
+                "error: {}:{line}: run 'q00005': time t = 26 is not among the times of run \
+                 'q00001'; every run needs the same times\n",
+                file.display()
+            ));
+        // A run split in two places.
+        let mut lines: Vec<&str> = text.lines().collect();
+        let moved = lines.remove(1);
+        lines.push(moved);
+        std::fs::write(&file, lines.join("\n") + "\n").unwrap();
+        super::fdtemp()
+            .arg("reduce")
+            .arg(&file)
+            .arg("--out")
+            .arg(dir.path().join("p.csv"))
+            .assert()
+            .code(2)
+            .stderr(predicate::str::contains(
+                "run 'q00001' appears again after other runs; expected the rows of one run together",
+            ));
+        assert!(!dir.path().join("p.csv").exists());
+    }
+
+    #[test]
+    fn quenches_are_reduced_from_the_cli_and_fit_is_refused_with_the_reason() {
+        let dir = tempfile::tempdir().unwrap();
+        let file = write(dir.path(), &QuenchSpec::standard(300, 1, true));
+        let out = dir.path().join("p.csv");
+        super::fdtemp()
+            .arg("reduce")
+            .arg(&file)
+            .arg("--out")
+            .arg(&out)
+            .args(["-B", "199"])
+            .assert()
+            .success()
+            .stdout(predicate::str::contains(
+                ": 100 unperturbed runs, perturbed 100 from tw = 50, 100 from tw = 500; 36 times, 53 points",
+            ));
+        assert!(
+            std::fs::read_to_string(&out)
+                .unwrap()
+                .starts_with("tw,t,corr,corr_low,corr_high,chi,chi_low,chi_high\n")
+        );
+        super::fdtemp()
+            .arg("reduce")
+            .arg(&file)
+            .arg("--out")
+            .arg(dir.path().join("q.csv"))
+            .args(["--fit", "-T", "1"])
+            .assert()
+            .code(2)
+            .stderr(predicate::str::starts_with(
+                "error: --fit is not available for repeated quenches yet",
+            ));
+        super::fdtemp()
+            .arg("reduce")
+            .arg(&file)
+            .arg("--out")
+            .arg(dir.path().join("q.csv"))
+            .arg("--table")
+            .arg(dir.path().join("t.csv"))
+            .assert()
+            .code(2)
+            .stderr(
+                "error: --table is for twin runs; for repeated quenches --out is already the \
+                 per-point table\n",
+            );
+    }
+
+    /// Pointwise coverage of the quench intervals (C and χ against the closed forms,
+    /// averaged over the points) and the early-field caution's false alarms, over many
+    /// campaigns of the two-bath system (docs/validation.md, section "reduce").
+    ///
+    /// `cargo test --release --test reduce -- --ignored --nocapture quench_study`
+    #[test]
+    #[ignore]
+    fn quench_study() {
+        let campaigns = 200;
+        let dir = tempfile::tempdir().unwrap();
+        let settings = QuenchSettings {
+            resamples: 399,
+            ..Default::default()
+        };
+        let (mut c_frac, mut x_frac, mut alarms) = (Vec::new(), Vec::new(), 0usize);
+        for s in 0..campaigns {
+            let file = write(
+                dir.path(),
+                &QuenchSpec::standard(900, 5000 + s as u64, true),
+            );
+            let r = reduce_quenches(&file, &settings).unwrap();
+            let n = r.points.len() as f64;
+            let (mut c_in, mut x_in) = (0.0, 0.0);
+            for p in &r.points {
+                let (ec, ex) = (exact_corr(p.t - p.tw), exact_chi(p.t - p.tw));
+                c_in += f64::from(u8::from(p.corr_low <= ec && ec <= p.corr_high));
+                x_in += f64::from(u8::from(
+                    p.chi_low.unwrap() <= ex && ex <= p.chi_high.unwrap(),
+                ));
+            }
+            c_frac.push(c_in / n);
+            x_frac.push(x_in / n);
+            alarms += usize::from(r.early.is_some());
+        }
+        // Mean over campaigns ± its standard error (the points of one campaign are
+        // correlated, the campaigns independent).
+        let summary = |v: &[f64]| {
+            let m = v.len() as f64;
+            let mean = v.iter().sum::<f64>() / m;
+            let sd = (v.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (m - 1.0)).sqrt();
+            (mean, sd / m.sqrt())
+        };
+        let (pc, sc) = summary(&c_frac);
+        let (px, sx) = summary(&x_frac);
+        let pa = alarms as f64 / campaigns as f64;
+        let sa = (pa * (1.0 - pa) / campaigns as f64).sqrt();
+        println!("{campaigns} campaigns of 900 runs (300 unperturbed, 300 per tw)");
+        println!(
+            "pointwise 95% coverage averaged over points: C {pc:.4} ± {sc:.4}, chi {px:.4} ± {sx:.4}"
+        );
+        println!(
+            "early-field caution with the field switched on at tw: {pa:.4} ± {sa:.4} (level at most 0.05)"
+        );
+    }
+}
+
+/// The worked examples of docs/reduce.md run as written and print what the doc shows.
+#[test]
+fn the_worked_examples_in_the_docs_print_what_the_docs_show() {
+    let doc =
+        std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/docs/reduce.md")).unwrap();
+    let mut checked = 0;
+    for section in doc.split("### Worked example").skip(1) {
+        let mut blocks = section.split("```").skip(1).step_by(2);
+        let commands = blocks.next().unwrap().trim_start_matches("sh\n");
+        let shown = blocks.next().unwrap().trim_start_matches('\n');
+        let dir = tempfile::tempdir().unwrap();
+        let mut reduce_out = String::new();
+        for line in commands.lines().filter(|l| l.starts_with("fdtemp ")) {
+            let args: Vec<&str> = line.split_whitespace().skip(1).collect();
+            let out = fdtemp()
+                .current_dir(dir.path())
+                .args(&args)
+                .output()
+                .unwrap();
+            assert!(
+                out.status.success(),
+                "{line}: {}",
+                String::from_utf8_lossy(&out.stderr)
+            );
+            if args[0] == "reduce" {
+                reduce_out = String::from_utf8(out.stdout).unwrap();
+            }
+        }
+        for want in shown.lines().filter(|l| !l.trim().is_empty()) {
+            assert!(
+                reduce_out.contains(want),
+                "docs show {want:?}; reduce printed:\n{reduce_out}"
+            );
+        }
+        checked += 1;
+    }
+    assert_eq!(checked, 2);
+}
+
+/// The Glauber–Ising chain as twin runs with a random-sign field: the reduced χ (±h,
+/// extrapolated to h → 0) agrees with the field-free estimator of the same runs, and the
+/// linearity test sees that β h = 0.2 and 0.4 are not small.
+#[test]
+fn ising_twins_agree_with_the_field_free_estimator() {
+    let bytes = fdtemp::scenarios::sim::ising_twins::ising_twin_csv(30, 3, true);
+    let runs = parse_twins(bytes.as_slice(), Path::new("ising.csv")).unwrap();
+    let settings = TwinSettings {
+        resamples: 499,
+        ..Default::default()
+    };
+    let r = reduce_twins(&runs, &settings).unwrap();
+    assert!(r.test.as_ref().unwrap().rejects);
+    // chi_free per (sample, tw, t) from the unperturbed rows.
+    let text = String::from_utf8(bytes).unwrap();
+    let mut free = std::collections::HashMap::new();
+    for line in text.lines().skip(1) {
+        let f: Vec<&str> = line.split(',').collect();
+        let (tw, t): (f64, f64) = (f[1].parse().unwrap(), f[2].parse().unwrap());
+        if f[3] == "0" && t > tw {
+            free.insert(
+                (f[0].to_string(), tw.to_bits(), t.to_bits()),
+                f[6].parse::<f64>().unwrap(),
+            );
+        }
+    }
+    let c = &r.campaign;
+    let n = c.n_samples() as f64;
+    let mut worst: f64 = 0.0;
+    for (j, g) in c.points().iter().enumerate() {
+        let d: Vec<f64> = c
+            .sample_ids()
+            .iter()
+            .enumerate()
+            .map(|(i, id)| c.resp()[[i, j]] - free[&(id.clone(), g.tw.to_bits(), g.t.to_bits())])
+            .collect();
+        let m = d.iter().sum::<f64>() / n;
+        let se = (d.iter().map(|x| (x - m).powi(2)).sum::<f64>() / (n - 1.0) / n).sqrt();
+        worst = worst.max((m / se).abs());
+    }
+    // Source: the field-free estimator (Ricci-Tersenghi, Phys. Rev. E 68, 065104(R) (2003))
+    // estimates the same linear response; paired per sample over 24 correlated points.
+    assert!(
+        worst < 4.0,
+        "reduced chi off the field-free estimator by {worst} SE"
+    );
+}
+
+/// The same seed gives byte-identical files at 1 and 2 worker threads (both protocols).
+#[test]
+fn reduce_output_does_not_depend_on_the_thread_count() {
+    let dir = tempfile::tempdir().unwrap();
+    let twins = raw_file(dir.path());
+    let quenches = dir.path().join("q.csv");
+    std::fs::write(
+        &quenches,
+        fdtemp::scenarios::sim::twins::quench_csv(
+            &fdtemp::scenarios::sim::twins::QuenchSpec::standard(600, 2, true),
+        ),
+    )
+    .unwrap();
+    for (input, extra) in [(&twins, true), (&quenches, false)] {
+        let mut outs = Vec::new();
+        for threads in ["1", "2"] {
+            let out = dir.path().join(format!("out{threads}.csv"));
+            let table = dir.path().join(format!("table{threads}.csv"));
+            let mut cmd = fdtemp();
+            cmd.arg("reduce").arg(input).arg("--out").arg(&out).args([
+                "-B",
+                "199",
+                "--overwrite",
+                "--threads",
+                threads,
+            ]);
+            if extra {
+                cmd.arg("--table").arg(&table);
+            }
+            cmd.assert().success();
+            let mut bytes = std::fs::read(&out).unwrap();
+            if extra {
+                bytes.extend(std::fs::read(&table).unwrap());
+            }
+            outs.push(bytes);
+        }
+        assert!(
+            outs[0] == outs[1],
+            "{} differs between 1 and 2 threads",
+            input.display()
+        );
+    }
+}
