@@ -73,6 +73,15 @@ fn whole_fit(c: &mut Criterion) {
     g.bench_function("W3: 100 samples x 1200 points, B = 2000, BCa", |b| {
         b.iter(|| analyze(black_box(&camp), &s, None, &Silent).unwrap())
     });
+    // The smooth X(C) beside the broken stick: two more NNLS fits per resample and curve.
+    let smooth = FitSettings {
+        model: fdtemp::twotime::Model::Smooth,
+        ..s.clone()
+    };
+    g.bench_function(
+        "W3 --model smooth: 100 samples x 1200 points, B = 2000",
+        |b| b.iter(|| analyze(black_box(&camp), &smooth, None, &Silent).unwrap()),
+    );
     g.finish();
 }
 
