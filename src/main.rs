@@ -19,6 +19,8 @@ fn main() -> ExitCode {
         Command::Noise(a) => cli::spectral::noise(a),
         Command::Synth(a) => cli::synth::run(a),
         Command::Demo(a) => cli::demo::run(a),
+        Command::Completions(a) => cli::shell::completions(a),
+        Command::ManPages(a) => cli::shell::man_pages(a),
     });
     match result {
         Ok(()) => ExitCode::SUCCESS,

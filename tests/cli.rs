@@ -127,7 +127,7 @@ fn the_json_uses_the_report_words_and_the_text_says_p_at_its_floor_as_a_bound() 
         .stdout(predicate::str::contains("for the joint fit p ≤ 0.002"))
         .stdout(predicate::str::contains("p = ≤").not());
     let v: serde_json::Value = serde_json::from_slice(&std::fs::read(&json).unwrap()).unwrap();
-    assert_eq!(v["schema"], 4);
+    assert_eq!(v["schema"], 5);
     let f = &v["fits"][0];
     for key in [
         "x",
@@ -241,7 +241,7 @@ const BAD_INPUTS: &[(&str, &str)] = &[
     ),
     (
         "missing_point.csv",
-        "fixtures/bad/missing_point.csv: sample 'b' has no row for tw = 1, t = 3, which sample 'a' has on line 3; every sample needs the same (tw, t) points",
+        "fixtures/bad/missing_point.csv: sample 'b' has no row for tw = 1, t = 3, which sample 'a' has on line 3; every sample needs the same (tw, t) points (--drop-incomplete leaves out the samples that miss points)",
     ),
     (
         "t_before_tw.csv",
@@ -257,7 +257,7 @@ const BAD_INPUTS: &[(&str, &str)] = &[
     ),
     (
         "semicolons.csv",
-        "fixtures/bad/semicolons.csv:1: no column 'sample' in the header (found: sample;tw;t;corr;resp); expected columns sample, tw, t, corr, resp (the header has a single column: fdtemp reads comma-separated files)",
+        "fixtures/bad/semicolons.csv:1: no column 'sample' in the header (found: sample;tw;t;corr;resp); expected columns sample, tw, t, corr, resp (the header has a single column with --delimiter comma: give --delimiter semicolon)",
     ),
     (
         "empty.csv",

@@ -125,7 +125,7 @@ fn json_has_the_documented_shape_and_no_nan() {
     let text = String::from_utf8(fdtemp::report::json::fit_json(&r)).unwrap();
     assert!(!text.contains("NaN") && !text.contains("inf"));
     let v: serde_json::Value = serde_json::from_str(&text).unwrap();
-    assert_eq!(v["schema"], 4);
+    assert_eq!(v["schema"], 5);
     assert_eq!(v["settings"]["resamples"], 200);
     assert_eq!(v["settings"]["interval"], "bca");
     assert!(v["fits"][0]["tw"].is_null());

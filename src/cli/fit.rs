@@ -3,7 +3,7 @@
 use super::progress::Bar;
 use super::{PlotArgs, RunArgs, in_file, parse_band, print};
 use fdtemp::common::Units;
-use fdtemp::input::ColumnNames;
+use fdtemp::input::{CampaignRead, ColumnNames, Delimiter, ReadCampaign};
 use fdtemp::output::{self, Output};
 use fdtemp::report::plot::{self, Figure};
 use fdtemp::resample::IntervalMethod;
@@ -56,6 +56,14 @@ pub struct FitOptions {
     /// Map a column role to another header name, e.g. --column resp=chi_zfc (repeatable).
     #[arg(long = "column", value_name = "ROLE=NAME")]
     columns: Vec<String>,
+    /// What separates the fields of the table; with any but comma, numbers may have a
+    /// decimal comma (0,25).
+    #[arg(long, value_enum, default_value_t = Delimiter::Comma)]
+    delimiter: Delimiter,
+    /// Leave out the samples that miss points instead of refusing the file; the report and
+    /// the JSON list them.
+    #[arg(long)]
+    drop_incomplete: bool,
 }
 
 impl FitOptions {
@@ -85,9 +93,15 @@ impl FitOptions {
         Ok(names)
     }
 
-    /// The campaign, read with the mapped names.
-    pub(super) fn campaign(&self) -> fdtemp::Result<fdtemp::Campaign> {
-        fdtemp::input::read_campaign(&self.file, &self.names()?)
+    /// The campaign, read with the mapped names and the delimiter, with the samples left
+    /// out by --drop-incomplete.
+    pub(super) fn campaign(&self) -> fdtemp::Result<ReadCampaign> {
+        let how = CampaignRead {
+            names: self.names()?,
+            delimiter: self.delimiter,
+            drop_incomplete: self.drop_incomplete,
+        };
+        fdtemp::input::read_campaign_with(&self.file, &how)
     }
 }
 
@@ -177,13 +191,14 @@ pub fn run(a: FitArgs) -> fdtemp::Result<()> {
         a.overwrite,
     )?;
     let file = &a.opts.file;
-    let campaign = a.opts.campaign()?;
+    let ReadCampaign { campaign, excluded } = a.opts.campaign()?;
     let input = Some(file.display().to_string());
-    let report = match &design {
+    let mut report = match &design {
         None => fdtemp::analyze(&campaign, &settings, input, &Bar::new()),
         Some(d) => calibrated_fit(&campaign, &settings, d, input, &Bar::labelled("simulating")),
     }
     .map_err(in_file(file))?;
+    report.excluded_samples = excluded;
     let mut outputs = outputs(&report, a.json, a.points, figure, resample_figure)?;
     if let Some((path, fig)) = panels {
         let bytes = plot::fd_panels(&report, fig)?;

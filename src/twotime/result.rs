@@ -7,7 +7,7 @@ use crate::common::{Estimate, ToolInfo};
 use serde::Serialize;
 
 /// The JSON schema version of [`FitReport`].
-pub const SCHEMA: u32 = 4;
+pub const SCHEMA: u32 = 5;
 
 /// The fitted two-segment curve in plot coordinates: `y = intercept + slope_above · x`
 /// for `x >= q`, and slope `slope_below` for `x < q` (continuous at `q`).
@@ -246,6 +246,8 @@ pub struct FitReport {
     pub settings: SettingsRecord,
     /// Number of samples.
     pub n_samples: usize,
+    /// Samples of the file left out because they miss points (`--drop-incomplete`).
+    pub excluded_samples: Vec<crate::input::ExcludedSample>,
     /// The waiting times.
     pub waiting_times: Vec<f64>,
     /// The joint fit first, then one per waiting time.
