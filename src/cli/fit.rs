@@ -15,7 +15,9 @@ use std::path::PathBuf;
 /// The options that shape a time-domain fit (shared by `fit` and `design-check`).
 #[derive(clap::Args)]
 pub struct FitOptions {
-    /// Tidy CSV: one row per (sample, tw, t) with columns sample, tw, t, corr, resp [, corr_eq].
+    /// Tidy CSV: one row per (sample, tw, t) with columns sample, tw, t, corr, resp [, corr_eq];
+    /// or a NumPy .npz archive with arrays corr, resp (samples × points), tw, t [, corr_eq,
+    /// sample] (docs/input.md).
     pub(super) file: PathBuf,
     /// Bath temperature T (energy units with --units reduced, kelvin with --units si).
     #[arg(long, short = 'T', allow_negative_numbers = true)]
@@ -60,8 +62,8 @@ pub struct FitOptions {
     /// decimal comma (0,25).
     #[arg(long, value_enum, default_value_t = Delimiter::Comma)]
     delimiter: Delimiter,
-    /// Leave out the samples that miss points instead of refusing the file; the report and
-    /// the JSON list them.
+    /// Leave out the samples that miss points (rows absent, or NaN in a .npz) instead of
+    /// refusing the file; the report and the JSON list them.
     #[arg(long)]
     drop_incomplete: bool,
 }

@@ -35,7 +35,8 @@ pub struct SpectrumArgs {
 
 #[derive(clap::Args)]
 pub struct NoiseArgs {
-    /// Noise record: one number per line, or one column per run (optional header).
+    /// Noise record: one number per line, or one column per run (optional header); or a
+    /// NumPy .npy array, one run or runs × samples (docs/input.md).
     file: PathBuf,
     /// Samples per second [default: from the record's time column, a first column named
     /// t or time (any unit suffix) or, without a header, rising in even steps].

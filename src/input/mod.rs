@@ -1,5 +1,6 @@
 //! Readers: turn files into validated data structures, with file:line:column errors.
 
+pub mod npy;
 pub mod tidy;
 
 pub use tidy::{

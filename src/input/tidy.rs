@@ -119,13 +119,26 @@ pub struct ReadCampaign {
     pub excluded: Vec<ExcludedSample>,
 }
 
-/// Reads a campaign file as `how` says.
+/// Reads a campaign file as `how` says: a NumPy `.npz` archive by its name, else a text
+/// table.
 ///
 /// # Errors
 /// As [`read_campaign`]; without `drop_incomplete` the error for a sample that misses a
 /// point names the sample and the point and mentions `--drop-incomplete`; with it, fewer
 /// than two complete samples is an error.
 pub fn read_campaign_with(path: &Path, how: &CampaignRead) -> Result<ReadCampaign> {
+    if super::npy::is_npz(path) {
+        return super::npy::read_campaign_npz(path, how);
+    }
+    if super::npy::is_npy(path) {
+        return Err(Error::input(
+            path,
+            None,
+            None,
+            "a .npy file holds one array, and a campaign needs several (corr, resp, tw, t); \
+             expected a .npz archive (numpy.savez) or a text table",
+        ));
+    }
     parse_campaign_with(super::open(path)?, path, how)
 }
 

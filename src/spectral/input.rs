@@ -456,15 +456,25 @@ pub fn stream_records(path: &Path, sink: impl FnMut(usize, f64)) -> Result<Recor
     stream_records_from(open(path)?, path, sink)
 }
 
-/// As [`stream_records`], with fields split at `d` (`--delimiter`).
+/// As [`stream_records`], with fields split at `d` (`--delimiter`); a `.npy` file (by its
+/// name) is read as a NumPy array instead ([`crate::input::npy::read_noise_npy`]).
 ///
 /// # Errors
-/// As [`stream_records`].
+/// As [`stream_records`] and [`crate::input::npy::read_noise_npy`].
 pub fn stream_records_in(
     path: &Path,
     d: Delimiter,
-    sink: impl FnMut(usize, f64),
+    mut sink: impl FnMut(usize, f64),
 ) -> Result<Records> {
+    if crate::input::npy::is_npy(path) {
+        let (runs, a) = crate::input::npy::read_noise_npy(path)?;
+        for (r, row) in a.outer_iter().enumerate() {
+            for &v in row {
+                sink(r, v);
+            }
+        }
+        return Ok(Records { runs, time: None });
+    }
     stream_records_from_in(open(path)?, path, d, sink)
 }
 

@@ -232,7 +232,8 @@ pub fn welch_records(
     welch_records_in(path, Delimiter::Comma, settings, sample_rate)
 }
 
-/// As [`welch_records`], with the record's fields split at `d` (`--delimiter`).
+/// As [`welch_records`], with the record's fields split at `d` (`--delimiter`); a `.npy`
+/// record is read as a NumPy array.
 ///
 /// # Errors
 /// As [`welch_records`].
