@@ -20,6 +20,8 @@ fn main() -> ExitCode {
         Command::Reduce(a) => cli::reduce::run(a),
         Command::Synth(a) => cli::synth::run(a),
         Command::Demo(a) => cli::demo::run(a),
+        Command::Completions(a) => cli::shell::completions(a),
+        Command::ManPages(a) => cli::shell::man_pages(a),
     });
     match result {
         Ok(()) => ExitCode::SUCCESS,

@@ -241,7 +241,7 @@ const BAD_INPUTS: &[(&str, &str)] = &[
     ),
     (
         "missing_point.csv",
-        "fixtures/bad/missing_point.csv: sample 'b' has no row for tw = 1, t = 3, which sample 'a' has on line 3; every sample needs the same (tw, t) points",
+        "fixtures/bad/missing_point.csv: sample 'b' has no row for tw = 1, t = 3, which sample 'a' has on line 3; every sample needs the same (tw, t) points (--drop-incomplete leaves out the samples that miss points)",
     ),
     (
         "t_before_tw.csv",
@@ -257,7 +257,7 @@ const BAD_INPUTS: &[(&str, &str)] = &[
     ),
     (
         "semicolons.csv",
-        "fixtures/bad/semicolons.csv:1: no column 'sample' in the header (found: sample;tw;t;corr;resp); expected columns sample, tw, t, corr, resp (the header has a single column: fdtemp reads comma-separated files)",
+        "fixtures/bad/semicolons.csv:1: no column 'sample' in the header (found: sample;tw;t;corr;resp); expected columns sample, tw, t, corr, resp (the header has a single column with --delimiter comma: give --delimiter semicolon)",
     ),
     (
         "empty.csv",

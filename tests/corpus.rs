@@ -86,7 +86,7 @@ const CASES: &[Case] = &[
         file: "missing_point.csv",
         command: "fit",
         code: 2,
-        stderr: "error: fixtures/bad/missing_point.csv: sample 'b' has no row for tw = 1, t = 3, which sample 'a' has on line 3; every sample needs the same (tw, t) points",
+        stderr: "error: fixtures/bad/missing_point.csv: sample 'b' has no row for tw = 1, t = 3, which sample 'a' has on line 3; every sample needs the same (tw, t) points (--drop-incomplete leaves out the samples that miss points)",
     },
     Case {
         file: "nan_value.csv",
@@ -128,7 +128,7 @@ const CASES: &[Case] = &[
         file: "noise_semicolons.txt",
         command: "noise",
         code: 2,
-        stderr: "error: fixtures/bad/noise_semicolons.txt:1:1: the line is '1;2': fdtemp reads comma-separated records (one number per line, or one column per run separated by commas)",
+        stderr: "error: fixtures/bad/noise_semicolons.txt:1:1: the line is '1;2': with --delimiter comma it is a single field; give --delimiter semicolon (a record is one number per line, or one column per run)",
     },
     Case {
         file: "noise_short.txt",
@@ -146,7 +146,7 @@ const CASES: &[Case] = &[
         file: "semicolons.csv",
         command: "fit",
         code: 2,
-        stderr: "error: fixtures/bad/semicolons.csv:1: no column 'sample' in the header (found: sample;tw;t;corr;resp); expected columns sample, tw, t, corr, resp (the header has a single column: fdtemp reads comma-separated files)",
+        stderr: "error: fixtures/bad/semicolons.csv:1: no column 'sample' in the header (found: sample;tw;t;corr;resp); expected columns sample, tw, t, corr, resp (the header has a single column with --delimiter comma: give --delimiter semicolon)",
     },
     Case {
         file: "single_sample.csv",

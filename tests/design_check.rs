@@ -70,7 +70,7 @@ fn design_check_prints_coverage_levels_and_findings_and_writes_json() {
         assert!(text.contains(words), "{words:?} missing from {text}");
     }
     let v: serde_json::Value = serde_json::from_slice(&std::fs::read(&json).unwrap()).unwrap();
-    assert_eq!(v["schema"], 1);
+    assert_eq!(v["schema"], 2);
     assert_eq!(v["design"]["campaigns"], 40);
     let rows = v["coverage"].as_array().unwrap();
     // X, T_eff, the break and the slope above it, for the joint fit and 3 curves.

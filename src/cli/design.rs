@@ -37,9 +37,10 @@ pub fn run(a: DesignArgs) -> fdtemp::Result<()> {
     let design = a.sim.design(a.campaigns, settings.seed);
     design.validate()?;
     output::check_paths(&[&a.json], &[a.opts.file.as_path()], a.overwrite)?;
-    let campaign = a.opts.campaign()?;
+    let read = a.opts.campaign()?;
+    let campaign = read.campaign;
     let file = &a.opts.file;
-    let report = check_design(
+    let mut report = check_design(
         &campaign,
         &settings,
         &design,
@@ -47,6 +48,8 @@ pub fn run(a: DesignArgs) -> fdtemp::Result<()> {
         &Bar::labelled("simulating"),
     )
     .map_err(in_file(file))?;
+    report.data_report.excluded_samples = read.excluded.clone();
+    report.excluded_samples = read.excluded;
     if let Some(path) = a.json {
         output::write_all(
             &[Output {

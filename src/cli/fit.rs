@@ -3,7 +3,7 @@
 use super::progress::Bar;
 use super::{PlotArgs, RunArgs, in_file, parse_band, print};
 use fdtemp::common::Units;
-use fdtemp::input::ColumnNames;
+use fdtemp::input::{CampaignRead, ColumnNames, Delimiter, ReadCampaign};
 use fdtemp::output::{self, Output};
 use fdtemp::report::plot::{self, Figure};
 use fdtemp::resample::IntervalMethod;
@@ -15,7 +15,9 @@ use std::path::PathBuf;
 /// The options that shape a time-domain fit (shared by `fit` and `design-check`).
 #[derive(clap::Args)]
 pub struct FitOptions {
-    /// Tidy CSV: one row per (sample, tw, t) with columns sample, tw, t, corr, resp [, corr_eq].
+    /// Tidy CSV: one row per (sample, tw, t) with columns sample, tw, t, corr, resp [, corr_eq];
+    /// or a NumPy .npz archive with arrays corr, resp (samples × points), tw, t [, corr_eq,
+    /// sample] (docs/input.md).
     pub(super) file: PathBuf,
     /// Bath temperature T (energy units with --units reduced, kelvin with --units si).
     #[arg(long, short = 'T', allow_negative_numbers = true)]
@@ -61,6 +63,14 @@ pub struct FitOptions {
     /// Map a column role to another header name, e.g. --column resp=chi_zfc (repeatable).
     #[arg(long = "column", value_name = "ROLE=NAME")]
     columns: Vec<String>,
+    /// What separates the fields of the table; with any but comma, numbers may have a
+    /// decimal comma (0,25).
+    #[arg(long, value_enum, default_value_t = Delimiter::Comma)]
+    delimiter: Delimiter,
+    /// Leave out the samples that miss points (rows absent, or NaN in a .npz) instead of
+    /// refusing the file; the report and the JSON list them.
+    #[arg(long)]
+    drop_incomplete: bool,
 }
 
 impl FitOptions {
@@ -94,9 +104,15 @@ impl FitOptions {
         Ok(names)
     }
 
-    /// The campaign, read with the mapped names.
-    pub(super) fn campaign(&self) -> fdtemp::Result<fdtemp::Campaign> {
-        fdtemp::input::read_campaign(&self.file, &self.names()?)
+    /// The campaign, read with the mapped names and the delimiter, with the samples left
+    /// out by --drop-incomplete.
+    pub(super) fn campaign(&self) -> fdtemp::Result<ReadCampaign> {
+        let how = CampaignRead {
+            names: self.names()?,
+            delimiter: self.delimiter,
+            drop_incomplete: self.drop_incomplete,
+        };
+        fdtemp::input::read_campaign_with(&self.file, &how)
     }
 }
 
@@ -221,14 +237,13 @@ pub fn run(a: FitArgs) -> fdtemp::Result<()> {
         .map(fdtemp::twotime::overlap::read_overlap)
         .transpose()?;
     let file = &a.opts.file;
-    let campaign = a.opts.campaign()?;
+    let ReadCampaign { campaign, excluded } = a.opts.campaign()?;
     let input = Some(file.display().to_string());
-    let report = match &design {
+    let mut report = match &design {
         None => fdtemp::analyze(&campaign, &settings, input, &Bar::new()),
         Some(d) => calibrated_fit(&campaign, &settings, d, input, &Bar::labelled("simulating")),
     }
     .map_err(in_file(file))?;
-    let mut report = report;
     if let Some(ov) = &overlap {
         for f in &mut report.fits {
             if let Some(shape) = f.shape.as_mut() {
@@ -237,6 +252,7 @@ pub fn run(a: FitArgs) -> fdtemp::Result<()> {
             }
         }
     }
+    report.excluded_samples = excluded;
     let mut outputs = outputs(&report, a.json, a.points, figure, resample_figure)?;
     if let Some((path, fig)) = panels {
         let bytes = plot::fd_panels(&report, fig)?;

@@ -7,6 +7,8 @@
 //! - `synth.rs`: `fdtemp synth`, a simulated system and its truth file.
 //! - `demo.rs`: `fdtemp demo`, the invented scenario fitted end to end.
 //! - `progress.rs`: the resampling progress bar.
+//! - `shell.rs`: `fdtemp completions` and `fdtemp man-pages`, generated from these
+//!   definitions.
 //!
 //! The help text is the doc comments below and in each command's file: changing one
 //! changes `fdtemp --help`.
@@ -16,6 +18,7 @@ pub mod design;
 pub mod fit;
 mod progress;
 pub mod reduce;
+pub mod shell;
 pub mod spectral;
 pub mod synth;
 
@@ -52,6 +55,10 @@ pub enum Command {
     Synth(synth::SynthArgs),
     /// Generate an invented aging scenario with a known answer, fit it, and compare.
     Demo(demo::DemoArgs),
+    /// Print the shell completion script for fdtemp (bash, zsh, fish, elvish, powershell).
+    Completions(shell::CompletionsArgs),
+    /// Write fdtemp's manual pages (fdtemp.1, fdtemp-fit.1, …) into a folder.
+    ManPages(shell::ManPagesArgs),
 }
 
 impl Command {
@@ -65,6 +72,7 @@ impl Command {
             Command::Reduce(a) => a.run.threads,
             Command::Synth(a) => a.run.threads,
             Command::Demo(a) => a.run.threads,
+            Command::Completions(_) | Command::ManPages(_) => None,
         }
     }
 }

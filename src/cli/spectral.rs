@@ -3,6 +3,7 @@
 
 use super::{PlotArgs, RunArgs, in_file, parse_band, print};
 use fdtemp::common::Units;
+use fdtemp::input::Delimiter;
 use fdtemp::output::{self, Output};
 use fdtemp::report::plot::{self, Figure};
 use fdtemp::resample::IntervalMethod;
@@ -34,7 +35,8 @@ pub struct SpectrumArgs {
 
 #[derive(clap::Args)]
 pub struct NoiseArgs {
-    /// Noise record: one number per line, or one column per run (optional header).
+    /// Noise record: one number per line, or one column per run (optional header); or a
+    /// NumPy .npy array, one run or runs × samples (docs/input.md).
     file: PathBuf,
     /// Samples per second [default: from the record's time column, a first column named
     /// t or time (any unit suffix) or, without a header, rising in even steps].
@@ -77,6 +79,10 @@ pub struct SpectralArgs {
     /// Units: si (kelvin, k = 1.380649e-23 J/K) or reduced (k = 1).
     #[arg(long, value_enum, default_value_t = Units::Si)]
     units: Units,
+    /// What separates the fields of the input tables (the data and --loss-file); with any
+    /// but comma, numbers may have a decimal comma (0,25).
+    #[arg(long, value_enum, default_value_t = Delimiter::Comma)]
+    delimiter: Delimiter,
     /// Where intervals come from: auto, chi-square, or runs (bootstrap over runs).
     #[arg(long, value_enum, default_value_t = ErrorModel::Auto)]
     errors: ErrorModel,
@@ -142,7 +148,7 @@ pub fn spectrum(a: SpectrumArgs) -> fdtemp::Result<()> {
         &[a.file.as_path()],
         a.common.overwrite,
     )?;
-    let groups = fdtemp::spectral::input::read_spectra(&a.file)?;
+    let groups = fdtemp::spectral::input::read_spectra_in(&a.file, a.common.delimiter)?;
     let window = match a.window {
         Some(w) => w,
         None => fdtemp::spectral::input::window_directive(&a.file)?.unwrap_or(Window::None),
@@ -185,7 +191,7 @@ pub fn noise(a: NoiseArgs) -> fdtemp::Result<()> {
     let (diss, column) = match (a.resistance, &a.loss_file) {
         (Some(r), _) => (Some(Dissipation::Constant(r)), None),
         (None, Some(p)) => {
-            let (d, name) = noise::read_dissipation(p)?;
+            let (d, name) = noise::read_dissipation_in(p, a.common.delimiter)?;
             (Some(d), Some(name))
         }
         (None, None) => (None, None),
@@ -196,7 +202,7 @@ pub fn noise(a: NoiseArgs) -> fdtemp::Result<()> {
         figure,
         convention_note,
     } = noise_settings(&a, column.as_deref())?;
-    let mut rec = noise::welch_records(&a.file, welch, a.sample_rate)?;
+    let mut rec = noise::welch_records_in(&a.file, a.common.delimiter, welch, a.sample_rate)?;
     if let Some(g) = a.gain {
         rec.divide_gain(g);
     }

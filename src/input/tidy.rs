@@ -88,6 +88,60 @@ pub fn read_campaign(path: &Path, names: &ColumnNames) -> Result<Campaign> {
     parse_campaign(super::open(path)?, path, names)
 }
 
+/// How a campaign file is read: column names, delimiter, and what to do with samples that
+/// miss points.
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
+pub struct CampaignRead {
+    /// The header names of the roles (`--column`).
+    pub names: ColumnNames,
+    /// What separates the fields (`--delimiter`); ignored for NumPy files.
+    pub delimiter: super::Delimiter,
+    /// Leave out the samples that miss points (`--drop-incomplete`) instead of refusing
+    /// the file.
+    pub drop_incomplete: bool,
+}
+
+/// A sample left out by `--drop-incomplete`, with the points it misses.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct ExcludedSample {
+    /// The sample's name in the file.
+    pub sample: String,
+    /// The grid points (held by other samples) that it has no value for.
+    pub missing: Vec<GridPoint>,
+}
+
+/// A campaign as read, with the samples left out of it.
+#[derive(Debug, Clone)]
+pub struct ReadCampaign {
+    /// The samples that have every point.
+    pub campaign: Campaign,
+    /// The samples left out, in file order (empty unless `drop_incomplete`).
+    pub excluded: Vec<ExcludedSample>,
+}
+
+/// Reads a campaign file as `how` says: a NumPy `.npz` archive by its name, else a text
+/// table.
+///
+/// # Errors
+/// As [`read_campaign`]; without `drop_incomplete` the error for a sample that misses a
+/// point names the sample and the point and mentions `--drop-incomplete`; with it, fewer
+/// than two complete samples is an error.
+pub fn read_campaign_with(path: &Path, how: &CampaignRead) -> Result<ReadCampaign> {
+    if super::npy::is_npz(path) {
+        return super::npy::read_campaign_npz(path, how);
+    }
+    if super::npy::is_npy(path) {
+        return Err(Error::input(
+            path,
+            None,
+            None,
+            "a .npy file holds one array, and a campaign needs several (corr, resp, tw, t); \
+             expected a .npz archive (numpy.savez) or a text table",
+        ));
+    }
+    parse_campaign_with(super::open(path)?, path, how)
+}
+
 struct Row {
     sample: usize,
     point: usize,
@@ -122,7 +176,25 @@ struct Rows {
 /// # Errors
 /// As [`read_campaign`].
 pub fn parse_campaign<R: Read>(reader: R, file: &Path, names: &ColumnNames) -> Result<Campaign> {
-    let mut rdr = super::csv_reader(reader);
+    let how = CampaignRead {
+        names: names.clone(),
+        ..CampaignRead::default()
+    };
+    parse_campaign_with(reader, file, &how).map(|r| r.campaign)
+}
+
+/// As [`read_campaign_with`] for a text table, from any reader; `file` is used in error
+/// messages only.
+///
+/// # Errors
+/// As [`read_campaign_with`].
+pub fn parse_campaign_with<R: Read>(
+    reader: R,
+    file: &Path,
+    how: &CampaignRead,
+) -> Result<ReadCampaign> {
+    let names = &how.names;
+    let mut rdr = super::csv_reader_in(reader, how.delimiter);
     // One record buffer for every row: campaigns can have millions of rows.
     let mut rec = csv::StringRecord::new();
     let has_header = rdr
@@ -139,7 +211,7 @@ pub fn parse_campaign<R: Read>(reader: R, file: &Path, names: &ColumnNames) -> R
             ),
         ));
     }
-    let header = Header::new(file, &rec)?;
+    let header = Header::new(file, &rec)?.with_delimiter(how.delimiter);
     let idx = header.require(file, &names.required())?;
     let cols = Columns {
         sample: idx[0],
@@ -158,9 +230,9 @@ pub fn parse_campaign<R: Read>(reader: R, file: &Path, names: &ColumnNames) -> R
             continue;
         }
         header.check_width(file, &rec)?;
-        rows.read(&rec, &cols, file, names)?;
+        rows.read(&rec, &cols, file, names, how.delimiter)?;
     }
-    rows.into_campaign(file, cols.corr_eq.is_some())
+    rows.into_campaign(file, cols.corr_eq.is_some(), how.drop_incomplete)
 }
 
 impl Rows {
@@ -171,12 +243,14 @@ impl Rows {
         cols: &Columns,
         file: &Path,
         names: &ColumnNames,
+        delimiter: super::Delimiter,
     ) -> Result<()> {
         let line = super::line_of(rec);
         let err =
             |col: usize, msg: String| Error::input(file, Some(line), Some(col as u64 + 1), msg);
-        let num =
-            |i: usize, name: &str| crate::input::parse_number(&rec[i], name).map_err(|m| err(i, m));
+        let num = |i: usize, name: &str| {
+            crate::input::parse_number_in(&rec[i], name, delimiter).map_err(|m| err(i, m))
+        };
         let sample = &rec[cols.sample];
         if sample.is_empty() {
             return Err(err(
@@ -244,8 +318,9 @@ impl Rows {
         })
     }
 
-    /// The samples × points arrays, once every sample has every point exactly once.
-    fn into_campaign(self, file: &Path, with_eq: bool) -> Result<Campaign> {
+    /// The samples × points arrays, once every sample has every point exactly once (or,
+    /// with `drop`, of the samples that have every point).
+    fn into_campaign(self, file: &Path, with_eq: bool, drop: bool) -> Result<ReadCampaign> {
         let err = |line: Option<u64>, msg: String| Error::input(file, line, None, msg);
         if self.rows.is_empty() {
             return Err(err(None, "no data rows after the header".into()));
@@ -263,9 +338,6 @@ impl Rows {
         }
         let np = self.points.len();
         let mut seen_at: Vec<u64> = vec![0; n * np];
-        let mut corr = Array2::<f64>::zeros((n, np));
-        let mut resp = Array2::<f64>::zeros((n, np));
-        let mut corr_eq = with_eq.then(|| Array2::<f64>::zeros((n, np)));
         for r in &self.rows {
             let slot = &mut seen_at[r.sample * np + r.point];
             if *slot != 0 {
@@ -280,20 +352,70 @@ impl Rows {
                 ));
             }
             *slot = r.line;
-            corr[[r.sample, r.point]] = r.corr;
-            resp[[r.sample, r.point]] = r.resp;
+        }
+        let complete: Vec<bool> = (0..n)
+            .map(|s| seen_at[s * np..(s + 1) * np].iter().all(|&l| l != 0))
+            .collect();
+        if !drop {
+            self.check_complete(&seen_at, &complete)
+                .map_err(|m| err(None, m))?;
+        }
+        let excluded: Vec<ExcludedSample> = (0..n)
+            .filter(|&s| !complete[s])
+            .map(|s| ExcludedSample {
+                sample: self.sample_ids[s].clone(),
+                missing: (0..np)
+                    .filter(|&p| seen_at[s * np + p] == 0)
+                    .map(|p| self.points[p])
+                    .collect(),
+            })
+            .collect();
+        // New row index of each kept sample.
+        let mut kept_at = vec![usize::MAX; n];
+        let mut ids = Vec::new();
+        for s in (0..n).filter(|&s| complete[s]) {
+            kept_at[s] = ids.len();
+            ids.push(self.sample_ids[s].clone());
+        }
+        if ids.len() < 2 {
+            return Err(err(
+                None,
+                format!(
+                    "only {} of {n} samples {} every (tw, t) point; --drop-incomplete needs at \
+                     least 2 complete samples",
+                    ids.len(),
+                    if ids.len() == 1 { "has" } else { "have" }
+                ),
+            ));
+        }
+        let nk = ids.len();
+        let mut corr = Array2::<f64>::zeros((nk, np));
+        let mut resp = Array2::<f64>::zeros((nk, np));
+        let mut corr_eq = with_eq.then(|| Array2::<f64>::zeros((nk, np)));
+        for r in &self.rows {
+            let s = kept_at[r.sample];
+            if s == usize::MAX {
+                continue;
+            }
+            corr[[s, r.point]] = r.corr;
+            resp[[s, r.point]] = r.resp;
             if let (Some(ce), Some(v)) = (corr_eq.as_mut(), r.corr_eq) {
-                ce[[r.sample, r.point]] = v;
+                ce[[s, r.point]] = v;
             }
         }
-        self.check_complete(&seen_at).map_err(|m| err(None, m))?;
-        Campaign::new(self.sample_ids, self.points, corr, resp, corr_eq)
-            .map_err(|e| err(None, e.to_string()))
+        let campaign = Campaign::new(ids, self.points, corr, resp, corr_eq)
+            .map_err(|e| err(None, e.to_string()))?;
+        Ok(ReadCampaign { campaign, excluded })
     }
 
     /// Every sample has every grid point (`seen_at` holds the line of each, 0 if none).
-    fn check_complete(&self, seen_at: &[u64]) -> std::result::Result<(), String> {
+    fn check_complete(
+        &self,
+        seen_at: &[u64],
+        complete: &[bool],
+    ) -> std::result::Result<(), String> {
         let (n, np) = (self.sample_ids.len(), self.points.len());
+        let incomplete = complete.iter().filter(|&&c| !c).count();
         for s in 0..n {
             if let Some(p) = (0..np).find(|&p| seen_at[s * np + p] == 0) {
                 let g = self.points[p];
@@ -303,9 +425,15 @@ impl Rows {
                         (l != 0).then(|| (&self.sample_ids[o], l))
                     })
                     .unwrap_or((&self.sample_ids[0], 0));
+                let others = match incomplete - 1 {
+                    0 => String::new(),
+                    1 => " (1 more sample misses points)".to_string(),
+                    k => format!(" ({k} more samples miss points)"),
+                };
                 return Err(format!(
                     "sample '{}' has no row for tw = {}, t = {}, which sample '{other}' has on \
-                     line {line}; every sample needs the same (tw, t) points",
+                     line {line}{others}; every sample needs the same (tw, t) points \
+                     (--drop-incomplete leaves out the samples that miss points)",
                     self.sample_ids[s], g.tw, g.t
                 ));
             }

@@ -110,6 +110,9 @@ fn header(o: &mut String, r: &DesignReport) {
         r.n_samples,
         r.n_points
     );
+    if let Some(line) = super::format::excluded_line(&r.excluded_samples) {
+        let _ = writeln!(o, "{line}");
+    }
     let _ = writeln!(
         o,
         "fit        {}; {:.0}% {} intervals from {} resamples; tests at {}",

@@ -130,6 +130,40 @@ pub fn percent(v: f64) -> String {
     format!("{:.1}%", 100.0 * v)
 }
 
+/// The report lines for samples left out by `--drop-incomplete` (none when none were):
+/// each sample with up to 3 of the points it misses.
+pub fn excluded_line(excluded: &[crate::input::ExcludedSample]) -> Option<String> {
+    if excluded.is_empty() {
+        return None;
+    }
+    let each: Vec<String> = excluded
+        .iter()
+        .map(|e| {
+            let shown: Vec<String> = e
+                .missing
+                .iter()
+                .take(3)
+                .map(|g| format!("tw = {}, t = {}", fmt_num(g.tw), fmt_num(g.t)))
+                .collect();
+            let more = match e.missing.len().saturating_sub(3) {
+                0 => String::new(),
+                k => format!(" and {k} more"),
+            };
+            format!("'{}' (no {}{more})", e.sample, shown.join("; "))
+        })
+        .collect();
+    let (n, one) = (excluded.len(), excluded.len() == 1);
+    let text = format!(
+        "{n} sample{} that miss{} points, left out by --drop-incomplete: {}",
+        if one { "" } else { "s" },
+        if one { "es" } else { "" },
+        each.join(", ")
+    );
+    // The label, then the text wrapped under it.
+    let body = crate::report::text::wrap(&text, 92, "           ");
+    Some(format!("excluded   {}", &body[11..]))
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -88,6 +88,9 @@ fn header(o: &mut String, r: &FitReport) {
         tws.join(", "),
         r.points.len()
     );
+    if let Some(line) = super::format::excluded_line(&r.excluded_samples) {
+        let _ = writeln!(o, "{line}");
+    }
     let units = match g.units {
         Units::Reduced => "k = 1, reduced units".to_string(),
         Units::Si => format!("k = {} J/K, SI", sig(s.k, 7)),

@@ -7,7 +7,9 @@
 //! header names the runs. Read as a stream, one line at a time.
 
 use crate::error::{Error, Result};
-use crate::input::{Header, csv_error, csv_reader, is_blank, line_of, open, parse_number};
+use crate::input::{
+    Delimiter, Header, csv_error, csv_reader_in, is_blank, line_of, open, parse_number_in,
+};
 use ndarray::Array2;
 use std::collections::HashMap;
 use std::io::Read;
@@ -104,12 +106,32 @@ pub fn read_spectra(path: &Path) -> Result<Vec<SpectrumGroup>> {
     parse_spectra(open(path)?, path)
 }
 
+/// As [`read_spectra`], with fields split at `d` (`--delimiter`).
+///
+/// # Errors
+/// As [`read_spectra`].
+pub fn read_spectra_in(path: &Path, d: Delimiter) -> Result<Vec<SpectrumGroup>> {
+    parse_spectra_in(open(path)?, path, d)
+}
+
 /// As [`read_spectra`], from any reader; `file` names it in errors.
 ///
 /// # Errors
 /// As [`read_spectra`].
 pub fn parse_spectra<R: Read>(reader: R, file: &Path) -> Result<Vec<SpectrumGroup>> {
-    let mut rdr = csv_reader(reader);
+    parse_spectra_in(reader, file, Delimiter::Comma)
+}
+
+/// As [`parse_spectra`], with fields split at `d`.
+///
+/// # Errors
+/// As [`read_spectra`].
+pub fn parse_spectra_in<R: Read>(
+    reader: R,
+    file: &Path,
+    d: Delimiter,
+) -> Result<Vec<SpectrumGroup>> {
+    let mut rdr = csv_reader_in(reader, d);
     let mut records = rdr.records();
     let header = match records.next() {
         None => {
@@ -120,7 +142,7 @@ pub fn parse_spectra<R: Read>(reader: R, file: &Path) -> Result<Vec<SpectrumGrou
                 "the file is empty; expected a header line with columns f, psd, loss".into(),
             ));
         }
-        Some(r) => Header::new(file, &r.map_err(|e| csv_error(file, e))?)?,
+        Some(r) => Header::new(file, &r.map_err(|e| csv_error(file, e))?)?.with_delimiter(d),
     };
     let cols = Columns::new(&header, file)?;
     let mut pending = PendingGroups::default();
@@ -130,7 +152,7 @@ pub fn parse_spectra<R: Read>(reader: R, file: &Path) -> Result<Vec<SpectrumGrou
             continue;
         }
         header.check_width(file, &rec)?;
-        let (tw, run, row) = cols.row(&rec, file)?;
+        let (tw, run, row) = cols.row(&rec, file, d)?;
         pending.push(tw, run, row, cols.f, file)?;
     }
     pending.into_groups(&cols, file)
@@ -171,11 +193,17 @@ impl Columns {
     /// # Errors
     /// [`Error::Input`] for a non-number, a frequency that is not positive, a negative
     /// PSD, a loss that is not positive or a non-positive dof.
-    fn row(&self, rec: &csv::StringRecord, file: &Path) -> Result<(Option<f64>, String, Row)> {
+    fn row(
+        &self,
+        rec: &csv::StringRecord,
+        file: &Path,
+        d: Delimiter,
+    ) -> Result<(Option<f64>, String, Row)> {
         let err =
             |line: u64, col: usize, msg: String| table_error(file, Some(line), Some(col), msg);
         let line = line_of(rec);
-        let num = |i: usize, name: &str| parse_number(&rec[i], name).map_err(|m| err(line, i, m));
+        let num =
+            |i: usize, name: &str| parse_number_in(&rec[i], name, d).map_err(|m| err(line, i, m));
         let f = num(self.f, "f")?;
         if !(f > 0.0) {
             return Err(err(
@@ -428,6 +456,28 @@ pub fn stream_records(path: &Path, sink: impl FnMut(usize, f64)) -> Result<Recor
     stream_records_from(open(path)?, path, sink)
 }
 
+/// As [`stream_records`], with fields split at `d` (`--delimiter`); a `.npy` file (by its
+/// name) is read as a NumPy array instead ([`crate::input::npy::read_noise_npy`]).
+///
+/// # Errors
+/// As [`stream_records`] and [`crate::input::npy::read_noise_npy`].
+pub fn stream_records_in(
+    path: &Path,
+    d: Delimiter,
+    mut sink: impl FnMut(usize, f64),
+) -> Result<Records> {
+    if crate::input::npy::is_npy(path) {
+        let (runs, a) = crate::input::npy::read_noise_npy(path)?;
+        for (r, row) in a.outer_iter().enumerate() {
+            for &v in row {
+                sink(r, v);
+            }
+        }
+        return Ok(Records { runs, time: None });
+    }
+    stream_records_from_in(open(path)?, path, d, sink)
+}
+
 /// As [`stream_records`], from any reader.
 ///
 /// A dedicated reader rather than a general CSV parser, because records can hold 10⁸
@@ -439,6 +489,19 @@ pub fn stream_records(path: &Path, sink: impl FnMut(usize, f64)) -> Result<Recor
 pub fn stream_records_from<R: Read>(
     reader: R,
     file: &Path,
+    sink: impl FnMut(usize, f64),
+) -> Result<Records> {
+    stream_records_from_in(reader, file, Delimiter::Comma, sink)
+}
+
+/// As [`stream_records_from`], with fields split at `d`.
+///
+/// # Errors
+/// As [`stream_records`].
+pub fn stream_records_from_in<R: Read>(
+    reader: R,
+    file: &Path,
+    d: Delimiter,
     mut sink: impl FnMut(usize, f64),
 ) -> Result<Records> {
     let mut lines = BlockLines::new(reader);
@@ -454,12 +517,12 @@ pub fn stream_records_from<R: Read>(
             continue;
         };
         let Some(n) = &names else {
-            let (n, numeric) = first_record_line(text, line_no, file)?;
+            let (n, numeric) = first_record_line(text, line_no, file, d)?;
             if numeric && n.len() > 1 {
                 held.push((line_no, text.to_string()));
             } else {
                 if numeric {
-                    emit(text, line_no, file, &n, &mut sink)?;
+                    emit(text, line_no, file, &n, d, &mut sink)?;
                 } else if n.len() > 1 && is_time_name(&n[0]) {
                     time = Some(TimeTracker::new(&n[0], "by its name"));
                 }
@@ -469,14 +532,14 @@ pub fn stream_records_from<R: Read>(
             continue;
         };
         if decided {
-            emit_line(text, line_no, file, n, &mut time, &mut sink)?;
+            emit_line(text, line_no, file, n, d, &mut time, &mut sink)?;
             continue;
         }
         held.push((line_no, text.to_string()));
         if held.len() >= PRESCAN {
-            time = even_first_column(&held);
+            time = even_first_column(&held, d);
             for (l, t) in std::mem::take(&mut held) {
-                emit_line(&t, l, file, n, &mut time, &mut sink)?;
+                emit_line(&t, l, file, n, d, &mut time, &mut sink)?;
             }
             decided = true;
         }
@@ -490,9 +553,9 @@ pub fn stream_records_from<R: Read>(
         ));
     };
     if !decided {
-        time = even_first_column(&held);
+        time = even_first_column(&held, d);
         for (l, t) in std::mem::take(&mut held) {
-            emit_line(&t, l, file, &names, &mut time, &mut sink)?;
+            emit_line(&t, l, file, &names, d, &mut time, &mut sink)?;
         }
     }
     let time = match time {
@@ -582,10 +645,14 @@ impl TimeTracker {
 
 /// A time tracker when the first column of the held lines (a file without a header)
 /// rises with even steps: at least 8 lines, every step within 1% of their mean.
-fn even_first_column(held: &[(u64, String)]) -> Option<TimeTracker> {
+fn even_first_column(held: &[(u64, String)], d: Delimiter) -> Option<TimeTracker> {
     let first: Vec<f64> = held
         .iter()
-        .map(|(_, t)| t.split(',').next().and_then(|f| f.trim().parse().ok()))
+        .map(|(_, t)| {
+            d.fields(t)
+                .next()
+                .and_then(|f| parse_number_in(f, "", d).ok())
+        })
         .collect::<Option<Vec<f64>>>()?;
     if first.len() < 8 {
         return None;
@@ -602,14 +669,15 @@ fn emit_line(
     line: u64,
     file: &Path,
     names: &[String],
+    d: Delimiter,
     time: &mut Option<TimeTracker>,
     sink: &mut impl FnMut(usize, f64),
 ) -> Result<()> {
     let Some(tracker) = time else {
-        return emit(text, line, file, names, sink);
+        return emit(text, line, file, names, d, sink);
     };
     let mut t = f64::NAN;
-    emit(text, line, file, names, &mut |i, v| {
+    emit(text, line, file, names, d, &mut |i, v| {
         if i == 0 {
             t = v;
         } else {
@@ -704,20 +772,31 @@ fn record_text<'a>(line: &'a [u8], line_no: u64, file: &Path) -> Result<Option<&
 /// # Errors
 /// [`Error::Input`] for a line separated by something other than commas, or a name that
 /// appears twice.
-fn first_record_line(text: &str, line_no: u64, file: &Path) -> Result<(Vec<String>, bool)> {
-    let fields: Vec<&str> = text.split(',').map(str::trim).collect();
-    if fields.len() == 1 && (text.contains(';') || text.contains('\t')) {
+fn first_record_line(
+    text: &str,
+    line_no: u64,
+    file: &Path,
+    d: Delimiter,
+) -> Result<(Vec<String>, bool)> {
+    let fields: Vec<&str> = d.fields(text).collect();
+    let number = |f: &str| parse_number_in(f, "", d).is_ok();
+    if fields.len() == 1
+        && !number(fields[0])
+        && let Some(other) = d.other_in(text)
+    {
         return Err(Error::input(
             file,
             Some(line_no),
             Some(1),
             format!(
-                "the line is '{text}': fdtemp reads comma-separated records (one \
-                 number per line, or one column per run separated by commas)"
+                "the line is '{text}': with --delimiter {} it is a single field; give \
+                 --delimiter {} (a record is one number per line, or one column per run)",
+                d.name(),
+                other.name()
             ),
         ));
     }
-    if fields.iter().all(|f| f.parse::<f64>().is_ok()) {
+    if fields.iter().all(|f| number(f)) {
         let names: Vec<String> = (1..=fields.len()).map(|i| i.to_string()).collect();
         return Ok((names, true));
     }
@@ -745,35 +824,37 @@ fn emit(
     line: u64,
     file: &Path,
     names: &[String],
+    d: Delimiter,
     sink: &mut impl FnMut(usize, f64),
 ) -> Result<()> {
     let width = names.len();
     let mut count = 0usize;
-    for (i, field) in text.split(',').enumerate() {
+    for (i, field) in d.fields(text).enumerate() {
         if i >= width {
             count = i + 1;
             continue;
         }
-        let field = field.trim();
         let v = match field.parse::<f64>() {
             Ok(v) if v.is_finite() => v,
-            _ => {
-                let msg = parse_number(field, &names[i]).err().unwrap_or_default();
-                return Err(Error::input(file, Some(line), Some(i as u64 + 1), msg));
-            }
+            _ => match parse_number_in(field, &names[i], d) {
+                Ok(v) => v,
+                Err(msg) => return Err(Error::input(file, Some(line), Some(i as u64 + 1), msg)),
+            },
         };
         sink(i, v);
         count = i + 1;
     }
     if count != width {
+        let hint = if d == Delimiter::Comma && count > width {
+            format!("a stray delimiter, or {}", crate::input::DECIMAL_COMMA_HINT)
+        } else {
+            "a cut-off line or a stray delimiter?".to_string()
+        };
         return Err(Error::input(
             file,
             Some(line),
             None,
-            format!(
-                "the line has {count} fields, expected {width} (one per run); a cut-off line or a \
-                 stray delimiter?"
-            ),
+            format!("the line has {count} fields, expected {width} (one per run); {hint}"),
         ));
     }
     Ok(())

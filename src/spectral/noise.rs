@@ -1,9 +1,11 @@
 //! From raw noise records to a spectrum group: stream, Welch per run, attach the dissipation.
 
-use super::input::{SpectrumGroup, TimeColumn, stream_records};
+use super::input::{SpectrumGroup, TimeColumn};
 use super::welch::{Psd, Welch, WelchSettings, bin_correlation, hann};
 use crate::error::{Error, Result};
-use crate::input::{Header, csv_error, csv_reader, is_blank, line_of, open, parse_number};
+use crate::input::{
+    Delimiter, Header, csv_error, csv_reader_in, is_blank, line_of, open, parse_number_in,
+};
 use ndarray::Array2;
 use std::path::Path;
 
@@ -102,7 +104,15 @@ pub fn convention_named(column: &str) -> Option<super::Convention> {
 /// # Errors
 /// [`Error::Input`] with line and column for any bad row.
 pub fn read_dissipation(path: &Path) -> Result<(Dissipation, String)> {
-    let mut rdr = csv_reader(open(path)?);
+    read_dissipation_in(path, Delimiter::Comma)
+}
+
+/// As [`read_dissipation`], with fields split at `d` (`--delimiter`).
+///
+/// # Errors
+/// As [`read_dissipation`].
+pub fn read_dissipation_in(path: &Path, d: Delimiter) -> Result<(Dissipation, String)> {
+    let mut rdr = csv_reader_in(open(path)?, d);
     let mut records = rdr.records();
     let header = match records.next() {
         None => {
@@ -113,7 +123,7 @@ pub fn read_dissipation(path: &Path) -> Result<(Dissipation, String)> {
                 "the file is empty; expected a header and rows of f,value",
             ));
         }
-        Some(r) => Header::new(path, &r.map_err(|e| csv_error(path, e))?)?,
+        Some(r) => Header::new(path, &r.map_err(|e| csv_error(path, e))?)?.with_delimiter(d),
     };
     if header.fields.len() < 2 {
         return Err(Error::input(
@@ -136,8 +146,8 @@ pub fn read_dissipation(path: &Path) -> Result<(Dissipation, String)> {
         header.check_width(path, &rec)?;
         let line = line_of(&rec);
         let at = |c: u64, m: String| Error::input(path, Some(line), Some(c), m);
-        let f = parse_number(&rec[0], &header.fields[0]).map_err(|m| at(1, m))?;
-        let v = parse_number(&rec[1], &name).map_err(|m| at(2, m))?;
+        let f = parse_number_in(&rec[0], &header.fields[0], d).map_err(|m| at(1, m))?;
+        let v = parse_number_in(&rec[1], &name, d).map_err(|m| at(2, m))?;
         if !(f > 0.0) {
             return Err(at(
                 1,
@@ -219,6 +229,20 @@ pub fn welch_records(
     settings: WelchSettings,
     sample_rate: Option<f64>,
 ) -> Result<RecordPsd> {
+    welch_records_in(path, Delimiter::Comma, settings, sample_rate)
+}
+
+/// As [`welch_records`], with the record's fields split at `d` (`--delimiter`); a `.npy`
+/// record is read as a NumPy array.
+///
+/// # Errors
+/// As [`welch_records`].
+pub fn welch_records_in(
+    path: &Path,
+    d: Delimiter,
+    settings: WelchSettings,
+    sample_rate: Option<f64>,
+) -> Result<RecordPsd> {
     let settings = WelchSettings {
         sample_rate: sample_rate.unwrap_or(1.0),
         ..settings
@@ -226,7 +250,7 @@ pub fn welch_records(
     settings.validate()?;
     let mut acc: Vec<Welch> = Vec::new();
     let mut failed: Option<Error> = None;
-    let records = stream_records(path, |run, v| {
+    let records = super::input::stream_records_in(path, d, |run, v| {
         while acc.len() <= run {
             match Welch::new(settings) {
                 Ok(w) => acc.push(w),

@@ -47,7 +47,7 @@ use serde::Serialize;
 use std::time::Instant;
 
 /// The JSON schema version of [`DesignReport`].
-pub const DESIGN_SCHEMA: u32 = 1;
+pub const DESIGN_SCHEMA: u32 = 2;
 
 /// How the noise of a simulated sample is drawn from the data's samples.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, clap::ValueEnum)]
@@ -249,6 +249,8 @@ pub struct DesignReport {
     pub design: DesignSettings,
     /// Samples per campaign.
     pub n_samples: usize,
+    /// Samples of the file left out because they miss points (`--drop-incomplete`).
+    pub excluded_samples: Vec<crate::input::ExcludedSample>,
     /// Grid points per campaign.
     pub n_points: usize,
     /// The truths simulated.
@@ -738,6 +740,7 @@ pub fn check_design(
         fit: fit.clone(),
         design: *design,
         n_samples: campaign.n_samples(),
+        excluded_samples: Vec::new(),
         n_points: campaign.n_points(),
         truths,
         failed,

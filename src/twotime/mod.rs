@@ -276,6 +276,7 @@ fn report(
             },
         },
         n_samples: campaign.n_samples(),
+        excluded_samples: Vec::new(),
         waiting_times: campaign.waiting_times(),
         verdict: fits[0].verdict.clone(),
         fits,

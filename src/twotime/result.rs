@@ -380,6 +380,8 @@ pub struct FitReport {
     pub settings: SettingsRecord,
     /// Number of samples.
     pub n_samples: usize,
+    /// Samples of the file left out because they miss points (`--drop-incomplete`).
+    pub excluded_samples: Vec<crate::input::ExcludedSample>,
     /// The waiting times.
     pub waiting_times: Vec<f64>,
     /// The joint fit first, then one per waiting time.
