@@ -383,3 +383,21 @@ fn a_byte_order_mark_windows_line_ends_and_comments_are_accepted() {
             "only 6 samples: bootstrap intervals from fewer than 20 samples are unreliable",
         ));
 }
+
+/// A file with Windows line ends names the same line as with Unix ones (the CSV layer
+/// counted lines at `\n` only and named the line before).
+#[test]
+fn crlf_files_name_the_right_line() {
+    let dir = tempfile::tempdir().unwrap();
+    let file = dir.path().join("crlf.csv");
+    std::fs::write(&file, "sample,tw,t,corr,resp\r\na,1,2,x,1\r\n").unwrap();
+    fdtemp()
+        .arg("fit")
+        .arg(&file)
+        .args(["-T", "1"])
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains(
+            "crlf.csv:2:4: column 'corr' is 'x', expected a number",
+        ));
+}

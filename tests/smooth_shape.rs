@@ -312,3 +312,40 @@ fn a_bad_overlap_file_names_its_line_and_column_and_writes_nothing() {
         ));
     assert!(!json.exists());
 }
+
+/// The smooth curve sets X = 1 at the largest C, so a missing equilibrium branch (the fit
+/// stopped below the plateau) or a tilted one (a temperature 15% off) also rejects one
+/// break; neither may be called continuous. `synth two-baths` (X = 0.4 below q = 0.5).
+#[test]
+fn an_imposed_top_is_not_read_as_a_continuous_shape() {
+    let dir = tempfile::tempdir().unwrap();
+    let tb = dir.path().join("tb.csv");
+    fdtemp()
+        .args(["synth", "two-baths", "--samples", "200", "--out"])
+        .arg(&tb)
+        .assert()
+        .success();
+    for (args, why) in [
+        (
+            &["-T", "1", "--range=-0.1:0.45"][..],
+            "but the one-break fit's break sits at the edge of the points",
+        ),
+        (
+            &["-T", "0.85"][..],
+            "but the slope above the break is not -1",
+        ),
+    ] {
+        fdtemp()
+            .arg("fit")
+            .arg(&tb)
+            .args(args)
+            .args(["--model", "smooth", "-B", "400"])
+            .assert()
+            .success()
+            .stdout(predicate::str::contains(format!(
+                "shape      undecided at this precision: one break is rejected by the smooth \
+                 curve, {why}"
+            )))
+            .stdout(predicate::str::contains("continuous X(C):").not());
+    }
+}

@@ -287,7 +287,9 @@ fn solve_subset(
 }
 
 /// Lawson–Hanson NNLS on the normal equations: minimizes `½ βᵀGβ − bᵀβ` over `β ≥ 0`.
-/// A column whose addition makes the passive system singular is left at 0.
+/// A column whose addition makes the passive system singular, or whose own coefficient
+/// comes out ≤ 0 at once (rounding), is passed over until the passive set changes. `None`
+/// when the iterations run out before the Kuhn–Tucker conditions hold.
 fn nnls(
     g: &[[f64; MAX_PIECES]; MAX_PIECES],
     b: &[f64; MAX_PIECES],
@@ -301,15 +303,16 @@ fn nnls(
     }
     let tol = 1e-12 * bmax.max(f64::MIN_POSITIVE);
     let mut passive = [false; MAX_PIECES];
-    let mut refused = [false; MAX_PIECES];
+    let mut passed_over = [false; MAX_PIECES];
     let mut set: Vec<usize> = Vec::with_capacity(k);
     let mut s = [0.0; MAX_PIECES];
-    for _outer in 0..3 * k + 3 {
+    let cap = 3 * k + 3;
+    for _outer in 0..4 * cap {
         // The gradient of the objective's negative: w = b − Gβ.
         let mut best = None;
         let mut best_w = tol;
         for j in FIRST_RAMP..k {
-            if passive[j] || refused[j] {
+            if passive[j] || passed_over[j] {
                 continue;
             }
             let wj = b[j] - (0..k).map(|l| g[j][l] * beta[l]).sum::<f64>();
@@ -324,19 +327,25 @@ fn nnls(
         passive[j] = true;
         set.push(j);
         set.sort_unstable();
-        let mut tries = 0;
-        loop {
-            tries += 1;
-            if solve_subset(g, b, &set, &mut s).is_none() {
+        let mut first = true;
+        let mut converged = false;
+        for _inner in 0..cap {
+            let solved = solve_subset(g, b, &set, &mut s).is_some();
+            if !solved || (first && s[j] <= 0.0) {
+                // Pass over j until the passive set changes.
                 passive[j] = false;
-                refused[j] = true;
+                passed_over[j] = true;
                 set.retain(|&i| i != j);
+                converged = true;
                 break;
             }
+            first = false;
             if set.iter().all(|&i| s[i] > 0.0) {
                 for i in 0..k {
                     beta[i] = if passive[i] { s[i] } else { 0.0 };
                 }
+                passed_over = [false; MAX_PIECES];
+                converged = true;
                 break;
             }
             // Step from β toward s until the first passive coefficient reaches 0.
@@ -358,12 +367,17 @@ fn nnls(
                 }
             }
             set.retain(|&i| passive[i]);
-            if set.is_empty() || tries > 3 * k + 3 {
+            passed_over = [false; MAX_PIECES];
+            if set.is_empty() {
+                converged = true;
                 break;
             }
         }
+        if !converged {
+            return None;
+        }
     }
-    Some(())
+    None
 }
 
 #[cfg(test)]

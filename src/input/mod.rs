@@ -198,33 +198,66 @@ impl std::fmt::Display for LineTooLong {
 
 impl std::error::Error for LineTooLong {}
 
-/// A reader that fails on a line longer than [`MAX_LINE`] instead of buffering it whole.
+/// A reader that fails on a line longer than [`MAX_LINE`] instead of buffering it whole,
+/// and turns `\r\n` line ends into `\n` (the CSV layer counts lines at `\n` only, so a
+/// CRLF file's errors named the line before the right one).
 pub(crate) struct LineLimit<R> {
     inner: R,
     line: u64,
     run: usize,
+    /// A `\r` at the end of the last read, held until the next byte shows whether a `\n`
+    /// follows.
+    held_cr: bool,
 }
 
 impl<R: Read> Read for LineLimit<R> {
     fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
-        let n = self.inner.read(buf)?;
-        for &b in &buf[..n] {
-            if b == b'\n' {
-                self.line += 1;
-                self.run = 0;
-            } else {
-                self.run += 1;
-                if self.run > MAX_LINE {
-                    return Err(std::io::Error::new(
-                        std::io::ErrorKind::InvalidData,
-                        LineTooLong {
-                            line: self.line + 1,
-                        },
-                    ));
+        if buf.len() < 2 {
+            // Too small to hold a held `\r` and a new byte; BufReader never asks this.
+            return self.inner.read(buf);
+        }
+        loop {
+            let start = usize::from(self.held_cr);
+            if self.held_cr {
+                buf[0] = b'\r';
+            }
+            let n = self.inner.read(&mut buf[start..])?;
+            self.held_cr = false;
+            let total = start + n;
+            let mut w = 0;
+            for i in 0..total {
+                let b = buf[i];
+                if b == b'\r' {
+                    if i + 1 < total && buf[i + 1] == b'\n' {
+                        continue;
+                    }
+                    if i + 1 == total && n > 0 {
+                        self.held_cr = true;
+                        continue;
+                    }
+                }
+                buf[w] = b;
+                w += 1;
+                if b == b'\n' {
+                    self.line += 1;
+                    self.run = 0;
+                } else {
+                    self.run += 1;
+                    if self.run > MAX_LINE {
+                        return Err(std::io::Error::new(
+                            std::io::ErrorKind::InvalidData,
+                            LineTooLong {
+                                line: self.line + 1,
+                            },
+                        ));
+                    }
                 }
             }
+            // Only a held `\r` came in: read on (0 bytes means the end of the file).
+            if w > 0 || n == 0 {
+                return Ok(w);
+            }
         }
-        Ok(n)
     }
 }
 
@@ -236,6 +269,7 @@ pub(crate) fn open(path: &Path) -> Result<std::io::BufReader<LineLimit<std::fs::
                 inner: f,
                 line: 0,
                 run: 0,
+                held_cr: false,
             })
         })
         .map_err(|source| Error::Io {

@@ -161,8 +161,8 @@ pub fn verdict(s: &ShapeFit) -> String {
         } => format!(
             "one step (two temperatures): one break at q = {} with X = {} fits, and the \
              smooth curve does not fit better ({p}); below the break the X(C) band stays \
-             within ±{} of that X, so X is constant there to that precision (smaller \
-             variations are not excluded)",
+             within ±{} of that X (pointwise bands), so X is constant there to that \
+             precision (smaller variations are not excluded)",
             sig(*q, 3),
             triple(x),
             sig(*band_reach, 2)
@@ -175,7 +175,7 @@ pub fn verdict(s: &ShapeFit) -> String {
             ..
         } => format!(
             "continuous X(C): the smooth curve fits better than one break ({p}, read at {}); \
-             X rises from {} at C = {} to 1, leaving 1 below C = {}",
+             X goes from {} at C = {} to 1 at the largest C, leaving 1 below C = {}",
             fmt_num(*level),
             triple(x_lowest_c),
             sig(*lowest_c, 3),
@@ -260,11 +260,15 @@ pub fn methods(r: &FitReport) -> String {
          smooth curve with the statistic SSE(one break) − SSE(smooth), calibrated by refitting \
          both models to resamples moved onto the fitted broken stick (p = (1 + #)/(B + 1)), at \
          the test level jointly and at that level divided by the number of curves per curve. \
-         The shape is called continuous when this test rejects, one step when it does not and \
+         The shape is called continuous when this test rejects and the curve's top is measured \
+         rather than imposed (the one-break fit's break away from the edge, its upper slope not \
+         shown to differ from -1, X leaving 1 before the last knot piece with at least \
+         {min} points above), one step when the test does not reject and \
          the X(C) band more than one knot piece below the break contains the one-break X and \
          stays within ±{margin} of it, and undecided otherwise; where X leaves 1 is given an \
          interval only for a continuous shape.",
         margin = crate::twotime::shape::ONE_STEP_MARGIN,
+        min = r.settings.given.min_branch,
         first = if FIRST_RAMP > 0 {
             " (y straight there, since the slope at the very edge rests on the noisiest points)"
         } else {

@@ -172,7 +172,7 @@ pub fn shape_full(
         .map(|&j| spec.model.response(pts.x[j], pts.y[j]))
         .collect();
     let fitted: Vec<f64> = z.iter().zip(&shift).map(|(z, d)| z - d).collect();
-    let setup = Setup::new(&x, &z, &fitted, constraint)?;
+    let setup = Setup::new(&x, &z, &fitted, constraint, spec.min_branch)?;
     let fit = setup.fit(&x, &z, &w)?;
     let stat = est.sol.sse - fit.sse;
     Some((setup, fit, stat))

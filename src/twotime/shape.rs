@@ -24,8 +24,8 @@ pub const GRID: usize = 41;
 pub const DEPARTURE: f64 = 0.05;
 
 /// One step is claimed only when the X(C) band below the break lies within this distance
-/// of the one-break X everywhere (a continuous X(C) that varies by more is then excluded
-/// at the band's pointwise level).
+/// of the one-break X everywhere (a larger variation is then excluded point by point, at
+/// the bands' pointwise level, not jointly).
 pub const ONE_STEP_MARGIN: f64 = 0.1;
 
 /// Values kept per resample and group: X on the grid, where X leaves 1, and the test's
@@ -44,12 +44,22 @@ pub struct Setup {
     /// `r̂ − f̂_broken` per point of the group: subtracting it moves a resample onto the
     /// fitted broken stick.
     pub shift: Vec<f64>,
+    /// The group's C values (full data).
+    pub x: Vec<f64>,
+    /// Least points above where X leaves 1 for a continuous shape to be claimed.
+    pub min_above: usize,
 }
 
 impl Setup {
     /// The setup of a group whose points have these x, responses `z` and broken-stick
     /// fitted values; `None` when the knots cannot be placed.
-    pub fn new(x: &[f64], z: &[f64], fitted: &[f64], constraint: Constraint) -> Option<Setup> {
+    pub fn new(
+        x: &[f64],
+        z: &[f64],
+        fitted: &[f64],
+        constraint: Constraint,
+        min_above: usize,
+    ) -> Option<Setup> {
         let knots = Knots::from_data(x)?;
         let (lo, hi) = (knots.at[0], knots.at[knots.pieces]);
         let grid = (0..GRID)
@@ -61,6 +71,8 @@ impl Setup {
             constraint,
             grid,
             shift,
+            x: x.to_vec(),
+            min_above,
         })
     }
 
@@ -145,7 +157,7 @@ pub fn assess(input: &ShapeInput<'_>, fit: &GroupFit, s: &FitSettings) -> ShapeF
     };
     let test = shape_test(input);
     let evidence = constant_evidence(&x_of_c, setup, fit);
-    let verdict = shape_verdict(fit, &test, &evidence, &x_of_c, &leaves_one, s);
+    let verdict = shape_verdict(fit, setup, &test, &evidence, &x_of_c, &leaves_one, s);
     // A step is spread over a knot piece, so where the smooth curve leaves 1 lies above the
     // break (with 12 pieces its interval covered a one-step truth in 0.28–0.70 of 40 campaigns): an
     // interval is given only where the smooth shape is established.
@@ -194,6 +206,16 @@ fn shape_test(input: &ShapeInput<'_>) -> ShapeTest {
         .filter(|v| v.is_finite())
         .collect();
     let tol = 1e-13 * input.scale;
+    let rows = input.rows.len() / ROW;
+    if !input.stat.is_finite() || nulls.len() * 2 < rows {
+        // No statistic, or most resamples failed: no p-value rather than a small one.
+        return ShapeTest {
+            statistic: input.stat,
+            p: f64::NAN,
+            resamples: nulls.len(),
+            level: input.level,
+        };
+    }
     let stat = if input.stat.abs() <= tol {
         0.0
     } else {
@@ -246,6 +268,7 @@ fn constant_evidence(x_of_c: &[XAtC], setup: &Setup, fit: &GroupFit) -> Option<E
 /// The verdict between equilibrium, one step, a continuous X(C) and undecided.
 fn shape_verdict(
     fit: &GroupFit,
+    setup: &Setup,
     test: &ShapeTest,
     evidence: &Option<Evidence>,
     x_of_c: &[XAtC],
@@ -253,7 +276,19 @@ fn shape_verdict(
     s: &FitSettings,
 ) -> ShapeVerdict {
     let p_eq = fit.equilibrium_p.unwrap_or(f64::NAN);
-    if !(p_eq <= s.test_level()) {
+    let undecided = |reason: String| ShapeVerdict::Undecided {
+        p: test.p,
+        level: test.level,
+        reason,
+    };
+    if p_eq.is_nan() || test.p.is_nan() {
+        return undecided(
+            "the equilibrium or the shape test could not be computed (too many resamples \
+             failed)"
+                .into(),
+        );
+    }
+    if p_eq > s.test_level() {
         return ShapeVerdict::Equilibrium {
             p_equilibrium: p_eq,
             alpha: s.test_level(),
@@ -261,6 +296,14 @@ fn shape_verdict(
     }
     let triple = |e: &Estimate| -> Option<[f64; 3]> { Some([e.estimate?, e.low?, e.high?]) };
     if test.p <= test.level {
+        // The smooth curve imposes X = 1 at the largest C: a missing or tilted equilibrium
+        // branch also makes it win, with a crossing pinned to the last knot piece.
+        if let Some(why) = imposed_top(fit, setup, leaves_one, s) {
+            return undecided(format!(
+                "one break is rejected by the smooth curve, but {why}; the smooth curve sets \
+                 X = 1 at the largest C, so there it is imposed, not measured"
+            ));
+        }
         let lowest = &x_of_c[0].x;
         return ShapeVerdict::Continuous {
             p: test.p,
@@ -320,6 +363,48 @@ fn shape_verdict(
             },
         },
     }
+}
+
+/// Why the equilibrium branch at the top of the curve is not established, if it is not:
+/// the one-break fit's break at the edge, its slope above the break not −1, X leaving 1 only
+/// on the last knot piece, or too few points above where it leaves 1.
+fn imposed_top(
+    fit: &GroupFit,
+    setup: &Setup,
+    leaves_one: &Estimate,
+    s: &FitSettings,
+) -> Option<String> {
+    if matches!(fit.verdict, Verdict::BreakAtEdge { .. }) {
+        return Some("the one-break fit's break sits at the edge of the points".into());
+    }
+    if let Some(p) = fit.thermometer_p.filter(|p| *p <= s.test_level()) {
+        return Some(format!(
+            "the slope above the break is not -1 ({}: a wrong temperature or response units \
+             tilt the upper branch)",
+            crate::report::format::p_clause(p, fit.null_resamples)
+        ));
+    }
+    let Some(c) = leaves_one.estimate else {
+        return Some(format!(
+            "X stays above {} at every fitted C",
+            1.0 - DEPARTURE
+        ));
+    };
+    let kn = setup.knots.values();
+    if c >= kn[kn.len() - 2] {
+        return Some(format!(
+            "X leaves 1 only on the last knot piece (C ≥ {})",
+            crate::report::format::fmt_num(kn[kn.len() - 2])
+        ));
+    }
+    let above = setup.x.iter().filter(|&&v| v >= c).count();
+    (above < setup.min_above).then(|| {
+        format!(
+            "only {above} points lie above where X leaves 1 (at least {} needed, as on each \
+             side of a break)",
+            setup.min_above
+        )
+    })
 }
 
 /// The largest X of the grid when it exceeds 1 by more than its band (the unconstrained
