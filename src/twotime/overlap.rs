@@ -116,16 +116,18 @@ impl Overlap {
 /// [`Error::Input`] with the line and column of a field that is not a finite number (or a
 /// negative weight), a header without `q`, or fewer than 2 rows.
 pub fn read_overlap(path: &Path) -> Result<Overlap> {
-    let text = std::fs::read_to_string(path).map_err(|source| Error::Io {
-        path: path.to_path_buf(),
-        action: "cannot read",
-        source,
-    })?;
-    let mut lines = text
-        .lines()
-        .enumerate()
-        .filter(|(_, l)| !l.trim().is_empty());
-    let Some((_, header)) = lines.next() else {
+    use crate::input::{Header, csv_error, csv_reader, is_blank, line_of, open};
+    let mut records = csv_reader(open(path)?).into_records();
+    let mut next = || -> Result<Option<csv::StringRecord>> {
+        for rec in records.by_ref() {
+            let rec = rec.map_err(|e| csv_error(path, e))?;
+            if !is_blank(&rec) {
+                return Ok(Some(rec));
+            }
+        }
+        Ok(None)
+    };
+    let Some(first) = next()? else {
         return Err(Error::input(
             path,
             None,
@@ -133,32 +135,37 @@ pub fn read_overlap(path: &Path) -> Result<Overlap> {
             "the file is empty: expected a header naming q (and p for a histogram)",
         ));
     };
-    let names: Vec<String> = header.split(',').map(|h| h.trim().to_lowercase()).collect();
-    let (Some(qc), pc) = (
-        names.iter().position(|n| n == "q"),
-        names.iter().position(|n| n == "p"),
-    ) else {
+    let header = Header::new(path, &first)?;
+    let find = |name: &str| {
+        header
+            .fields
+            .iter()
+            .position(|f| f.trim().eq_ignore_ascii_case(name))
+    };
+    let (Some(qc), pc) = (find("q"), find("p")) else {
         return Err(Error::input(
             path,
-            Some(1),
+            Some(header.line),
             None,
             format!(
-                "the header is {header:?}: expected a column q (overlap samples) or q and p (a histogram)"
+                "the header is {:?}: expected a column q (overlap samples) or q and p (a \
+                 histogram)",
+                header.fields.join(",")
             ),
         ));
     };
     let (mut q, mut p) = (Vec::new(), Vec::new());
-    for (i, line) in lines {
-        let fields: Vec<&str> = line.split(',').collect();
+    while let Some(rec) = next()? {
+        let line = line_of(&rec);
         let num = |col: usize, what: &str| -> Result<f64> {
-            let f = fields.get(col).map_or("", |f| f.trim());
+            let f = rec.get(col).unwrap_or("");
             f.parse::<f64>()
                 .ok()
                 .filter(|v| v.is_finite())
                 .ok_or_else(|| {
                     Error::input(
                         path,
-                        Some(i as u64 + 1),
+                        Some(line),
                         Some(col as u64 + 1),
                         format!("{what} is {f:?}, expected a finite number"),
                     )
@@ -170,7 +177,7 @@ pub fn read_overlap(path: &Path) -> Result<Overlap> {
             if v < 0.0 {
                 return Err(Error::input(
                     path,
-                    Some(i as u64 + 1),
+                    Some(line),
                     Some(pc as u64 + 1),
                     format!("p is {v}, expected a weight or density ≥ 0"),
                 ));
