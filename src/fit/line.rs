@@ -76,3 +76,89 @@ pub fn fit_line(x: &[f64], y: &[f64], w: Option<&[f64]>) -> Option<LineFit> {
         r_squared: if syy > 0.0 { 1.0 - sse / syy } else { 1.0 },
     })
 }
+
+/// The weighted least-squares curvature `c` of `y = a + b x + c x²`, from orthogonal
+/// polynomials (Forsythe's three-term recurrence, so no normal matrix is formed): with
+/// `p₀ = 1`, `p₁ = x − α₁`, `p₂ = (x − α₂) p₁ − β₁`, where `α₁ = Σw x / Σw`,
+/// `α₂ = Σw x p₁² / Σw p₁²` and `β₁ = Σw p₁² / Σw`, the fit is a sum of multiples of the
+/// three, and `p₂`'s leading coefficient is 1, so `c = Σw p₂ y / Σw p₂²`.
+///
+/// Returns `None` with fewer than 4 points, lengths that differ, a weight that is not
+/// positive, or fewer than 3 distinct `x`.
+///
+/// # Examples
+/// ```
+/// let x = [0.0, 1.0, 2.0, 3.0, 4.0];
+/// let y: Vec<f64> = x.iter().map(|x| 1.0 - 2.0 * x + 0.5 * x * x).collect();
+/// let c = fdtemp::fit::line::curvature(&x, &y, &[1.0; 5]).unwrap();
+/// assert!((c - 0.5).abs() < 1e-12);
+/// ```
+pub fn curvature(x: &[f64], y: &[f64], w: &[f64]) -> Option<f64> {
+    let n = x.len();
+    if n < 4 || y.len() != n || w.len() != n || w.iter().any(|&v| !(v > 0.0)) {
+        return None;
+    }
+    let sw: f64 = w.iter().sum();
+    let a1 = x.iter().zip(w).map(|(x, w)| w * x).sum::<f64>() / sw;
+    let (mut s11, mut sx11) = (0.0, 0.0);
+    for (x, w) in x.iter().zip(w) {
+        let p1 = x - a1;
+        s11 += w * p1 * p1;
+        sx11 += w * x * p1 * p1;
+    }
+    if !(s11 > 0.0) {
+        return None;
+    }
+    let (a2, b1) = (sx11 / s11, s11 / sw);
+    let (mut s22, mut s2y) = (0.0, 0.0);
+    for ((x, y), w) in x.iter().zip(y).zip(w) {
+        let p2 = (x - a2) * (x - a1) - b1;
+        s22 += w * p2 * p2;
+        s2y += w * p2 * y;
+    }
+    // With 2 distinct x, p₂ vanishes at every point (up to rounding).
+    (s22 > 1e-24 * b1 * b1 * sw).then(|| s2y / s22)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::curvature;
+
+    /// Against the 3×3 normal equations solved by Cramer's rule (an independent route to
+    /// the same least-squares solution; common practice), on uneven x and weights.
+    #[test]
+    fn curvature_matches_the_normal_equations() {
+        let x: Vec<f64> = (0..23)
+            .map(|i| 0.1 + 0.37 * i as f64 + 0.01 * ((i * i) % 7) as f64)
+            .collect();
+        let y: Vec<f64> = x.iter().map(|x| (1.3 * x).sin() + 0.2 * x).collect();
+        let w: Vec<f64> = (0..23).map(|i| 1.0 + (i % 5) as f64).collect();
+        let m = |p: i32| x.iter().zip(&w).map(|(x, w)| w * x.powi(p)).sum::<f64>();
+        let v = |p: i32| {
+            x.iter()
+                .zip(&w)
+                .zip(&y)
+                .map(|((x, w), y)| w * x.powi(p) * y)
+                .sum::<f64>()
+        };
+        let a = [[m(0), m(1), m(2)], [m(1), m(2), m(3)], [m(2), m(3), m(4)]];
+        let det = |a: [[f64; 3]; 3]| {
+            a[0][0] * (a[1][1] * a[2][2] - a[1][2] * a[2][1])
+                - a[0][1] * (a[1][0] * a[2][2] - a[1][2] * a[2][0])
+                + a[0][2] * (a[1][0] * a[2][1] - a[1][1] * a[2][0])
+        };
+        let mut a3 = a;
+        for (r, b) in a3.iter_mut().zip([v(0), v(1), v(2)]) {
+            r[2] = b;
+        }
+        let c = det(a3) / det(a);
+        let got = curvature(&x, &y, &w).unwrap();
+        assert!((got - c).abs() < 1e-9 * c.abs().max(1.0), "{got} vs {c}");
+    }
+
+    #[test]
+    fn curvature_needs_three_distinct_x() {
+        assert!(curvature(&[1.0, 1.0, 2.0, 2.0], &[0.0, 1.0, 2.0, 3.0], &[1.0; 4]).is_none());
+        assert!(curvature(&[1.0, 2.0, 3.0], &[0.0, 1.0, 2.0], &[1.0; 3]).is_none());
+    }
+}

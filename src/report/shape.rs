@@ -24,10 +24,12 @@ pub fn section(o: &mut String, r: &FitReport) {
         constraint_words(joint.constraint),
         100.0 * r.settings.given.level
     );
-    let mut rows: Vec<[String; 5]> = vec![[
+    let mut rows: Vec<[String; 7]> = vec![[
         held.into(),
         "X at lowest C".into(),
         format!("X leaves 1 (≤ {}) below C", fmt_num(1.0 - joint.departure)),
+        "X above that".into(),
+        "drift of X below q".into(),
         "p(one break vs smooth)".into(),
         "shape".into(),
     ]];
@@ -38,11 +40,21 @@ pub fn section(o: &mut String, r: &FitReport) {
             label(f),
             format!("{} at C = {}", est(&low.x), sig(low.c, 3)),
             est(&s.leaves_one),
+            est(&s.x_above_leaving),
+            est(&s.drift_below_break),
             fmt_p_resampled(s.test.p, s.test.resamples),
             short(&s.verdict).into(),
         ]);
     }
     o.push_str(&table(&rows));
+    let _ = writeln!(
+        o,
+        "(X above that: a line through the points above where X leaves 1, which must lie \
+         within 1 ± {} for a continuous shape; drift: X's change across the points one knot \
+         piece and more below the break q, which must lie within ±{} for one step)",
+        joint.top_margin,
+        fmt_num(2.0 * joint.one_step_margin)
+    );
     if r.fits
         .iter()
         .any(|f| f.shape.as_ref().is_some_and(|s| s.leaves_one.low.is_none()))
@@ -156,16 +168,16 @@ pub fn verdict(s: &ShapeFit) -> String {
             super::format::fmt_p(*p_equilibrium),
             fmt_num(*alpha)
         ),
-        ShapeVerdict::OneStep {
-            x, q, band_reach, ..
-        } => format!(
+        ShapeVerdict::OneStep { x, q, drift, .. } => format!(
             "one step (two temperatures): one break at q = {} with X = {} fits, and the \
-             smooth curve does not fit better ({p}); below the break the X(C) band stays \
-             within ±{} of that X (pointwise bands), so X is constant there to that \
-             precision (smaller variations are not excluded)",
+             smooth curve does not fit better ({p}); across the branch below the break X \
+             drifts by {} (a parabola's curvature), inside ±{}, so X is constant there \
+             within ±{} (smaller variations are not excluded)",
             sig(*q, 3),
             triple(x),
-            sig(*band_reach, 2)
+            triple(drift),
+            fmt_num(2.0 * s.one_step_margin),
+            fmt_num(s.one_step_margin)
         ),
         ShapeVerdict::Continuous {
             x_lowest_c,
@@ -261,13 +273,18 @@ pub fn methods(r: &FitReport) -> String {
          both models to resamples moved onto the fitted broken stick (p = (1 + #)/(B + 1)), at \
          the test level jointly and at that level divided by the number of curves per curve. \
          The shape is called continuous when this test rejects and the curve's top is measured \
-         rather than imposed (the one-break fit's break away from the edge, its upper slope not \
-         shown to differ from -1, X leaving 1 before the last knot piece with at least \
-         {min} points above), one step when the test does not reject and \
-         the X(C) band more than one knot piece below the break contains the one-break X and \
-         stays within ±{margin} of it, and undecided otherwise; where X leaves 1 is given an \
-         interval only for a continuous shape.",
+         rather than imposed (the one-break fit's break away from the edge; X leaving 1 before \
+         the last knot piece with at least {min} points above; and the {lvl:.0}% interval of \
+         the X of a weighted line through those points within 1 ± {top}, so that a wrong \
+         temperature or response unit is not read as a bend), one step when the test does not \
+         reject, the one-break fit is clean and the {lvl:.0}% interval of X's drift across \
+         the points more than one knot piece below the break (from a weighted parabola's \
+         curvature) lies within ±{drift} (X within ±{margin} of its mean there), and \
+         undecided otherwise; where X leaves 1 is given an interval only for a continuous \
+         shape.",
         margin = crate::twotime::shape::ONE_STEP_MARGIN,
+        drift = fmt_num(2.0 * crate::twotime::shape::ONE_STEP_MARGIN),
+        top = crate::twotime::shape::TOP_MARGIN,
         min = r.settings.given.min_branch,
         first = if FIRST_RAMP > 0 {
             " (y straight there, since the slope at the very edge rests on the noisiest points)"

@@ -172,18 +172,28 @@ pub fn shape_full(
         .map(|&j| spec.model.response(pts.x[j], pts.y[j]))
         .collect();
     let fitted: Vec<f64> = z.iter().zip(&shift).map(|(z, d)| z - d).collect();
-    let setup = Setup::new(&x, &z, &fitted, constraint, spec.min_branch)?;
+    let mut setup = Setup::new(&x, &z, &fitted, constraint, spec.min_branch)?;
     let fit = setup.fit(&x, &z, &w)?;
+    setup.top = fit.leaves_one(super::shape::DEPARTURE);
+    setup.top_x = setup.ratio_above(&x, &z, &w);
+    if let Some(hi) = super::shape::branch_end(&setup.knots, est.q) {
+        let lo = x.iter().copied().fold(f64::INFINITY, f64::min);
+        setup.branch = [lo, hi];
+        setup.drift = setup.drift_below(&x, &z, &w);
+    }
     let stat = est.sol.sse - fit.sse;
     Some((setup, fit, stat))
 }
 
-/// X on the grid and where X leaves 1 for the resample whose points [`fit_group`] just left
-/// in `sc` (call before [`null_statistic`], which overwrites the responses).
+/// X on the grid, where X leaves 1 and the X of the points above where the full-data curve
+/// leaves 1, for the resample whose points [`fit_group`] just left in `sc` (call before
+/// [`null_statistic`], which overwrites the responses).
 pub fn shape_record(sc: &Scratch, setup: &Setup, row: &mut [f64]) {
     if let Some(f) = setup.fit(&sc.x, &sc.r, &sc.w) {
         setup.record(&f, row);
     }
+    row[super::shape::GRID + 2] = setup.ratio_above(&sc.x, &sc.r, &sc.w);
+    row[super::shape::GRID + 3] = setup.drift_below(&sc.x, &sc.r, &sc.w);
 }
 
 /// The shape statistic of the resample whose points [`fit_group`] left in `sc`, after

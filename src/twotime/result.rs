@@ -7,7 +7,7 @@ use crate::common::{Estimate, ToolInfo};
 use serde::Serialize;
 
 /// The JSON schema version of [`FitReport`].
-pub const SCHEMA: u32 = 5;
+pub const SCHEMA: u32 = 6;
 
 /// The fitted two-segment curve in plot coordinates: `y = intercept + slope_above · x`
 /// for `x >= q`, and slope `slope_below` for `x < q` (continuous at `q`).
@@ -132,6 +132,11 @@ pub struct ShapeFit {
     /// The largest C where X(C) ≤ 1 − departure (the end of the quasi-equilibrium regime),
     /// with its percentile interval.
     pub leaves_one: Estimate,
+    /// X of a weighted line through the points above where the smooth X leaves 1 (the top of
+    /// the curve, measured rather than imposed), with its percentile interval.
+    pub x_above_leaving: Estimate,
+    /// A continuous shape is claimed only when that interval lies within `1 ± top_margin`.
+    pub top_margin: f64,
     /// One break against the smooth curve.
     pub test: ShapeTest,
     /// Grid points below the break where the one-break X lies inside the X(C) band.
@@ -140,7 +145,12 @@ pub struct ShapeFit {
     pub constant_checked: Option<usize>,
     /// The farthest end of the X(C) band from the one-break X among the checked points.
     pub band_reach_below_break: Option<f64>,
-    /// One step is claimed only when that reach is at most this.
+    /// How much X drifts across the lower branch (up to one knot piece below the break),
+    /// `X(C_hi) − X(C_lo)` from a weighted parabola's curvature, with its percentile
+    /// interval.
+    pub drift_below_break: Estimate,
+    /// One step is claimed only when that interval lies within `±2·one_step_margin` (X
+    /// within ±one_step_margin of its mean on the branch).
     pub one_step_margin: f64,
     /// `[C, X]` where X exceeds 1 by more than its band, at its largest (unconstrained
     /// curve only).
@@ -223,9 +233,9 @@ pub enum ShapeVerdict {
         x: Option<[f64; 3]>,
         /// The break.
         q: f64,
-        /// The farthest end of the X(C) band below the break from X: variations smaller
-        /// than this are not excluded.
-        band_reach: f64,
+        /// X's drift across the lower branch with its interval (inside
+        /// `±2·one_step_margin`): smaller variations are not excluded.
+        drift: Option<[f64; 3]>,
     },
     /// The smooth curve fits better than one break: X changes continuously with C.
     Continuous {

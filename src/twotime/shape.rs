@@ -14,6 +14,7 @@ use super::findings::Verdict;
 use super::result::{GroupFit, ShapeFit, ShapeTest, ShapeVerdict, XAtC};
 use super::settings::FitSettings;
 use crate::common::Estimate;
+use crate::fit::line::{curvature, fit_line};
 use crate::fit::smooth::{Constraint, Knots, SmoothFit, fit_smooth};
 use crate::resample::{IntervalMethod, interval};
 
@@ -23,14 +24,22 @@ pub const GRID: usize = 41;
 /// X "leaves 1" where it falls to `1 − DEPARTURE`.
 pub const DEPARTURE: f64 = 0.05;
 
-/// One step is claimed only when the X(C) band below the break lies within this distance
-/// of the one-break X everywhere (a larger variation is then excluded point by point, at
-/// the bands' pointwise level, not jointly).
+/// One step is claimed only when X stays within this distance of its mean across the
+/// lower branch: the interval of its drift there ([`Setup::drift_below`], a parabola's
+/// slope change, so one number and no multiplicity over a grid) lies within
+/// `±2·ONE_STEP_MARGIN`.
 pub const ONE_STEP_MARGIN: f64 = 0.1;
 
-/// Values kept per resample and group: X on the grid, where X leaves 1, and the test's
-/// statistic of the resample moved onto the broken stick.
-pub const ROW: usize = GRID + 2;
+/// A continuous shape is claimed only where the top of the curve is measured: the interval
+/// of the X of a line through the points above where the smooth X leaves 1 must lie within
+/// `1 ± TOP_MARGIN` (a wrong temperature or response units tilt it, and too few points
+/// leave it wide; a bend of the curve below does not).
+pub const TOP_MARGIN: f64 = 0.02;
+
+/// Values kept per resample and group: X on the grid, where X leaves 1, the test's
+/// statistic of the resample moved onto the broken stick, the X of the points above where
+/// the full-data curve leaves 1, and the drift of X across the lower branch.
+pub const ROW: usize = GRID + 4;
 
 /// What every smooth fit of one group shares, fixed by the full data.
 #[derive(Debug, Clone)]
@@ -48,6 +57,37 @@ pub struct Setup {
     pub x: Vec<f64>,
     /// Least points above where X leaves 1 for a continuous shape to be claimed.
     pub min_above: usize,
+    /// Where the full-data smooth X leaves 1 (NaN until fitted, or when it never does).
+    pub top: f64,
+    /// The full data's [`Setup::ratio_above`] (NaN until fitted).
+    pub top_x: f64,
+    /// The C range of the lower branch's points: from the smallest C to one knot piece
+    /// below the full data's break ([`branch_end`]); NaN without a break.
+    pub branch: [f64; 2],
+    /// The full data's [`Setup::drift_below`] (NaN until fitted).
+    pub drift: f64,
+}
+
+/// The points whose C passes `keep`.
+fn select(x: &[f64], z: &[f64], w: &[f64], keep: impl Fn(f64) -> bool) -> [Vec<f64>; 3] {
+    let mut out = [Vec::new(), Vec::new(), Vec::new()];
+    for ((&x, &z), &w) in x.iter().zip(z).zip(w) {
+        if keep(x) {
+            out[0].push(x);
+            out[1].push(z);
+            out[2].push(w);
+        }
+    }
+    out
+}
+
+/// One knot piece below the break `q` (the ramps spread a step over about one piece):
+/// `q − h`, with `h` the width of the piece that holds q; `None` when q is below the first
+/// knot or not finite.
+pub fn branch_end(knots: &Knots, q: f64) -> Option<f64> {
+    let kn = knots.values();
+    let piece = kn.iter().rposition(|&t| t <= q)?.min(kn.len() - 2);
+    Some(q - (kn[piece + 1] - kn[piece]))
 }
 
 impl Setup {
@@ -73,7 +113,32 @@ impl Setup {
             shift,
             x: x.to_vec(),
             min_above,
+            top: f64::NAN,
+            top_x: f64::NAN,
+            branch: [f64::NAN; 2],
+            drift: f64::NAN,
         })
+    }
+
+    /// `X = 1 − slope` of the weighted line of the responses `z` (`x + y`) on C through the
+    /// points at or above [`Setup::top`]: the measured X of the top of the curve; NaN with
+    /// fewer than 3 such points or no spread in C.
+    pub fn ratio_above(&self, x: &[f64], z: &[f64], w: &[f64]) -> f64 {
+        let [x, z, w] = select(x, z, w, |c| c >= self.top);
+        fit_line(&x, &z, Some(&w)).map_or(f64::NAN, |l| 1.0 - l.slope)
+    }
+
+    /// How much X drifts across the lower branch, `X(C_hi) − X(C_lo)`, from the curvature
+    /// `c` of a weighted parabola of `z` on C through the points of [`Setup::branch`]
+    /// (`X(C) = 1 − b − 2cC`, so the drift is `−2c (C_hi − C_lo)`); NaN with fewer than
+    /// `min_above` points there.
+    pub fn drift_below(&self, x: &[f64], z: &[f64], w: &[f64]) -> f64 {
+        let [lo, hi] = self.branch;
+        let [x, z, w] = select(x, z, w, |c| c <= hi);
+        if x.len() < self.min_above.max(4) {
+            return f64::NAN;
+        }
+        curvature(&x, &z, &w).map_or(f64::NAN, |c| -2.0 * c * (hi - lo))
     }
 
     /// The smooth fit of one set of points.
@@ -155,9 +220,31 @@ pub fn assess(input: &ShapeInput<'_>, fit: &GroupFit, s: &FitSettings) -> ShapeF
             1.0 - DEPARTURE
         ))
     };
+    let x_above_leaving = {
+        if setup.top_x.is_finite() {
+            band(setup.top_x, &column(GRID + 2))
+        } else {
+            Estimate::none("fewer than 3 points above where X leaves 1")
+        }
+    };
+    let drift_below_break = if setup.drift.is_finite() {
+        band(setup.drift, &column(GRID + 3))
+    } else {
+        Estimate::none(format!(
+            "fewer than {} points one knot piece below the break",
+            setup.min_above.max(4)
+        ))
+    };
     let test = shape_test(input);
     let evidence = constant_evidence(&x_of_c, setup, fit);
-    let verdict = shape_verdict(fit, setup, &test, &evidence, &x_of_c, &leaves_one, s);
+    let verdict = shape_verdict(
+        fit,
+        setup,
+        &test,
+        &x_of_c,
+        [&leaves_one, &x_above_leaving, &drift_below_break],
+        s,
+    );
     // A step is spread over a knot piece, so where the smooth curve leaves 1 lies above the
     // break (with 12 pieces its interval covered a one-step truth in 0.28–0.70 of 40 campaigns): an
     // interval is given only where the smooth shape is established.
@@ -180,6 +267,9 @@ pub fn assess(input: &ShapeInput<'_>, fit: &GroupFit, s: &FitSettings) -> ShapeF
         knots: setup.knots.values().to_vec(),
         departure: DEPARTURE,
         leaves_one,
+        x_above_leaving,
+        top_margin: TOP_MARGIN,
+        drift_below_break,
         test,
         constant_inside: evidence.map(|e| e.inside),
         constant_checked: evidence.map(|e| e.checked),
@@ -246,9 +336,7 @@ struct Evidence {
 /// the width of the piece that holds q.
 fn constant_evidence(x_of_c: &[XAtC], setup: &Setup, fit: &GroupFit) -> Option<Evidence> {
     let (x, q) = (fit.ratio.estimate?, fit.brk.estimate?);
-    let kn = setup.knots.values();
-    let piece = kn.iter().rposition(|&t| t <= q)?.min(kn.len() - 2);
-    let below = q - (kn[piece + 1] - kn[piece]);
+    let below = branch_end(&setup.knots, q)?;
     let mut ev = Evidence {
         checked: 0,
         inside: 0,
@@ -270,9 +358,8 @@ fn shape_verdict(
     fit: &GroupFit,
     setup: &Setup,
     test: &ShapeTest,
-    evidence: &Option<Evidence>,
     x_of_c: &[XAtC],
-    leaves_one: &Estimate,
+    [leaves_one, top, drift]: [&Estimate; 3],
     s: &FitSettings,
 ) -> ShapeVerdict {
     let p_eq = fit.equilibrium_p.unwrap_or(f64::NAN);
@@ -298,7 +385,7 @@ fn shape_verdict(
     if test.p <= test.level {
         // The smooth curve imposes X = 1 at the largest C: a missing or tilted equilibrium
         // branch also makes it win, with a crossing pinned to the last knot piece.
-        if let Some(why) = imposed_top(fit, setup, leaves_one, s) {
+        if let Some(why) = imposed_top(fit, setup, leaves_one, top) {
             return undecided(format!(
                 "one break is rejected by the smooth curve, but {why}; the smooth curve sets \
                  X = 1 at the largest C, so there it is imposed, not measured"
@@ -314,75 +401,82 @@ fn shape_verdict(
         };
     }
     let one_break = matches!(fit.verdict, Verdict::OneBreak { .. });
-    match evidence {
-        Some(e)
-            if one_break
-                && e.checked >= 3
-                && e.inside == e.checked
-                && e.reach <= ONE_STEP_MARGIN =>
-        {
-            ShapeVerdict::OneStep {
-                p: test.p,
-                level: test.level,
-                x: triple(&fit.ratio),
-                q: fit.brk.estimate.unwrap_or(f64::NAN),
-                band_reach: e.reach,
-            }
-        }
-        _ => ShapeVerdict::Undecided {
+    let bound = 2.0 * ONE_STEP_MARGIN;
+    let inside = drift
+        .low
+        .zip(drift.high)
+        .is_some_and(|(lo, hi)| -bound <= lo && hi <= bound);
+    if one_break && inside {
+        return ShapeVerdict::OneStep {
             p: test.p,
             level: test.level,
-            reason: match evidence {
-                _ if matches!(fit.verdict, Verdict::Curved { .. }) => {
-                    "one break does not fit (lack of fit), but the smooth curve does not fit \
-                     significantly better"
-                        .into()
-                }
-                _ if matches!(fit.verdict, Verdict::BreakAtEdge { .. }) => {
-                    "the one-break fit withholds X (its break sits at the edge of the points)"
-                        .into()
-                }
-                _ if !one_break => "the one-break fit gives no clean X with 0 < X < 1".into(),
-                Some(e) if e.checked < 3 => {
-                    "too few grid points below the break to compare a constant X with the band"
-                        .into()
-                }
-                Some(e) if e.inside < e.checked => format!(
-                    "the one-break X lies outside the X(C) band at {} of {} grid points below \
-                     the break",
-                    e.checked - e.inside,
-                    e.checked
-                ),
-                Some(e) => format!(
-                    "the X(C) band below the break reaches {:.2} from the one-break X, so a \
-                     continuous X(C) varying by more than ±{ONE_STEP_MARGIN} there is not \
-                     excluded (one step is claimed only within ±{ONE_STEP_MARGIN})",
-                    e.reach
-                ),
-                None => "the band of X(C) below the break could not be formed".into(),
-            },
-        },
+            x: triple(&fit.ratio),
+            q: fit.brk.estimate.unwrap_or(f64::NAN),
+            drift: triple(drift),
+        };
     }
+    let reason = match (drift.estimate, drift.low, drift.high) {
+        _ if matches!(fit.verdict, Verdict::Curved { .. }) => {
+            "one break does not fit (lack of fit), but the smooth curve does not fit \
+             significantly better"
+                .into()
+        }
+        _ if matches!(fit.verdict, Verdict::BreakAtEdge { .. }) => {
+            "the one-break fit withholds X (its break sits at the edge of the points)".into()
+        }
+        _ if !one_break => "the one-break fit gives no clean X with 0 < X < 1".into(),
+        (Some(d), Some(lo), Some(hi)) => {
+            use crate::report::format::fmt_num;
+            format!(
+                "across the branch below the break X drifts by {} [{}, {}] (a parabola's \
+                 curvature), which reaches beyond ±{bound}: a continuous X(C) varying by more \
+                 than ±{ONE_STEP_MARGIN} there is not excluded",
+                fmt_num(d),
+                fmt_num(lo),
+                fmt_num(hi)
+            )
+        }
+        _ => format!(
+            "X's drift across the branch below the break is not measured ({})",
+            drift.note.as_deref().unwrap_or("no interval")
+        ),
+    };
+    undecided(reason)
 }
 
 /// Why the equilibrium branch at the top of the curve is not established, if it is not:
-/// the one-break fit's break at the edge, its slope above the break not −1, X leaving 1 only
-/// on the last knot piece, or too few points above where it leaves 1.
+/// the one-break fit's break at the edge, the interval of the X of the points above where
+/// the smooth X leaves 1 not within `1 ± TOP_MARGIN` (a wrong temperature or response
+/// units, or too few points), X leaving 1
+/// only on the last knot piece, or too few points above where it leaves 1.
 fn imposed_top(
     fit: &GroupFit,
     setup: &Setup,
     leaves_one: &Estimate,
-    s: &FitSettings,
+    top: &Estimate,
 ) -> Option<String> {
     if matches!(fit.verdict, Verdict::BreakAtEdge { .. }) {
         return Some("the one-break fit's break sits at the edge of the points".into());
     }
-    if let Some(p) = fit.thermometer_p.filter(|p| *p <= s.test_level()) {
-        return Some(format!(
-            "the slope above the break is not -1 ({}: a wrong temperature or response units \
-             tilt the upper branch)",
-            crate::report::format::p_clause(p, fit.null_resamples)
-        ));
+    use crate::report::format::fmt_num;
+    match (top.estimate, top.low, top.high) {
+        (Some(x), Some(lo), Some(hi)) if lo < 1.0 - TOP_MARGIN || hi > 1.0 + TOP_MARGIN => {
+            return Some(format!(
+                "the points above where X leaves 1 have X = {} [{}, {}], not within \
+                 1 ± {TOP_MARGIN} (a wrong temperature or response units tilt the upper \
+                 branch; too few points leave it unmeasured)",
+                fmt_num(x),
+                fmt_num(lo),
+                fmt_num(hi)
+            ));
+        }
+        (Some(_), Some(_), Some(_)) => {}
+        _ => {
+            return Some(format!(
+                "the X of the points above where X leaves 1 is not measured ({})",
+                top.note.as_deref().unwrap_or("no interval")
+            ));
+        }
     }
     let Some(c) = leaves_one.estimate else {
         return Some(format!(
