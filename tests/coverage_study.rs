@@ -150,6 +150,7 @@ fn coverage_on_simulated_two_bath_campaigns() {
                 samples,
                 seed: 50_000 + seed,
                 quick: false,
+                hold: fdtemp::twotime::settings::Hold::Tw,
             })
             .unwrap();
             let c = fdtemp::input::tidy::parse_campaign(

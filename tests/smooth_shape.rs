@@ -356,3 +356,44 @@ fn an_imposed_top_is_not_read_as_a_continuous_shape() {
             .stdout(predicate::str::contains("continuous X(C):").not());
     }
 }
+
+/// The T = 0 Glauber–Ising chain at fixed later time t: X(C) = (1 + v)/2 with
+/// C = (2/π) arctan √(2v/(1 − v)), v = s/t. Source: Godrèche & Luck, J. Phys. A 33, 1151
+/// (2000) (the scaling forms of C and T·chi; X is their ratio of derivatives). The chain is
+/// simulated at T = 0.25 (ξ ≈ 1500 sites, so t = 2000 and 4000 sweeps are in the scaling
+/// regime) with the field-free response; the joint band must cover the exact curve on at
+/// least 90% of the grid. The largest-C grid point is X = 1 by the model's construction
+/// (the truth there is 0.995), so 40 of 41 is the most it can reach.
+#[test]
+fn the_glauber_chain_at_fixed_t_gives_the_exact_continuous_x_of_c() {
+    let dir = tempfile::tempdir().unwrap();
+    let data = dir.path().join("chain.csv");
+    fdtemp()
+        .args(["synth", "ising-chain", "--hold", "t", "--samples", "100", "--out"])
+        .arg(&data)
+        .assert()
+        .success();
+    let curve = dir.path().join("x.csv");
+    fdtemp()
+        .arg("fit")
+        .arg(&data)
+        .args(["-T", "0.25", "--hold", "t", "--axes", "plain", "--model", "smooth"])
+        .args(["-B", "999", "--x-of-c"])
+        .arg(&curve)
+        .assert()
+        .success();
+    let text = std::fs::read_to_string(&curve).unwrap();
+    let mut lines = text.lines();
+    let head: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let col = |name: &str| head.iter().position(|h| *h == name).unwrap();
+    let (c, lo, hi) = (col("c"), col("x_low"), col("x_high"));
+    let (mut covered, mut points) = (0, 0);
+    for l in lines.filter(|l| l.starts_with("all,")) {
+        let f: Vec<f64> = l.split(',').map(|v| v.parse().unwrap_or(f64::NAN)).collect();
+        let truth = fdtemp::scenarios::sim::ratio_at_fixed_t(f[c]);
+        points += 1;
+        covered += usize::from(f[lo] - 1e-9 <= truth && truth <= f[hi] + 1e-9);
+    }
+    assert_eq!(points, 41);
+    assert!(covered * 10 >= points * 9, "covered {covered} of {points}");
+}

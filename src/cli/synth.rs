@@ -3,6 +3,7 @@
 use super::RunArgs;
 use fdtemp::output::{self, Output};
 use fdtemp::scenarios::sim::{Scenario, SimSpec, simulate};
+use fdtemp::twotime::settings::Hold;
 use std::path::PathBuf;
 
 #[derive(clap::Args)]
@@ -25,6 +26,11 @@ pub struct SynthArgs {
     /// Replace files that exist already.
     #[arg(long)]
     overwrite: bool,
+    /// Which time each curve holds: tw (the later time runs), or t (ising-chain only: the
+    /// earlier time runs at fixed later times, where the slope of a curve is the two-time
+    /// ratio X(t, s)).
+    #[arg(long, value_enum, default_value_t = Hold::Tw)]
+    hold: Hold,
     #[command(flatten)]
     pub(super) run: RunArgs,
 }
@@ -42,6 +48,7 @@ pub fn run(a: SynthArgs) -> fdtemp::Result<()> {
         samples: a.samples,
         seed: a.seed,
         quick: a.quick,
+        hold: a.hold,
     };
     let sim = simulate(&spec)?;
     let fit = sim.truth["fit"]

@@ -42,6 +42,7 @@ mod ou;
 mod resistor;
 pub mod twins;
 mod two_lines;
+pub use ising::ratio_at_fixed_t;
 
 use crate::error::{Error, Result};
 use std::fmt::Write;
@@ -84,6 +85,9 @@ pub struct SimSpec {
     pub seed: u64,
     /// A smaller, faster version (for tests).
     pub quick: bool,
+    /// Which time is held along one curve: the waiting time (the usual plan), or the later
+    /// time t with the earlier time running (`ising-chain` only).
+    pub hold: crate::twotime::settings::Hold,
 }
 
 /// The simulated file and its truth.
@@ -105,6 +109,12 @@ pub fn simulate(spec: &SimSpec) -> Result<SimOutput> {
             "--samples is {}, expected at least 2 independent runs",
             spec.samples
         )));
+    }
+    if spec.hold == crate::twotime::settings::Hold::T && spec.scenario != Scenario::IsingChain
+    {
+        return Err(Error::Setting(
+            "--hold t is simulated only for ising-chain; the other systems hold tw".into(),
+        ));
     }
     Ok(match spec.scenario {
         Scenario::TwoBaths => ou::two_baths(spec),
