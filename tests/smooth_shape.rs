@@ -369,7 +369,15 @@ fn the_glauber_chain_at_fixed_t_gives_the_exact_continuous_x_of_c() {
     let dir = tempfile::tempdir().unwrap();
     let data = dir.path().join("chain.csv");
     fdtemp()
-        .args(["synth", "ising-chain", "--hold", "t", "--samples", "100", "--out"])
+        .args([
+            "synth",
+            "ising-chain",
+            "--hold",
+            "t",
+            "--samples",
+            "100",
+            "--out",
+        ])
         .arg(&data)
         .assert()
         .success();
@@ -377,7 +385,9 @@ fn the_glauber_chain_at_fixed_t_gives_the_exact_continuous_x_of_c() {
     fdtemp()
         .arg("fit")
         .arg(&data)
-        .args(["-T", "0.25", "--hold", "t", "--axes", "plain", "--model", "smooth"])
+        .args([
+            "-T", "0.25", "--hold", "t", "--axes", "plain", "--model", "smooth",
+        ])
         .args(["-B", "999", "--x-of-c"])
         .arg(&curve)
         .assert()
@@ -389,7 +399,10 @@ fn the_glauber_chain_at_fixed_t_gives_the_exact_continuous_x_of_c() {
     let (c, lo, hi) = (col("c"), col("x_low"), col("x_high"));
     let (mut covered, mut points) = (0, 0);
     for l in lines.filter(|l| l.starts_with("all,")) {
-        let f: Vec<f64> = l.split(',').map(|v| v.parse().unwrap_or(f64::NAN)).collect();
+        let f: Vec<f64> = l
+            .split(',')
+            .map(|v| v.parse().unwrap_or(f64::NAN))
+            .collect();
         let truth = fdtemp::scenarios::sim::ratio_at_fixed_t(f[c]);
         points += 1;
         covered += usize::from(f[lo] - 1e-9 <= truth && truth <= f[hi] + 1e-9);

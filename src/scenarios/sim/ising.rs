@@ -7,9 +7,9 @@
 
 use super::{Row, SimOutput, SimSpec, campaign_csv, log_grid};
 use crate::resample::replicate_rng;
+use crate::twotime::settings::Hold;
 use rand::RngExt;
 use rayon::prelude::*;
-use crate::twotime::settings::Hold;
 use serde_json::json;
 
 const TEMPERATURE: f64 = 0.25;
@@ -130,7 +130,11 @@ fn at_fixed_t(spec: &SimSpec) -> SimOutput {
 /// The exact X(C) of the chain at fixed t in the scaling regime (see [`at_fixed_t`]).
 pub fn ratio_at_fixed_t(c: f64) -> f64 {
     let u = (std::f64::consts::FRAC_PI_2 * c.clamp(0.0, 1.0)).tan();
-    let v = if u.is_finite() { u * u / (2.0 + u * u) } else { 1.0 };
+    let v = if u.is_finite() {
+        u * u / (2.0 + u * u)
+    } else {
+        1.0
+    };
     0.5 * (1.0 + v)
 }
 
@@ -143,7 +147,10 @@ fn sample_at_fixed_t(seed: u64, i: usize, l: usize, tanh: [f64; 3], plans: &[Pla
         .map(|_| if rng.random_bool(0.5) { 1 } else { -1 })
         .collect();
     let mut cum = vec![0.0f64; l];
-    let mut earlier: Vec<usize> = plans.iter().flat_map(|(_, ss)| ss.iter().copied()).collect();
+    let mut earlier: Vec<usize> = plans
+        .iter()
+        .flat_map(|(_, ss)| ss.iter().copied())
+        .collect();
     earlier.sort_unstable();
     earlier.dedup();
     let mut kept: Vec<(Vec<i8>, Vec<f64>)> = Vec::with_capacity(earlier.len());

@@ -110,8 +110,7 @@ pub fn simulate(spec: &SimSpec) -> Result<SimOutput> {
             spec.samples
         )));
     }
-    if spec.hold == crate::twotime::settings::Hold::T && spec.scenario != Scenario::IsingChain
-    {
+    if spec.hold == crate::twotime::settings::Hold::T && spec.scenario != Scenario::IsingChain {
         return Err(Error::Setting(
             "--hold t is simulated only for ising-chain; the other systems hold tw".into(),
         ));
