@@ -55,6 +55,18 @@ pub fn section(o: &mut String, r: &FitReport) {
         joint.top_margin,
         fmt_num(2.0 * joint.one_step_margin)
     );
+    for f in &r.fits {
+        if let Some(s) = f.shape.as_ref().filter(|s| s.failed_resamples > 0) {
+            let _ = writeln!(
+                o,
+                "({}: the smooth fit failed in {} of {} resamples, left out of its bands and \
+                 intervals; if that is more than a few, the bands may be too narrow)",
+                label(f),
+                s.failed_resamples,
+                r.settings.given.resamples
+            );
+        }
+    }
     if r.fits
         .iter()
         .any(|f| f.shape.as_ref().is_some_and(|s| s.leaves_one.low.is_none()))

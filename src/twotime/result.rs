@@ -159,6 +159,8 @@ pub struct ShapeFit {
     pub verdict: ShapeVerdict,
     /// X(C) and T_eff(C) on the grid, with pointwise percentile bands.
     pub x_of_c: Vec<XAtC>,
+    /// Resamples whose smooth fit failed (left out of the bands and intervals).
+    pub failed_resamples: usize,
     /// The comparison with a static x(q) (`--overlap`).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub static_comparison: Option<StaticComparison>,

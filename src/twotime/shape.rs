@@ -262,7 +262,13 @@ pub fn assess(input: &ShapeInput<'_>, fit: &GroupFit, s: &FitSettings) -> ShapeF
         },
     };
     let outside = outside_unit(&x_of_c);
+    let failed_resamples = input
+        .rows
+        .chunks_exact(ROW)
+        .filter(|r| r[0].is_nan())
+        .count();
     ShapeFit {
+        failed_resamples,
         constraint: setup.constraint,
         knots: setup.knots.values().to_vec(),
         departure: DEPARTURE,
