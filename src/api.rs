@@ -66,7 +66,7 @@ pub enum CampaignSource {
         /// What errors call them (`<arrays>`).
         label: PathBuf,
         /// The arrays.
-        arrays: CampaignArrays,
+        arrays: Box<CampaignArrays>,
     },
 }
 
@@ -90,7 +90,7 @@ pub fn read_campaign(source: CampaignSource, how: &CampaignRead) -> Result<ReadC
         CampaignSource::Table { label, text } => {
             crate::input::tidy::parse_campaign_with(text.as_slice(), &label, how)
         }
-        CampaignSource::Arrays { label, arrays } => campaign_from_arrays(&label, how, arrays),
+        CampaignSource::Arrays { label, arrays } => campaign_from_arrays(&label, how, *arrays),
     }
 }
 
