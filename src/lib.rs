@@ -11,6 +11,7 @@
 // `!(v > 0.0)` is used on purpose: unlike `v <= 0.0` it also rejects NaN.
 #![allow(clippy::neg_cmp_op_on_partial_ord)]
 
+pub mod api;
 pub mod budget;
 pub mod common;
 pub mod error;

@@ -1,13 +1,13 @@
 //! `fdtemp fit`: the time-domain analysis of a campaign, its report and output files.
 
 use super::progress::Bar;
-use super::{PlotArgs, RunArgs, in_file, parse_band, print};
+use super::{PlotArgs, RunArgs, parse_band, print};
 use fdtemp::common::Units;
 use fdtemp::input::{CampaignRead, ColumnNames, Delimiter, ReadCampaign};
 use fdtemp::output::{self, Output};
 use fdtemp::report::plot::{self, Figure};
 use fdtemp::resample::IntervalMethod;
-use fdtemp::twotime::design::{DesignSettings, Noise, calibrated_fit};
+use fdtemp::twotime::design::{DesignSettings, Noise};
 use fdtemp::twotime::points::Axes;
 use fdtemp::twotime::settings::{Constraint, FitSettings, Hold, Model, Weighting};
 use std::path::PathBuf;
@@ -88,10 +88,7 @@ impl FitOptions {
             min_branch: self.min_branch,
             hold: self.hold,
             range: self.range,
-            smooth: match (self.model, self.smooth_shape) {
-                (Model::Smooth, None) => Some(Constraint::Monotone),
-                (_, given) => given,
-            },
+            smooth: fdtemp::api::smooth_rule(self.model, self.smooth_shape),
         }
     }
 
@@ -112,7 +109,7 @@ impl FitOptions {
             delimiter: self.delimiter,
             drop_incomplete: self.drop_incomplete,
         };
-        fdtemp::input::read_campaign_with(&self.file, &how)
+        fdtemp::api::read_campaign(fdtemp::api::CampaignSource::File(self.file.clone()), &how)
     }
 }
 
@@ -237,22 +234,19 @@ pub fn run(a: FitArgs) -> fdtemp::Result<()> {
         .map(fdtemp::twotime::overlap::read_overlap)
         .transpose()?;
     let file = &a.opts.file;
-    let ReadCampaign { campaign, excluded } = a.opts.campaign()?;
-    let input = Some(file.display().to_string());
-    let mut report = match &design {
-        None => fdtemp::analyze(&campaign, &settings, input, &Bar::new()),
-        Some(d) => calibrated_fit(&campaign, &settings, d, input, &Bar::labelled("simulating")),
-    }
-    .map_err(in_file(file))?;
-    if let Some(ov) = &overlap {
-        for f in &mut report.fits {
-            if let Some(shape) = f.shape.as_mut() {
-                shape.static_comparison =
-                    Some(fdtemp::twotime::overlap::compare(shape, ov, settings.level));
-            }
-        }
-    }
-    report.excluded_samples = excluded;
+    let read = a.opts.campaign()?;
+    let progress = match &design {
+        None => Bar::new(),
+        Some(_) => Bar::labelled("simulating"),
+    };
+    let report = fdtemp::api::fit_campaign(
+        read,
+        &settings,
+        design.as_ref(),
+        overlap.as_ref(),
+        file,
+        &progress,
+    )?;
     let mut outputs = outputs(&report, a.json, a.points, figure, resample_figure)?;
     if let Some((path, fig)) = panels {
         let bytes = plot::fd_panels(&report, fig)?;

@@ -23,9 +23,10 @@ pub mod spectral;
 pub mod synth;
 
 use clap::{Parser, Subcommand};
+use fdtemp::api::in_file;
 use fdtemp::report::plot::{Figure, PlotSize};
 use std::io::Write;
-use std::path::{Path, PathBuf};
+use std::path::PathBuf;
 
 #[derive(Parser)]
 #[command(
@@ -117,14 +118,6 @@ fn parse_band(s: &str) -> Result<[f64; 2], String> {
             .map_err(|_| format!("'{t}' in '{s}' is not a number"))
     };
     Ok([num(a)?, num(b)?])
-}
-
-/// Errors of the analysis name the input file.
-fn in_file(file: &Path) -> impl Fn(fdtemp::Error) -> fdtemp::Error + '_ {
-    move |e| match e {
-        fdtemp::Error::Analysis(m) => fdtemp::Error::input(file, None, None, m),
-        e => e,
-    }
 }
 
 /// Writes a rendered report to standard output (a closed pipe is not an error).

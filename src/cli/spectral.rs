@@ -1,14 +1,13 @@
 //! `fdtemp spectrum` (a PSD table) and `fdtemp noise` (raw records through Welch), with the
 //! options they share.
 
-use super::{PlotArgs, RunArgs, in_file, parse_band, print};
+use super::{PlotArgs, RunArgs, parse_band, print};
 use fdtemp::common::Units;
 use fdtemp::input::Delimiter;
 use fdtemp::output::{self, Output};
 use fdtemp::report::plot::{self, Figure};
 use fdtemp::resample::IntervalMethod;
 use fdtemp::spectral::analysis::ErrorModel;
-use fdtemp::spectral::findings::{SpectralCaution, SpectralFinding};
 use fdtemp::spectral::input::Window;
 use fdtemp::spectral::noise::{self, Dissipation, RecordPsd};
 use fdtemp::spectral::welch::WelchSettings;
@@ -148,18 +147,9 @@ pub fn spectrum(a: SpectrumArgs) -> fdtemp::Result<()> {
         &[a.file.as_path()],
         a.common.overwrite,
     )?;
-    let groups = fdtemp::spectral::input::read_spectra_in(&a.file, a.common.delimiter)?;
-    let window = match a.window {
-        Some(w) => w,
-        None => fdtemp::spectral::input::window_directive(&a.file)?.unwrap_or(Window::None),
-    };
-    let report = fdtemp::spectral::analyze_spectra(
-        &groups,
-        &window.bin_rho2(),
-        &settings,
-        Some(a.file.display().to_string()),
-    )
-    .map_err(in_file(&a.file))?;
+    let source = fdtemp::api::SpectrumSource::File(a.file.clone());
+    let (groups, window) = fdtemp::api::read_spectrum(&source, a.common.delimiter, a.window)?;
+    let report = fdtemp::api::spectrum(&groups, window, &settings, &a.file)?;
     let mut outputs = Vec::new();
     spectral_outputs(&mut outputs, &report, &a.common.json, figure)?;
     output::write_all(&outputs, a.common.overwrite)?;
@@ -202,10 +192,8 @@ pub fn noise(a: NoiseArgs) -> fdtemp::Result<()> {
         figure,
         convention_note,
     } = noise_settings(&a, column.as_deref())?;
-    let mut rec = noise::welch_records_in(&a.file, a.common.delimiter, welch, a.sample_rate)?;
-    if let Some(g) = a.gain {
-        rec.divide_gain(g);
-    }
+    let source = fdtemp::api::NoiseSource::File(a.file.clone(), a.common.delimiter);
+    let rec = fdtemp::api::noise_psd(source, welch, a.sample_rate, a.gain)?;
     let mut header = noise_header(&a, &welch, &rec);
     header.extend(convention_note);
     let mut outputs = Vec::new();
@@ -250,51 +238,14 @@ fn noise_settings(a: &NoiseArgs, column: Option<&str>) -> fdtemp::Result<NoiseSe
         overlap: a.overlap.unwrap_or(a.segment / 2),
     };
     welch.validate()?;
-    for (name, v, what) in [
-        ("--resistance", a.resistance, "a positive number of ohms"),
-        ("--gain", a.gain, "a positive voltage gain (output/input)"),
-    ] {
-        if let Some(v) = v
-            && !(v > 0.0 && v.is_finite())
-        {
-            return Err(fdtemp::Error::Setting(format!(
-                "{name} is {v}, expected {what}"
-            )));
-        }
-    }
-    let named = column.and_then(noise::convention_named);
-    let (convention, convention_note) = match (a.convention, named, column) {
-        (Some(c), Some(n), Some(col)) if c != n => (
-            c,
-            Some(format!(
-                "loss file   column '{col}' reads as {}, but --convention {} was given: \
-                 the given one is used",
-                convention_label(n),
-                convention_label(c)
-            )),
-        ),
-        (Some(c), _, _) => (c, None),
-        (None, _, None) if a.resistance.is_some() => (Convention::Voltage, None),
-        (None, Some(n), Some(col)) => (
-            n,
-            Some(format!(
-                "loss file   column '{col}' read as {}",
-                convention_label(n)
-            )),
-        ),
-        (None, None, Some(col)) => {
-            return Err(fdtemp::Error::input(
-                a.loss_file.as_deref().unwrap_or(a.file.as_path()),
-                Some(1),
-                Some(2),
-                format!(
-                    "column '{col}' does not say which dissipation it is; expected a name \
-                     such as loss, Re Z or Re Y, or give --convention loss|angular|voltage|current"
-                ),
-            ));
-        }
-        (None, _, None) => (Convention::Loss, None),
-    };
+    fdtemp::api::positive("--resistance", a.resistance, "a positive number of ohms")?;
+    fdtemp::api::positive("--gain", a.gain, "a positive voltage gain (output/input)")?;
+    let (convention, convention_note) = fdtemp::api::noise_convention(
+        a.convention,
+        a.resistance.is_some(),
+        column,
+        a.loss_file.as_deref().unwrap_or(a.file.as_path()),
+    )?;
     let settings = a.common.settings(a.temperature, convention);
     settings.validate()?;
     let figure = a.common.plot.figure()?;
@@ -309,16 +260,6 @@ fn noise_settings(a: &NoiseArgs, column: Option<&str>) -> fdtemp::Result<NoiseSe
         figure,
         convention_note,
     })
-}
-
-/// A convention's option value.
-fn convention_label(c: Convention) -> &'static str {
-    match c {
-        Convention::Loss => "the loss (convention loss)",
-        Convention::Angular => "the loss (convention angular)",
-        Convention::Voltage => "Re Z (convention voltage)",
-        Convention::Current => "Re Y (convention current)",
-    }
 }
 
 /// The report's first lines: the records, their time column and gain, and the Welch
@@ -388,23 +329,7 @@ fn noise_analysis(
     diss: &Dissipation,
     settings: &SpectrumSettings,
 ) -> fdtemp::Result<SpectrumReport> {
-    let (group, dropped) = noise::to_group(rec, diss).map_err(in_file(&a.file))?;
-    let mut report = fdtemp::spectral::analyze_spectra(
-        &[group],
-        &rec.bin_rho2,
-        settings,
-        Some(a.file.display().to_string()),
-    )
-    .map_err(in_file(&a.file))?;
-    if dropped > 0 {
-        report.cautions.push(SpectralCaution {
-            tw: None,
-            finding: SpectralFinding::OutsideTable {
-                frequencies: dropped,
-            },
-        });
-    }
-    Ok(report)
+    fdtemp::api::noise_spectrum(rec, diss, settings, &a.file)
 }
 
 /// The JSON and the figure of a spectral analysis, as asked for.

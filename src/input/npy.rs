@@ -183,7 +183,58 @@ pub fn read_campaign_npz(path: &Path, how: &CampaignRead) -> Result<ReadCampaign
     };
     let corr_eq = optional(&names.corr_eq)?;
     let sample = optional(&names.sample)?;
+    campaign_from_arrays(
+        path,
+        how,
+        CampaignArrays {
+            corr,
+            resp,
+            tw,
+            t,
+            corr_eq,
+            sample,
+        },
+    )
+}
 
+/// The arrays of a campaign held in memory, as a `.npz` archive holds them (see the module
+/// header), every one as float64 of any shape (checked when the campaign is built).
+#[derive(Debug, Clone)]
+pub struct CampaignArrays {
+    /// C, samples × points.
+    pub corr: ArrayD<f64>,
+    /// χ, samples × points.
+    pub resp: ArrayD<f64>,
+    /// The waiting time of each point.
+    pub tw: ArrayD<f64>,
+    /// The later time of each point.
+    pub t: ArrayD<f64>,
+    /// C(t,t), samples × points, when given.
+    pub corr_eq: Option<ArrayD<f64>>,
+    /// One integer per sample, when given.
+    pub sample: Option<ArrayD<f64>>,
+}
+
+/// The campaign of arrays held in memory, checked exactly as a `.npz` archive's (`path`
+/// names them in errors; `how.names` are the array names used in messages).
+///
+/// # Errors
+/// As [`read_campaign_npz`], except for reading the file.
+pub fn campaign_from_arrays(
+    path: &Path,
+    how: &CampaignRead,
+    arrays: CampaignArrays,
+) -> Result<ReadCampaign> {
+    let err = |m: String| Error::input(path, None, None, m);
+    let names = &how.names;
+    let CampaignArrays {
+        corr,
+        resp,
+        tw,
+        t,
+        corr_eq,
+        sample,
+    } = arrays;
     let corr = matrix(path, &names.corr, corr, None)?;
     let (n, np) = corr.dim();
     let resp = matrix(path, &names.resp, resp, Some((&names.corr, n, np)))?;
@@ -426,6 +477,17 @@ pub fn read_noise_npy(path: &Path) -> Result<(Vec<String>, Array2<f64>)> {
         }
         Err(Failure::Absent) => unreachable!("a .npy file has one array"),
     };
+    noise_runs(path, a)
+}
+
+/// Checks a noise record held in memory (one run, or runs × samples) as a `.npy` record's
+/// array; `path` names it in errors.
+///
+/// # Errors
+/// As [`read_noise_npy`], except for reading the file.
+pub fn noise_runs(path: &Path, a: ArrayD<f64>) -> Result<(Vec<String>, Array2<f64>)> {
+    let name = "the array";
+    let err = |m: String| Error::input(path, None, None, m);
     let shape = a.shape().to_vec();
     let m = match shape.len() {
         1 => a.insert_axis(Axis(0)).into_dimensionality::<Ix2>(),

@@ -49,6 +49,22 @@ pub fn scenario() -> SynthSpec {
     SynthSpec::default()
 }
 
+/// The demo's input files as `fdtemp demo` writes them: the campaign table, its truth
+/// (JSON) and the spectrum table.
+///
+/// # Errors
+/// Only on an internal inconsistency of the scenario.
+pub fn inputs() -> Result<[Vec<u8>; 3]> {
+    let spec = scenario();
+    let campaign = generate(&spec)?;
+    let spectrum_spec = SpectrumSpec::default();
+    Ok([
+        crate::input::write_campaign(&campaign),
+        crate::report::json::sorted_json(&truth(&spec, &spectrum_spec)),
+        write_spectra(std::slice::from_ref(&generate_spectrum(&spectrum_spec))),
+    ])
+}
+
 /// Generates the scenario, fits it, and prepares the files for `dir`.
 ///
 /// # Errors

@@ -243,6 +243,40 @@ pub fn welch_records_in(
     settings: WelchSettings,
     sample_rate: Option<f64>,
 ) -> Result<RecordPsd> {
+    welch_stream(path, settings, sample_rate, |sink| {
+        super::input::stream_records_in(path, d, sink)
+    })
+}
+
+/// As [`welch_records`], for a record held in memory: one run, or runs × samples (checked
+/// as a `.npy` record's array); `label` names it in errors.
+///
+/// # Errors
+/// As [`welch_records`] and [`crate::input::npy::noise_runs`].
+pub fn welch_array(
+    label: &Path,
+    a: ndarray::ArrayD<f64>,
+    settings: WelchSettings,
+    sample_rate: Option<f64>,
+) -> Result<RecordPsd> {
+    let (runs, m) = crate::input::npy::noise_runs(label, a)?;
+    welch_stream(label, settings, sample_rate, |sink| {
+        for (r, row) in m.outer_iter().enumerate() {
+            for &v in row {
+                sink(r, v);
+            }
+        }
+        Ok(super::input::Records { runs, time: None })
+    })
+}
+
+/// Welch's method over the samples that `stream` passes to its sink, one accumulator per run.
+fn welch_stream(
+    path: &Path,
+    settings: WelchSettings,
+    sample_rate: Option<f64>,
+    stream: impl FnOnce(&mut dyn FnMut(usize, f64)) -> Result<super::input::Records>,
+) -> Result<RecordPsd> {
     let settings = WelchSettings {
         sample_rate: sample_rate.unwrap_or(1.0),
         ..settings
@@ -250,7 +284,7 @@ pub fn welch_records_in(
     settings.validate()?;
     let mut acc: Vec<Welch> = Vec::new();
     let mut failed: Option<Error> = None;
-    let records = super::input::stream_records_in(path, d, |run, v| {
+    let records = stream(&mut |run, v| {
         while acc.len() <= run {
             match Welch::new(settings) {
                 Ok(w) => acc.push(w),

@@ -1,0 +1,160 @@
+"""The entry points: data in any of its forms, options named as the command line's."""
+
+from __future__ import annotations
+
+import os
+
+import numpy as np
+
+from . import _native
+from ._errors import SettingError, call
+from ._results import FitResult, NoiseResult, SpectrumResult, SynthResult
+
+
+def exact_floats(pd):
+    """read_csv's option for numbers read back exactly (the default from pandas 3 on)."""
+    return {"float_precision": "round_trip"} if int(pd.__version__.split(".")[0]) < 3 else {}
+
+
+def _frame_text(data):
+    """The CSV text of a pandas or polars DataFrame, or None for anything else."""
+    mod = type(data).__module__.split(".")[0]
+    if mod == "pandas" and hasattr(data, "to_csv"):
+        return data.to_csv(index=False).encode()
+    if mod == "polars" and hasattr(data, "write_csv"):
+        return data.write_csv().encode()
+    return None
+
+
+def _band(v, name):
+    if v is None:
+        return None
+    if isinstance(v, str):
+        a, sep, b = v.partition(":")
+        if not sep:
+            raise SettingError(f"--{name} is '{v}', expected MIN:MAX",
+                               f"--{name} is '{v}', expected MIN:MAX")
+        return (float(a), float(b))
+    a, b = v
+    return (float(a), float(b))
+
+
+def _campaign(data, arrays):
+    """(label, path, text, arrays) for the native fit."""
+    if data is None:
+        given = {k: v for k, v in arrays.items() if v is not None}
+        if not given:
+            raise TypeError("fit() needs data: a path, a DataFrame, or corr=, resp=, tw=, t=")
+        data = given
+    if isinstance(data, (str, os.PathLike)):
+        return (os.fspath(data), os.fspath(data), None, None)
+    text = _frame_text(data)
+    if text is not None:
+        return ("<DataFrame>", None, text, None)
+    if hasattr(data, "keys"):
+        a = {k: np.ascontiguousarray(np.asarray(v, dtype=np.float64)) for k, v in data.items()}
+        return ("<arrays>", None, None, a)
+    raise TypeError(f"fit() data is a {type(data).__name__}; expected a path, a pandas or "
+                    "polars DataFrame, or a dict of arrays corr, resp, tw, t")
+
+
+def fit(data=None, *, temperature, corr=None, resp=None, tw=None, t=None, corr_eq=None,
+        sample=None, units="reduced", axes="auto", model="broken", smooth_shape=None,
+        weights="inverse-variance", resamples=2000, seed=1, level=0.95, interval="bca",
+        min_branch=5, hold="tw", range=None, column=(), delimiter="comma",
+        drop_incomplete=False, calibrate=None, sim_noise="gaussian", overlap=None,
+        threads=None, progress=False) -> FitResult:
+    """X and T_eff of a campaign, as ``fdtemp fit`` (options as its long options).
+
+    ``data``: a file path (tidy CSV or .npz), a pandas/polars DataFrame with the tidy
+    columns (sample, tw, t, corr, resp [, corr_eq]), or a dict of arrays; or give the
+    arrays as ``corr=``, ``resp=`` (samples × points), ``tw=``, ``t=`` (one per point)
+    [, ``corr_eq=``, ``sample=``]. ``column`` maps roles to names, e.g.
+    ``column=["resp=chi_zfc"]``; ``range`` is (CMIN, CMAX) or "CMIN:CMAX".
+    """
+    label, path, text, arrs = _campaign(
+        data, dict(corr=corr, resp=resp, tw=tw, t=t, corr_eq=corr_eq, sample=sample))
+    if isinstance(column, str):
+        column = [column]
+    return FitResult(call(
+        _native.fit, label, path, text, arrs, float(temperature), units, axes, model,
+        smooth_shape, weights, int(resamples), int(seed), float(level), interval,
+        int(min_branch), hold, _band(range, "range"), list(column), delimiter,
+        bool(drop_incomplete), calibrate, sim_noise,
+        None if overlap is None else os.fspath(overlap), threads, bool(progress)))
+
+
+def spectrum(data, *, temperature, convention=None, window=None, units="si",
+             delimiter="comma", errors="auto", dof=None, band=None, bands_per_decade=5,
+             level=0.95, resamples=2000, seed=1, interval="bca",
+             threads=None) -> SpectrumResult:
+    """T_eff(f) from a PSD table, as ``fdtemp spectrum`` (a path or a DataFrame with
+    columns f, psd, loss [, dof, run, tw])."""
+    if isinstance(data, (str, os.PathLike)):
+        label, path, text = os.fspath(data), os.fspath(data), None
+    else:
+        text = _frame_text(data)
+        if text is None:
+            raise TypeError(f"spectrum() data is a {type(data).__name__}; expected a path "
+                            "or a DataFrame with columns f, psd, loss")
+        label, path = "<DataFrame>", None
+    return SpectrumResult(call(
+        _native.spectrum, label, path, text, float(temperature), convention, window, units,
+        delimiter, errors, dof, _band(band, "band"), int(bands_per_decade), float(level),
+        int(resamples), int(seed), interval, threads))
+
+
+def noise(data, *, sample_rate=None, gain=None, segment=4096, overlap=None,
+          resistance=None, loss_file=None, temperature=None, convention=None, units="si",
+          delimiter="comma", errors="auto", dof=None, band=None, bands_per_decade=5,
+          level=0.95, resamples=2000, seed=1, interval="bca", threads=None) -> NoiseResult:
+    """Welch PSD of noise records and, with ``resistance=`` or ``loss_file=``, T_eff(f), as
+    ``fdtemp noise``. ``data``: a path, or a NumPy array (one run, or runs × samples)."""
+    if isinstance(data, (str, os.PathLike)):
+        label, path, array = os.fspath(data), os.fspath(data), None
+    else:
+        label, path = "<array>", None
+        array = np.ascontiguousarray(np.asarray(data, dtype=np.float64))
+    json_text, psd = call(
+        _native.noise, label, path, array, sample_rate, gain, int(segment), overlap,
+        resistance, None if loss_file is None else os.fspath(loss_file), temperature,
+        convention, units, delimiter, errors, dof, _band(band, "band"),
+        int(bands_per_decade), float(level), int(resamples), int(seed), interval, threads)
+    return NoiseResult(json_text, psd)
+
+
+def synth(scenario, *, samples=200, seed=1, quick=False, out=None, overwrite=False,
+          threads=None) -> SynthResult:
+    """A simulated system with a known answer, as ``fdtemp synth`` (``out`` writes the
+    data file and STEM.truth.json as it does)."""
+    data, truth = call(_native.synth, scenario, int(samples), int(seed), bool(quick), threads)
+    result = SynthResult(data, truth)
+    if out is not None:
+        result.write(out, overwrite=overwrite)
+    return result
+
+
+def demo_campaign():
+    """The demo's invented campaign (the ``campaign.csv`` that ``fdtemp demo`` writes) as a
+    pandas DataFrame, and its truth as a dict (X = 0.45, T_eff = 4/3 at T = 0.6)."""
+    import io
+    import json
+
+    import pandas as pd
+
+    campaign, truth, _ = call(_native.demo_inputs)
+    frame = pd.read_csv(io.BytesIO(bytes(campaign)), **exact_floats(pd))
+    return frame, json.loads(bytes(truth))
+
+
+def demo_files(folder):
+    """Writes the demo's inputs (campaign.csv, truth.json, spectrum.csv) into ``folder``
+    as ``fdtemp demo`` does; returns their paths."""
+    from pathlib import Path
+
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    paths = [folder / n for n in ("campaign.csv", "truth.json", "spectrum.csv")]
+    for p, b in zip(paths, call(_native.demo_inputs)):
+        p.write_bytes(bytes(b))
+    return paths

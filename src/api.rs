@@ -1,0 +1,359 @@
+//! The steps of each command between its options and its result, in one place for every
+//! front end: the command line and the Python package call these, so that a result and its
+//! JSON come from one code path whatever the data were handed over as.
+//!
+//! - [`choice`]: an option's value by its command-line name (`--model smooth`).
+//! - [`CampaignSource`], [`read_campaign`], [`fit_campaign`]: `fit`.
+//! - [`SpectrumSource`], [`read_spectrum`]: `spectrum`.
+//! - [`NoiseSource`], [`noise_psd`], [`noise_convention`], [`noise_spectrum`]: `noise`.
+
+use crate::common::Progress;
+use crate::error::{Error, Result};
+use crate::fit::smooth::Constraint;
+use crate::input::npy::{CampaignArrays, campaign_from_arrays};
+use crate::input::{CampaignRead, Delimiter, ReadCampaign};
+use crate::spectral::findings::{SpectralCaution, SpectralFinding};
+use crate::spectral::input::{SpectrumGroup, Window};
+use crate::spectral::noise::{self, Dissipation, RecordPsd};
+use crate::spectral::welch::WelchSettings;
+use crate::spectral::{Convention, SpectrumReport, SpectrumSettings};
+use crate::twotime::design::{DesignSettings, calibrated_fit};
+use crate::twotime::overlap::Overlap;
+use crate::twotime::settings::{FitSettings, Model};
+use crate::twotime::{FitReport, analyze};
+use clap::ValueEnum;
+use std::path::{Path, PathBuf};
+
+/// The value of `--option` named `value` (as the command line spells it, any case).
+///
+/// # Errors
+/// [`Error::Setting`] naming the option and the values it takes.
+pub fn choice<T: ValueEnum>(option: &str, value: &str) -> Result<T> {
+    T::from_str(value, true).map_err(|_| {
+        let names: Vec<String> = T::value_variants()
+            .iter()
+            .filter_map(|v| v.to_possible_value().map(|p| p.get_name().to_string()))
+            .collect();
+        Error::Setting(format!(
+            "--{option} is '{value}', expected one of {}",
+            names.join(", ")
+        ))
+    })
+}
+
+/// The shape rule of the smooth X(C): the one given, else monotone with `--model smooth`.
+pub fn smooth_rule(model: Model, given: Option<Constraint>) -> Option<Constraint> {
+    match (model, given) {
+        (Model::Smooth, None) => Some(Constraint::Monotone),
+        (_, given) => given,
+    }
+}
+
+/// Where a campaign comes from.
+#[derive(Debug, Clone)]
+pub enum CampaignSource {
+    /// A file: a tidy text table, or a `.npz` archive by its name.
+    File(PathBuf),
+    /// The text of a tidy table held in memory; `label` names it in errors.
+    Table {
+        /// What errors call it (`<DataFrame>`).
+        label: PathBuf,
+        /// The table's bytes.
+        text: Vec<u8>,
+    },
+    /// Arrays held in memory, as a `.npz` archive holds them; `label` names them in errors.
+    Arrays {
+        /// What errors call them (`<arrays>`).
+        label: PathBuf,
+        /// The arrays.
+        arrays: Box<CampaignArrays>,
+    },
+}
+
+impl CampaignSource {
+    /// The name errors and the report give the data.
+    pub fn label(&self) -> &Path {
+        match self {
+            CampaignSource::File(p) => p,
+            CampaignSource::Table { label, .. } | CampaignSource::Arrays { label, .. } => label,
+        }
+    }
+}
+
+/// The campaign, read as `how` says (column names, delimiter, `--drop-incomplete`).
+///
+/// # Errors
+/// As [`crate::input::read_campaign_with`] and [`campaign_from_arrays`].
+pub fn read_campaign(source: CampaignSource, how: &CampaignRead) -> Result<ReadCampaign> {
+    match source {
+        CampaignSource::File(p) => crate::input::read_campaign_with(&p, how),
+        CampaignSource::Table { label, text } => {
+            crate::input::tidy::parse_campaign_with(text.as_slice(), &label, how)
+        }
+        CampaignSource::Arrays { label, arrays } => campaign_from_arrays(&label, how, *arrays),
+    }
+}
+
+/// `fit`: the analysis of a campaign as read (calibrated on simulated campaigns of its
+/// design when `design` is given, X(C) compared with the static x(q) of `overlap`), with
+/// the samples left out listed. `label` names the data in the report and in errors.
+///
+/// # Errors
+/// The settings' and the analysis' errors, the latter naming `label`.
+pub fn fit_campaign(
+    read: ReadCampaign,
+    settings: &FitSettings,
+    design: Option<&DesignSettings>,
+    overlap: Option<&Overlap>,
+    label: &Path,
+    progress: &dyn Progress,
+) -> Result<FitReport> {
+    settings.validate()?;
+    if let Some(d) = design {
+        d.validate()?;
+    }
+    let ReadCampaign { campaign, excluded } = read;
+    let input = Some(label.display().to_string());
+    let mut report = match design {
+        None => analyze(&campaign, settings, input, progress),
+        Some(d) => calibrated_fit(&campaign, settings, d, input, progress),
+    }
+    .map_err(in_file(label))?;
+    if let Some(ov) = overlap {
+        for f in &mut report.fits {
+            if let Some(shape) = f.shape.as_mut() {
+                shape.static_comparison =
+                    Some(crate::twotime::overlap::compare(shape, ov, settings.level));
+            }
+        }
+    }
+    report.excluded_samples = excluded;
+    Ok(report)
+}
+
+/// Errors of the analysis name the input.
+pub fn in_file(file: &Path) -> impl Fn(Error) -> Error + '_ {
+    move |e| match e {
+        Error::Analysis(m) => Error::input(file, None, None, m),
+        e => e,
+    }
+}
+
+/// Where a PSD table comes from.
+#[derive(Debug, Clone)]
+pub enum SpectrumSource {
+    /// A file.
+    File(PathBuf),
+    /// The text of a table held in memory; `label` names it in errors.
+    Table {
+        /// What errors call it.
+        label: PathBuf,
+        /// The table's bytes.
+        text: Vec<u8>,
+    },
+}
+
+impl SpectrumSource {
+    /// The name errors and the report give the data.
+    pub fn label(&self) -> &Path {
+        match self {
+            SpectrumSource::File(p) | SpectrumSource::Table { label: p, .. } => p,
+        }
+    }
+}
+
+/// `spectrum`: the PSD groups of the table and the window they were estimated with (the
+/// one given, else the file's first-line directive, else none).
+///
+/// # Errors
+/// As [`crate::spectral::input::read_spectra_in`].
+pub fn read_spectrum(
+    source: &SpectrumSource,
+    delimiter: Delimiter,
+    window: Option<Window>,
+) -> Result<(Vec<SpectrumGroup>, Window)> {
+    match source {
+        SpectrumSource::File(p) => {
+            let groups = crate::spectral::input::read_spectra_in(p, delimiter)?;
+            let window = match window {
+                Some(w) => w,
+                None => crate::spectral::input::window_directive(p)?.unwrap_or(Window::None),
+            };
+            Ok((groups, window))
+        }
+        SpectrumSource::Table { label, text } => Ok((
+            crate::spectral::input::parse_spectra_in(text.as_slice(), label, delimiter)?,
+            window.unwrap_or(Window::None),
+        )),
+    }
+}
+
+/// `spectrum`: T_eff(f) of the groups read by [`read_spectrum`].
+///
+/// # Errors
+/// The settings' and the analysis' errors, the latter naming `label`.
+pub fn spectrum(
+    groups: &[SpectrumGroup],
+    window: Window,
+    settings: &SpectrumSettings,
+    label: &Path,
+) -> Result<SpectrumReport> {
+    settings.validate()?;
+    crate::spectral::analyze_spectra(
+        groups,
+        &window.bin_rho2(),
+        settings,
+        Some(label.display().to_string()),
+    )
+    .map_err(in_file(label))
+}
+
+/// Where noise records come from.
+#[derive(Debug, Clone)]
+pub enum NoiseSource {
+    /// A file: one column per run, or a `.npy` array by its name.
+    File(PathBuf, Delimiter),
+    /// An array held in memory (one run, or runs × samples); `label` names it in errors.
+    Array {
+        /// What errors call it.
+        label: PathBuf,
+        /// The samples.
+        array: ndarray::ArrayD<f64>,
+    },
+}
+
+impl NoiseSource {
+    /// The name errors and the report give the data.
+    pub fn label(&self) -> &Path {
+        match self {
+            NoiseSource::File(p, _) | NoiseSource::Array { label: p, .. } => p,
+        }
+    }
+}
+
+/// `noise`: the Welch PSD of every run (rate given or from the time column), divided by
+/// `gain²` when a gain is given.
+///
+/// # Errors
+/// As [`noise::welch_records_in`] and [`noise::welch_array`]; [`Error::Setting`] for a
+/// gain that is not a positive number.
+pub fn noise_psd(
+    source: NoiseSource,
+    welch: WelchSettings,
+    sample_rate: Option<f64>,
+    gain: Option<f64>,
+) -> Result<RecordPsd> {
+    positive("--gain", gain, "a positive voltage gain (output/input)")?;
+    let mut rec = match source {
+        NoiseSource::File(p, d) => noise::welch_records_in(&p, d, welch, sample_rate)?,
+        NoiseSource::Array { label, array } => {
+            noise::welch_array(&label, array, welch, sample_rate)?
+        }
+    };
+    if let Some(g) = gain {
+        rec.divide_gain(g);
+    }
+    Ok(rec)
+}
+
+/// `name` is a positive finite number when given.
+///
+/// # Errors
+/// [`Error::Setting`] otherwise, saying `what` was expected.
+pub fn positive(name: &str, v: Option<f64>, what: &str) -> Result<()> {
+    if let Some(v) = v
+        && !(v > 0.0 && v.is_finite())
+    {
+        return Err(Error::Setting(format!("{name} is {v}, expected {what}")));
+    }
+    Ok(())
+}
+
+/// `noise`: the convention of the dissipation — the one given, else voltage for a
+/// resistance, else what the loss file's column name `column` says (with a note for the
+/// report's header when that name was read or overruled). `loss_file` names the file in
+/// the error for a column name that says nothing.
+///
+/// # Errors
+/// [`Error::Input`] when no convention is given and the column name does not say one.
+pub fn noise_convention(
+    given: Option<Convention>,
+    resistance: bool,
+    column: Option<&str>,
+    loss_file: &Path,
+) -> Result<(Convention, Option<String>)> {
+    let named = column.and_then(noise::convention_named);
+    Ok(match (given, named, column) {
+        (Some(c), Some(n), Some(col)) if c != n => (
+            c,
+            Some(format!(
+                "loss file   column '{col}' reads as {}, but --convention {} was given: \
+                 the given one is used",
+                convention_label(n),
+                convention_label(c)
+            )),
+        ),
+        (Some(c), _, _) => (c, None),
+        (None, _, None) if resistance => (Convention::Voltage, None),
+        (None, Some(n), Some(col)) => (
+            n,
+            Some(format!(
+                "loss file   column '{col}' read as {}",
+                convention_label(n)
+            )),
+        ),
+        (None, None, Some(col)) => {
+            return Err(Error::input(
+                loss_file,
+                Some(1),
+                Some(2),
+                format!(
+                    "column '{col}' does not say which dissipation it is; expected a name \
+                     such as loss, Re Z or Re Y, or give --convention loss|angular|voltage|current"
+                ),
+            ));
+        }
+        (None, _, None) => (Convention::Loss, None),
+    })
+}
+
+/// A convention in words, with its option value.
+fn convention_label(c: Convention) -> &'static str {
+    match c {
+        Convention::Loss => "the loss (convention loss)",
+        Convention::Angular => "the loss (convention angular)",
+        Convention::Voltage => "Re Z (convention voltage)",
+        Convention::Current => "Re Y (convention current)",
+    }
+}
+
+/// `noise`: T_eff(f) of the records against the dissipation; frequencies outside its table
+/// are left out with a caution. `label` names the records.
+///
+/// # Errors
+/// The settings' and the analysis' errors, the latter naming `label`.
+pub fn noise_spectrum(
+    rec: &RecordPsd,
+    diss: &Dissipation,
+    settings: &SpectrumSettings,
+    label: &Path,
+) -> Result<SpectrumReport> {
+    settings.validate()?;
+    let (group, dropped) = noise::to_group(rec, diss).map_err(in_file(label))?;
+    let mut report = crate::spectral::analyze_spectra(
+        &[group],
+        &rec.bin_rho2,
+        settings,
+        Some(label.display().to_string()),
+    )
+    .map_err(in_file(label))?;
+    if dropped > 0 {
+        report.cautions.push(SpectralCaution {
+            tw: None,
+            finding: SpectralFinding::OutsideTable {
+                frequencies: dropped,
+            },
+        });
+    }
+    Ok(report)
+}
