@@ -123,11 +123,13 @@ def noise(data, *, sample_rate=None, gain=None, segment=4096, overlap=None,
     return NoiseResult(json_text, psd)
 
 
-def synth(scenario, *, samples=200, seed=1, quick=False, out=None, overwrite=False,
-          threads=None) -> SynthResult:
+def synth(scenario, *, samples=200, seed=1, quick=False, hold="tw", out=None,
+          overwrite=False, threads=None) -> SynthResult:
     """A simulated system with a known answer, as ``fdtemp synth`` (``out`` writes the
-    data file and STEM.truth.json as it does)."""
-    data, truth = call(_native.synth, scenario, int(samples), int(seed), bool(quick), threads)
+    data file and STEM.truth.json as it does; ``hold="t"`` for ``ising-chain`` at fixed
+    later times)."""
+    data, truth = call(_native.synth, scenario, int(samples), int(seed), bool(quick), threads,
+                       hold)
     result = SynthResult(data, truth)
     if out is not None:
         result.write(out, overwrite=overwrite)

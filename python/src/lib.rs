@@ -470,7 +470,7 @@ fn noise(
 
 /// `fdtemp synth`: returns (the data file's bytes, the truth file's JSON).
 #[pyfunction]
-#[pyo3(signature = (scenario, samples, seed, quick, threads))]
+#[pyo3(signature = (scenario, samples, seed, quick, threads, hold))]
 fn synth(
     py: Python<'_>,
     scenario: &str,
@@ -478,12 +478,14 @@ fn synth(
     seed: u64,
     quick: bool,
     threads: Option<usize>,
+    hold: &str,
 ) -> PyResult<(Vec<u8>, String)> {
     let spec = fdtemp::scenarios::sim::SimSpec {
         scenario: choice("scenario", scenario).map_err(to_py)?,
         samples,
         seed,
         quick,
+        hold: choice("hold", hold).map_err(to_py)?,
     };
     py.detach(move || {
         fdtemp::with_threads(threads, || {
