@@ -292,6 +292,46 @@ fn reduce_writes_a_campaign_that_fit_reads() {
 }
 
 #[test]
+fn reduce_json_carries_the_design_the_test_and_the_cautions() {
+    let dir = tempfile::tempdir().unwrap();
+    let raw = raw_file(dir.path());
+    let (out, json) = (dir.path().join("c.csv"), dir.path().join("r.json"));
+    fdtemp()
+        .arg("reduce")
+        .arg(&raw)
+        .arg("--out")
+        .arg(&out)
+        .arg("--json")
+        .arg(&json)
+        .args(["-B", "199"])
+        .assert()
+        .success()
+        .stdout(predicate::str::contains("wrote      ").and(predicate::str::contains("r.json")));
+    let v: serde_json::Value = serde_json::from_slice(&std::fs::read(&json).unwrap()).unwrap();
+    assert_eq!(v["command"], "reduce");
+    assert_eq!(v["protocol"], "twins");
+    assert_eq!(v["n_samples"], 6);
+    assert_eq!(v["n_points"], 32);
+    assert_eq!(v["design"]["levels"].as_array().unwrap().len(), 2);
+    assert_eq!(v["linearity"]["rejects"], false);
+    assert_eq!(v["points"].as_array().unwrap().len(), 32);
+    assert!(v["cautions"].as_array().unwrap().is_empty());
+    // A second run is refused before anything is written: the JSON is an output too.
+    std::fs::remove_file(&out).unwrap();
+    fdtemp()
+        .arg("reduce")
+        .arg(&raw)
+        .arg("--out")
+        .arg(&out)
+        .arg("--json")
+        .arg(&json)
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains("r.json"));
+    assert!(!out.exists(), "a partial output was written");
+}
+
+#[test]
 fn twins_whose_times_do_not_line_up_are_refused_with_sample_run_and_time() {
     let dir = tempfile::tempdir().unwrap();
     let raw = raw_file(dir.path());

@@ -8,7 +8,7 @@ import numpy as np
 
 from . import _native
 from ._errors import SettingError, call
-from ._results import FitResult, NoiseResult, SpectrumResult, SynthResult
+from ._results import FitResult, NoiseResult, ReduceResult, SpectrumResult, SynthResult
 
 
 def exact_floats(pd):
@@ -48,6 +48,8 @@ def _campaign(data, arrays):
         data = given
     if isinstance(data, (str, os.PathLike)):
         return (os.fspath(data), os.fspath(data), None, None)
+    if isinstance(data, (bytes, bytearray)):
+        return ("<bytes>", None, bytes(data), None)
     text = _frame_text(data)
     if text is not None:
         return ("<DataFrame>", None, text, None)
@@ -121,6 +123,34 @@ def noise(data, *, sample_rate=None, gain=None, segment=4096, overlap=None,
         convention, units, delimiter, errors, dof, _band(band, "band"),
         int(bands_per_decade), float(level), int(resamples), int(seed), interval, threads)
     return NoiseResult(json_text, psd)
+
+
+def reduce(data, *, protocol="auto", combine="extrapolate", resamples=1999, seed=1,
+           level=0.95, plain=False, tw=None, out=None, table=None, overwrite=False,
+           threads=None) -> ReduceResult:
+    """Raw runs to C and chi, as ``fdtemp reduce`` (options as its long options).
+
+    ``data``: a path, a pandas/polars DataFrame or a CSV table's bytes, with the columns
+    ``sample, tw, t, h, corr, m`` (twin runs) or ``run, t, value, h, tw`` (repeated
+    quenches). ``out``/``table`` write the files ``--out``/``--table`` write.
+    """
+    if isinstance(data, (str, os.PathLike)):
+        label, path, text = os.fspath(data), os.fspath(data), None
+    elif isinstance(data, (bytes, bytearray)):
+        label, path, text = "<bytes>", None, bytes(data)
+    else:
+        text = _frame_text(data)
+        if text is None:
+            raise TypeError(f"reduce() data is a {type(data).__name__}; expected a path, a "
+                            "DataFrame or a CSV table's bytes")
+        label, path = "<DataFrame>", None
+    tws = [] if tw is None else [float(v) for v in np.atleast_1d(tw)]
+    result = ReduceResult(*call(
+        _native.reduce, label, path, text, protocol, combine, int(resamples), int(seed),
+        float(level), bool(plain), tws, threads))
+    if out is not None or table is not None:
+        result.write(out, table=table, overwrite=overwrite)
+    return result
 
 
 def synth(scenario, *, samples=200, seed=1, quick=False, hold="tw", out=None,

@@ -238,3 +238,71 @@ class SynthResult:
         out.write_bytes(self.data)
         truth.write_text(self._truth)
         return out, truth
+
+
+class ReduceResult(_Result):
+    """``fdtemp.reduce``: the reduction's JSON (``to_dict()`` equals ``reduce --json``), its
+    report in words, and the files ``--out`` and ``--table`` write."""
+
+    def __init__(self, json_text: str, text: str, out: bytes, table: bytes | None):
+        super().__init__(json_text)
+        d = self._dict
+        #: "twins" or "quenches".
+        self.protocol = d["protocol"]
+        #: The report in words, as ``fdtemp reduce`` prints it.
+        self.text = text
+        #: The ``--out`` file's bytes: the campaign ``fit`` reads (twins), or the
+        #: per-point C and chi with intervals (quenches).
+        self.out = bytes(out)
+        #: The ``--table`` file's bytes (twins), else None.
+        self.table = None if table is None else bytes(table)
+        #: The linear-response test (twins with two levels or more), else None.
+        self.linearity = d.get("linearity")
+        self.cautions = d.get("cautions", [])
+
+    def __repr__(self):
+        return f"ReduceResult({self.protocol}, {self['n_points']} points)"
+
+    def out_frame(self):
+        """The ``--out`` table as a pandas DataFrame."""
+        return _frame(self.out)
+
+    def table_frame(self):
+        """The per-point table of twin runs as a pandas DataFrame (None for quenches)."""
+        return None if self.table is None else _frame(self.table)
+
+    def fit(self, *, temperature, **options):
+        """``fdtemp.fit`` of the reduced campaign (twin runs only)."""
+        if self.protocol != "twins":
+            raise ValueError("fit needs a campaign of samples: repeated quenches give "
+                             "pointwise C and chi only (docs/reduce.md)")
+        from ._api import fit
+
+        return fit(self.out, temperature=temperature, **options)
+
+    def write(self, out, table=None, overwrite: bool = False):
+        """Writes the ``--out`` file (and the ``--table`` file when asked for)."""
+        from pathlib import Path
+
+        files = [(Path(out), self.out)] if out is not None else []
+        if table is not None:
+            if self.table is None:
+                raise ValueError("table is for twin runs; for repeated quenches out is "
+                                 "already the per-point table")
+            files.append((Path(table), self.table))
+        for p, _ in files:
+            if p.exists() and not overwrite:
+                raise FileExistsError(f"{p} exists; give overwrite=True to replace it")
+        for p, b in files:
+            p.write_bytes(b)
+        return [p for p, _ in files]
+
+
+def _frame(data: bytes):
+    import io
+
+    import pandas as pd
+
+    from ._api import exact_floats
+
+    return pd.read_csv(io.BytesIO(data), **exact_floats(pd))

@@ -10,6 +10,8 @@ use fdtemp::api::{self, CampaignSource, NoiseSource, SpectrumSource, choice};
 use fdtemp::common::{Progress, Silent};
 use fdtemp::input::npy::CampaignArrays;
 use fdtemp::input::{CampaignRead, ColumnNames, Delimiter};
+use fdtemp::reduce::{RawSource, ReduceSettings};
+use fdtemp::report::reduce as reduce_report;
 use fdtemp::spectral::noise::Dissipation;
 use fdtemp::spectral::welch::WelchSettings;
 use fdtemp::spectral::{Convention, SpectrumSettings};
@@ -468,6 +470,59 @@ fn noise(
     })
 }
 
+/// What `reduce` hands back: (JSON, text, `--out` bytes, `--table` bytes).
+type Reduced = (String, String, Vec<u8>, Option<Vec<u8>>);
+
+/// `fdtemp reduce` on a file (`path`) or a table's text (`text`); returns (the JSON, the
+/// report in words, the `--out` file's bytes, the `--table` file's bytes if any).
+#[pyfunction]
+#[pyo3(signature = (label, path, text, protocol, combine, resamples, seed, level, plain, tw, threads))]
+#[allow(clippy::too_many_arguments)]
+fn reduce(
+    py: Python<'_>,
+    label: String,
+    path: Option<PathBuf>,
+    text: Option<Vec<u8>>,
+    protocol: &str,
+    combine: &str,
+    resamples: usize,
+    seed: u64,
+    level: f64,
+    plain: bool,
+    tw: Vec<f64>,
+    threads: Option<usize>,
+) -> PyResult<Reduced> {
+    let src = match (path, text) {
+        (Some(p), None) => RawSource::File(p),
+        (None, Some(text)) => RawSource::Table {
+            label: PathBuf::from(label),
+            text,
+        },
+        _ => return Err(setting("reduce needs a path or a table".into())),
+    };
+    let settings = ReduceSettings {
+        protocol: choice("protocol", protocol).map_err(to_py)?,
+        combine: choice("combine", combine).map_err(to_py)?,
+        resamples,
+        seed,
+        level,
+        connected: !plain,
+        tws: tw,
+    };
+    py.detach(move || {
+        fdtemp::with_threads(threads, || {
+            let r = fdtemp::reduce::reduce(&src, &settings)?;
+            Ok((
+                String::from_utf8_lossy(&reduce_report::json(&r)).into_owned(),
+                reduce_report::text(&r),
+                reduce_report::out_csv(&r),
+                reduce_report::table_csv(&r),
+            ))
+        })
+    })
+    .map_err(to_py)
+}
+
 /// `fdtemp synth`: returns (the data file's bytes, the truth file's JSON).
 #[pyfunction]
 #[pyo3(signature = (scenario, samples, seed, quick, threads, hold))]
@@ -514,6 +569,7 @@ fn _native(m: &Bound<'_, PyModule>) -> PyResult<()> {
     m.add_function(wrap_pyfunction!(spectrum, m)?)?;
     m.add_function(wrap_pyfunction!(noise, m)?)?;
     m.add_function(wrap_pyfunction!(synth, m)?)?;
+    m.add_function(wrap_pyfunction!(reduce, m)?)?;
     m.add_function(wrap_pyfunction!(demo_inputs, m)?)?;
     Ok(())
 }

@@ -4,23 +4,11 @@
 use super::progress::Bar;
 use super::{RunArgs, in_file, print};
 use fdtemp::output::{self, Output};
-use fdtemp::reduce::quench::{QuenchReduction, QuenchSettings, reduce_quenches};
-use fdtemp::reduce::twin::{Combine, TwinReduction, TwinSettings};
-use fdtemp::report::format::{fmt_num, p_clause, sig};
+use fdtemp::reduce::twin::Combine;
+use fdtemp::reduce::{Protocol, RawSource, ReduceSettings};
+use fdtemp::report::reduce as reduce_report;
 use std::fmt::Write;
 use std::path::PathBuf;
-
-/// Which protocol the raw file follows.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
-pub enum Protocol {
-    /// From the header: `sample, tw, t, h, corr, m` is twins; `run, t, value, h, tw` is
-    /// quenches.
-    Auto,
-    /// Twin runs: per sample an unperturbed run and perturbed twins sharing its noise.
-    Twins,
-    /// Repeated quenches: many runs of one system, some with a step field from tw.
-    Quenches,
-}
 
 #[derive(clap::Args)]
 pub struct ReduceArgs {
@@ -38,6 +26,10 @@ pub struct ReduceArgs {
     /// Also write the per-point table (means, intervals, levels, shifts, p-values) here.
     #[arg(long, value_name = "FILE")]
     table: Option<PathBuf>,
+    /// Write the reduction as JSON to this file (settings, levels, the linearity test,
+    /// cautions, every point).
+    #[arg(long, value_name = "FILE")]
+    json: Option<PathBuf>,
     /// Bootstrap resamples of the samples (runs) for intervals and the linearity test.
     #[arg(long, short = 'B', default_value_t = 1999)]
     resamples: usize,
@@ -67,48 +59,6 @@ pub struct ReduceArgs {
     pub(super) run: RunArgs,
 }
 
-/// The protocol named by the header line.
-fn detect(file: &std::path::Path) -> fdtemp::Result<Protocol> {
-    use std::io::BufRead;
-    let mut first = String::new();
-    let mut r =
-        std::io::BufReader::new(
-            std::fs::File::open(file).map_err(|source| fdtemp::Error::Io {
-                path: file.to_path_buf(),
-                action: "cannot read",
-                source,
-            })?,
-        );
-    while first.trim().is_empty() || first.starts_with('#') {
-        first.clear();
-        if r.read_line(&mut first).unwrap_or(0) == 0 {
-            break;
-        }
-    }
-    let names: Vec<String> = first
-        .trim_start_matches('\u{feff}')
-        .split(',')
-        .map(|s| s.trim().to_string())
-        .collect();
-    let has = |n: &str| names.iter().any(|h| h == n);
-    if has("m") && has("sample") {
-        Ok(Protocol::Twins)
-    } else if has("value") && has("run") {
-        Ok(Protocol::Quenches)
-    } else {
-        Err(fdtemp::Error::input(
-            file,
-            Some(1),
-            None,
-            format!(
-                "the header ({}) is neither twin runs (sample, tw, t, h, corr, m) nor repeated \
-                 quenches (run, t, value, h, tw); name the columns so, or pass --protocol",
-                names.join(", ")
-            ),
-        ))
-    }
-}
-
 /// Reads, reduces, writes the campaign (and table), prints the verdict, fits on request.
 pub fn run(a: ReduceArgs) -> fdtemp::Result<()> {
     let fit_settings = if a.fit {
@@ -127,12 +77,13 @@ pub fn run(a: ReduceArgs) -> fdtemp::Result<()> {
         None
     };
     output::check_paths(
-        &[&Some(a.out.clone()), &a.table],
+        &[&Some(a.out.clone()), &a.table, &a.json],
         &[a.file.as_path()],
         a.overwrite,
     )?;
+    let src = RawSource::File(a.file.clone());
     let protocol = match a.protocol {
-        Protocol::Auto => detect(&a.file)?,
+        Protocol::Auto => src.detect()?,
         p => p,
     };
     if protocol == Protocol::Quenches && a.table.is_some() {
@@ -149,54 +100,38 @@ pub fn run(a: ReduceArgs) -> fdtemp::Result<()> {
                 .into(),
         ));
     }
-    let (campaign, text, out_bytes, table) = match protocol {
-        Protocol::Quenches => {
-            let settings = QuenchSettings {
-                connected: !a.plain,
-                tws: a.tw.clone(),
-                resamples: a.resamples,
-                seed: a.seed,
-                level: a.level,
-            };
-            let red = reduce_quenches(&a.file, &settings).map_err(in_file(&a.file))?;
-            let text = render_quenches(&red, &a.file.display().to_string());
-            let bytes = table_quenches(&red);
-            (None, text, bytes, None)
-        }
-        _ => {
-            let settings = TwinSettings {
-                combine: a.combine,
-                resamples: a.resamples,
-                seed: a.seed,
-                level: a.level,
-            };
-            settings.validate()?;
-            let runs = fdtemp::reduce::read_twins(&a.file)?;
-            let red = fdtemp::reduce::reduce_twins(&runs, &settings).map_err(in_file(&a.file))?;
-            let text = render_twins(&red, &a.file.display().to_string());
-            let bytes = fdtemp::input::write_campaign(&red.campaign);
-            (
-                Some(red.campaign.clone()),
-                text,
-                bytes,
-                Some(table_twins(&red)),
-            )
-        }
+    let settings = ReduceSettings {
+        protocol,
+        combine: a.combine,
+        resamples: a.resamples,
+        seed: a.seed,
+        level: a.level,
+        connected: !a.plain,
+        tws: a.tw.clone(),
     };
+    let red = fdtemp::reduce::reduce(&src, &settings)?;
     let mut outputs = vec![Output {
         path: a.out.clone(),
-        bytes: out_bytes,
+        bytes: reduce_report::out_csv(&red),
     }];
     if let Some(p) = &a.table {
         outputs.push(Output {
             path: p.clone(),
-            bytes: table.unwrap_or_default(),
+            bytes: reduce_report::table_csv(&red).unwrap_or_default(),
+        });
+    }
+    if let Some(p) = &a.json {
+        outputs.push(Output {
+            path: p.clone(),
+            bytes: reduce_report::json(&red),
         });
     }
     output::write_all(&outputs, a.overwrite)?;
+    let text = reduce_report::text(&red);
+    let campaign = red.campaign().cloned();
     let mut text = text;
     let _ = writeln!(text, "wrote      {}", a.out.display());
-    if let Some(p) = &a.table {
+    for p in [&a.table, &a.json].into_iter().flatten() {
         let _ = writeln!(text, "wrote      {}", p.display());
     }
     match (fit_settings, campaign) {
@@ -222,191 +157,4 @@ pub fn run(a: ReduceArgs) -> fdtemp::Result<()> {
         }
     }
     Ok(())
-}
-
-/// The twin reduction in words.
-fn render_twins(r: &TwinReduction, file: &str) -> String {
-    let mut s = String::new();
-    let tws = r.campaign.waiting_times();
-    let levels: Vec<String> = r
-        .design
-        .levels
-        .iter()
-        .map(|v| {
-            if r.design.symmetric {
-                format!("±{}", fmt_num(*v))
-            } else {
-                fmt_num(*v)
-            }
-        })
-        .collect();
-    let _ = writeln!(
-        s,
-        "twin runs  {file}: {} samples, {} waiting times, {} points; fields {}",
-        r.samples,
-        tws.len(),
-        r.points.len(),
-        levels.join(", ")
-    );
-    let _ = writeln!(s, "chi        {}", r.design.rule);
-    match &r.test {
-        None => {
-            let _ = writeln!(
-                s,
-                "linearity  not tested: one field level only (run a second amplitude to test that chi does not depend on h)"
-            );
-        }
-        Some(t) => {
-            let stat = if t.statistic.is_finite() {
-                sig(t.statistic, 3)
-            } else {
-                "∞".into()
-            };
-            let b = r.settings.resamples;
-            if t.rejects {
-                let _ = writeln!(
-                    s,
-                    "linearity  chi depends on h: max |t| = {stat} at tw = {}, t = {} ({}; level {}); {} of {} points reject on their own",
-                    fmt_num(t.worst.tw),
-                    fmt_num(t.worst.t),
-                    p_clause(t.p, b),
-                    fmt_num(t.alpha),
-                    t.points_rejecting,
-                    r.points.len()
-                );
-                let _ = writeln!(
-                    s,
-                    "           the response is not linear at these fields: use smaller fields, or keep the extrapolation to h → 0 (--combine extrapolate) and check it with a third amplitude"
-                );
-            } else {
-                let _ = writeln!(
-                    s,
-                    "linearity  no dependence of chi on h detected: max |t| = {stat} over {} points ({}; level {})",
-                    r.points.len(),
-                    p_clause(t.p, b),
-                    fmt_num(t.alpha)
-                );
-            }
-            let _ = writeln!(
-                s,
-                "           test of {}, {b} resamples of samples",
-                t.looks_at
-            );
-        }
-    }
-    if let Some(e) = &r.early {
-        let _ = writeln!(
-            s,
-            "caution    the field moved the observable before tw: sample '{}', tw = {}, h = {}: m(h) − m(0) = {} at t = {} ({} perturbed run(s) differ before tw); twins should share the noise and switch the field on at tw",
-            e.sample,
-            fmt_num(e.tw),
-            fmt_num(e.h),
-            sig(e.difference, 3),
-            fmt_num(e.t),
-            e.runs
-        );
-    }
-    s
-}
-
-/// The per-point table of a twin reduction.
-fn table_twins(r: &TwinReduction) -> Vec<u8> {
-    let mut s = String::from("tw,t,corr,chi,chi_se,chi_low,chi_high");
-    for (k, v) in r.design.levels.iter().enumerate() {
-        let _ = write!(s, ",chi_level{}_{:?}", k + 1, v);
-    }
-    s.push_str(",shift,p\n");
-    for p in &r.points {
-        let _ = write!(
-            s,
-            "{:?},{:?},{:?},{:?},{:?},{:?},{:?}",
-            p.tw, p.t, p.corr, p.chi, p.chi_se, p.chi_low, p.chi_high
-        );
-        for c in &p.chi_levels {
-            let _ = write!(s, ",{c:?}");
-        }
-        let opt = |v: Option<f64>| v.map_or(String::new(), |x| format!("{x:?}"));
-        let _ = writeln!(s, ",{},{}", opt(p.shift), opt(p.p));
-    }
-    s.into_bytes()
-}
-
-/// The quench reduction in words.
-fn render_quenches(r: &QuenchReduction, file: &str) -> String {
-    let mut s = String::new();
-    let groups: Vec<String> = r
-        .perturbed
-        .iter()
-        .map(|(tw, n)| format!("{n} from tw = {}", fmt_num(*tw)))
-        .collect();
-    let _ = writeln!(
-        s,
-        "quenches   {file}: {} unperturbed runs, perturbed {}; {} times, {} points",
-        r.unperturbed,
-        groups.join(", "),
-        r.times,
-        r.points.len()
-    );
-    let _ = writeln!(
-        s,
-        "C          {} over the unperturbed runs; chi = (<A(t)>_h − <A(t)>_0)/h",
-        if r.settings.connected {
-            "connected <A(t)A(tw)> − <A(t)><A(tw)>"
-        } else {
-            "plain <A(t)A(tw)>"
-        }
-    );
-    let _ = writeln!(
-        s,
-        "intervals  {}% percentile, {} Poisson-bootstrap replicates of runs, unperturbed and perturbed runs apart (seed {})",
-        fmt_num(100.0 * r.settings.level),
-        r.settings.resamples,
-        r.settings.seed
-    );
-    match &r.early {
-        None => {
-            let _ = writeln!(
-                s,
-                "early      no perturbed group's mean differs from the unperturbed one before its tw (level {})",
-                fmt_num(1.0 - r.settings.level)
-            );
-        }
-        Some(e) => {
-            let _ = writeln!(
-                s,
-                "caution    the field moved the observable before tw: runs switched on at tw = {} differ from the unperturbed mean at t = {} by z = {} (bound {} over {} comparisons)",
-                fmt_num(e.tw),
-                fmt_num(e.t),
-                sig(e.z, 3),
-                sig(e.bound, 3),
-                e.comparisons
-            );
-        }
-    }
-    let _ = writeln!(
-        s,
-        "note       the output is pointwise C and chi, not a campaign of samples: fit cannot resample these runs by stratum yet"
-    );
-    s
-}
-
-/// The per-point table of a quench reduction.
-fn table_quenches(r: &QuenchReduction) -> Vec<u8> {
-    let mut s = String::from("tw,t,corr,corr_low,corr_high,chi,chi_low,chi_high\n");
-    let opt = |v: Option<f64>| v.map_or(String::new(), |x| format!("{x:?}"));
-    for p in &r.points {
-        let _ = writeln!(
-            s,
-            "{:?},{:?},{:?},{:?},{:?},{},{},{}",
-            p.tw,
-            p.t,
-            p.corr,
-            p.corr_low,
-            p.corr_high,
-            opt(p.chi),
-            opt(p.chi_low),
-            opt(p.chi_high)
-        );
-    }
-    s.into_bytes()
 }

@@ -261,17 +261,20 @@ impl<R: Read> Read for LineLimit<R> {
     }
 }
 
+/// Any reader with the line-length limit and CRLF handling of [`open`].
+pub(crate) fn limited<R: std::io::Read>(inner: R) -> std::io::BufReader<LineLimit<R>> {
+    std::io::BufReader::new(LineLimit {
+        inner,
+        line: 0,
+        run: 0,
+        held_cr: false,
+    })
+}
+
 /// Opens a file for reading, naming it in the error; lines are limited to 1 MiB.
 pub(crate) fn open(path: &Path) -> Result<std::io::BufReader<LineLimit<std::fs::File>>> {
     std::fs::File::open(path)
-        .map(|f| {
-            std::io::BufReader::new(LineLimit {
-                inner: f,
-                line: 0,
-                run: 0,
-                held_cr: false,
-            })
-        })
+        .map(limited)
         .map_err(|source| Error::Io {
             path: path.to_path_buf(),
             action: "cannot read",

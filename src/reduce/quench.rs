@@ -26,6 +26,7 @@
 //! |z| exceeds the Bonferroni bound `Φ⁻¹(1 − α/(2m))` over the m comparisons (a level of at
 //! most α under the normal approximation).
 
+use super::RawSource;
 use crate::error::{Error, Result};
 use crate::resample::{self, replicate_rng};
 use rand::RngExt;
@@ -131,8 +132,9 @@ struct Rec {
 }
 
 /// Streams the rows of the file to `each`, checking fields.
-fn stream(path: &Path, mut each: impl FnMut(Rec) -> Result<()>) -> Result<()> {
-    let mut rdr = crate::input::csv_reader(crate::input::open(path)?);
+fn stream(src: &RawSource, mut each: impl FnMut(Rec) -> Result<()>) -> Result<()> {
+    let path = src.label();
+    let mut rdr = crate::input::csv_reader(src.open()?);
     let mut rec = csv::StringRecord::new();
     if !rdr
         .read_record(&mut rec)
@@ -306,6 +308,15 @@ const BLOCK: usize = 256;
 /// or a run whose rows are not together; [`Error::Setting`] for bad settings;
 /// [`Error::Analysis`] naming the stratum with too few runs.
 pub fn reduce_quenches(path: &Path, settings: &QuenchSettings) -> Result<QuenchReduction> {
+    reduce_quenches_from(&RawSource::File(path.to_path_buf()), settings)
+}
+
+/// Reduces repeated quenches from a file or a table in memory.
+///
+/// # Errors
+/// As [`reduce_quenches`], naming `src`'s label.
+pub fn reduce_quenches_from(src: &RawSource, settings: &QuenchSettings) -> Result<QuenchReduction> {
+    let path = src.label();
     crate::common::check_level(settings.level)?;
     crate::common::check_resamples(settings.resamples)?;
     // Pass 1: the grid (first run's times), the switch-on times, runs kept together.
@@ -314,7 +325,7 @@ pub fn reduce_quenches(path: &Path, settings: &QuenchSettings) -> Result<QuenchR
     let mut switch_on: Vec<f64> = Vec::new();
     let mut finished: HashSet<String> = HashSet::new();
     let mut current: Option<(String, f64, Option<f64>, u64)> = None;
-    stream(path, |r| {
+    stream(src, |r| {
         let same = current.as_ref().is_some_and(|c| c.0 == r.run);
         if !same {
             if let Some(c) = current.take() {
@@ -487,7 +498,7 @@ pub fn reduce_quenches(path: &Path, settings: &QuenchSettings) -> Result<QuenchR
         }
         Ok(())
     };
-    stream(path, |r| {
+    stream(src, |r| {
         if cur.as_ref().is_none_or(|c| c.0 != r.run) {
             if let Some((name, run, lines)) = cur.take() {
                 finish(name, run, lines, &mut block, &mut reps)?;

@@ -7,6 +7,7 @@ pub mod findings;
 pub mod format;
 pub mod json;
 pub mod plot;
+pub mod reduce;
 pub mod shape;
 pub mod spectrum;
 pub mod text;

@@ -1,0 +1,338 @@
+//! `reduce`'s outputs: the reduction in words, its JSON, the campaign and per-point tables.
+//! The command line and the Python package write these same bytes.
+
+use crate::reduce::quench::QuenchReduction;
+use crate::reduce::twin::TwinReduction;
+use crate::reduce::{Reduced, Reduction};
+use crate::report::format::{fmt_num, p_clause, sig};
+use serde_json::{Value, json};
+use std::fmt::Write;
+
+/// The reduction in words (what `reduce` prints before the files it wrote).
+pub fn text(r: &Reduction) -> String {
+    let file = r.label.display().to_string();
+    match &r.reduced {
+        Reduced::Twins(t) => render_twins(t, &file),
+        Reduced::Quenches(q) => render_quenches(q, &file),
+    }
+}
+
+/// The file `--out` names: the campaign `fit` reads (twins), or the per-point table of C
+/// and χ with their intervals (quenches).
+pub fn out_csv(r: &Reduction) -> Vec<u8> {
+    match &r.reduced {
+        Reduced::Twins(t) => crate::input::write_campaign(&t.campaign),
+        Reduced::Quenches(q) => table_quenches(q),
+    }
+}
+
+/// The per-point table `--table` names (twins only).
+pub fn table_csv(r: &Reduction) -> Option<Vec<u8>> {
+    match &r.reduced {
+        Reduced::Twins(t) => Some(table_twins(t)),
+        Reduced::Quenches(_) => None,
+    }
+}
+
+/// Version of the layout of [`json`].
+pub const SCHEMA: u32 = 1;
+
+/// The reduction as JSON: settings, the design of the field levels, the linear-response
+/// test, cautions with their words, and every point.
+pub fn json(r: &Reduction) -> Vec<u8> {
+    let common = json!({
+        "schema": SCHEMA,
+        "tool": crate::common::ToolInfo::default(),
+        "command": "reduce",
+        "input": r.label.display().to_string(),
+        "protocol": r.protocol(),
+    });
+    let rest = match &r.reduced {
+        Reduced::Twins(t) => json!({
+            "settings": t.settings,
+            "n_samples": t.samples,
+            "waiting_times": t.campaign.waiting_times(),
+            "n_points": t.points.len(),
+            "design": t.design,
+            "linearity": t.test,
+            "early": t.early,
+            "cautions": cautions(&twin_lines(t)),
+            "points": t.points,
+        }),
+        Reduced::Quenches(q) => json!({
+            "settings": q.settings,
+            "unperturbed_runs": q.unperturbed,
+            "perturbed_runs": q.perturbed.iter().map(|(tw, n)| json!({"tw": tw, "runs": n})).collect::<Vec<_>>(),
+            "n_times": q.times,
+            "n_points": q.points.len(),
+            "early": q.early,
+            "cautions": cautions(&quench_lines(q)),
+            "points": q.points,
+        }),
+    };
+    let mut v = common;
+    if let (Value::Object(a), Value::Object(b)) = (&mut v, rest) {
+        a.extend(b);
+    }
+    let mut out = serde_json::to_vec_pretty(&v).unwrap_or_else(|e| {
+        format!("{{\"error\": \"cannot serialize the result: {e}\"}}").into_bytes()
+    });
+    out.push(b'\n');
+    out
+}
+
+/// A caution: its code and the words the report prints.
+struct Line {
+    code: &'static str,
+    message: String,
+}
+
+fn cautions(lines: &[Line]) -> Value {
+    Value::Array(
+        lines
+            .iter()
+            .map(|l| json!({"code": l.code, "message": l.message}))
+            .collect(),
+    )
+}
+
+/// The twin reduction in words.
+fn render_twins(r: &TwinReduction, file: &str) -> String {
+    let mut s = String::new();
+    let tws = r.campaign.waiting_times();
+    let levels: Vec<String> = r
+        .design
+        .levels
+        .iter()
+        .map(|v| {
+            if r.design.symmetric {
+                format!("±{}", fmt_num(*v))
+            } else {
+                fmt_num(*v)
+            }
+        })
+        .collect();
+    let _ = writeln!(
+        s,
+        "twin runs  {file}: {} samples, {} waiting times, {} points; fields {}",
+        r.samples,
+        tws.len(),
+        r.points.len(),
+        levels.join(", ")
+    );
+    let _ = writeln!(s, "chi        {}", r.design.rule);
+    match &r.test {
+        None => {
+            let _ = writeln!(
+                s,
+                "linearity  not tested: one field level only (run a second amplitude to test that chi does not depend on h)"
+            );
+        }
+        Some(t) => {
+            let stat = if t.statistic.is_finite() {
+                sig(t.statistic, 3)
+            } else {
+                "∞".into()
+            };
+            let b = r.settings.resamples;
+            if t.rejects {
+                let _ = writeln!(
+                    s,
+                    "linearity  chi depends on h: max |t| = {stat} at tw = {}, t = {} ({}; level {}); {} of {} points reject on their own",
+                    fmt_num(t.worst.tw),
+                    fmt_num(t.worst.t),
+                    p_clause(t.p, b),
+                    fmt_num(t.alpha),
+                    t.points_rejecting,
+                    r.points.len()
+                );
+                let _ = writeln!(
+                    s,
+                    "           the response is not linear at these fields: use smaller fields, or keep the extrapolation to h → 0 (--combine extrapolate) and check it with a third amplitude"
+                );
+            } else {
+                let _ = writeln!(
+                    s,
+                    "linearity  no dependence of chi on h detected: max |t| = {stat} over {} points ({}; level {})",
+                    r.points.len(),
+                    p_clause(t.p, b),
+                    fmt_num(t.alpha)
+                );
+            }
+            let _ = writeln!(
+                s,
+                "           test of {}, {b} resamples of samples",
+                t.looks_at
+            );
+        }
+    }
+    for l in twin_lines(r).iter().filter(|l| l.code == EARLY) {
+        let _ = writeln!(s, "caution    {}", l.message);
+    }
+    s
+}
+
+/// Code of the caution that a perturbed run moved before its field was switched on.
+const EARLY: &str = "field_before_tw";
+
+/// The twin reduction's cautions.
+fn twin_lines(r: &TwinReduction) -> Vec<Line> {
+    let mut v = Vec::new();
+    match &r.test {
+        None => v.push(Line {
+            code: "linearity_untested",
+            message: "one field level only: that chi does not depend on h is not tested (run a \
+                      second amplitude to test it)"
+                .into(),
+        }),
+        Some(t) if t.rejects => v.push(Line {
+            code: "nonlinear_response",
+            message: format!(
+                "chi depends on h (max |t| at tw = {}, t = {}; {}; level {}): the response is \
+                 not linear at these fields; use smaller fields, or keep the extrapolation to \
+                 h → 0 and check it with a third amplitude",
+                fmt_num(t.worst.tw),
+                fmt_num(t.worst.t),
+                p_clause(t.p, r.settings.resamples),
+                fmt_num(t.alpha)
+            ),
+        }),
+        Some(_) => {}
+    }
+    if let Some(e) = &r.early {
+        v.push(Line {
+            code: EARLY,
+            message: format!(
+                "the field moved the observable before tw: sample '{}', tw = {}, h = {}: m(h) − m(0) = {} at t = {} ({} perturbed run(s) differ before tw); twins should share the noise and switch the field on at tw",
+                e.sample,
+                fmt_num(e.tw),
+                fmt_num(e.h),
+                sig(e.difference, 3),
+                fmt_num(e.t),
+                e.runs
+            ),
+        });
+    }
+    v
+}
+
+/// The per-point table of a twin reduction.
+fn table_twins(r: &TwinReduction) -> Vec<u8> {
+    let mut s = String::from("tw,t,corr,chi,chi_se,chi_low,chi_high");
+    for (k, v) in r.design.levels.iter().enumerate() {
+        let _ = write!(s, ",chi_level{}_{:?}", k + 1, v);
+    }
+    s.push_str(",shift,p\n");
+    for p in &r.points {
+        let _ = write!(
+            s,
+            "{:?},{:?},{:?},{:?},{:?},{:?},{:?}",
+            p.tw, p.t, p.corr, p.chi, p.chi_se, p.chi_low, p.chi_high
+        );
+        for c in &p.chi_levels {
+            let _ = write!(s, ",{c:?}");
+        }
+        let opt = |v: Option<f64>| v.map_or(String::new(), |x| format!("{x:?}"));
+        let _ = writeln!(s, ",{},{}", opt(p.shift), opt(p.p));
+    }
+    s.into_bytes()
+}
+
+/// The quench reduction in words.
+fn render_quenches(r: &QuenchReduction, file: &str) -> String {
+    let mut s = String::new();
+    let groups: Vec<String> = r
+        .perturbed
+        .iter()
+        .map(|(tw, n)| format!("{n} from tw = {}", fmt_num(*tw)))
+        .collect();
+    let _ = writeln!(
+        s,
+        "quenches   {file}: {} unperturbed runs, perturbed {}; {} times, {} points",
+        r.unperturbed,
+        groups.join(", "),
+        r.times,
+        r.points.len()
+    );
+    let _ = writeln!(
+        s,
+        "C          {} over the unperturbed runs; chi = (<A(t)>_h − <A(t)>_0)/h",
+        if r.settings.connected {
+            "connected <A(t)A(tw)> − <A(t)><A(tw)>"
+        } else {
+            "plain <A(t)A(tw)>"
+        }
+    );
+    let _ = writeln!(
+        s,
+        "intervals  {}% percentile, {} Poisson-bootstrap replicates of runs, unperturbed and perturbed runs apart (seed {})",
+        fmt_num(100.0 * r.settings.level),
+        r.settings.resamples,
+        r.settings.seed
+    );
+    match &r.early {
+        None => {
+            let _ = writeln!(
+                s,
+                "early      no perturbed group's mean differs from the unperturbed one before its tw (level {})",
+                fmt_num(1.0 - r.settings.level)
+            );
+        }
+        Some(_) => {
+            for l in quench_lines(r).iter().filter(|l| l.code == EARLY) {
+                let _ = writeln!(s, "caution    {}", l.message);
+            }
+        }
+    }
+    let _ = writeln!(
+        s,
+        "note       the output is pointwise C and chi, not a campaign of samples: fit cannot resample these runs by stratum yet"
+    );
+    s
+}
+
+/// The quench reduction's cautions.
+fn quench_lines(r: &QuenchReduction) -> Vec<Line> {
+    let mut v = Vec::new();
+    if let Some(e) = &r.early {
+        v.push(Line {
+            code: EARLY,
+            message: format!(
+                "the field moved the observable before tw: runs switched on at tw = {} differ from the unperturbed mean at t = {} by z = {} (bound {} over {} comparisons)",
+                fmt_num(e.tw),
+                fmt_num(e.t),
+                sig(e.z, 3),
+                sig(e.bound, 3),
+                e.comparisons
+            ),
+        });
+    }
+    v.push(Line {
+        code: "pointwise_only",
+        message: "the output is pointwise C and chi, not a campaign of samples: fit cannot \
+                  resample these runs by stratum yet"
+            .into(),
+    });
+    v
+}
+
+/// The per-point table of a quench reduction.
+fn table_quenches(r: &QuenchReduction) -> Vec<u8> {
+    let mut s = String::from("tw,t,corr,corr_low,corr_high,chi,chi_low,chi_high\n");
+    let opt = |v: Option<f64>| v.map_or(String::new(), |x| format!("{x:?}"));
+    for p in &r.points {
+        let _ = writeln!(
+            s,
+            "{:?},{:?},{:?},{:?},{:?},{},{},{}",
+            p.tw,
+            p.t,
+            p.corr,
+            p.corr_low,
+            p.corr_high,
+            opt(p.chi),
+            opt(p.chi_low),
+            opt(p.chi_high)
+        );
+    }
+    s.into_bytes()
+}
