@@ -416,6 +416,7 @@ fn reduce_can_fit_at_once() {
 
 mod quenches {
     use fdtemp::reduce::quench::{QuenchSettings, reduce_quenches};
+    use fdtemp::reduce::quench_fit::{QuenchFitSettings, fit_quenches};
     use fdtemp::scenarios::sim::twins::{QuenchSpec, exact_chi, exact_corr, quench_csv};
     use predicates::prelude::*;
 
@@ -464,6 +465,32 @@ mod quenches {
             c_cov >= 0.7 && x_cov >= 0.7,
             "covered: C {c_cov}, chi {x_cov}"
         );
+    }
+
+    /// X of the two-bath system, T/T_slow (the synth scenario's truth, `ratio`).
+    const X_TRUE: f64 = 0.4;
+
+    #[test]
+    fn the_direct_fit_of_quenches_finds_the_two_temperatures() {
+        let dir = tempfile::tempdir().unwrap();
+        let file = write(dir.path(), &QuenchSpec::standard(12_000, 11, true));
+        let settings = QuenchSettings {
+            resamples: 499,
+            ..Default::default()
+        };
+        let r = reduce_quenches(&file, &settings).unwrap();
+        let f = fit_quenches(&r, &QuenchFitSettings::default()).unwrap();
+        assert_eq!(f.fits.len(), 3, "all tw, then tw = 50 and 500");
+        let all = &f.fits[0];
+        assert!(all.tw.is_none());
+        let (lo, hi) = (all.x.low.unwrap(), all.x.high.unwrap());
+        // Source: X = T/T_slow of two Ornstein–Uhlenbeck modes at their own temperatures
+        // (Gardiner, Stochastic Methods, 4th ed. (2009), §3.8.4, from memory); the break
+        // is not sharp (the modes' times are 1 and 100), so only the interval is asserted.
+        assert!(lo <= X_TRUE && X_TRUE <= hi, "X [{lo}, {hi}]");
+        assert!(all.violates_equilibrium, "{all:?}");
+        let t_eff = all.t_eff.estimate.unwrap();
+        assert!((t_eff - 1.0 / all.x.estimate.unwrap()).abs() < 1e-12);
     }
 
     #[test]
@@ -525,7 +552,7 @@ mod quenches {
     }
 
     #[test]
-    fn quenches_are_reduced_from_the_cli_and_fit_is_refused_with_the_reason() {
+    fn quenches_are_reduced_and_fitted_from_the_cli() {
         let dir = tempfile::tempdir().unwrap();
         let file = write(dir.path(), &QuenchSpec::standard(300, 1, true));
         let out = dir.path().join("p.csv");
@@ -550,12 +577,13 @@ mod quenches {
             .arg(&file)
             .arg("--out")
             .arg(dir.path().join("q.csv"))
-            .args(["--fit", "-T", "1"])
+            .args(["--fit", "-T", "1", "-B", "199"])
             .assert()
-            .code(2)
-            .stderr(predicate::str::starts_with(
-                "error: --fit is not available for repeated quenches yet",
-            ));
+            .success()
+            .stdout(predicate::str::contains(
+                "fit        broken stick on y = T·chi against C (slope −1 above q, −X below), T = 1;",
+            ))
+            .stdout(predicate::str::contains("verdict    all tw: "));
         super::fdtemp()
             .arg("reduce")
             .arg(&file)
@@ -569,6 +597,74 @@ mod quenches {
                 "error: --table is for twin runs; for repeated quenches --out is already the \
                  per-point table\n",
             );
+    }
+
+    /// Coverage of X (the fit over all tw and per tw) and the equilibrium verdict of the
+    /// direct fit of repeated quenches over many campaigns (docs/validation.md, "reduce").
+    ///
+    /// `FDTEMP_QUENCH_RUNS=3000 cargo test --release --test reduce -- --ignored --nocapture quench_fit_coverage`
+    #[test]
+    #[ignore]
+    fn quench_fit_coverage() {
+        let campaigns: usize = std::env::var("FDTEMP_QUENCH_CAMPAIGNS")
+            .ok()
+            .and_then(|v| v.parse().ok())
+            .unwrap_or(200);
+        let runs: usize = std::env::var("FDTEMP_QUENCH_RUNS")
+            .ok()
+            .and_then(|v| v.parse().ok())
+            .unwrap_or(3000);
+        // FDTEMP_QUENCH_EQUILIBRIUM=1: the slow mode at the bath temperature (X = 1), where
+        // the violation must be shown at most at the test's level.
+        let equilibrium = std::env::var("FDTEMP_QUENCH_EQUILIBRIUM").is_ok_and(|v| v == "1");
+        let x_true = if equilibrium { 1.0 } else { X_TRUE };
+        let dir = tempfile::tempdir().unwrap();
+        let settings = QuenchSettings {
+            resamples: 999,
+            ..Default::default()
+        };
+        let mut covered = [0usize; 3];
+        let mut fitted = [0usize; 3];
+        let mut violated = [0usize; 3];
+        let mut reaches_zero = [0usize; 3];
+        let mut xs = [0.0f64; 3];
+        for s in 0..campaigns {
+            let spec = QuenchSpec {
+                slow_temperature: if equilibrium { 1.0 } else { 2.5 },
+                ..QuenchSpec::standard(runs, 9000 + s as u64, true)
+            };
+            let file = write(dir.path(), &spec);
+            let r = reduce_quenches(&file, &settings).unwrap();
+            let f = fit_quenches(&r, &QuenchFitSettings::default()).unwrap();
+            for (k, g) in f.fits.iter().enumerate().take(3) {
+                let (Some(lo), Some(hi)) = (g.x.low, g.x.high) else {
+                    continue;
+                };
+                fitted[k] += 1;
+                covered[k] += usize::from(lo <= x_true && x_true <= hi);
+                violated[k] += usize::from(g.violates_equilibrium);
+                reaches_zero[k] += usize::from(lo <= 0.0);
+                xs[k] += g.x.estimate.unwrap();
+            }
+        }
+        println!(
+            "{campaigns} campaigns of {runs} runs (a third unperturbed, a third per tw), B = 999, X = {x_true}"
+        );
+        for (k, name) in ["all tw", "tw = 50", "tw = 500"].iter().enumerate() {
+            let n = fitted[k] as f64;
+            let rate = |c: usize| {
+                let p = c as f64 / n;
+                (p, (p * (1.0 - p) / n).sqrt())
+            };
+            let (c, sc) = rate(covered[k]);
+            let (v, sv) = rate(violated[k]);
+            let (z, sz) = rate(reaches_zero[k]);
+            println!(
+                "{name:<9} fitted {:>4}: 95% coverage of X {c:.3} ± {sc:.3}; mean X {:.4}; violation shown {v:.3} ± {sv:.3}; interval reaches 0 {z:.3} ± {sz:.3}",
+                fitted[k],
+                xs[k] / n
+            );
+        }
     }
 
     /// Pointwise coverage of the quench intervals (C and χ against the closed forms,

@@ -126,13 +126,16 @@ def noise(data, *, sample_rate=None, gain=None, segment=4096, overlap=None,
 
 
 def reduce(data, *, protocol="auto", combine="extrapolate", resamples=1999, seed=1,
-           level=0.95, plain=False, tw=None, out=None, table=None, overwrite=False,
-           threads=None) -> ReduceResult:
+           level=0.95, plain=False, tw=None, temperature=None, min_branch=5, out=None,
+           table=None, overwrite=False, threads=None) -> ReduceResult:
     """Raw runs to C and chi, as ``fdtemp reduce`` (options as its long options).
 
     ``data``: a path, a pandas/polars DataFrame or a CSV table's bytes, with the columns
     ``sample, tw, t, h, corr, m`` (twin runs) or ``run, t, value, h, tw`` (repeated
-    quenches). ``out``/``table`` write the files ``--out``/``--table`` write.
+    quenches). ``out``/``table`` write the files ``--out``/``--table`` write. For
+    repeated quenches, ``temperature=`` adds the direct fit of X on the stratified
+    replicates (``reduce --fit -T``; the result's ``quench_fit``); twin runs give a
+    campaign: ``result.fit(temperature=…)``.
     """
     if isinstance(data, (str, os.PathLike)):
         label, path, text = os.fspath(data), os.fspath(data), None
@@ -147,7 +150,8 @@ def reduce(data, *, protocol="auto", combine="extrapolate", resamples=1999, seed
     tws = [] if tw is None else [float(v) for v in np.atleast_1d(tw)]
     result = ReduceResult(*call(
         _native.reduce, label, path, text, protocol, combine, int(resamples), int(seed),
-        float(level), bool(plain), tws, threads))
+        float(level), bool(plain), tws, None if temperature is None else float(temperature),
+        int(min_branch), threads))
     if out is not None or table is not None:
         result.write(out, table=table, overwrite=overwrite)
     return result

@@ -259,6 +259,12 @@ class ReduceResult(_Result):
         #: The linear-response test (twins with two levels or more), else None.
         self.linearity = d.get("linearity")
         self.cautions = d.get("cautions", [])
+        #: Repeated quenches fitted with ``temperature=``: the fits (all tw first, then one
+        #: per tw), each with ``x``, ``t_eff``, ``q`` (``Estimate``), else None.
+        fit = d.get("fit")
+        self.quench_fit = None if fit is None else [
+            dict(f, x=Estimate.of(f["x"]), t_eff=Estimate.of(f["t_eff"]),
+                 q=Estimate.of(f["q"])) for f in fit["fits"]]
 
     def __repr__(self):
         return f"ReduceResult({self.protocol}, {self['n_points']} points)"
@@ -275,7 +281,8 @@ class ReduceResult(_Result):
         """``fdtemp.fit`` of the reduced campaign (twin runs only)."""
         if self.protocol != "twins":
             raise ValueError("fit needs a campaign of samples: repeated quenches give "
-                             "pointwise C and chi only (docs/reduce.md)")
+                             "pointwise C and chi; call fdtemp.reduce(..., temperature=T) for "
+                             "the direct fit on their replicates (docs/reduce.md)")
         from ._api import fit
 
         return fit(self.out, temperature=temperature, **options)

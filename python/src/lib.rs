@@ -10,6 +10,7 @@ use fdtemp::api::{self, CampaignSource, NoiseSource, SpectrumSource, choice};
 use fdtemp::common::{Progress, Silent};
 use fdtemp::input::npy::CampaignArrays;
 use fdtemp::input::{CampaignRead, ColumnNames, Delimiter};
+use fdtemp::reduce::quench_fit::QuenchFitSettings;
 use fdtemp::reduce::{RawSource, ReduceSettings};
 use fdtemp::report::reduce as reduce_report;
 use fdtemp::spectral::noise::Dissipation;
@@ -476,7 +477,7 @@ type Reduced = (String, String, Vec<u8>, Option<Vec<u8>>);
 /// `fdtemp reduce` on a file (`path`) or a table's text (`text`); returns (the JSON, the
 /// report in words, the `--out` file's bytes, the `--table` file's bytes if any).
 #[pyfunction]
-#[pyo3(signature = (label, path, text, protocol, combine, resamples, seed, level, plain, tw, threads))]
+#[pyo3(signature = (label, path, text, protocol, combine, resamples, seed, level, plain, tw, temperature, min_branch, threads))]
 #[allow(clippy::too_many_arguments)]
 fn reduce(
     py: Python<'_>,
@@ -490,6 +491,8 @@ fn reduce(
     level: f64,
     plain: bool,
     tw: Vec<f64>,
+    temperature: Option<f64>,
+    min_branch: usize,
     threads: Option<usize>,
 ) -> PyResult<Reduced> {
     let src = match (path, text) {
@@ -508,6 +511,10 @@ fn reduce(
         level,
         connected: !plain,
         tws: tw,
+        quench_fit: temperature.map(|temperature| QuenchFitSettings {
+            temperature,
+            min_branch,
+        }),
     };
     py.detach(move || {
         fdtemp::with_threads(threads, || {

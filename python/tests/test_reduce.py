@@ -45,6 +45,8 @@ def test_a_dataframe_reduces_as_its_file(raw):
     assert b.pop("input") == "<DataFrame>"
     a.pop("input")
     assert a == b
+    with pytest.raises(fdtemp.SettingError, match="repeated quenches"):
+        fdtemp.reduce(src, temperature=1)
 
 
 def test_quenches_match_the_cli(raw, cli, tmp_path):
@@ -58,6 +60,12 @@ def test_quenches_match_the_cli(raw, cli, tmp_path):
     assert "pointwise_only" in [c["code"] for c in r.cautions]
     with pytest.raises(ValueError, match="pointwise"):
         r.fit(temperature=1)
+    assert r.quench_fit is None
+    cli("reduce", src, "--out", tmp_path / "f.csv", "--json", tmp_path / "f.json", "-B", 100,
+        "--fit", "-T", 1)
+    fitted = fdtemp.reduce(src, resamples=100, temperature=1)
+    assert fitted.to_json() == (tmp_path / "f.json").read_text()
+    assert fitted.quench_fit[0]["tw"] is None and fitted.quench_fit[0]["x"].low is not None
     written = r.write(tmp_path / "again.csv")
     assert written[0].read_bytes() == r.out
     with pytest.raises(FileExistsError):

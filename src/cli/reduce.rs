@@ -4,6 +4,7 @@
 use super::progress::Bar;
 use super::{RunArgs, in_file, print};
 use fdtemp::output::{self, Output};
+use fdtemp::reduce::quench_fit::QuenchFitSettings;
 use fdtemp::reduce::twin::Combine;
 use fdtemp::reduce::{Protocol, RawSource, ReduceSettings};
 use fdtemp::report::reduce as reduce_report;
@@ -46,7 +47,8 @@ pub struct ReduceArgs {
     /// switch-on times).
     #[arg(long, value_name = "TW,...", value_delimiter = ',')]
     tw: Vec<f64>,
-    /// Fit the reduced campaign at once (defaults of `fit`; needs --temperature).
+    /// Fit at once (needs --temperature): twins by `fit` with its defaults; quenches by the
+    /// broken stick refitted on every stratified replicate of runs.
     #[arg(long)]
     fit: bool,
     /// Bath temperature for --fit (reduced units).
@@ -92,14 +94,6 @@ pub fn run(a: ReduceArgs) -> fdtemp::Result<()> {
                 .into(),
         ));
     }
-    if protocol == Protocol::Quenches && fit_settings.is_some() {
-        return Err(fdtemp::Error::Setting(
-            "--fit is not available for repeated quenches yet: fit resamples whole samples, and \
-             these data need runs resampled within each stratum (docs/reduce.md); use the \
-             pointwise C and chi that reduce writes"
-                .into(),
-        ));
-    }
     let settings = ReduceSettings {
         protocol,
         combine: a.combine,
@@ -108,6 +102,13 @@ pub fn run(a: ReduceArgs) -> fdtemp::Result<()> {
         level: a.level,
         connected: !a.plain,
         tws: a.tw.clone(),
+        quench_fit: match (protocol, &fit_settings) {
+            (Protocol::Quenches, Some(f)) => Some(QuenchFitSettings {
+                temperature: f.temperature,
+                ..Default::default()
+            }),
+            _ => None,
+        },
     };
     let red = fdtemp::reduce::reduce(&src, &settings)?;
     let mut outputs = vec![Output {
@@ -134,27 +135,19 @@ pub fn run(a: ReduceArgs) -> fdtemp::Result<()> {
     for p in [&a.table, &a.json].into_iter().flatten() {
         let _ = writeln!(text, "wrote      {}", p.display());
     }
-    match (fit_settings, campaign) {
-        (None, Some(_)) => {
-            let _ = writeln!(
-                text,
-                "analyse    fdtemp fit {} --temperature T",
-                a.out.display()
-            );
-            print(text.as_bytes());
-        }
-        (None, None) => print(text.as_bytes()),
-        (Some(s), campaign) => {
-            let Some(campaign) = campaign else {
-                return Ok(());
-            };
-            print(text.as_bytes());
-            let input = Some(a.out.display().to_string());
-            let report =
-                fdtemp::analyze(&campaign, &s, input, &Bar::new()).map_err(in_file(&a.out))?;
-            print(b"\n");
-            print(&fdtemp::report::text::render(&report));
-        }
+    if fit_settings.is_none() && campaign.is_some() {
+        let _ = writeln!(
+            text,
+            "analyse    fdtemp fit {} --temperature T",
+            a.out.display()
+        );
+    }
+    print(text.as_bytes());
+    if let (Some(s), Some(campaign)) = (fit_settings, campaign) {
+        let input = Some(a.out.display().to_string());
+        let report = fdtemp::analyze(&campaign, &s, input, &Bar::new()).map_err(in_file(&a.out))?;
+        print(b"\n");
+        print(&fdtemp::report::text::render(&report));
     }
     Ok(())
 }

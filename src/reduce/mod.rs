@@ -19,6 +19,7 @@
 //! Based Multiple Testing* (1993), ch. 2; Davison & Hinkley (1997), §4.4.
 
 pub mod quench;
+pub mod quench_fit;
 pub mod twin;
 
 pub use twin::{FieldTest, TwinReduction, TwinRuns, TwinSettings, read_twins, reduce_twins};
@@ -130,6 +131,8 @@ pub struct ReduceSettings {
     pub connected: bool,
     /// Quenches: waiting times to form C at (empty: the switch-on times).
     pub tws: Vec<f64>,
+    /// Quenches: fit X, T_eff and the break directly on the replicates (`--fit`).
+    pub quench_fit: Option<quench_fit::QuenchFitSettings>,
 }
 
 impl Default for ReduceSettings {
@@ -142,6 +145,7 @@ impl Default for ReduceSettings {
             level: 0.95,
             connected: true,
             tws: Vec::new(),
+            quench_fit: None,
         }
     }
 }
@@ -162,6 +166,8 @@ pub struct Reduction {
     pub label: PathBuf,
     /// The result.
     pub reduced: Reduced,
+    /// The direct fit of repeated quenches, when asked for.
+    pub quench_fit: Option<quench_fit::QuenchFits>,
 }
 
 impl Reduction {
@@ -203,9 +209,25 @@ pub fn reduce(src: &RawSource, settings: &ReduceSettings) -> Result<Reduction> {
                 seed: settings.seed,
                 level: settings.level,
             };
-            Reduced::Quenches(quench::reduce_quenches_from(src, &q).map_err(&named)?)
+            let red = quench::reduce_quenches_from(src, &q).map_err(&named)?;
+            if let Some(f) = &settings.quench_fit {
+                let fits = quench_fit::fit_quenches(&red, f).map_err(&named)?;
+                return Ok(Reduction {
+                    label,
+                    reduced: Reduced::Quenches(red),
+                    quench_fit: Some(fits),
+                });
+            }
+            Reduced::Quenches(red)
         }
         _ => {
+            if settings.quench_fit.is_some() {
+                return Err(Error::Setting(
+                    "the direct fit on replicates is for repeated quenches; twin runs give a \
+                     campaign of samples: fit that campaign"
+                        .into(),
+                ));
+            }
             let t = TwinSettings {
                 combine: settings.combine,
                 resamples: settings.resamples,
@@ -217,5 +239,9 @@ pub fn reduce(src: &RawSource, settings: &ReduceSettings) -> Result<Reduction> {
             Reduced::Twins(Box::new(reduce_twins(&runs, &t).map_err(&named)?))
         }
     };
-    Ok(Reduction { label, reduced })
+    Ok(Reduction {
+        label,
+        reduced,
+        quench_fit: None,
+    })
 }

@@ -113,6 +113,9 @@ pub struct QuenchReduction {
     pub early: Option<EarlyDrift>,
     /// The settings used.
     pub settings: QuenchSettings,
+    /// Per replicate, (C, χ) at every point (what the direct fit refits).
+    #[serde(skip)]
+    pub replicates: Vec<Vec<(f64, Option<f64>)>>,
 }
 
 const COLUMNS: [&str; 5] = ["run", "t", "value", "h", "tw"];
@@ -623,6 +626,7 @@ pub fn reduce_quenches_from(src: &RawSource, settings: &QuenchSettings) -> Resul
         points,
         early,
         settings: settings.clone(),
+        replicates: rep_est,
     })
 }
 

@@ -2,6 +2,7 @@
 //! The command line and the Python package write these same bytes.
 
 use crate::reduce::quench::QuenchReduction;
+use crate::reduce::quench_fit::QuenchFits;
 use crate::reduce::twin::TwinReduction;
 use crate::reduce::{Reduced, Reduction};
 use crate::report::format::{fmt_num, p_clause, sig};
@@ -13,8 +14,73 @@ pub fn text(r: &Reduction) -> String {
     let file = r.label.display().to_string();
     match &r.reduced {
         Reduced::Twins(t) => render_twins(t, &file),
-        Reduced::Quenches(q) => render_quenches(q, &file),
+        Reduced::Quenches(q) => {
+            let mut s = render_quenches(q, &file);
+            if let Some(f) = &r.quench_fit {
+                s.push_str(&render_quench_fit(f));
+            }
+            s
+        }
     }
+}
+
+/// The direct fit of repeated quenches in words.
+fn render_quench_fit(f: &QuenchFits) -> String {
+    let mut s = String::new();
+    let pct = fmt_num(100.0 * f.level);
+    let _ = writeln!(
+        s,
+        "\nfit        broken stick on y = T·chi against C (slope −1 above q, −X below), T = {}; weights 1/var(y + C) per point; {pct}% percentile intervals from the same {} stratified replicates of runs",
+        fmt_num(f.settings.temperature),
+        f.replicates
+    );
+    let iv = |e: &crate::common::Estimate| match (e.estimate, e.low, e.high) {
+        (Some(v), Some(l), Some(h)) => format!("{} [{}, {}]", sig(v, 4), sig(l, 4), sig(h, 4)),
+        (Some(v), Some(l), None) => format!("{} [{}, ∞)", sig(v, 4), sig(l, 4)),
+        (Some(v), _, _) => format!("{} (no interval)", sig(v, 4)),
+        _ => "—".into(),
+    };
+    let _ = writeln!(
+        s,
+        "           {:<8} {:>6}  {:<28} {:<28} {:<28}",
+        "tw", "points", "X", "T_eff", "q"
+    );
+    for g in &f.fits {
+        let tw = g.tw.map_or_else(|| "all".to_string(), fmt_num);
+        let _ = writeln!(
+            s,
+            "           {:<8} {:>6}  {:<28} {:<28} {:<28}",
+            tw,
+            g.n_points,
+            iv(&g.x),
+            iv(&g.t_eff),
+            iv(&g.q)
+        );
+    }
+    for g in &f.fits {
+        let tw =
+            g.tw.map_or_else(|| "all tw".to_string(), |t| format!("tw = {}", fmt_num(t)));
+        let b = f.replicates;
+        let p = g
+            .p_equilibrium
+            .map_or_else(|| "no p-value".to_string(), |p| p_clause(p, b));
+        let test = format!(
+            "{p}; null-imposed test of one line of slope −1, level {}",
+            fmt_num(1.0 - f.level)
+        );
+        let verdict = if g.violates_equilibrium {
+            format!("{tw}: the equilibrium relation is violated ({test})")
+        } else {
+            format!(
+                "{tw}: no violation of the equilibrium relation shown ({test}); the X below is then no evidence of a second temperature"
+            )
+        };
+        let _ = writeln!(s, "verdict    {verdict}");
+        for c in &g.cautions {
+            let _ = writeln!(s, "caution    {tw}: {c}");
+        }
+    }
+    s
 }
 
 /// The file `--out` names: the campaign `fit` reads (twins), or the per-point table of C
@@ -67,6 +133,7 @@ pub fn json(r: &Reduction) -> Vec<u8> {
             "n_points": q.points.len(),
             "early": q.early,
             "cautions": cautions(&quench_lines(q)),
+            "fit": r.quench_fit,
             "points": q.points,
         }),
     };
@@ -286,7 +353,7 @@ fn render_quenches(r: &QuenchReduction, file: &str) -> String {
     }
     let _ = writeln!(
         s,
-        "note       the output is pointwise C and chi, not a campaign of samples: fit cannot resample these runs by stratum yet"
+        "note       the output is pointwise C and chi, not a campaign of samples: `fit` cannot read it; `reduce --fit -T T` fits X on the stratified replicates of these runs"
     );
     s
 }
@@ -309,8 +376,8 @@ fn quench_lines(r: &QuenchReduction) -> Vec<Line> {
     }
     v.push(Line {
         code: "pointwise_only",
-        message: "the output is pointwise C and chi, not a campaign of samples: fit cannot \
-                  resample these runs by stratum yet"
+        message: "the output is pointwise C and chi, not a campaign of samples: `fit` cannot \
+                  read it; `reduce --fit -T T` fits X on the stratified replicates of these runs"
             .into(),
     });
     v

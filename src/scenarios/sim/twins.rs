@@ -228,6 +228,8 @@ pub struct QuenchSpec {
     pub field: f64,
     /// How long before tw the field is really switched on (0: at tw, as recorded).
     pub lead: f64,
+    /// The slow mode's temperature (2.5 as `two-baths`; 1, the bath's, for equilibrium).
+    pub slow_temperature: f64,
 }
 
 impl QuenchSpec {
@@ -239,6 +241,7 @@ impl QuenchSpec {
             quick,
             field: 0.5,
             lead: 0.0,
+            slow_temperature: Mode::SLOW.temperature,
         }
     }
 }
@@ -261,7 +264,13 @@ pub fn quench_csv(spec: &QuenchSpec) -> Vec<u8> {
     let blocks: Vec<String> = (0..spec.runs)
         .into_par_iter()
         .map(|k| {
-            let modes = modes();
+            let modes = [
+                Mode::FAST,
+                Mode {
+                    temperature: spec.slow_temperature,
+                    ..Mode::SLOW
+                },
+            ];
             let mut rng = replicate_rng(spec.seed, k as u64);
             let (h, tw) = match k % 3 {
                 0 => (0.0, None),
