@@ -312,11 +312,17 @@ pub fn caution(c: &SpectralCaution) -> String {
             below,
             limit,
         } => format!(
-            "the PSD falls as f^-{} (± {}) at its lowest bins: Hann-window leakage biases the \
-             lowest bin by {:+.0}% (predicted from that power law) and every bin up to {} Hz by \
-             more than {:.0}%; distrust the PSD and T_eff at and below {} Hz (a longer Welch \
-             segment moves it down)",
-            sig(*slope, 2),
+            "the PSD {} f^{}{} (± {}) at its lowest bins: Hann-window leakage biases the lowest \
+             bin by {:+.0}% (predicted from that power law) and every bin up to {} Hz by more \
+             than {:.0}%; distrust the PSD and T_eff at and below {} Hz (a longer Welch segment \
+             moves it down)",
+            if *slope >= 0.0 {
+                "falls as"
+            } else {
+                "rises as"
+            },
+            if *slope >= 0.0 { "-" } else { "" },
+            sig(slope.abs(), 2),
             sig(*slope_se, 1),
             100.0 * bias,
             fmt_num(*below),
