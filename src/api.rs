@@ -14,6 +14,7 @@ use crate::input::npy::{CampaignArrays, campaign_from_arrays};
 use crate::input::{CampaignRead, Delimiter, ReadCampaign};
 use crate::spectral::findings::{SpectralCaution, SpectralFinding};
 use crate::spectral::input::{SpectrumGroup, Window};
+use crate::spectral::leakage;
 use crate::spectral::noise::{self, Dissipation, RecordPsd};
 use crate::spectral::welch::WelchSettings;
 use crate::spectral::{Convention, SpectrumReport, SpectrumSettings};
@@ -199,13 +200,21 @@ pub fn spectrum(
     label: &Path,
 ) -> Result<SpectrumReport> {
     settings.validate()?;
-    crate::spectral::analyze_spectra(
+    let mut report = crate::spectral::analyze_spectra(
         groups,
         &window.bin_rho2(),
         settings,
         Some(label.display().to_string()),
     )
-    .map_err(in_file(label))
+    .map_err(in_file(label))?;
+    if window == Window::Hann {
+        for g in groups {
+            if let Some(finding) = leakage::table_leakage(g) {
+                report.cautions.push(SpectralCaution { tw: g.tw, finding });
+            }
+        }
+    }
+    Ok(report)
 }
 
 /// Where noise records come from.
@@ -328,32 +337,81 @@ fn convention_label(c: Convention) -> &'static str {
 }
 
 /// `noise`: T_eff(f) of the records against the dissipation; frequencies outside its table
-/// are left out with a caution. `label` names the records.
+/// are left out with a caution (naming the table's range), and steep lowest bins get the
+/// `window_leakage` caution. `label` names the records, `loss_file` the table.
 ///
 /// # Errors
-/// The settings' and the analysis' errors, the latter naming `label`.
+/// The settings' and the analysis' errors, the latter naming `label`; [`Error::Input`]
+/// naming `loss_file` (and both frequency ranges) when the table and the PSD share no
+/// frequency.
 pub fn noise_spectrum(
     rec: &RecordPsd,
     diss: &Dissipation,
     settings: &SpectrumSettings,
     label: &Path,
+    loss_file: Option<&Path>,
 ) -> Result<SpectrumReport> {
     settings.validate()?;
-    let (group, dropped) = noise::to_group(rec, diss).map_err(in_file(label))?;
+    let table_range = match diss {
+        Dissipation::Table(t) => match (t.first(), t.last()) {
+            (Some(a), Some(b)) => Some([a.0, b.0]),
+            _ => None,
+        },
+        Dissipation::Constant(_) => None,
+    };
+    let (group, dropped) = match noise::to_group(rec, diss) {
+        Ok(g) => g,
+        Err(Error::Analysis(_)) if table_range.is_some() => {
+            let [lo, hi] = table_range.unwrap_or_default();
+            let f = &rec.psd[0].freqs;
+            let first = f.get(noise::FIRST_BIN).copied().unwrap_or(0.0);
+            let last = f.last().copied().unwrap_or(0.0);
+            let sig = crate::report::format::fmt_num;
+            return Err(Error::input(
+                loss_file.unwrap_or(label),
+                None,
+                None,
+                format!(
+                    "the dissipation table covers {}–{} Hz and the PSD of {} {}–{} Hz: no \
+                     frequency in common; expected a table that covers the record's frequencies",
+                    sig(lo),
+                    sig(hi),
+                    label.display(),
+                    sig(first),
+                    sig(last)
+                ),
+            ));
+        }
+        Err(e) => return Err(in_file(label)(e)),
+    };
     let mut report = crate::spectral::analyze_spectra(
-        &[group],
+        std::slice::from_ref(&group),
         &rec.bin_rho2,
         settings,
         Some(label.display().to_string()),
     )
     .map_err(in_file(label))?;
-    if dropped > 0 {
+    if dropped > 0
+        && let Some(range) = table_range
+    {
         report.cautions.push(SpectralCaution {
             tw: None,
             finding: SpectralFinding::OutsideTable {
                 frequencies: dropped,
+                range,
             },
         });
+    }
+    let f = &rec.psd[0].freqs;
+    if f.len() > 1 && f[1] > 0.0 {
+        let segment = (rec.sample_rate / f[1]).round() as usize;
+        let samples = rec.psd.iter().map(|p| p.samples).min().unwrap_or(0).max(1);
+        // Half the record's lowest Fourier frequency: its first line stands for the band
+        // from there (the f^-3 bias grows with the log of it; measured in tests/leakage.rs).
+        let lowest = segment as f64 / (2.0 * samples as f64);
+        if let Some(finding) = leakage::group_leakage(&group, f[1], segment, lowest) {
+            report.cautions.push(SpectralCaution { tw: None, finding });
+        }
     }
     Ok(report)
 }

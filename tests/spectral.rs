@@ -650,7 +650,7 @@ fn a_two_run_record_with_an_interpolated_impedance_table_gives_back_the_temperat
         .success()
         .stdout(predicate::str::contains("2 run(s) of 262144 samples"))
         .stdout(predicate::str::contains(
-            "frequencies outside the dissipation table's range were left out",
+            "frequencies outside the dissipation table's range (10–4000 Hz) were left out",
         ));
     let v: serde_json::Value = serde_json::from_slice(&std::fs::read(&json).unwrap()).unwrap();
     assert_eq!(v["spectra"][0]["n_runs"], 2);

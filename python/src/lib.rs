@@ -456,7 +456,7 @@ fn noise(
             let rec = api::noise_psd(source, welch, sample_rate, gain)?;
             let psd = fdtemp::spectral::noise::psd_csv(&rec, diss.as_ref());
             let json = diss
-                .map(|d| api::noise_spectrum(&rec, &d, &settings, &label))
+                .map(|d| api::noise_spectrum(&rec, &d, &settings, &label, loss_file.as_deref()))
                 .transpose()?
                 .map(|r| fdtemp::report::json::spectrum_json(&r));
             Ok((json, psd))

@@ -329,7 +329,7 @@ fn noise_analysis(
     diss: &Dissipation,
     settings: &SpectrumSettings,
 ) -> fdtemp::Result<SpectrumReport> {
-    fdtemp::api::noise_spectrum(rec, diss, settings, &a.file)
+    fdtemp::api::noise_spectrum(rec, diss, settings, &a.file, a.loss_file.as_deref())
 }
 
 /// The JSON and the figure of a spectral analysis, as asked for.

@@ -296,9 +296,39 @@ pub fn caution(c: &SpectralCaution) -> String {
                 list.join(", ")
             )
         }
-        SpectralFinding::OutsideTable { frequencies } => {
-            format!("{frequencies} frequencies outside the dissipation table's range were left out")
-        }
+        SpectralFinding::OutsideTable {
+            frequencies,
+            range: [lo, hi],
+        } => format!(
+            "{frequencies} frequencies outside the dissipation table's range ({}–{} Hz) were \
+             left out",
+            fmt_num(*lo),
+            fmt_num(*hi)
+        ),
+        SpectralFinding::WindowLeakage {
+            slope,
+            slope_se,
+            bias,
+            below,
+            limit,
+        } => format!(
+            "the PSD {} f^{}{} (± {}) at its lowest bins: Hann-window leakage biases the lowest \
+             bin by {:+.0}% (predicted from that power law) and every bin up to {} Hz by more \
+             than {:.0}%; distrust the PSD and T_eff at and below {} Hz (a longer Welch segment \
+             moves it down)",
+            if *slope >= 0.0 {
+                "falls as"
+            } else {
+                "rises as"
+            },
+            if *slope >= 0.0 { "-" } else { "" },
+            sig(slope.abs(), 2),
+            sig(*slope_se, 1),
+            100.0 * bias,
+            fmt_num(*below),
+            100.0 * limit,
+            fmt_num(*below)
+        ),
         SpectralFinding::ImplausibleScale { ratio, factor } => format!(
             "T_eff is {} times the bath temperature (median), and beyond a factor {} from it at \
              every frequency: an aging system departs at low frequencies, not everywhere, so \

@@ -42,6 +42,22 @@ pub enum SpectralFinding {
     OutsideTable {
         /// How many.
         frequencies: usize,
+        /// The table's frequency range (Hz).
+        range: [f64; 2],
+    },
+    /// The PSD is steep enough at its lowest bins that Hann-window leakage biases them by
+    /// more than `limit` (predicted from a local power law; `spectral::leakage`).
+    WindowLeakage {
+        /// The local power law's exponent `a` (`PSD ∝ f^−a`) over the lowest bins.
+        slope: f64,
+        /// Its standard error.
+        slope_se: f64,
+        /// The predicted relative bias of the lowest bin used.
+        bias: f64,
+        /// The highest frequency (Hz) whose predicted bias exceeds `limit`.
+        below: f64,
+        /// The relative bias above which it fires (0.05).
+        limit: f64,
     },
     /// At every frequency T_eff's interval lies beyond a factor 10 from the bath: more
     /// likely units, a gain or the convention than physics.

@@ -8,6 +8,7 @@
 pub mod analysis;
 pub mod findings;
 pub mod input;
+pub mod leakage;
 pub mod noise;
 pub mod welch;
 
