@@ -588,7 +588,7 @@ mod quenches {
             .arg("reduce")
             .arg(&file)
             .arg("--out")
-            .arg(dir.path().join("q.csv"))
+            .arg(dir.path().join("q2.csv"))
             .arg("--table")
             .arg(dir.path().join("t.csv"))
             .assert()

@@ -118,7 +118,9 @@ pub fn fit_quenches(r: &QuenchReduction, s: &QuenchFitSettings) -> Result<Quench
 fn fit_group(r: &QuenchReduction, s: &QuenchFitSettings, tw: Option<f64>) -> Option<QuenchFit> {
     let t = s.temperature;
     let idx: Vec<usize> = (0..r.points.len())
-        .filter(|&p| tw.is_none_or(|w| r.points[p].tw == w) && r.points[p].chi.is_some())
+        .filter(|&p| {
+            tw.is_none_or(|w| r.points[p].tw.to_bits() == w.to_bits()) && r.points[p].chi.is_some()
+        })
         .collect();
     let model = model::of(Model::Broken);
     // Weights: the inverse bootstrap variance of the fitted quantity y + C.
