@@ -426,15 +426,20 @@ mod quenches {
         p
     }
 
-    #[test]
-    fn reduced_quenches_cover_the_closed_forms() {
+    /// The standard quenches of `runs` runs reduced with 499 replicates.
+    fn reduced(runs: usize, seed: u64) -> fdtemp::reduce::quench::QuenchReduction {
         let dir = tempfile::tempdir().unwrap();
-        let file = write(dir.path(), &QuenchSpec::standard(3000, 7, true));
+        let file = write(dir.path(), &QuenchSpec::standard(runs, seed, true));
         let settings = QuenchSettings {
             resamples: 499,
             ..Default::default()
         };
-        let r = reduce_quenches(&file, &settings).unwrap();
+        reduce_quenches(&file, &settings).unwrap()
+    }
+
+    #[test]
+    fn reduced_quenches_cover_the_closed_forms() {
+        let r = reduced(3000, 7);
         assert_eq!(r.unperturbed, 1000);
         assert_eq!(r.perturbed, vec![(50.0, 1000), (500.0, 1000)]);
         assert!(r.early.is_none());
@@ -472,13 +477,7 @@ mod quenches {
 
     #[test]
     fn the_direct_fit_of_quenches_finds_the_two_temperatures() {
-        let dir = tempfile::tempdir().unwrap();
-        let file = write(dir.path(), &QuenchSpec::standard(12_000, 11, true));
-        let settings = QuenchSettings {
-            resamples: 499,
-            ..Default::default()
-        };
-        let r = reduce_quenches(&file, &settings).unwrap();
+        let r = reduced(12_000, 11);
         let f = fit_quenches(&r, &QuenchFitSettings::default()).unwrap();
         assert_eq!(f.fits.len(), 3, "all tw, then tw = 50 and 500");
         let all = &f.fits[0];

@@ -26,6 +26,19 @@ def _frame_text(data):
     return None
 
 
+def _table(data, name, expected):
+    """(label, path, text) of a table given as a path, CSV bytes or a DataFrame."""
+    if isinstance(data, (str, os.PathLike)):
+        return os.fspath(data), os.fspath(data), None
+    if isinstance(data, (bytes, bytearray)):
+        return "<bytes>", None, bytes(data)
+    text = _frame_text(data)
+    if text is None:
+        raise TypeError(f"{name}() data is a {type(data).__name__}; expected a path, "
+                        + expected)
+    return "<DataFrame>", None, text
+
+
 def _band(v, name):
     if v is None:
         return None
@@ -92,14 +105,7 @@ def spectrum(data, *, temperature, convention=None, window=None, units="si",
              threads=None) -> SpectrumResult:
     """T_eff(f) from a PSD table, as ``fdtemp spectrum`` (a path or a DataFrame with
     columns f, psd, loss [, dof, run, tw])."""
-    if isinstance(data, (str, os.PathLike)):
-        label, path, text = os.fspath(data), os.fspath(data), None
-    else:
-        text = _frame_text(data)
-        if text is None:
-            raise TypeError(f"spectrum() data is a {type(data).__name__}; expected a path "
-                            "or a DataFrame with columns f, psd, loss")
-        label, path = "<DataFrame>", None
+    label, path, text = _table(data, "spectrum", "or a DataFrame with columns f, psd, loss")
     return SpectrumResult(call(
         _native.spectrum, label, path, text, float(temperature), convention, window, units,
         delimiter, errors, dof, _band(band, "band"), int(bands_per_decade), float(level),
@@ -137,16 +143,7 @@ def reduce(data, *, protocol="auto", combine="extrapolate", resamples=1999, seed
     replicates (``reduce --fit -T``; the result's ``quench_fit``); twin runs give a
     campaign: ``result.fit(temperature=…)``.
     """
-    if isinstance(data, (str, os.PathLike)):
-        label, path, text = os.fspath(data), os.fspath(data), None
-    elif isinstance(data, (bytes, bytearray)):
-        label, path, text = "<bytes>", None, bytes(data)
-    else:
-        text = _frame_text(data)
-        if text is None:
-            raise TypeError(f"reduce() data is a {type(data).__name__}; expected a path, a "
-                            "DataFrame or a CSV table's bytes")
-        label, path = "<DataFrame>", None
+    label, path, text = _table(data, "reduce", "a DataFrame or a CSV table's bytes")
     tws = [] if tw is None else [float(v) for v in np.atleast_1d(tw)]
     result = ReduceResult(*call(
         _native.reduce, label, path, text, protocol, combine, int(resamples), int(seed),
