@@ -137,6 +137,45 @@ fn noise_reports_window_leakage_in_the_text_and_the_json() {
     assert!(c["message"].as_str().unwrap().contains("at and below 4 Hz"));
 }
 
+#[test]
+fn spectrum_reads_back_the_psd_and_raises_the_same_caution() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut s = String::new();
+    for v in power_law_record(2.0, 7) {
+        let _ = writeln!(s, "{v:e}");
+    }
+    let rec = dir.path().join("red.txt");
+    std::fs::write(&rec, s).unwrap();
+    let psd = dir.path().join("red_psd.csv");
+    fdtemp()
+        .arg("noise")
+        .arg(&rec)
+        .args([
+            "--sample-rate",
+            "256",
+            "--segment",
+            "256",
+            "--resistance",
+            "1",
+        ])
+        .arg("--psd-out")
+        .arg(&psd)
+        .assert()
+        .success();
+    // The PSD file names its Hann window on its first line; `spectrum` guesses the
+    // record length from the dof and predicts the same bias.
+    fdtemp()
+        .arg("spectrum")
+        .arg(&psd)
+        .args(["-T", "300"])
+        .assert()
+        .success()
+        .stdout(predicate::str::contains("Hann-window leakage biases the"))
+        .stdout(predicate::str::contains(
+            "distrust the PSD and T_eff at and below 4 Hz",
+        ));
+}
+
 /// A white record of 8192 samples at 1 kHz, written as one number per line.
 fn white_record(dir: &std::path::Path) -> std::path::PathBuf {
     let mut rng = fdtemp::resample::replicate_rng(3, 0);
