@@ -96,15 +96,21 @@ fn red_noise_raises_window_leakage_up_to_about_the_fourth_bin() {
     }
 }
 
-#[test]
-fn noise_reports_window_leakage_in_the_text_and_the_json() {
-    let dir = tempfile::tempdir().unwrap();
+/// An f⁻² record (seed 7), one number per line, as `red.txt` in `dir`.
+fn red_record(dir: &std::path::Path) -> std::path::PathBuf {
     let mut s = String::new();
     for v in power_law_record(2.0, 7) {
         let _ = writeln!(s, "{v:e}");
     }
-    let rec = dir.path().join("red.txt");
+    let rec = dir.join("red.txt");
     std::fs::write(&rec, s).unwrap();
+    rec
+}
+
+#[test]
+fn noise_reports_window_leakage_in_the_text_and_the_json() {
+    let dir = tempfile::tempdir().unwrap();
+    let rec = red_record(dir.path());
     let json = dir.path().join("red.json");
     fdtemp()
         .arg("noise")
@@ -140,12 +146,7 @@ fn noise_reports_window_leakage_in_the_text_and_the_json() {
 #[test]
 fn spectrum_reads_back_the_psd_and_raises_the_same_caution() {
     let dir = tempfile::tempdir().unwrap();
-    let mut s = String::new();
-    for v in power_law_record(2.0, 7) {
-        let _ = writeln!(s, "{v:e}");
-    }
-    let rec = dir.path().join("red.txt");
-    std::fs::write(&rec, s).unwrap();
+    let rec = red_record(dir.path());
     let psd = dir.path().join("red_psd.csv");
     fdtemp()
         .arg("noise")

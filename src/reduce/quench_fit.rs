@@ -19,7 +19,7 @@
 use super::quench::QuenchReduction;
 use crate::common::{Estimate, check_level};
 use crate::error::{Error, Result};
-use crate::resample;
+use crate::resample::{self, IntervalMethod};
 use crate::twotime::model::{self, FitBuffers, GroupPoints, Values};
 use crate::twotime::settings::Model;
 
@@ -134,9 +134,7 @@ fn fit_group(r: &QuenchReduction, s: &QuenchFitSettings, tw: Option<f64>) -> Opt
                 .filter_map(|rep| rep[p].1.map(|chi| resp(rep[p].0, chi)))
                 .filter(|v| v.is_finite())
                 .collect();
-            let n = v.len() as f64;
-            let m = v.iter().sum::<f64>() / n;
-            let var = v.iter().map(|x| (x - m).powi(2)).sum::<f64>() / (n - 1.0);
+            let var = resample::bootstrap_se(&v).powi(2);
             if var.is_finite() && var > 0.0 {
                 1.0 / var
             } else {
@@ -144,8 +142,11 @@ fn fit_group(r: &QuenchReduction, s: &QuenchFitSettings, tw: Option<f64>) -> Opt
             }
         })
         .collect();
-    let finite: Vec<f64> = w.iter().copied().filter(|v| v.is_finite()).collect();
-    let floor = finite.iter().copied().fold(f64::INFINITY, f64::min);
+    let floor = w
+        .iter()
+        .copied()
+        .filter(|v| v.is_finite())
+        .fold(f64::INFINITY, f64::min);
     let w: Vec<f64> = w
         .iter()
         .map(|&v| if v.is_finite() { v } else { floor })
@@ -166,10 +167,7 @@ fn fit_group(r: &QuenchReduction, s: &QuenchFitSettings, tw: Option<f64>) -> Opt
         model.fit(pts, s.min_branch, buf, None)
     };
     let resp_of = |c: &[f64], chi: &[f64]| -> Vec<f64> {
-        c.iter()
-            .zip(chi)
-            .map(|(&c, &chi)| model.response(c, t * chi))
-            .collect()
+        c.iter().zip(chi).map(|(&c, &chi)| resp(c, chi)).collect()
     };
     // The statistic of the equilibrium test: the weighted SSE the break removes.
     let stat = |v: &Values| v.sol.sse_null - v.sol.sse;
@@ -212,21 +210,12 @@ fn fit_group(r: &QuenchReduction, s: &QuenchFitSettings, tw: Option<f64>) -> Opt
     }
     let p_equilibrium = (null_n > 0).then(|| (1 + null_ge) as f64 / (1 + null_n) as f64);
     let level = r.settings.level;
-    let alpha = (1.0 - level) / 2.0;
-    let interval = |mut v: Vec<f64>, e: f64| {
-        v.sort_by(f64::total_cmp);
-        if v.len() < 2 {
-            return point(e);
-        }
-        Estimate {
-            estimate: Some(e),
-            low: Some(resample::quantile_sorted(&v, alpha)),
-            high: Some(resample::quantile_sorted(&v, 1.0 - alpha)),
-            ..Default::default()
-        }
+    let interval = |v: &[f64], e: f64| {
+        let iv = resample::interval(e, v, None, IntervalMethod::Percentile, level);
+        Estimate::with(e, iv.as_ref())
     };
-    let x = interval(xs.clone(), est.ratio);
-    let q = interval(qs, est.q);
+    let x = interval(&xs, est.ratio);
+    let q = interval(&qs, est.q);
     let mut cautions = Vec::new();
     let t_eff = match (x.low, x.high) {
         (Some(lo), Some(hi)) if lo > 0.0 => Estimate {
@@ -248,7 +237,7 @@ fn fit_group(r: &QuenchReduction, s: &QuenchFitSettings, tw: Option<f64>) -> Opt
                 note: Some("X's interval reaches 0: no upper bound".into()),
             }
         }
-        _ => point(t / est.ratio),
+        _ => Estimate::with(t / est.ratio, None),
     };
     let n_rep = r.replicates.len().max(1);
     let edge_share = edges as f64 / n_rep as f64;
@@ -282,13 +271,4 @@ fn fit_group(r: &QuenchReduction, s: &QuenchFitSettings, tw: Option<f64>) -> Opt
         violates_equilibrium: violates,
         cautions,
     })
-}
-
-/// An estimate without an interval.
-fn point(e: f64) -> Estimate {
-    Estimate {
-        estimate: Some(e),
-        note: Some("too few replicates for an interval".into()),
-        ..Default::default()
-    }
 }
