@@ -162,6 +162,33 @@ pub struct Interval {
     pub note: Option<String>,
 }
 
+/// `W · D` for a row-major `W` (`reps × n`) and `D` (`n × cols`) on faer's matrix product
+/// (runtime AVX2/AVX-512 dispatch), one thread per call: chunks already run in parallel.
+pub fn product(w: &ndarray::Array2<f64>, d: &ndarray::Array2<f64>) -> ndarray::Array2<f64> {
+    let (rows, n, cols) = (w.nrows(), w.ncols(), d.ncols());
+    match (w.as_slice(), d.as_slice()) {
+        (Some(ws), Some(ds)) if d.nrows() == n => {
+            let mut out = ndarray::Array2::<f64>::zeros((rows, cols));
+            if let Some(os) = out.as_slice_mut() {
+                let lhs = faer::MatRef::from_row_major_slice(ws, rows, n);
+                let rhs = faer::MatRef::from_row_major_slice(ds, n, cols);
+                let dst = faer::MatMut::from_row_major_slice_mut(os, rows, cols);
+                faer::linalg::matmul::matmul(
+                    dst,
+                    faer::Accum::Replace,
+                    lhs,
+                    rhs,
+                    1.0,
+                    faer::Par::Seq,
+                );
+                return out;
+            }
+            w.dot(d)
+        }
+        _ => w.dot(d),
+    }
+}
+
 /// Forms a `level` interval for `estimate` from its replicates (any order; non-finite
 /// replicates are ignored). BCa needs the jackknife values; without them, or when every
 /// replicate lies on one side of the estimate, the percentile interval is returned with a
