@@ -51,12 +51,13 @@ impl Series<'_> {
     fn of(&self, f: fn(&Draw) -> f64) -> Vec<f64> {
         self.ok.iter().map(|d| f(d)).collect()
     }
+    /// The leave-one-out values, when every one was fitted (none are made without BCa).
+    fn jackknife(&self, f: fn(&Draw) -> f64) -> Option<Vec<f64>> {
+        (!self.jack.is_empty() && self.jack.iter().all(Option::is_some))
+            .then(|| self.jack.iter().flatten().map(f).collect())
+    }
     fn estimate(&self, estimate: f64, f: fn(&Draw) -> f64) -> Estimate {
-        let jk: Option<Vec<f64>> = self
-            .jack
-            .iter()
-            .all(Option::is_some)
-            .then(|| self.jack.iter().flatten().map(f).collect());
+        let jk: Option<Vec<f64>> = self.jackknife(f);
         let iv = interval(
             estimate,
             &self.of(f),
@@ -68,11 +69,7 @@ impl Series<'_> {
     }
     /// The estimate with its replicates and leave-one-out values.
     fn series(&self, estimate: f64, f: fn(&Draw) -> f64) -> ResampledSeries {
-        let jackknife = self
-            .jack
-            .iter()
-            .all(Option::is_some)
-            .then(|| self.jack.iter().flatten().map(f).collect());
+        let jackknife = self.jackknife(f);
         ResampledSeries {
             estimate,
             replicates: self.of(f),

@@ -153,7 +153,12 @@ fn fit_all(
         .iter()
         .map(|s| s.as_ref().map(|s| s.0.clone()))
         .collect();
-    let jack = resampling::jackknife(prep, groups, &est, spec, &scratch);
+    // Only BCa uses the leave-one-out fits (its acceleration).
+    let jack = if settings.interval == crate::resample::IntervalMethod::Bca {
+        resampling::jackknife(prep, groups, &est, spec, &scratch)
+    } else {
+        Vec::new()
+    };
     let nulls = resampling::Nulls {
         equilibrium: &shifts,
         lack_of_fit: &lof_nulls,
