@@ -161,3 +161,144 @@ fn results_for_a_seed_are_byte_identical_at_1_2_and_8_threads() {
     assert_eq!(one, json(2));
     assert_eq!(one, json(8));
 }
+
+/// A campaign table written with a random mix of what files in the wild hold: delimiter,
+/// CRLF or LF ends, a byte-order mark, comment and blank lines, spaces around fields,
+/// quoted sample names that hold the delimiter. Returns the text, the delimiter, and the
+/// 1-based line number of each data row.
+fn decorated(style: &[u8], values: &[f64], n: usize, m: usize) -> (String, u8, Vec<u64>) {
+    let d = [b',', b';', b'\t'][style[0] as usize % 3];
+    let sep = (d as char).to_string();
+    let mut s = String::new();
+    let mut line = 1u64;
+    let mut rows = Vec::new();
+    if style[1].is_multiple_of(2) {
+        s.push('\u{feff}');
+    }
+    s.push_str(&["sample", "tw", "t", "corr", "resp"].join(&sep));
+    s.push('\n');
+    let mut k = 2;
+    for i in 0..n {
+        for j in 0..m {
+            let b = style[k % style.len()];
+            k += 1;
+            let end = if b & 1 == 0 { "\n" } else { "\r\n" };
+            if b & 6 == 2 {
+                s.push_str(&format!("# note{sep} row {i}{end}"));
+                line += 1;
+            }
+            if b & 6 == 4 {
+                s.push_str(end);
+                line += 1;
+            }
+            let pad = if b & 8 == 0 { "" } else { " " };
+            // One spelling per sample: quoted (holding the delimiter) or plain.
+            let name = if style[i % style.len()] & 16 == 0 {
+                format!("s{i}")
+            } else {
+                format!("\"s{sep} {i}\"")
+            };
+            let v = values[(i * m + j) % values.len()];
+            let fields = [
+                name,
+                "1".to_string(),
+                format!("{}", j + 2),
+                format!("{v:?}"),
+                format!("{:e}", v * 0.5),
+            ];
+            // Spaces around fields, but not outside quotes (RFC 4180 opens a quoted field
+            // with its first character only; fdtemp is laxer there).
+            let fields: Vec<String> = fields
+                .iter()
+                .map(|f| {
+                    if f.starts_with('"') {
+                        f.clone()
+                    } else {
+                        format!("{pad}{f}{pad}")
+                    }
+                })
+                .collect();
+            s.push_str(&fields.join(&sep));
+            s.push_str(end);
+            line += 1;
+            rows.push(line);
+        }
+    }
+    (s, d, rows)
+}
+
+/// The (sample, tw, t) → (corr, resp) map of a campaign.
+fn table_of(c: &Campaign) -> Vec<(String, u64, u64, u64, u64)> {
+    let mut out = Vec::new();
+    for (i, id) in c.sample_ids().iter().enumerate() {
+        for (j, g) in c.points().iter().enumerate() {
+            out.push((
+                id.clone(),
+                g.tw.to_bits(),
+                g.t.to_bits(),
+                c.corr()[[i, j]].to_bits(),
+                c.resp()[[i, j]].to_bits(),
+            ));
+        }
+    }
+    out.sort();
+    out
+}
+
+fn delimiter_of(d: u8) -> fdtemp::input::Delimiter {
+    match d {
+        b',' => fdtemp::input::Delimiter::Comma,
+        b';' => fdtemp::input::Delimiter::Semicolon,
+        _ => fdtemp::input::Delimiter::Tab,
+    }
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig::with_cases(64))]
+
+    /// fdtemp's own table reader reads what a general-purpose CSV parser reads.
+    /// Source: the `csv` crate (a general-purpose reference library), with comment lines,
+    /// trimming and flexible widths switched on as fdtemp documents its format.
+    #[test]
+    fn the_table_reader_agrees_with_the_csv_crate(
+        style in prop::collection::vec(any::<u8>(), 3..40),
+        values in prop::collection::vec(-1e3f64..1e3, 1..20),
+        n in 2usize..6, m in 1usize..6,
+    ) {
+        let (text, d, _) = decorated(&style, &values, n, m);
+        let how = fdtemp::input::CampaignRead { delimiter: delimiter_of(d), ..Default::default() };
+        let ours = fdtemp::input::tidy::parse_campaign_with(text.as_bytes(), std::path::Path::new("t.csv"), &how).unwrap();
+        let plain = text.trim_start_matches('\u{feff}');
+        let mut rdr = csv::ReaderBuilder::new().has_headers(false).flexible(true).comment(Some(b'#'))
+            .trim(csv::Trim::All).delimiter(d).from_reader(plain.as_bytes());
+        let mut want = Vec::new();
+        for rec in rdr.records().skip(1) {
+            let rec = rec.unwrap();
+            if rec.len() == 1 && rec[0].is_empty() { continue; }
+            let num = |i: usize| rec[i].parse::<f64>().unwrap().to_bits();
+            want.push((rec[0].to_string(), num(1), num(2), num(3), num(4)));
+        }
+        want.sort();
+        prop_assert_eq!(table_of(&ours.campaign), want);
+    }
+
+    /// A bad number is reported at its own line and column whatever precedes it.
+    /// Source: common practice (file:line:column errors).
+    #[test]
+    fn a_bad_number_is_named_at_its_line(
+        style in prop::collection::vec(any::<u8>(), 3..40),
+        n in 2usize..6, m in 1usize..6, which in any::<prop::sample::Index>(),
+    ) {
+        let (text, d, rows) = decorated(&style, &[0.5], n, m);
+        let at = which.index(rows.len());
+        // Break the corr field of the chosen row: it is the only "0.5" on that line.
+        let mut lines: Vec<&str> = text.split_inclusive('\n').collect();
+        let broken = lines[rows[at] as usize - 1].replacen("0.5", "0.5x", 1);
+        lines[rows[at] as usize - 1] = &broken;
+        let text = lines.concat();
+        let how = fdtemp::input::CampaignRead { delimiter: delimiter_of(d), ..Default::default() };
+        let e = fdtemp::input::tidy::parse_campaign_with(text.as_bytes(), std::path::Path::new("t.csv"), &how).unwrap_err();
+        let want = format!("t.csv:{}:4:", rows[at]);
+        prop_assert!(e.to_string().starts_with(&want), "{} vs {}", e, want);
+    }
+}

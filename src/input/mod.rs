@@ -1,5 +1,6 @@
 //! Readers: turn files into validated data structures, with file:line:column errors.
 
+pub(crate) mod lines;
 pub mod npy;
 pub mod tidy;
 
@@ -273,13 +274,17 @@ pub(crate) fn limited<R: std::io::Read>(inner: R) -> std::io::BufReader<LineLimi
 
 /// Opens a file for reading, naming it in the error; lines are limited to 1 MiB.
 pub(crate) fn open(path: &Path) -> Result<std::io::BufReader<LineLimit<std::fs::File>>> {
-    std::fs::File::open(path)
-        .map(limited)
-        .map_err(|source| Error::Io {
-            path: path.to_path_buf(),
-            action: "cannot read",
-            source,
-        })
+    open_file(path).map(limited)
+}
+
+/// Opens a file for reading as it is, naming it in the error (for [`lines::Blocks`],
+/// which limits lines itself).
+pub(crate) fn open_file(path: &Path) -> Result<std::fs::File> {
+    std::fs::File::open(path).map_err(|source| Error::Io {
+        path: path.to_path_buf(),
+        action: "cannot read",
+        source,
+    })
 }
 
 /// Maps a read error, naming the line when a line was too long.
@@ -378,8 +383,16 @@ impl Header {
     /// Reads the header from its record.
     pub fn new(file: &Path, rec: &csv::StringRecord) -> Result<Self> {
         let line = rec.position().map_or(1, |p| p.line());
-        let fields: Vec<String> = rec
-            .iter()
+        Header::from_fields(file, rec.iter(), line)
+    }
+
+    /// Reads the header from its fields, found on `line`.
+    pub fn from_fields<'a>(
+        file: &Path,
+        fields: impl Iterator<Item = &'a str>,
+        line: u64,
+    ) -> Result<Self> {
+        let fields: Vec<String> = fields
             .enumerate()
             .map(|(i, h)| {
                 if i == 0 {
@@ -465,21 +478,26 @@ impl Header {
 
     /// An error for a data line whose field count differs from the header's.
     pub fn check_width(&self, file: &Path, rec: &csv::StringRecord) -> Result<()> {
-        if rec.len() == self.fields.len() {
+        self.check_count(file, rec.len(), line_of(rec))
+    }
+
+    /// As [`Header::check_width`], for a line of `len` fields.
+    pub fn check_count(&self, file: &Path, len: usize, line: u64) -> Result<()> {
+        if len == self.fields.len() {
             return Ok(());
         }
-        let hint = if self.delimiter == Delimiter::Comma && rec.len() > self.fields.len() {
+        let hint = if self.delimiter == Delimiter::Comma && len > self.fields.len() {
             format!(" (a stray delimiter, or {DECIMAL_COMMA_HINT})")
         } else {
             " (a cut-off line or a stray delimiter?)".to_string()
         };
         Err(Error::input(
             file,
-            Some(line_of(rec)),
+            Some(line),
             None,
             format!(
                 "the line has {} fields, expected {} as in the header{hint}",
-                rec.len(),
+                len,
                 self.fields.len()
             ),
         ))

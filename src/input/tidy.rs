@@ -5,10 +5,13 @@
 //! lines starting with `#` are comments; a UTF-8 byte-order mark and Windows line ends
 //! are accepted.
 
-use super::Header;
+use super::lines::{self, Blocks, Part};
+use super::{Delimiter, Header, MAX_LINE};
 use crate::error::{Error, Result};
 use crate::twotime::campaign::{Campaign, GridPoint};
 use ndarray::Array2;
+use rayon::prelude::*;
+use std::borrow::Cow;
 use std::collections::HashMap;
 use std::io::Read;
 use std::path::Path;
@@ -85,7 +88,7 @@ impl ColumnNames {
 /// `(sample, tw, t)`, a sample missing points that others have, `t <= tw`, fewer than
 /// two samples).
 pub fn read_campaign(path: &Path, names: &ColumnNames) -> Result<Campaign> {
-    parse_campaign(super::open(path)?, path, names)
+    parse_campaign(super::open_file(path)?, path, names)
 }
 
 /// How a campaign file is read: column names, delimiter, and what to do with samples that
@@ -139,7 +142,7 @@ pub fn read_campaign_with(path: &Path, how: &CampaignRead) -> Result<ReadCampaig
              expected a .npz archive (numpy.savez) or a text table",
         ));
     }
-    parse_campaign_with(super::open(path)?, path, how)
+    parse_campaign_with(super::open_file(path)?, path, how)
 }
 
 struct Row {
@@ -186,6 +189,10 @@ pub fn parse_campaign<R: Read>(reader: R, file: &Path, names: &ColumnNames) -> R
 /// As [`read_campaign_with`] for a text table, from any reader; `file` is used in error
 /// messages only.
 ///
+/// The text is read in blocks of whole lines; the lines of a block are split and parsed
+/// on all threads, then taken in file order, so the first error in the file is the one
+/// reported.
+///
 /// # Errors
 /// As [`read_campaign_with`].
 pub fn parse_campaign_with<R: Read>(
@@ -193,14 +200,44 @@ pub fn parse_campaign_with<R: Read>(
     file: &Path,
     how: &CampaignRead,
 ) -> Result<ReadCampaign> {
-    let names = &how.names;
-    let mut rdr = super::csv_reader_in(reader, how.delimiter);
-    // One record buffer for every row: campaigns can have millions of rows.
-    let mut rec = csv::StringRecord::new();
-    let has_header = rdr
-        .read_record(&mut rec)
-        .map_err(|e| super::csv_error(file, e))?;
-    if !has_header {
+    parse_in_blocks(reader, file, how, lines::BLOCK)
+}
+
+/// [`parse_campaign_with`], reading `block` bytes at a time.
+fn parse_in_blocks<R: Read>(
+    reader: R,
+    file: &Path,
+    how: &CampaignRead,
+    block: usize,
+) -> Result<ReadCampaign> {
+    let (names, d) = (&how.names, how.delimiter);
+    let mut blocks = Blocks::new(reader, file, block);
+    // Parts of at most about 1 MiB (a part that short needs no check for long lines),
+    // several per thread for balance.
+    let per_block = (4 * rayon::current_num_threads()).max(block.div_ceil(MAX_LINE / 2));
+    let mut head: Option<(Header, Columns)> = None;
+    let mut rows = Rows::default();
+    while let Some(parts) = blocks.next(per_block)? {
+        // Lines to pass over in each part: those up to and including the header.
+        let mut skip = vec![0; parts.len()];
+        if head.is_none() {
+            head = find_header(&parts, &mut skip, file, how)?;
+        }
+        let Some((header, cols)) = &head else {
+            continue;
+        };
+        let parsed: Vec<Result<Vec<Parsed>>> = parts
+            .par_iter()
+            .zip(&skip)
+            .map(|(part, &skip)| parse_part(part, skip, header, cols, names, d))
+            .collect();
+        for part in parsed {
+            for row in part? {
+                rows.push(row);
+            }
+        }
+    }
+    if head.is_none() {
         return Err(Error::input(
             file,
             None,
@@ -211,95 +248,173 @@ pub fn parse_campaign_with<R: Read>(
             ),
         ));
     }
-    let header = Header::new(file, &rec)?.with_delimiter(how.delimiter);
-    let idx = header.require(file, &names.required())?;
-    let cols = Columns {
-        sample: idx[0],
-        tw: idx[1],
-        t: idx[2],
-        corr: idx[3],
-        resp: idx[4],
-        corr_eq: header.find(&names.corr_eq),
-    };
-    let mut rows = Rows::default();
-    while rdr
-        .read_record(&mut rec)
-        .map_err(|e| super::csv_error(file, e))?
-    {
-        if super::is_blank(&rec) {
+    rows.into_campaign(
+        file,
+        head.is_some_and(|h| h.1.corr_eq.is_some()),
+        how.drop_incomplete,
+    )
+}
+
+/// The header among the first lines of `parts`, if it is there; `skip` gets the number of
+/// lines each part has up to and including it.
+fn find_header(
+    parts: &[Part<'_>],
+    skip: &mut [usize],
+    file: &Path,
+    how: &CampaignRead,
+) -> Result<Option<(Header, Columns)>> {
+    let (names, d) = (&how.names, how.delimiter);
+    let mut fields = Vec::new();
+    for (k, part) in parts.iter().enumerate() {
+        let (lines, bad) = part.lines();
+        for (j, line) in lines.enumerate() {
+            if lines::skipped(line.text, d) {
+                continue;
+            }
+            lines::split(line.text, d, &mut fields)
+                .map_err(|m| Error::input(file, Some(line.number), None, m))?;
+            let header = Header::from_fields(file, fields.iter().map(AsRef::as_ref), line.number)?
+                .with_delimiter(d);
+            let idx = header.require(file, &names.required())?;
+            let cols = Columns {
+                sample: idx[0],
+                tw: idx[1],
+                t: idx[2],
+                corr: idx[3],
+                resp: idx[4],
+                corr_eq: header.find(&names.corr_eq),
+            };
+            skip[k] = j + 1;
+            return Ok(Some((header, cols)));
+        }
+        if let Some(e) = bad {
+            return Err(e);
+        }
+        skip[k] = usize::MAX;
+    }
+    Ok(None)
+}
+
+/// One data row as parsed, before its sample and point are numbered.
+struct Parsed<'a> {
+    sample: Cow<'a, str>,
+    tw: f64,
+    t: f64,
+    corr: f64,
+    resp: f64,
+    corr_eq: Option<f64>,
+    line: u64,
+}
+
+/// The data rows of one part, or the first error among them.
+fn parse_part<'a>(
+    part: &Part<'a>,
+    skip: usize,
+    header: &Header,
+    cols: &Columns,
+    names: &ColumnNames,
+    d: Delimiter,
+) -> Result<Vec<Parsed<'a>>> {
+    let file = part.file();
+    let (lines, bad) = part.lines();
+    let mut out = Vec::new();
+    let mut fields = Vec::new();
+    for line in lines.skip(skip) {
+        if lines::skipped(line.text, d) {
             continue;
         }
-        header.check_width(file, &rec)?;
-        rows.read(&rec, &cols, file, names, how.delimiter)?;
+        lines::split(line.text, d, &mut fields)
+            .map_err(|m| Error::input(file, Some(line.number), None, m))?;
+        header.check_count(file, fields.len(), line.number)?;
+        out.push(parse_row(&fields, cols, names, d, line.number, file)?);
     }
-    rows.into_campaign(file, cols.corr_eq.is_some(), how.drop_incomplete)
+    match bad {
+        Some(e) => Err(e),
+        None => Ok(out),
+    }
+}
+
+/// Parses and checks one data row.
+fn parse_row<'a>(
+    fields: &[Cow<'a, str>],
+    cols: &Columns,
+    names: &ColumnNames,
+    d: Delimiter,
+    line: u64,
+    file: &Path,
+) -> Result<Parsed<'a>> {
+    let err = |col: usize, msg: String| Error::input(file, Some(line), Some(col as u64 + 1), msg);
+    let num = |i: usize, name: &str| {
+        crate::input::parse_number_in(&fields[i], name, d).map_err(|m| err(i, m))
+    };
+    let sample = &fields[cols.sample];
+    if sample.is_empty() {
+        return Err(err(
+            cols.sample,
+            format!("column '{}' is empty, expected a sample name", names.sample),
+        ));
+    }
+    let tw = num(cols.tw, &names.tw)?;
+    let t = num(cols.t, &names.t)?;
+    if !(t > tw) {
+        return Err(err(
+            cols.t,
+            format!(
+                "{} = {t} is not later than {} = {tw}; expected t > tw",
+                names.t, names.tw
+            ),
+        ));
+    }
+    let corr = num(cols.corr, &names.corr)?;
+    let resp = num(cols.resp, &names.resp)?;
+    let corr_eq = match cols.corr_eq {
+        Some(i) => {
+            let v = num(i, &names.corr_eq)?;
+            if v <= 0.0 {
+                return Err(err(
+                    i,
+                    format!(
+                        "column '{}' is {v}, expected a positive number (it normalizes C and chi)",
+                        names.corr_eq
+                    ),
+                ));
+            }
+            Some(v)
+        }
+        None => None,
+    };
+    Ok(Parsed {
+        sample: sample.clone(),
+        tw,
+        t,
+        corr,
+        resp,
+        corr_eq,
+        line,
+    })
 }
 
 impl Rows {
-    /// Reads one data row.
-    fn read(
-        &mut self,
-        rec: &csv::StringRecord,
-        cols: &Columns,
-        file: &Path,
-        names: &ColumnNames,
-        delimiter: super::Delimiter,
-    ) -> Result<()> {
-        let line = super::line_of(rec);
-        let err =
-            |col: usize, msg: String| Error::input(file, Some(line), Some(col as u64 + 1), msg);
-        let num = |i: usize, name: &str| {
-            crate::input::parse_number_in(&rec[i], name, delimiter).map_err(|m| err(i, m))
-        };
-        let sample = &rec[cols.sample];
-        if sample.is_empty() {
-            return Err(err(
-                cols.sample,
-                format!("column '{}' is empty, expected a sample name", names.sample),
-            ));
-        }
-        let tw = num(cols.tw, &names.tw)?;
-        let t = num(cols.t, &names.t)?;
-        if !(t > tw) {
-            return Err(err(
-                cols.t,
-                format!(
-                    "{} = {t} is not later than {} = {tw}; expected t > tw",
-                    names.t, names.tw
-                ),
-            ));
-        }
-        let corr = num(cols.corr, &names.corr)?;
-        let resp = num(cols.resp, &names.resp)?;
-        let corr_eq = match cols.corr_eq {
-            Some(i) => {
-                let v = num(i, &names.corr_eq)?;
-                if v <= 0.0 {
-                    return Err(err(
-                        i,
-                        format!(
-                            "column '{}' is {v}, expected a positive number (it normalizes C and chi)",
-                            names.corr_eq
-                        ),
-                    ));
-                }
-                Some(v)
-            }
-            None => None,
-        };
+    /// Numbers the sample and point of a parsed row and keeps it.
+    fn push(&mut self, p: Parsed<'_>) {
         let row = Row {
-            sample: self.sample_of(sample),
-            point: self.point_of(tw, t),
-            corr,
-            resp,
-            corr_eq,
-            line,
+            sample: self.sample_of(&p.sample),
+            point: self.point_of(p.tw, p.t),
+            corr: p.corr,
+            resp: p.resp,
+            corr_eq: p.corr_eq,
+            line: p.line,
         };
         self.rows.push(row);
-        Ok(())
     }
 
     fn sample_of(&mut self, sample: &str) -> usize {
+        // Rows of one sample usually come together.
+        if let Some(r) = self.rows.last()
+            && self.sample_ids[r.sample] == sample
+        {
+            return r.sample;
+        }
         if let Some(&s) = self.sample_index.get(sample) {
             return s;
         }
@@ -311,6 +426,18 @@ impl Rows {
 
     fn point_of(&mut self, tw: f64, t: f64) -> usize {
         let key = (normalize_zero(tw).to_bits(), normalize_zero(t).to_bits());
+        // Samples usually list their points in one order: try the one after the last.
+        if let Some(r) = self.rows.last() {
+            let next = (r.point + 1) % self.points.len();
+            let g = self.points[next];
+            if (
+                normalize_zero(g.tw).to_bits(),
+                normalize_zero(g.t).to_bits(),
+            ) == key
+            {
+                return next;
+            }
+        }
         let points = &mut self.points;
         *self.point_index.entry(key).or_insert_with(|| {
             points.push(GridPoint { tw, t });
@@ -473,4 +600,46 @@ pub fn write_campaign(campaign: &Campaign) -> Vec<u8> {
         }
     }
     s.into_bytes()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn read(text: &str, block: usize) -> std::result::Result<Campaign, String> {
+        parse_in_blocks(
+            text.as_bytes(),
+            Path::new("t.csv"),
+            &CampaignRead::default(),
+            block,
+        )
+        .map(|r| r.campaign)
+        .map_err(|e| e.to_string())
+    }
+
+    #[test]
+    fn small_blocks_read_what_one_block_reads() {
+        let good = "\u{feff}# made by hand\r\nsample,tw,t,corr,resp\r\n\r\n\
+                    a,1,2,0.9,0.1\r\n\"b\",1,2,0.8,0.2\n# between\n a , 1 , 3 , 0.7 , 0.3\n\
+                    b,1,3,0.6,0.4";
+        let bad_number = "sample,tw,t,corr,resp\na,1,2,0.9,0.1\nb,1,2,x,0.2\na,1,3,0.7,0.3\n";
+        let bad_width = "# c\nsample,tw,t,corr,resp\na,1,2,0.9,0.1\nb,1,2,0.8\n";
+        let open_quote = "sample,tw,t,corr,resp\na,1,2,0.9,0.1\n\"b,1,2,0.8,0.2\n";
+        let one = read(good, lines::BLOCK).unwrap();
+        assert_eq!(one.sample_ids(), ["a", "b"]);
+        assert_eq!(one.corr()[[1, 1]].to_bits(), 0.6f64.to_bits());
+        for block in [1, 5, 17, 64] {
+            let c = read(good, block).unwrap();
+            assert_eq!(c.corr(), one.corr(), "block {block}");
+            assert_eq!(c.resp(), one.resp(), "block {block}");
+            for (text, at) in [
+                (bad_number, "t.csv:3:4"),
+                (bad_width, "t.csv:4"),
+                (open_quote, "t.csv:3"),
+            ] {
+                let e = read(text, block).unwrap_err();
+                assert!(e.contains(at), "block {block}: {e}");
+            }
+        }
+    }
 }
