@@ -1,19 +1,24 @@
 #!/usr/bin/env python3
-"""Side-by-side timings of fdtemp and the numpy references (issue workloads W1–W3).
+"""Side-by-side timings of fdtemp and the Python references (issue workloads W1–W3).
 
-    pip install numpy scipy pandas        # the references need these; fdtemp does not
+    pip install polars numpy scipy pandas   # the references need these; fdtemp does not
     python3 benches/compare.py [--work DIR] [--only W3]
+    FDTEMP_BIN=/path/to/target/release/fdtemp python3 benches/compare.py   # a built binary
 
-W1: fit, 1000 samples x 1200 points (12 waiting times x 100 times), B = 10,000, BCa.
-W3: the same with 100 samples and B = 2,000 (the everyday case).
+W1: fit, 1000 samples x 1200 points (12 waiting times x 100 times), B = 2,000,
+    percentile intervals.
+W3: 100 samples on the same grid, B = 2,000, BCa (the everyday case).
 W2: noise on a 10^8-sample text record (generated here, ~1.4 GB), 2^16-point segments,
     against the time to read and parse the same file's numbers alone.
 
-Times are whole processes (reading the CSV included), median of 3 runs for fdtemp and
-the vectorized reference. The straightforward reference is too slow to run whole at these
-sizes: its resample cost is timed on a few resamples and its jackknife on a few
-leave-one-out fits, then scaled linearly (stated in the output). Before timing, the
-estimates of X and q of all three are compared on each file.
+Times are whole processes (reading the CSV included), median of 3 runs for fdtemp, the
+careful reference (polars, BLAS, batched prefix sums) and the vectorized one. The
+straightforward reference is too slow to run whole at these sizes: its resample cost is
+timed on a few resamples and its jackknife on a few leave-one-out fits, then scaled
+linearly (stated in the output). Floors: the careful reference's own timings of reading
+the CSV alone with polars and of one B x n by n x columns product on numpy's BLAS; and
+fdtemp's (examples/product_floor). Before timing, the estimates of X and q are compared.
+With FDTEMP_BIN set, nothing is built and the floor examples are looked for beside it.
 """
 import argparse
 import json
@@ -24,8 +29,9 @@ import sys
 import time
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
-BIN = os.path.join(ROOT, "target", "release", "fdtemp")
-FLOOR = os.path.join(ROOT, "target", "release", "examples", "product_floor")
+BIN = os.environ.get("FDTEMP_BIN", os.path.join(ROOT, "target", "release", "fdtemp"))
+EXAMPLES = os.path.join(os.path.dirname(BIN), "examples")
+FLOOR = os.path.join(EXAMPLES, "product_floor")
 REF = os.path.join(ROOT, "benches", "reference")
 
 
@@ -44,39 +50,60 @@ def median_time(cmd, n=3):
     return statistics.median(run(cmd)[0] for _ in range(n))
 
 
-def fdtemp_fit(path, b, json_out):
-    return [BIN, "fit", path, "-T", "0.6", "-B", str(b), "--json", json_out, "--overwrite"]
+def fdtemp_fit(path, b, interval, json_out):
+    return [BIN, "fit", path, "-T", "0.6", "-B", str(b), "--interval", interval, "--json", json_out, "--overwrite"]
 
 
-def workload(name, path, b, work):
-    print(f"\n== {name}: {os.path.basename(path)}, B = {b}")
+def reference(name, path, b, interval, *extra):
+    return [sys.executable, os.path.join(REF, name), path, "--resamples", str(b), "--interval", interval, *extra]
+
+
+def timed_reference(cmd, n=3):
+    """Median whole-process time of n runs and the last run's output."""
+    runs = [run(cmd) for _ in range(n)]
+    return statistics.median(t for t, _ in runs), json.loads(runs[-1][1])
+
+
+def worst(fd, ref, key, field):
+    """The largest relative difference of one estimate between fdtemp and a reference."""
+    pairs = [(a[key]["estimate"], c[field]) for a, c in zip(fd, ref["fits"]) if a[key]["estimate"] is not None]
+    return max(abs(u - v) / abs(u) for u, v in pairs)
+
+
+def workload(name, path, b, interval, work):
+    print(f"\n== {name}: {os.path.basename(path)}, B = {b}, {interval} intervals")
     out = os.path.join(work, f"{name}.json")
-    t_fd = median_time(fdtemp_fit(path, b, out))
-    rss = peak_rss(fdtemp_fit(path, b, out))
+    t_fd = median_time(fdtemp_fit(path, b, interval, out))
+    rss = peak_rss(fdtemp_fit(path, b, interval, out))
     fd = json.load(open(out))["fits"]
-    t_vec_runs = []
-    for _ in range(3):
-        t, text = run([sys.executable, os.path.join(REF, "vectorized.py"), path, "--resamples", str(b)])
-        t_vec_runs.append(t)
-    vec = json.loads(text)
-    t_vec = statistics.median(t_vec_runs)
+    t_car, _ = timed_reference(reference("careful.py", path, b, interval, "--skip-floors"))
+    _, car = run(reference("careful.py", path, b, interval))
+    car = json.loads(car)
+    t_vec, vec = timed_reference(reference("vectorized.py", path, b, interval))
     small_b = 4
-    _, text = run([sys.executable, os.path.join(REF, "straightforward.py"), path, "--resamples", str(small_b),
-                   "--jackknife-limit", "5"])
-    st = json.loads(text)
+    _, st = timed_reference(reference("straightforward.py", path, small_b, interval, "--jackknife-limit", "5"), n=1)
     p = st["parts"]
-    t_st = p["read"] + p["resamples"] / small_b * b + p["jackknife"] / p["jackknife_fits"] * p["samples"]
-    _, text = run([FLOOR, path, str(b)])
-    floor = json.loads(text)
-    agree = max(abs(a["x"]["estimate"] - c["ratio"]) for a, c in zip(fd, vec["fits"]))
-    agree_q = max(abs(a["break"]["estimate"] - c["break"]) for a, c in zip(fd, vec["fits"]) if a["break"]["estimate"] is not None)
-    agree_st = max(abs(a["x"]["estimate"] - c["ratio"]) for a, c in zip(fd, st["fits"]))
-    print(f"estimates agree: |X_fdtemp - X_vectorized| <= {agree:.1e}, |q| <= {agree_q:.1e}, |X - X_straightforward| <= {agree_st:.1e}")
+    t_st = p["read"] + p["resamples"] / small_b * b
+    if p["jackknife_fits"]:
+        t_st += p["jackknife"] / p["jackknife_fits"] * p["samples"]
+    agree = {r["reference"]: (worst(fd, r, "x", "ratio"), worst(fd, r, "break", "break")) for r in (car, vec, st)}
+    print("estimates agree with fdtemp (largest relative difference over the joint and per-tw fits):")
+    for label, (dx, dq) in agree.items():
+        print(f"    {label:16s} X {dx:.1e}   q {dq:.1e}")
+    fl = car["floors"]
+    t_floor = fl["polars_read_seconds"] + fl["numpy_product_seconds"]
     print(f"fdtemp                   {t_fd:9.2f} s   peak RSS {rss:7.0f} MiB")
+    print(f"careful numpy            {t_car:9.2f} s   fdtemp / careful = {t_fd / t_car:.3f}")
     print(f"vectorized numpy         {t_vec:9.2f} s   ratio {t_vec / t_fd:7.1f}x")
-    print(f"straightforward numpy    {t_st:9.0f} s   ratio {t_st / t_fd:7.0f}x   (scaled from {small_b} resamples and 5 leave-one-out fits)")
-    print(f"floor: resampling product {floor['product_seconds']:.2f} s + reading {floor['read_seconds']:.2f} s;"
-          f" fdtemp / (product + read) = {t_fd / (floor['product_seconds'] + floor['read_seconds']):.2f}")
+    print(f"straightforward numpy    {t_st:9.0f} s   ratio {t_st / t_fd:7.0f}x   (scaled from {small_b} resamples"
+          f"{' and 5 leave-one-out fits' if p['jackknife_fits'] else ''})")
+    print(f"python floor: polars read {fl['polars_read_seconds']:.2f} s + numpy product {fl['numpy_product_seconds']:.2f} s;"
+          f" fdtemp / (read + product) = {t_fd / t_floor:.2f}")
+    if os.path.exists(FLOOR):
+        _, text = run([FLOOR, path, str(b)])
+        floor = json.loads(text)
+        print(f"fdtemp floor: resampling product {floor['product_seconds']:.2f} s + reading {floor['read_seconds']:.2f} s;"
+              f" fdtemp / (product + read) = {t_fd / (floor['product_seconds'] + floor['read_seconds']):.2f}")
 
 
 def w2(work):
@@ -95,7 +122,7 @@ def w2(work):
     cmd = [BIN, "noise", path, "--sample-rate", "1e4", "--segment", "65536", "--resistance", "1000", "-T", "300"]
     t = median_time(cmd)
     rss = peak_rss(cmd)
-    read_floor = os.path.join(ROOT, "target", "release", "examples", "read_floor")
+    read_floor = os.path.join(EXAMPLES, "read_floor")
     t_read = median_time([read_floor, path])
     t_cat = median_time(["cat", path])
     print(f"fdtemp noise             {t:9.2f} s   peak RSS {rss:7.0f} MiB")
@@ -108,16 +135,17 @@ def main():
     ap.add_argument("--only", choices=["W1", "W2", "W3"])
     a = ap.parse_args()
     os.makedirs(a.work, exist_ok=True)
-    subprocess.run(["cargo", "build", "--release", "--examples"], cwd=ROOT, check=True)
+    if "FDTEMP_BIN" not in os.environ:
+        subprocess.run(["cargo", "build", "--release", "--examples"], cwd=ROOT, check=True)
     w1 = os.path.join(a.work, "w1.csv")
     w3 = os.path.join(a.work, "w3.csv")
     for path, n in [(w1, 1000), (w3, 100)]:
         if not os.path.exists(path):
             run([BIN, "synth", "two-lines", "--samples", str(n), "--out", path])
     if a.only in (None, "W3"):
-        workload("W3", w3, 2000, a.work)
+        workload("W3", w3, 2000, "bca", a.work)
     if a.only in (None, "W1"):
-        workload("W1", w1, 10000, a.work)
+        workload("W1", w1, 2000, "percentile", a.work)
     if a.only in (None, "W2"):
         w2(a.work)
 

@@ -4,24 +4,24 @@ The estimator (what `fdtemp fit FILE -T T` computes by default): parametric poin
 x = mean C, y = k T mean chi per (tw, t); weights 1 / var(x + y) from the sample spread;
 broken stick z = y + x = c0 - (1 - X) max(q - x, 0) fitted by weighted least squares with
 the break q free, jointly and per waiting time; B bootstrap resamples of whole samples;
-BCa intervals for X (jackknife acceleration); the equilibrium p-value from the resamples
-moved onto the no-break model.
+BCa intervals for X (jackknife acceleration; --interval percentile skips the jackknife);
+the equilibrium p-value from the resamples moved onto the no-break model.
 
-Needs: python3 with numpy, scipy and pandas (pip install numpy scipy pandas).
+Needs: python3 with numpy and pandas (pip install numpy scipy pandas; scipy for straightforward.py).
 """
 import json
 import sys
 import time
+from statistics import NormalDist
 
 import numpy as np
-import pandas as pd
-from scipy.stats import norm
 
 MIN_BRANCH = 5
 
 
 def read_campaign(path):
     """Pandas read; returns the grid (tw per point) and samples x points arrays."""
+    import pandas as pd
     df = pd.read_csv(path, comment="#")
     df = df.sort_values(["sample", "tw", "t"])
     corr = df.pivot_table(index="sample", columns=["tw", "t"], values="corr").to_numpy()
@@ -50,22 +50,23 @@ def groups(tw):
 
 
 def bca(estimate, reps, jack, level=0.95):
+    norm = NormalDist()  # the standard library's: importing scipy.stats costs ~1 s
     reps = np.sort(reps[np.isfinite(reps)])
     frac = np.mean(reps < estimate)
     a_lo, a_hi = (1 - level) / 2, (1 + level) / 2
     if frac <= 0 or frac >= 1:
         return float(np.quantile(reps, a_lo)), float(np.quantile(reps, a_hi))
-    z0 = norm.ppf(frac)
+    z0 = norm.inv_cdf(frac)
     d = jack.mean() - jack
     acc = (d ** 3).sum() / (6 * ((d ** 2).sum()) ** 1.5) if (d ** 2).sum() > 0 else 0.0
     def adj(p):
-        z = norm.ppf(p)
+        z = norm.inv_cdf(p)
         return norm.cdf(z0 + (z0 + z) / (1 - acc * (z0 + z)))
     return float(np.quantile(reps, adj(a_lo))), float(np.quantile(reps, adj(a_hi)))
 
 
-def main(fit_all, label):
-    """fit_all(x_rows, z_rows, w, idx) -> (X, q, sse_null - sse) arrays over rows."""
+def arguments():
+    """The command line shared by the references (careful.py adds to it)."""
     import argparse
     ap = argparse.ArgumentParser()
     ap.add_argument("file")
@@ -75,7 +76,18 @@ def main(fit_all, label):
     ap.add_argument("--chunk", type=int, default=256)
     ap.add_argument("--jackknife-limit", type=int, default=0,
                     help="time only this many leave-one-out fits (0: all); for extrapolation")
-    args = ap.parse_args()
+    ap.add_argument("--interval", choices=["bca", "percentile"], default="bca")
+    return ap
+
+
+def percentile(reps, level=0.95):
+    reps = reps[np.isfinite(reps)]
+    return tuple(float(v) for v in np.quantile(reps, [(1 - level) / 2, (1 + level) / 2]))
+
+
+def main(fit_all, label):
+    """fit_all(x_rows, z_rows, w, idx) -> (X, q, sse_null - sse) arrays over rows."""
+    args = arguments().parse_args()
     t0 = time.perf_counter()
     tw, corr, resp = read_campaign(args.file)
     t_read = time.perf_counter() - t0
@@ -113,16 +125,19 @@ def main(fit_all, label):
         done += b
     t_resample = time.perf_counter() - t1
     loo = (mean[None, :] * n - data) / (n - 1)
-    if args.jackknife_limit:
+    if args.interval == "percentile":
+        loo = loo[:0]
+    elif args.jackknife_limit:
         loo = loo[: args.jackknife_limit]
     t2 = time.perf_counter()
-    jacks = [fit_all(loo[:, idx], loo[:, idx] + loo[:, p + idx], w[idx], None)[0] for idx in gs]
+    jacks = [fit_all(loo[:, idx], loo[:, idx] + loo[:, p + idx], w[idx], None)[0] if len(loo) else None
+             for idx in gs]
     t_jack = time.perf_counter() - t2
     for g, idx in enumerate(gs):
         X0, q0, d0 = (v[0] for v in est[g])
         xr = np.concatenate(reps[g])
         dn = np.concatenate(nulls[g])
-        lo, hi = bca(X0, xr, jacks[g])
+        lo, hi = percentile(xr) if args.interval == "percentile" else bca(X0, xr, jacks[g])
         pval = (1 + np.sum(dn >= d0)) / (len(dn) + 1)
         results.append({"tw": None if g == 0 else float(tw[idx[0]]), "ratio": X0, "low": lo, "high": hi,
                         "break": q0, "equilibrium_p": float(pval)})
