@@ -66,15 +66,46 @@ impl<'a> Part<'a> {
         } else {
             text
         };
-        let first = self.first_line;
-        let lines = text
-            .split_terminator('\n')
-            .zip(first..)
-            .flat_map(|(l, number)| {
-                let l = l.strip_suffix('\r').unwrap_or(l);
-                l.split('\r').map(move |text| Line { number, text })
-            });
+        let lines = LineIter {
+            text,
+            pos: 0,
+            number: self.first_line,
+        };
         (lines, bad)
+    }
+}
+
+/// The lines of a text, ended by `\n`, `\r\n` or a lone `\r` (which does not count as a
+/// line), in one search per line.
+struct LineIter<'a> {
+    text: &'a str,
+    pos: usize,
+    number: u64,
+}
+
+impl<'a> Iterator for LineIter<'a> {
+    type Item = Line<'a>;
+
+    fn next(&mut self) -> Option<Line<'a>> {
+        let rest = self
+            .text
+            .as_bytes()
+            .get(self.pos..)
+            .filter(|r| !r.is_empty())?;
+        let (end, step, counts) = match memchr::memchr2(b'\n', b'\r', rest) {
+            None => (rest.len(), rest.len(), false),
+            Some(i) if rest[i] == b'\n' => (i, i + 1, true),
+            Some(i) if rest.get(i + 1) == Some(&b'\n') => (i, i + 2, true),
+            Some(i) => (i, i + 1, false),
+        };
+        // The ends found are ASCII bytes, so both cuts are on character boundaries.
+        let line = Line {
+            number: self.number,
+            text: &self.text[self.pos..self.pos + end],
+        };
+        self.pos += step;
+        self.number += u64::from(counts);
+        Some(line)
     }
 }
 
@@ -237,20 +268,16 @@ impl<'f, R: Read> Blocks<'f, R> {
         // Drop the text handed out last time, keep the unfinished line.
         let used = self.buf.len() - self.carry;
         self.buf.drain(..used);
-        let mut filled = self.buf.len();
-        self.buf.resize(self.block.max(2 * filled), 0);
-        while filled < self.buf.len() {
-            match self.reader.read(&mut self.buf[filled..]) {
-                Ok(0) => {
-                    self.done = true;
-                    break;
-                }
-                Ok(k) => filled += k,
-                Err(e) if e.kind() == std::io::ErrorKind::Interrupted => {}
-                Err(e) => return Err(super::read_error(self.file, e)),
-            }
-        }
-        self.buf.truncate(filled);
+        let filled = self.buf.len();
+        // Up to a block more (twice the carry for a long line); the buffer grows only as
+        // far as the file goes, so a small file costs no more than its size.
+        let want = self.block.max(2 * filled) - filled;
+        let got = (&mut self.reader)
+            .take(want as u64)
+            .read_to_end(&mut self.buf)
+            .map_err(|e| super::read_error(self.file, e))?;
+        self.done = got < want;
+        let filled = self.buf.len();
         let end = if self.done {
             filled
         } else {
