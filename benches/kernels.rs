@@ -47,18 +47,43 @@ fn resampling_product(c: &mut Criterion) {
     let camp = w_shape(1000);
     let d = fdtemp::twotime::points::data_matrix(&camp, false);
     let n = camp.n_samples();
-    let mut wm = Array2::<f64>::zeros((64, n));
+    // One chunk of replicates, as the fit makes them (faer's product, 256 rows).
+    let rows = 256;
+    let mut wm = Array2::<f64>::zeros((rows, n));
     let mut counts = vec![0u32; n];
-    for row in 0..64 {
+    for row in 0..rows {
         fdtemp::resample::draw_counts(1, row as u64, n, &mut counts);
         for (i, &k) in counts.iter().enumerate() {
             wm[[row, i]] = f64::from(k) / n as f64;
         }
     }
-    c.bench_function(
-        "resampling product, 64 resamples x 1000 samples x 2400 columns",
-        |b| b.iter(|| black_box(wm.dot(&d))),
+    let label = format!(
+        "resampling product, {rows} resamples x {n} samples x {} columns",
+        d.ncols()
     );
+    c.bench_function(&label, |b| {
+        b.iter(|| black_box(fdtemp::resample::product(&wm, &d)))
+    });
+}
+
+fn reading(c: &mut Criterion) {
+    // The tidy table of W3 (8 MB) parsed from memory: the reader without the disk.
+    let text = fdtemp::input::write_campaign(&w_shape(100));
+    let names = fdtemp::input::ColumnNames::default();
+    let label = format!(
+        "reading the W3 table from memory ({} MB)",
+        text.len() / 1_000_000
+    );
+    c.bench_function(&label, |b| {
+        b.iter(|| {
+            fdtemp::input::tidy::parse_campaign(
+                black_box(text.as_slice()),
+                std::path::Path::new("w3.csv"),
+                &names,
+            )
+            .unwrap()
+        })
+    });
 }
 
 fn whole_fit(c: &mut Criterion) {
@@ -122,6 +147,7 @@ criterion_group!(
     benches,
     break_search,
     resampling_product,
+    reading,
     whole_fit,
     calibrated_fit
 );
