@@ -33,6 +33,11 @@ pub(crate) struct Part<'a> {
 }
 
 impl<'a> Part<'a> {
+    /// Its length in bytes.
+    pub fn len(&self) -> usize {
+        self.text.len()
+    }
+
     /// The file the part is from (for errors).
     pub fn file(&self) -> &'a Path {
         self.file

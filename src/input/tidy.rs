@@ -142,16 +142,9 @@ pub fn read_campaign_with(path: &Path, how: &CampaignRead) -> Result<ReadCampaig
              expected a .npz archive (numpy.savez) or a text table",
         ));
     }
-    parse_campaign_with(super::open_file(path)?, path, how)
-}
-
-struct Row {
-    sample: usize,
-    point: usize,
-    corr: f64,
-    resp: f64,
-    corr_eq: Option<f64>,
-    line: u64,
+    let f = super::open_file(path)?;
+    let size = f.metadata().ok().map(|m| m.len());
+    parse_in_blocks(f, path, how, lines::BLOCK, size)
 }
 
 /// Where each role's column is in the file.
@@ -164,14 +157,21 @@ struct Columns {
     corr_eq: Option<usize>,
 }
 
-/// The rows read so far, with the samples and grid points in order of appearance.
+/// The rows read so far, column by column, with the samples and grid points numbered in
+/// order of appearance.
 #[derive(Default)]
 struct Rows {
-    sample_index: HashMap<String, usize>,
+    sample_index: HashMap<String, u32>,
     sample_ids: Vec<String>,
-    point_index: HashMap<(u64, u64), usize>,
+    point_index: HashMap<(u64, u64), u32>,
     points: Vec<GridPoint>,
-    rows: Vec<Row>,
+    sample: Vec<u32>,
+    point: Vec<u32>,
+    corr: Vec<f64>,
+    resp: Vec<f64>,
+    /// Empty without a `corr_eq` column.
+    corr_eq: Vec<f64>,
+    line: Vec<u64>,
 }
 
 /// Parses a campaign from any reader; `file` is used in error messages only.
@@ -200,15 +200,17 @@ pub fn parse_campaign_with<R: Read>(
     file: &Path,
     how: &CampaignRead,
 ) -> Result<ReadCampaign> {
-    parse_in_blocks(reader, file, how, lines::BLOCK)
+    parse_in_blocks(reader, file, how, lines::BLOCK, None)
 }
 
-/// [`parse_campaign_with`], reading `block` bytes at a time.
+/// [`parse_campaign_with`], reading `block` bytes at a time; `size` (the file's length,
+/// when known) lets the row store be sized once.
 fn parse_in_blocks<R: Read>(
     reader: R,
     file: &Path,
     how: &CampaignRead,
     block: usize,
+    mut size: Option<u64>,
 ) -> Result<ReadCampaign> {
     let (names, d) = (&how.names, how.delimiter);
     let mut blocks = Blocks::new(reader, file, block);
@@ -217,6 +219,8 @@ fn parse_in_blocks<R: Read>(
     let per_block = (4 * rayon::current_num_threads()).max(block.div_ceil(MAX_LINE / 2));
     let mut head: Option<(Header, Columns)> = None;
     let mut rows = Rows::default();
+    // One buffer of values per part, kept from block to block.
+    let mut pool: Vec<Vec<Vals>> = Vec::new();
     while let Some(parts) = blocks.next(per_block)? {
         // Lines to pass over in each part: those up to and including the header.
         let mut skip = vec![0; parts.len()];
@@ -226,15 +230,26 @@ fn parse_in_blocks<R: Read>(
         let Some((header, cols)) = &head else {
             continue;
         };
-        let parsed: Vec<Result<Vec<Parsed>>> = parts
+        pool.resize_with(parts.len(), Vec::new);
+        let runs: Vec<Result<Runs>> = parts
             .par_iter()
             .zip(&skip)
-            .map(|(part, &skip)| parse_part(part, skip, header, cols, names, d))
+            .zip(pool.par_iter_mut())
+            .map(|((part, &skip), vals)| parse_part(part, skip, header, cols, names, d, vals))
             .collect();
-        for part in parsed {
-            for row in part? {
-                rows.push(row);
+        for (runs, vals) in runs.into_iter().zip(&pool) {
+            let mut at = 0;
+            for (name, count) in runs? {
+                let s = rows.sample_of(&name, file)?;
+                for v in &vals[at..at + count] {
+                    rows.push(s, v, cols.corr_eq.is_some(), file)?;
+                }
+                at += count;
             }
+        }
+        if let Some(size) = size.take() {
+            let bytes: usize = parts.iter().map(Part::len).sum();
+            rows.reserve_for(size, bytes);
         }
     }
     if head.is_none() {
@@ -295,18 +310,23 @@ fn find_header(
     Ok(None)
 }
 
-/// One data row as parsed, before its sample and point are numbered.
-struct Parsed<'a> {
-    sample: Cow<'a, str>,
+/// The values of one data row, before its sample and point are numbered.
+#[derive(Debug, Clone, Copy)]
+struct Vals {
     tw: f64,
     t: f64,
     corr: f64,
     resp: f64,
-    corr_eq: Option<f64>,
+    /// NaN without a `corr_eq` column.
+    corr_eq: f64,
     line: u64,
 }
 
-/// The data rows of one part, or the first error among them.
+/// Runs of rows of one sample: its name and the number of rows.
+type Runs<'a> = Vec<(Cow<'a, str>, usize)>;
+
+/// The data rows of one part, their values in `vals` and their samples as runs of one
+/// name with their lengths, or the first error among them.
 fn parse_part<'a>(
     part: &Part<'a>,
     skip: usize,
@@ -314,10 +334,12 @@ fn parse_part<'a>(
     cols: &Columns,
     names: &ColumnNames,
     d: Delimiter,
-) -> Result<Vec<Parsed<'a>>> {
+    vals: &mut Vec<Vals>,
+) -> Result<Runs<'a>> {
     let file = part.file();
     let (lines, bad) = part.lines();
-    let mut out = Vec::new();
+    vals.clear();
+    let mut runs: Runs<'a> = Vec::new();
     let mut fields = Vec::new();
     for line in lines.skip(skip) {
         if lines::skipped(line.text, d) {
@@ -326,23 +348,28 @@ fn parse_part<'a>(
         lines::split(line.text, d, &mut fields)
             .map_err(|m| Error::input(file, Some(line.number), None, m))?;
         header.check_count(file, fields.len(), line.number)?;
-        out.push(parse_row(&fields, cols, names, d, line.number, file)?);
+        vals.push(parse_row(&fields, cols, names, d, line.number, file)?);
+        let sample = &fields[cols.sample];
+        match runs.last_mut() {
+            Some((name, count)) if name == sample => *count += 1,
+            _ => runs.push((sample.clone(), 1)),
+        }
     }
     match bad {
         Some(e) => Err(e),
-        None => Ok(out),
+        None => Ok(runs),
     }
 }
 
 /// Parses and checks one data row.
-fn parse_row<'a>(
-    fields: &[Cow<'a, str>],
+fn parse_row(
+    fields: &[Cow<'_, str>],
     cols: &Columns,
     names: &ColumnNames,
     d: Delimiter,
     line: u64,
     file: &Path,
-) -> Result<Parsed<'a>> {
+) -> Result<Vals> {
     let err = |col: usize, msg: String| Error::input(file, Some(line), Some(col as u64 + 1), msg);
     let num = |i: usize, name: &str| {
         crate::input::parse_number_in(&fields[i], name, d).map_err(|m| err(i, m))
@@ -379,12 +406,11 @@ fn parse_row<'a>(
                     ),
                 ));
             }
-            Some(v)
+            v
         }
-        None => None,
+        None => f64::NAN,
     };
-    Ok(Parsed {
-        sample: sample.clone(),
+    Ok(Vals {
         tw,
         t,
         corr,
@@ -395,61 +421,82 @@ fn parse_row<'a>(
 }
 
 impl Rows {
-    /// Numbers the sample and point of a parsed row and keeps it.
-    fn push(&mut self, p: Parsed<'_>) {
-        let row = Row {
-            sample: self.sample_of(&p.sample),
-            point: self.point_of(p.tw, p.t),
-            corr: p.corr,
-            resp: p.resp,
-            corr_eq: p.corr_eq,
-            line: p.line,
-        };
-        self.rows.push(row);
+    /// Keeps a row of sample `s`, numbering its point.
+    fn push(&mut self, s: u32, v: &Vals, with_eq: bool, file: &Path) -> Result<()> {
+        let p = self.point_of(v.tw, v.t, file)?;
+        self.sample.push(s);
+        self.point.push(p);
+        self.corr.push(v.corr);
+        self.resp.push(v.resp);
+        if with_eq {
+            self.corr_eq.push(v.corr_eq);
+        }
+        self.line.push(v.line);
+        Ok(())
     }
 
-    fn sample_of(&mut self, sample: &str) -> usize {
+    /// Room for all rows of a file of `size` bytes, guessed from the first `bytes`.
+    fn reserve_for(&mut self, size: u64, bytes: usize) {
+        let n = self.line.len();
+        if n == 0 || bytes == 0 {
+            return;
+        }
+        let guess = (n as f64 * size as f64 / bytes as f64 * 1.02) as usize;
+        let more = guess.saturating_sub(n);
+        self.sample.reserve(more);
+        self.point.reserve(more);
+        self.corr.reserve(more);
+        self.resp.reserve(more);
+        if !self.corr_eq.is_empty() {
+            self.corr_eq.reserve(more);
+        }
+        self.line.reserve(more);
+    }
+
+    fn sample_of(&mut self, sample: &str, file: &Path) -> Result<u32> {
         // Rows of one sample usually come together.
-        if let Some(r) = self.rows.last()
-            && self.sample_ids[r.sample] == sample
+        if let Some(&s) = self.sample.last()
+            && self.sample_ids[s as usize] == sample
         {
-            return r.sample;
+            return Ok(s);
         }
         if let Some(&s) = self.sample_index.get(sample) {
-            return s;
+            return Ok(s);
         }
+        let s = numbered(self.sample_ids.len(), "samples", file)?;
         self.sample_ids.push(sample.to_string());
-        self.sample_index
-            .insert(sample.to_string(), self.sample_ids.len() - 1);
-        self.sample_ids.len() - 1
+        self.sample_index.insert(sample.to_string(), s);
+        Ok(s)
     }
 
-    fn point_of(&mut self, tw: f64, t: f64) -> usize {
+    fn point_of(&mut self, tw: f64, t: f64, file: &Path) -> Result<u32> {
         let key = (normalize_zero(tw).to_bits(), normalize_zero(t).to_bits());
         // Samples usually list their points in one order: try the one after the last.
-        if let Some(r) = self.rows.last() {
-            let next = (r.point + 1) % self.points.len();
+        if let Some(&p) = self.point.last() {
+            let next = (p as usize + 1) % self.points.len();
             let g = self.points[next];
             if (
                 normalize_zero(g.tw).to_bits(),
                 normalize_zero(g.t).to_bits(),
             ) == key
             {
-                return next;
+                return Ok(next as u32);
             }
         }
-        let points = &mut self.points;
-        *self.point_index.entry(key).or_insert_with(|| {
-            points.push(GridPoint { tw, t });
-            points.len() - 1
-        })
+        if let Some(&p) = self.point_index.get(&key) {
+            return Ok(p);
+        }
+        let p = numbered(self.points.len(), "(tw, t) points", file)?;
+        self.points.push(GridPoint { tw, t });
+        self.point_index.insert(key, p);
+        Ok(p)
     }
 
     /// The samples × points arrays, once every sample has every point exactly once (or,
     /// with `drop`, of the samples that have every point).
     fn into_campaign(self, file: &Path, with_eq: bool, drop: bool) -> Result<ReadCampaign> {
         let err = |line: Option<u64>, msg: String| Error::input(file, line, None, msg);
-        if self.rows.is_empty() {
+        if self.line.is_empty() {
             return Err(err(None, "no data rows after the header".into()));
         }
         let n = self.sample_ids.len();
@@ -465,20 +512,20 @@ impl Rows {
         }
         let np = self.points.len();
         let mut seen_at: Vec<u64> = vec![0; n * np];
-        for r in &self.rows {
-            let slot = &mut seen_at[r.sample * np + r.point];
+        for ((&s, &p), &line) in self.sample.iter().zip(&self.point).zip(&self.line) {
+            let slot = &mut seen_at[s as usize * np + p as usize];
             if *slot != 0 {
-                let g = self.points[r.point];
+                let g = self.points[p as usize];
                 return Err(err(
-                    Some(r.line),
+                    Some(line),
                     format!(
                         "sample '{}' at tw = {}, t = {} appears again (first on line {}); \
                          expected one row per (sample, tw, t)",
-                        self.sample_ids[r.sample], g.tw, g.t, slot
+                        self.sample_ids[s as usize], g.tw, g.t, slot
                     ),
                 ));
             }
-            *slot = r.line;
+            *slot = line;
         }
         let complete: Vec<bool> = (0..n)
             .map(|s| seen_at[s * np..(s + 1) * np].iter().all(|&l| l != 0))
@@ -519,15 +566,15 @@ impl Rows {
         let mut corr = Array2::<f64>::zeros((nk, np));
         let mut resp = Array2::<f64>::zeros((nk, np));
         let mut corr_eq = with_eq.then(|| Array2::<f64>::zeros((nk, np)));
-        for r in &self.rows {
-            let s = kept_at[r.sample];
+        for (k, (&s, &p)) in self.sample.iter().zip(&self.point).enumerate() {
+            let (s, p) = (kept_at[s as usize], p as usize);
             if s == usize::MAX {
                 continue;
             }
-            corr[[s, r.point]] = r.corr;
-            resp[[s, r.point]] = r.resp;
-            if let (Some(ce), Some(v)) = (corr_eq.as_mut(), r.corr_eq) {
-                ce[[s, r.point]] = v;
+            corr[[s, p]] = self.corr[k];
+            resp[[s, p]] = self.resp[k];
+            if let Some(ce) = corr_eq.as_mut() {
+                ce[[s, p]] = self.corr_eq[k];
             }
         }
         let campaign = Campaign::new(ids, self.points, corr, resp, corr_eq)
@@ -567,6 +614,21 @@ impl Rows {
         }
         Ok(())
     }
+}
+
+/// The number the next of `what` gets, while it fits the row store's 32 bits.
+fn numbered(count: usize, what: &str, file: &Path) -> Result<u32> {
+    u32::try_from(count).map_err(|_| {
+        Error::input(
+            file,
+            None,
+            None,
+            format!(
+                "more than {} {what}; expected a campaign of fewer",
+                u32::MAX
+            ),
+        )
+    })
 }
 
 /// Maps -0.0 to 0.0 so that both spellings name the same grid point.
@@ -612,6 +674,7 @@ mod tests {
             Path::new("t.csv"),
             &CampaignRead::default(),
             block,
+            Some(text.len() as u64),
         )
         .map(|r| r.campaign)
         .map_err(|e| e.to_string())
