@@ -207,7 +207,9 @@ fn linearity_study() {
 #[test]
 #[ignore]
 fn twin_fit_coverage() {
-    let campaigns = 200;
+    // 1000 campaigns: at 200 the standard error (0.02) cannot tell 0.92 from 0.95, and one
+    // block of 200 came out at 0.84 by chance (docs/validation.md).
+    let campaigns = 1000;
     let samples: usize = std::env::var("FDTEMP_REDUCE_SAMPLES")
         .ok()
         .and_then(|v| v.parse().ok())
