@@ -9,7 +9,7 @@
 //! double quotes may hold the delimiter (`""` is a quote). A quoted field may not run past
 //! the end of its line.
 
-use super::{Delimiter, MAX_LINE};
+use super::{Delimiter, MAX_LINE, line_too_long};
 use crate::error::{Error, Result};
 use std::io::Read;
 use std::path::Path;
@@ -128,6 +128,23 @@ pub(crate) fn skipped(text: &str, d: Delimiter) -> bool {
     first.starts_with('#') || text.trim().is_empty()
 }
 
+/// The fields of a data or header line in `out`; `false` for a line that is [`skipped`].
+///
+/// # Errors
+/// [`Error::Input`] at the line when a quoted field is not closed on it.
+pub(crate) fn fields_of<'a>(
+    line: Line<'a>,
+    d: Delimiter,
+    out: &mut Vec<std::borrow::Cow<'a, str>>,
+    file: &Path,
+) -> Result<bool> {
+    if skipped(line.text, d) {
+        return Ok(false);
+    }
+    split(line.text, d, out).map_err(|m| Error::input(file, Some(line.number), None, m))?;
+    Ok(true)
+}
+
 /// Splits a line (not [`skipped`]) into its trimmed fields, in `out`.
 ///
 /// # Errors
@@ -142,11 +159,7 @@ pub(crate) fn split<'a>(
         if text.contains('"') {
             return split_quoted(text, d, out);
         }
-        out.extend(
-            text.split([' ', '\t'])
-                .filter(|f| !f.is_empty())
-                .map(|f| trim(f).into()),
-        );
+        out.extend(d.fields(text).map(Into::into));
         return Ok(());
     }
     // One pass over the bytes: fields are short, so a plain loop beats a search per field.
@@ -179,10 +192,7 @@ fn split_quoted<'a>(
     d: Delimiter,
     out: &mut Vec<std::borrow::Cow<'a, str>>,
 ) -> std::result::Result<(), String> {
-    let sep = |c: char| match d {
-        Delimiter::Whitespace => c == ' ' || c == '\t',
-        _ => c == d.byte() as char,
-    };
+    let sep = |c: char| d.splits(c);
     let mut rest = if d == Delimiter::Whitespace {
         text.trim_matches([' ', '\t'])
     } else {
@@ -333,15 +343,6 @@ fn first_long_line(b: &[u8]) -> Option<u64> {
     b.split(|&c| c == b'\n')
         .position(|l| l.len() > MAX_LINE)
         .map(|k| k as u64)
-}
-
-fn line_too_long(file: &Path, line: u64) -> Error {
-    Error::input(
-        file,
-        Some(line),
-        None,
-        "the line is longer than 1 MiB; expected a text table (is this the right file?)",
-    )
 }
 
 #[cfg(test)]

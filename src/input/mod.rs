@@ -293,14 +293,19 @@ pub(crate) fn read_error(file: &Path, e: std::io::Error) -> Error {
         .get_ref()
         .and_then(|inner| inner.downcast_ref::<LineTooLong>())
     {
-        return Error::input(
-            file,
-            Some(t.line),
-            None,
-            "the line is longer than 1 MiB; expected a text table (is this the right file?)",
-        );
+        return line_too_long(file, t.line);
     }
     Error::input(file, None, None, format!("read failed: {e}"))
+}
+
+/// The error for a line longer than [`MAX_LINE`].
+pub(crate) fn line_too_long(file: &Path, line: u64) -> Error {
+    Error::input(
+        file,
+        Some(line),
+        None,
+        "the line is longer than 1 MiB; expected a text table (is this the right file?)",
+    )
 }
 
 /// The CSV reader every fdtemp format uses: comma-separated, fields trimmed, `#` comment

@@ -283,11 +283,9 @@ fn find_header(
     for (k, part) in parts.iter().enumerate() {
         let (lines, bad) = part.lines();
         for (j, line) in lines.enumerate() {
-            if lines::skipped(line.text, d) {
+            if !lines::fields_of(line, d, &mut fields, file)? {
                 continue;
             }
-            lines::split(line.text, d, &mut fields)
-                .map_err(|m| Error::input(file, Some(line.number), None, m))?;
             let header = Header::from_fields(file, fields.iter().map(AsRef::as_ref), line.number)?
                 .with_delimiter(d);
             let idx = header.require(file, &names.required())?;
@@ -342,11 +340,9 @@ fn parse_part<'a>(
     let mut runs: Runs<'a> = Vec::new();
     let mut fields = Vec::new();
     for line in lines.skip(skip) {
-        if lines::skipped(line.text, d) {
+        if !lines::fields_of(line, d, &mut fields, file)? {
             continue;
         }
-        lines::split(line.text, d, &mut fields)
-            .map_err(|m| Error::input(file, Some(line.number), None, m))?;
         header.check_count(file, fields.len(), line.number)?;
         vals.push(parse_row(&fields, cols, names, d, line.number, file)?);
         let sample = &fields[cols.sample];
