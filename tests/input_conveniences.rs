@@ -199,7 +199,7 @@ fn samples_that_miss_points_are_refused_with_the_flag_named_or_left_out_and_list
             ids[0]
         ));
     let v = fit_json(&holes, &["--drop-incomplete"]);
-    assert_eq!(v["schema"], 6);
+    assert_eq!(v["schema"], fdtemp::twotime::SCHEMA);
     assert_eq!(v["n_samples"], 10);
     let ex = v["excluded_samples"].as_array().unwrap();
     assert_eq!(ex.len(), 2);

@@ -116,11 +116,14 @@ fn header(o: &mut String, r: &FitReport) {
     );
     let _ = writeln!(
         o,
-        "intervals  {:.0}% {} from {} resamples of whole samples (seed {})",
+        "intervals  {:.0}% {} from {} resamples of whole samples (seed {}); slopes read at \
+         {} for {} samples (Student's width)",
         100.0 * g.level,
         g.interval.label(),
         g.resamples,
-        g.seed
+        g.seed,
+        percent(r.settings.slope_level),
+        r.n_samples
     );
 }
 
@@ -341,7 +344,11 @@ pub fn methods(r: &FitReport) -> String {
          T_eff = T/X. Fits were made jointly over all curves and for each curve (fixed {held}) \
          separately{range}. Uncertainties are {lvl:.0}% {interval} from {b} bootstrap \
          resamples of whole samples, so that the correlations between the points of one \
-         sample are kept (seed {seed}). {test}{aging}{shape}{calibration}",
+         sample are kept (seed {seed}); the intervals of X, T_eff and the slope above q \
+         were read from the resamples at the {read} level, which gives Student's width for \
+         {n} samples (the expanded percentile interval, Hesterberg, Am. Stat. 69, 371 \
+         (2015)). {test}{aging}{shape}{calibration}",
+        read = percent(r.settings.slope_level),
         calibration = calibration_sentence(r),
         shape = super::shape::methods(r),
         ver = r.tool.version,

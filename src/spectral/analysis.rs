@@ -846,6 +846,8 @@ impl<'a> GroupFit<'a> {
         let weights = &self.weights;
         let (r, nb, b_total) = (g.runs.len(), self.band_est.len(), s.resamples);
         let rf = r as f64;
+        // Read at Student's width for r runs (the expanded percentile interval).
+        let read = resample::widened_level(s.level, r);
         let gp = w.dot(&g.psd.slice(s![.., j0..j1]));
         let gl = w.dot(&g.loss.slice(s![.., j0..j1]));
         let gsum = g.psd.slice(s![.., j0..j1]).sum_axis(Axis(0));
@@ -871,7 +873,7 @@ impl<'a> GroupFit<'a> {
                 }
             }
             ivs.push(
-                resample::interval(self.t_hat[j], &reps, Some(&jack), s.interval, s.level)
+                resample::interval(self.t_hat[j], &reps, Some(&jack), s.interval, read)
                     .map(|iv| (iv.low, iv.high)),
             );
         }
@@ -905,7 +907,8 @@ impl<'a> GroupFit<'a> {
                 let jack: Vec<f64> = jack_num.column(b).iter().map(|v| v / wsum[b]).collect();
                 let est = self.band_est[b];
                 if b == 0 {
-                    resample::interval(est, &reps, Some(&jack), s.interval, s.level)
+                    let read = resample::widened_level(s.level, self.g.runs.len());
+                    resample::interval(est, &reps, Some(&jack), s.interval, read)
                         .map(|iv| (iv.low, iv.high))
                 } else {
                     // Corrected levels reach far into the tails: use the bootstrap standard

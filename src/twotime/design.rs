@@ -31,6 +31,7 @@
 //! Biometrika 75, 661–671 (1988)). The data's own interval formed at that level is the
 //! calibrated interval.
 
+use super::assess::slope_level;
 use super::campaign::Campaign;
 use super::points::{Axes, data_matrix};
 use super::result::{Calibrated, CalibratedInterval, Curve, FitReport, GroupFit, Series};
@@ -38,7 +39,7 @@ use super::settings::{FitSettings, Model, Weighting};
 use crate::common::{Progress, Silent, ToolInfo};
 use crate::error::{Error, Result};
 use crate::fit::line::fit_line;
-use crate::resample::{IntervalMethod, covering_level, interval, replicate_rng};
+use crate::resample::{IntervalMethod, covering_level, interval, replicate_rng, stated_level};
 use ndarray::{Array1, Array2, Axis};
 use rand::RngExt;
 use rand_distr::StandardNormal;
@@ -434,6 +435,17 @@ fn series_of(f: &GroupFit, k: usize) -> Option<&Series> {
     }
 }
 
+/// The stated level whose interval of quantity `k` is read at `read` (the slopes are read
+/// widened, [`super::assess::slope_level`]; the break as stated).
+fn stated_of(k: usize, read: f64, n: usize) -> f64 {
+    if k == 1 { read } else { stated_level(read, n) }
+}
+
+/// The level at which quantity `k`'s replicates are read for the stated `level`.
+fn read_at(k: usize, level: f64, n: usize) -> f64 {
+    if k == 1 { level } else { slope_level(level, n) }
+}
+
 fn truth_of(t: &Truth, k: usize) -> f64 {
     match k {
         0 => t.ratio(),
@@ -463,7 +475,7 @@ fn outcome(r: &FitReport, truth: &Truth, method: IntervalMethod, temperature: f6
                         method,
                         t,
                     )
-                    .map(|l| (l, s.estimate - t));
+                    .map(|l| (stated_of(k, l, f.n_samples), s.estimate - t));
                 }
             }
             if let (Some(x), true) = (f.resampled.x.as_ref(), truth.ratio() != 0.0) {
@@ -837,7 +849,7 @@ fn calibrate_fit(
             &series.replicates,
             series.jackknife.as_deref(),
             fit.interval,
-            nominal.level,
+            read_at(k, nominal.level, f.n_samples),
         );
         let Some(iv) = iv else { continue };
         let ci = CalibratedInterval {

@@ -279,6 +279,7 @@ fn report(
             } else {
                 Axes::Plain
             },
+            slope_level: assess::slope_level(settings.level, campaign.n_samples()),
         },
         n_samples: campaign.n_samples(),
         excluded_samples: Vec::new(),

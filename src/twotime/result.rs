@@ -7,7 +7,7 @@ use crate::common::{Estimate, ToolInfo};
 use serde::Serialize;
 
 /// The JSON schema version of [`FitReport`].
-pub const SCHEMA: u32 = 6;
+pub const SCHEMA: u32 = 7;
 
 /// The fitted two-segment curve in plot coordinates: `y = intercept + slope_above · x`
 /// for `x >= q`, and slope `slope_below` for `x < q` (continuous at `q`).
@@ -377,6 +377,9 @@ pub struct SettingsRecord {
     pub k: f64,
     /// The axes actually used ("plain" or "normalized").
     pub axes_used: Axes,
+    /// The level at which the slopes' replicates (X, T_eff, the slope above the break)
+    /// were read: the stated level widened to Student's width for these samples.
+    pub slope_level: f64,
 }
 
 /// The full result of a time-domain fit; serialized as the JSON output.
