@@ -409,7 +409,7 @@ mod tests {
         }
         // Many units: the widening vanishes (common practice: t → z).
         assert!((widened_level(0.95, 100_000) - 0.95).abs() < 1e-5);
-        assert_eq!(widened_level(0.95, 1), 0.95);
+        assert_eq!(widened_level(0.95, 1).to_bits(), 0.95f64.to_bits());
     }
 
     #[test]

@@ -78,7 +78,7 @@ def fit(data=None, *, temperature, corr=None, resp=None, tw=None, t=None, corr_e
         weights="inverse-variance", resamples=2000, seed=1, level=0.95, interval="bca",
         min_branch=5, hold="tw", range=None, column=(), delimiter="comma",
         drop_incomplete=False, calibrate=None, sim_noise="gaussian", overlap=None,
-        threads=None, progress=False) -> FitResult:
+        threads=None, progress=False, limit=False, settled_within=0.05) -> FitResult:
     """X and T_eff of a campaign, as ``fdtemp fit`` (options as its long options).
 
     ``data``: a file path (tidy CSV or .npz), a pandas/polars DataFrame with the tidy
@@ -96,7 +96,8 @@ def fit(data=None, *, temperature, corr=None, resp=None, tw=None, t=None, corr_e
         smooth_shape, weights, int(resamples), int(seed), float(level), interval,
         int(min_branch), hold, _band(range, "range"), list(column), delimiter,
         bool(drop_incomplete), calibrate, sim_noise,
-        None if overlap is None else os.fspath(overlap), threads, bool(progress)))
+        None if overlap is None else os.fspath(overlap), threads, bool(progress),
+        bool(limit), float(settled_within)))
 
 
 def spectrum(data, *, temperature, convention=None, window=None, units="si",

@@ -137,7 +137,8 @@ fn campaign_arrays(
 #[pyo3(signature = (
     label, path, text, arrays, temperature, units, axes, model, smooth_shape, weights,
     resamples, seed, level, interval, min_branch, hold, range, columns, delimiter,
-    drop_incomplete, calibrate, sim_noise, overlap, threads, show_progress
+    drop_incomplete, calibrate, sim_noise, overlap, threads, show_progress, limit,
+    settled_within
 ))]
 #[allow(clippy::too_many_arguments)]
 fn fit(
@@ -167,6 +168,8 @@ fn fit(
     overlap: Option<PathBuf>,
     threads: Option<usize>,
     show_progress: bool,
+    limit: bool,
+    settled_within: f64,
 ) -> PyResult<String> {
     let model = choice("model", model).map_err(to_py)?;
     let smooth_shape = smooth_shape
@@ -187,6 +190,8 @@ fn fit(
         hold: choice("hold", hold).map_err(to_py)?,
         range: range.map(|(a, b)| [a, b]),
         smooth: api::smooth_rule(model, smooth_shape),
+        limit,
+        settled_within,
     };
     settings.validate().map_err(to_py)?;
     let design = calibrate

@@ -60,6 +60,14 @@ pub struct FitOptions {
     /// Fit only points whose parametric x (C, or C/C(t,t)) lies in CMIN:CMAX.
     #[arg(long, value_parser = parse_band, value_name = "CMIN:CMAX", allow_hyphen_values = true)]
     range: Option<[f64; 2]>,
+    /// Extrapolate the curves to long ages: at fixed C, y = y∞(C) + a(C)·tw^−α with one α,
+    /// jointly over the waiting times (at least 3); reports X∞, T_eff∞ and α with intervals.
+    #[arg(long)]
+    limit: bool,
+    /// The aging verdict calls X settled when its change per decade of age lies within
+    /// ±D at the test level (two one-sided tests).
+    #[arg(long, value_name = "D", default_value_t = 0.05)]
+    settled_within: f64,
     /// Map a column role to another header name, e.g. --column resp=chi_zfc (repeatable).
     #[arg(long = "column", value_name = "ROLE=NAME")]
     columns: Vec<String>,
@@ -89,6 +97,8 @@ impl FitOptions {
             hold: self.hold,
             range: self.range,
             smooth: fdtemp::api::smooth_rule(self.model, self.smooth_shape),
+            limit: self.limit,
+            settled_within: self.settled_within,
         }
     }
 

@@ -61,6 +61,7 @@ pub fn render(r: &FitReport) -> Vec<u8> {
     verdicts(&mut o, r);
     super::shape::verdicts(&mut o, r);
     aging_line(&mut o, r);
+    limit_section(&mut o, r);
     cautions(&mut o, r);
     let _ = writeln!(o);
     let _ = writeln!(o, "methods");
@@ -260,12 +261,133 @@ fn aging_line(o: &mut String, r: &FitReport) {
                 est(&a.change_per_decade),
                 used.join(", "),
             );
+            let _ = writeln!(
+                o,
+                "           {}",
+                settling_words(a, r.settings.given.level)
+            );
         } else {
             let _ = writeln!(
                 o,
                 "aging      no trend: fewer than 2 curves where X is quoted{left}"
             );
         }
+    }
+}
+
+/// The long-age limit (`--limit`): X∞, T_eff∞, α and what they rest on.
+fn limit_section(o: &mut String, r: &FitReport) {
+    let Some(l) = &r.age_limit else { return };
+    let l = match l {
+        Ok(l) => l,
+        Err(note) => {
+            let _ = writeln!(o, "limit      not formed: {note}");
+            return;
+        }
+    };
+    let tws: Vec<String> = l.waiting_times.iter().map(|&t| fmt_num(t)).collect();
+    let _ = writeln!(
+        o,
+        "limit      tw → ∞ at fixed C over tw = {}: X∞ = {}, T_eff∞ = {}; approach tw^-α with α = {}",
+        tws.join(", "),
+        est(&l.x_inf),
+        est(&l.t_eff_inf),
+        est(&l.alpha),
+    );
+    let (lo, hi) = (
+        l.points.first().map_or(f64::NAN, |p| p.c),
+        l.points.last().map_or(f64::NAN, |p| p.c),
+    );
+    let below = l.points.iter().filter(|p| p.below).count();
+    let slope_of = l.break_used.map_or_else(
+        || format!("over all {below} values (no break detected)"),
+        |q| {
+            format!(
+                "below the joint fit's break q = {} ({below} values)",
+                sig(q, 4)
+            )
+        },
+    );
+    let _ = writeln!(
+        o,
+        "           X∞ is the slope of the extrapolated curve y∞(C), {slope_of}, on {} values of C \
+         from {} to {}; it is neither a fixed-tw slope nor the two-time ratio",
+        l.points.len(),
+        sig(lo, 3),
+        sig(hi, 3),
+    );
+    if l.alpha_unresolved {
+        let _ = writeln!(
+            o,
+            "           caution: α is not resolved (at an end of 0.05–3 in the data or in {} of \
+             resamples): the approach to the limit is not measured, and X∞ rests on the model \
+             alone",
+            percent(l.alpha_at_edge_share)
+        );
+    }
+    if l.x_inf.low.is_some_and(|v| v <= 0.0) {
+        let _ = writeln!(
+            o,
+            "           X∞'s interval reaches 0: T_eff∞ has no upper bound (coarsening-like: the \
+             slow modes may not equilibrate at any temperature)"
+        );
+    }
+    if l.failed_resamples > 0 {
+        let _ = writeln!(
+            o,
+            "           {} resamples could not be fitted and are left out",
+            l.failed_resamples
+        );
+    }
+}
+
+/// The limit in the methods paragraph.
+fn limit_methods(r: &FitReport) -> String {
+    match &r.age_limit {
+        Some(Ok(l)) => format!(
+            " The limit of long ages was fitted at {} equally spaced values of C shared by \
+             the curves (each curve interpolated linearly in C) as y = y∞(C) + a(C)·(tw/tw₀)^−α \
+             with one exponent α for every C (least squares, α searched from 0.05 to 3), and \
+             X∞ is minus the slope of the least-squares line through y∞(C) {}; the whole fit \
+             was repeated on every resample, and the intervals are percentile intervals read \
+             at Student's width.",
+            l.points.len(),
+            l.break_used.map_or_else(
+                || "over every value".to_string(),
+                |q| format!("below the joint fit's break ({})", sig(q, 4))
+            )
+        ),
+        _ => String::new(),
+    }
+}
+
+/// The settled-or-drifting verdict of the aging trend, in words.
+fn settling_words(a: &crate::twotime::result::AgingTrend, level: f64) -> String {
+    use crate::twotime::result::Settling;
+    let d = fmt_num(a.settled_within);
+    let tost = a.settling_interval.map_or_else(
+        || "no interval".to_string(),
+        |[lo, hi]| {
+            let t = distinct(&[lo, hi], Digits::Sig(3), false);
+            format!(
+                "{:.0}% interval [{}, {}]",
+                100.0 * (2.0 * level - 1.0),
+                t[0],
+                t[1]
+            )
+        },
+    );
+    match a.settling {
+        Settling::Settled => format!(
+            "settled: X changes by less than ±{d} per decade ({tost} inside ±{d}; two one-sided tests)"
+        ),
+        Settling::Drifting => {
+            "still drifting: the interval of the change per decade excludes 0".into()
+        }
+        Settling::Undecided => format!(
+            "neither settled within ±{d} per decade ({tost} reaches past ±{d}) nor shown to drift"
+        ),
+        Settling::Untested => String::new(),
     }
 }
 
@@ -332,10 +454,17 @@ pub fn methods(r: &FitReport) -> String {
              log10 {held} over the curves where X is quoted, with a percentile interval from \
              the same resamples.",
             held = g.hold.name()
+        ) + &format!(
+            " X is called settled when two one-sided tests at the {:.0}% level each place the \
+             change per decade within ±{} (its {:.0}% percentile interval inside that margin).",
+            100.0 * g.test_level(),
+            fmt_num(g.settled_within),
+            100.0 * (1.0 - 2.0 * g.test_level())
         )
     } else {
         String::new()
     };
+    let aging = aging + &limit_methods(r);
     format!(
         "Fluctuation–dissipation ratios were estimated with fdtemp {ver}. For each of {n} \
          independent samples, the correlation C(t,tw) and the integrated response chi(t,tw) \

@@ -58,6 +58,11 @@ pub struct SynthSpec {
     /// in the fast regime, above the plateau.
     #[serde(skip_serializing_if = "is_default_first_lag")]
     pub first_lag: f64,
+    /// An approach of X to its long-age value `ratio`: `[A, α]` adds `A · tw^−α` to the
+    /// ratio at waiting time `tw`, so that below the plateau
+    /// `k T χ̄ = y∞(C̄) + A (q − C̄) · tw^−α` (none: no such term).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub approach: Option<[f64; 2]>,
 }
 
 /// The default [`SynthSpec::first_lag`].
@@ -113,6 +118,7 @@ impl Default for SynthSpec {
             noise_growth: 0.0,
             shape: Shape::TwoLines,
             first_lag: FIRST_LAG,
+            approach: None,
         }
     }
 }
@@ -140,7 +146,8 @@ impl SynthSpec {
     /// The true ratio at waiting time `tw`.
     pub fn ratio_at(&self, tw: f64) -> f64 {
         let tw0 = self.waiting_times.first().copied().unwrap_or(tw);
-        self.ratio + self.ratio_per_decade * (tw / tw0).log10()
+        let approach = self.approach.map_or(0.0, |[a, alpha]| a * tw.powf(-alpha));
+        self.ratio + self.ratio_per_decade * (tw / tw0).log10() + approach
     }
 
     /// The true `k T χ` at waiting time `tw` as a function of the mean correlation.

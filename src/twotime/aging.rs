@@ -7,7 +7,7 @@
 use super::findings::Finding;
 use super::fitting::Group;
 use super::model::Draw;
-use super::result::{AgingTrend, GroupFit, LeftOut};
+use super::result::{AgingTrend, GroupFit, LeftOut, Settling};
 use super::settings::FitSettings;
 use crate::common::Estimate;
 use crate::resample::{IntervalMethod, interval};
@@ -41,6 +41,9 @@ pub fn aging_trend(
         left_out,
         change_per_decade: Estimate::none("fewer than 2 usable curves"),
         changes: false,
+        settling: Settling::Untested,
+        settling_interval: None,
+        settled_within: s.settled_within,
     };
     if used.len() < 2 {
         return Some(trend);
@@ -60,6 +63,25 @@ pub fn aging_trend(
     let iv = interval(estimate, &slopes, None, IntervalMethod::Percentile, s.level);
     trend.change_per_decade = Estimate::with(estimate, iv.as_ref());
     trend.changes = iv.is_some_and(|i| i.low > 0.0 || i.high < 0.0);
+    // Settled: two one-sided tests at level α that the change per decade is above −δ and
+    // below +δ, i.e. its 1 − 2α interval inside ±δ (Schuirmann, J. Pharmacokin. Biopharm.
+    // 15, 657–680 (1987)).
+    let tost = interval(
+        estimate,
+        &slopes,
+        None,
+        IntervalMethod::Percentile,
+        1.0 - 2.0 * s.test_level(),
+    );
+    trend.settling_interval = tost.as_ref().map(|i| [i.low, i.high]);
+    let d = s.settled_within;
+    trend.settling = if trend.changes {
+        Settling::Drifting
+    } else if tost.is_some_and(|i| i.low > -d && i.high < d) {
+        Settling::Settled
+    } else {
+        Settling::Undecided
+    };
     Some(trend)
 }
 

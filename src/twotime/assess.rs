@@ -430,7 +430,7 @@ fn sign_finding(ratio: f64) -> Option<Finding> {
 }
 
 /// Maps X's interval to T_eff = T/X (monotone), with `None` ends where X's interval reaches 0.
-pub(super) fn t_eff_estimate(temperature: f64, ratio: &Estimate) -> Estimate {
+pub(crate) fn t_eff_estimate(temperature: f64, ratio: &Estimate) -> Estimate {
     let Some(x) = ratio.estimate else {
         return Estimate::none("X is undefined");
     };

@@ -25,6 +25,7 @@ mod aging;
 mod assess;
 mod fitting;
 mod lack_of_fit;
+pub mod limit;
 pub mod overlap;
 mod resampling;
 pub mod shape;
@@ -63,6 +64,9 @@ pub fn analyze(
     progress: &dyn Progress,
 ) -> Result<FitReport> {
     settings.validate()?;
+    if settings.limit {
+        limit::check(campaign, settings)?;
+    }
     let spec = Spec {
         model: model::of(settings.model),
         min_branch: settings.min_branch,
@@ -86,9 +90,13 @@ pub fn analyze(
             .map(campaign_caution),
     );
     campaign_cautions(&prep.pm, n, &mut cautions);
-    Ok(report(
-        campaign, settings, input, &prep, fits.0, aging, cautions,
-    ))
+    let age_limit = settings.limit.then(|| {
+        limit::age_limit(campaign, &prep, settings, fits.0[0].brk.estimate)
+            .map_err(|e| e.to_string())
+    });
+    let mut r = report(campaign, settings, input, &prep, fits.0, aging, cautions);
+    r.age_limit = age_limit;
+    Ok(r)
 }
 
 /// The estimates, the leave-one-out fits and the bootstrap of every group, assessed.
@@ -287,6 +295,7 @@ fn report(
         verdict: fits[0].verdict.clone(),
         fits,
         aging,
+        age_limit: None,
         cautions,
         points,
     }

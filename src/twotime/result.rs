@@ -365,6 +365,65 @@ pub struct AgingTrend {
     pub change_per_decade: Estimate,
     /// The interval excludes 0: X changes with age.
     pub changes: bool,
+    /// Whether X has settled within `settled_within` per decade, drifts, or neither.
+    pub settling: Settling,
+    /// The interval of the change per decade at level `1 − 2α` that the settled test
+    /// compares with `±settled_within` (two one-sided tests at level α each).
+    pub settling_interval: Option<[f64; 2]>,
+    /// The margin (X per decade).
+    pub settled_within: f64,
+}
+
+/// What the trend says about X settling with age.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Settling {
+    /// The change per decade lies within ±margin (two one-sided tests reject both ends).
+    Settled,
+    /// The change per decade excludes 0 at the stated level.
+    Drifting,
+    /// Neither shown.
+    Undecided,
+    /// No trend (fewer than 2 usable curves).
+    Untested,
+}
+
+/// One value of C on the grid of the long-age limit.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct LimitPoint {
+    /// C (or C/C(t,t) on normalized axes).
+    pub c: f64,
+    /// The limit y∞(C).
+    pub y_inf: f64,
+    /// Lower end of its interval.
+    pub low: Option<f64>,
+    /// Upper end of its interval.
+    pub high: Option<f64>,
+    /// Used for the slope X∞ (below the break).
+    pub below: bool,
+}
+
+/// The long-age limit (`--limit`): `y(C, tw) = y∞(C) + a(C)·(tw/tw₀)^−α` at fixed C.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct AgeLimit {
+    /// The waiting times extrapolated.
+    pub waiting_times: Vec<f64>,
+    /// The joint fit's break below which X∞ is the slope (none: every grid value).
+    pub break_used: Option<f64>,
+    /// `X∞ = −dy∞/dC` below the break.
+    pub x_inf: Estimate,
+    /// `T/X∞`.
+    pub t_eff_inf: Estimate,
+    /// The approach exponent α.
+    pub alpha: Estimate,
+    /// Share of resamples whose α lies at an end of its search range.
+    pub alpha_at_edge_share: f64,
+    /// α is not resolved (at an end of its range in the data or in over 5% of resamples).
+    pub alpha_unresolved: bool,
+    /// Resamples whose curves could not be fitted.
+    pub failed_resamples: usize,
+    /// y∞ on the grid of C.
+    pub points: Vec<LimitPoint>,
 }
 
 /// Settings as recorded with the result (resolved axes, the value of k).
@@ -403,12 +462,35 @@ pub struct FitReport {
     pub fits: Vec<GroupFit>,
     /// X against the held time, over the usable curves.
     pub aging: Option<AgingTrend>,
+    /// The long-age limit, when asked for (`--limit`); `Err` says why it was not formed.
+    #[serde(
+        skip_serializing_if = "Option::is_none",
+        serialize_with = "limit_or_note"
+    )]
+    pub age_limit: Option<std::result::Result<AgeLimit, String>>,
     /// What the data show (the joint fit's verdict).
     pub verdict: Verdict,
     /// Cautions about the whole campaign.
     pub cautions: Vec<Caution>,
     /// The parametric points.
     pub points: Vec<PointRecord>,
+}
+
+/// The limit as its object, or `{"note": why}` when it could not be formed.
+fn limit_or_note<S: serde::Serializer>(
+    v: &Option<std::result::Result<AgeLimit, String>>,
+    ser: S,
+) -> std::result::Result<S::Ok, S::Error> {
+    use serde::ser::SerializeMap;
+    match v {
+        Some(Ok(l)) => l.serialize(ser),
+        Some(Err(note)) => {
+            let mut m = ser.serialize_map(Some(1))?;
+            m.serialize_entry("note", note)?;
+            m.end()
+        }
+        None => ser.serialize_none(),
+    }
 }
 
 #[cfg(test)]

@@ -83,6 +83,11 @@ pub struct FitSettings {
     /// The smooth model's constraint on X(C) (`Some` exactly when the model is smooth).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub smooth: Option<Constraint>,
+    /// Extrapolate the curves to long ages (`--limit`).
+    #[serde(skip_serializing_if = "std::ops::Not::not")]
+    pub limit: bool,
+    /// The margin, in X per decade of age, within which the aging verdict calls X settled.
+    pub settled_within: f64,
 }
 
 impl Default for FitSettings {
@@ -101,6 +106,8 @@ impl Default for FitSettings {
             hold: Hold::Tw,
             range: None,
             smooth: None,
+            limit: false,
+            settled_within: 0.05,
         }
     }
 }
@@ -131,6 +138,12 @@ impl FitSettings {
         }
         check_level(self.level)?;
         check_resamples(self.resamples)?;
+        if !(self.settled_within > 0.0 && self.settled_within.is_finite()) {
+            return Err(Error::Setting(format!(
+                "--settled-within is {}, expected a positive change of X per decade",
+                self.settled_within
+            )));
+        }
         if let Some([lo, hi]) = self.range
             && !(hi > lo)
         {
