@@ -119,7 +119,8 @@ impl RawSource {
 pub struct ReduceSettings {
     /// The protocol (`auto`: from the header).
     pub protocol: Protocol,
-    /// How χ is formed from several field levels (twins).
+    /// How χ is formed from several field levels (twins, and quenches with several fields
+    /// at a tw).
     pub combine: twin::Combine,
     /// Bootstrap resamples of the samples (runs).
     pub resamples: usize,
@@ -208,6 +209,7 @@ pub fn reduce(src: &RawSource, settings: &ReduceSettings) -> Result<Reduction> {
                 resamples: settings.resamples,
                 seed: settings.seed,
                 level: settings.level,
+                combine: settings.combine,
             };
             let red = quench::reduce_quenches_from(src, &q).map_err(&named)?;
             if let Some(f) = &settings.quench_fit {
