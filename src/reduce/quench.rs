@@ -710,6 +710,10 @@ pub fn reduce_quenches_from(src: &RawSource, settings: &QuenchSettings) -> Resul
             base: len,
         };
         len += g.len();
+        if g.plan.slope.is_none() {
+            // ±h of one amplitude: combined, but one level, nothing to test.
+            untested.push(tw);
+        }
         designs.push(QuenchDesign {
             tw,
             fields,
@@ -718,7 +722,7 @@ pub fn reduce_quenches_from(src: &RawSource, settings: &QuenchSettings) -> Resul
         });
         groups.push(Some(g));
     }
-    if designs.is_empty() {
+    if groups.iter().flatten().all(|g| g.plan.slope.is_none()) {
         untested.clear();
     }
     let u0 = if designs.is_empty() { 0 } else { len };

@@ -388,7 +388,11 @@ fn render_quenches(r: &QuenchReduction, file: &str) -> String {
             r.settings.resamples
         ),
         r.settings.resamples,
-        "one field per waiting time",
+        if r.designs.is_empty() {
+            "one field per waiting time"
+        } else {
+            "one field level per waiting time (±h of one amplitude)"
+        },
     );
     if r.test.is_some() && !r.untested.is_empty() {
         let _ = writeln!(
@@ -428,9 +432,15 @@ fn quench_lines(r: &QuenchReduction) -> Vec<Line> {
     match &r.test {
         None => v.push(Line {
             code: "linearity_untested",
-            message: "one field per waiting time: that chi does not depend on h is not tested \
-                      (run a second amplitude at a tw to test it)"
-                .into(),
+            message: format!(
+                "{}: that chi does not depend on h is not tested (run a second amplitude at a \
+                 tw to test it)",
+                if r.designs.is_empty() {
+                    "one field per waiting time"
+                } else {
+                    "one field level per waiting time (±h of one amplitude)"
+                }
+            ),
         }),
         Some(t) => {
             if t.rejects {
