@@ -157,7 +157,7 @@ pub enum Reduced {
     /// Twin runs: a campaign per sample, and the linear-response test.
     Twins(Box<TwinReduction>),
     /// Repeated quenches: pointwise C and χ.
-    Quenches(quench::QuenchReduction),
+    Quenches(Box<quench::QuenchReduction>),
 }
 
 /// A reduction with the name of its input.
@@ -216,11 +216,11 @@ pub fn reduce(src: &RawSource, settings: &ReduceSettings) -> Result<Reduction> {
                 let fits = quench_fit::fit_quenches(&red, f).map_err(&named)?;
                 return Ok(Reduction {
                     label,
-                    reduced: Reduced::Quenches(red),
+                    reduced: Reduced::Quenches(Box::new(red)),
                     quench_fit: Some(fits),
                 });
             }
-            Reduced::Quenches(red)
+            Reduced::Quenches(Box::new(red))
         }
         _ => {
             if settings.quench_fit.is_some() {

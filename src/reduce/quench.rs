@@ -311,6 +311,9 @@ impl Group {
     }
 }
 
+/// (C, χ) per point.
+type PointEstimates = Vec<(f64, Option<f64>)>;
+
 /// One point of a tw with several fields, from a moment vector.
 struct LevelPoint {
     /// χ per level (None where a field's stratum has no weight).
@@ -407,7 +410,7 @@ fn estimates(
     lay: &Layout,
     m: &[f64],
     connected: bool,
-) -> (Vec<(f64, Option<f64>)>, Vec<Option<LevelPoint>>) {
+) -> (PointEstimates, Vec<Option<LevelPoint>>) {
     let w0 = m[lay.w0()];
     let levels: Vec<Option<LevelPoint>> = lay
         .points
@@ -664,7 +667,7 @@ pub fn reduce_quenches_from(src: &RawSource, settings: &QuenchSettings) -> Resul
     let mut groups: Vec<Option<Group>> = Vec::with_capacity(ntw);
     let mut designs: Vec<QuenchDesign> = Vec::new();
     let mut untested: Vec<f64> = Vec::new();
-    for &tw in &tws {
+    for (ti, &tw) in tws.iter().enumerate() {
         let Some(wi) = switch_on.iter().position(|&x| key(x) == key(tw)) else {
             groups.push(None);
             continue;
@@ -700,8 +703,8 @@ pub fn reduce_quenches_from(src: &RawSource, settings: &QuenchSettings) -> Resul
                 "chi = (<A(t)>_h − <A(t)>_0)/h per field"
             }
         );
-        let first = points.iter().position(|p| tws[p.0] == tw).unwrap_or(0);
-        let count = points.iter().filter(|p| tws[p.0] == tw).count();
+        let first = points.iter().position(|p| p.0 == ti).unwrap_or(0);
+        let count = points.iter().filter(|p| p.0 == ti).count();
         let g = Group {
             fields: fields.clone(),
             plan,
@@ -908,7 +911,7 @@ pub fn reduce_quenches_from(src: &RawSource, settings: &QuenchSettings) -> Resul
             Some((p, c, super::twin::studentize(c, se, sc), sc))
         })
         .collect();
-    let reps_out: Vec<(Vec<(f64, Option<f64>)>, Option<Vec<f64>>)> = reps
+    let reps_out: Vec<(PointEstimates, Option<Vec<f64>>)> = reps
         .par_iter()
         .map(|m| {
             let (e, l) = estimates(&lay, m, settings.connected);

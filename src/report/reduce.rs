@@ -338,7 +338,7 @@ fn render_quenches(r: &QuenchReduction, file: &str) -> String {
             let fields = r
                 .designs
                 .iter()
-                .find(|d| d.tw == *tw)
+                .find(|d| d.tw.to_bits() == tw.to_bits())
                 .map_or(String::new(), |d| {
                     let f: Vec<String> = d
                         .fields
