@@ -1124,7 +1124,8 @@ fn ising_twins_agree_with_the_field_free_estimator() {
     );
 }
 
-/// The same seed gives byte-identical files at 1 and 2 worker threads (both protocols).
+/// The same seed gives byte-identical files at 1 and 2 worker threads (both protocols;
+/// quenches with one field and with several).
 #[test]
 fn reduce_output_does_not_depend_on_the_thread_count() {
     let dir = tempfile::tempdir().unwrap();
@@ -1137,7 +1138,16 @@ fn reduce_output_does_not_depend_on_the_thread_count() {
         ),
     )
     .unwrap();
-    for (input, extra) in [(&twins, true), (&quenches, false)] {
+    let fields = dir.path().join("qf.csv");
+    std::fs::write(
+        &fields,
+        fdtemp::scenarios::sim::twins::quench_csv(&fdtemp::scenarios::sim::twins::QuenchSpec {
+            fields: vec![-1.0, -0.5, 0.5, 1.0],
+            ..fdtemp::scenarios::sim::twins::QuenchSpec::standard(600, 2, true)
+        }),
+    )
+    .unwrap();
+    for (input, extra) in [(&twins, true), (&quenches, false), (&fields, true)] {
         let mut outs = Vec::new();
         for threads in ["1", "2"] {
             let out = dir.path().join(format!("out{threads}.csv"));
