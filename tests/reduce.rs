@@ -417,8 +417,9 @@ fn reduce_can_fit_at_once() {
 }
 
 mod quenches {
-    use fdtemp::reduce::quench::{QuenchSettings, reduce_quenches};
+    use fdtemp::reduce::quench::{QuenchReduction, QuenchSettings, reduce_quenches};
     use fdtemp::reduce::quench_fit::{QuenchFitSettings, fit_quenches};
+    use fdtemp::reduce::twin::Combine;
     use fdtemp::scenarios::sim::twins::{QuenchSpec, exact_chi, exact_corr, quench_csv};
     use predicates::prelude::*;
 
@@ -530,8 +531,8 @@ mod quenches {
             .assert()
             .code(2)
             .stderr(format!(
-                "error: {}:{line}: run 'q00005': time t = 26 is not among the times of run \
-                 'q00001'; every run needs the same times\n",
+                "error: {}:{line}:2: run 'q00005' (tw = 50, h = 0.5): time t = 26 is not among \
+                 the times of run 'q00001'; every run needs the same times\n",
                 file.display()
             ));
         // A run split in two places.
@@ -595,9 +596,321 @@ mod quenches {
             .assert()
             .code(2)
             .stderr(
-                "error: --table is for twin runs; for repeated quenches --out is already the \
-                 per-point table\n",
+                "error: --table is for twin runs and for repeated quenches with several fields \
+                 at a tw; with one field per tw --out is already the per-point table\n",
             );
+        assert!(
+            !dir.path().join("q2.csv").exists(),
+            "a partial output was written"
+        );
+    }
+
+    /// Quenches at several fields reduced with `resamples` replicates.
+    fn reduced_with(spec: &QuenchSpec, resamples: usize, combine: Combine) -> QuenchReduction {
+        let dir = tempfile::tempdir().unwrap();
+        let file = write(dir.path(), spec);
+        let settings = QuenchSettings {
+            resamples,
+            combine,
+            ..Default::default()
+        };
+        reduce_quenches(&file, &settings).unwrap()
+    }
+
+    /// The fraction of points whose χ interval covers the closed form.
+    fn chi_covered(r: &QuenchReduction) -> f64 {
+        r.points
+            .iter()
+            .filter(|p| {
+                let e = exact_chi(p.t - p.tw);
+                p.chi_low.unwrap() <= e && e <= p.chi_high.unwrap()
+            })
+            .count() as f64
+            / r.points.len() as f64
+    }
+
+    #[test]
+    fn linear_quenches_at_two_amplitudes_are_not_flagged_and_match_the_closed_form() {
+        let spec = QuenchSpec {
+            fields: vec![-1.0, -0.5, 0.5, 1.0],
+            ..QuenchSpec::standard(6000, 21, true)
+        };
+        let r = reduced_with(&spec, 499, Combine::Extrapolate);
+        assert_eq!(r.designs.len(), 2);
+        assert!(r.designs.iter().all(|d| d.design.symmetric
+            && d.design.levels == vec![0.5, 1.0]
+            && d.runs == vec![500; 4]));
+        assert!(r.untested.is_empty());
+        let t = r.test.as_ref().unwrap();
+        // The two-bath system is linear: the test must stay silent (at 5%, for this seed).
+        assert!(!t.rejects, "a linear response flagged: {t:?}");
+        assert!(
+            r.points
+                .iter()
+                .all(|p| p.p.is_some() && p.chi_levels.as_ref().is_some_and(|c| c.len() == 2))
+        );
+        // Source: mean response of independent Ornstein–Uhlenbeck modes to a constant
+        // force (Gardiner, Stochastic Methods, 4th ed. (2009), §3.8.4, section from memory):
+        // the extrapolated χ is unbiased, its pointwise 95% intervals cover the closed
+        // form at most points (correlated along t: at least 70% required, as for one field).
+        let cov = chi_covered(&r);
+        assert!(cov >= 0.7, "chi covered at {cov} of the points");
+        // Two levels in h²: (4 χ(0.5) − χ(1))/3 at every point (common practice).
+        for p in &r.points {
+            let c = p.chi_levels.as_ref().unwrap();
+            let rich = (4.0 * c[0] - c[1]) / 3.0;
+            assert!((p.chi.unwrap() - rich).abs() < 1e-9 * (1.0 + rich.abs()));
+        }
+        // The direct fit runs on the combined χ.
+        let f = fit_quenches(&r, &QuenchFitSettings::default()).unwrap();
+        assert_eq!(f.fits.len(), 3);
+    }
+
+    #[test]
+    fn an_injected_cubic_quench_response_is_flagged_and_removed_by_the_extrapolation() {
+        // Force h + 0.3 h³: χ(h) = χ₁ (1 + 0.3 h²), so χ at the smallest amplitude (|h| = 1)
+        // is 30% high and χ(2) 120% high.
+        let spec = QuenchSpec {
+            fields: vec![-2.0, -1.0, 1.0, 2.0],
+            cubic: 0.3,
+            ..QuenchSpec::standard(6000, 22, true)
+        };
+        let ex = reduced_with(&spec, 499, Combine::Extrapolate);
+        let t = ex.test.as_ref().unwrap();
+        assert!(t.rejects, "cubic response not detected: {t:?}");
+        // Two-level Richardson in h² is exact for χ₁(1 + κ₃h²) (common practice): the
+        // intervals cover the closed form as for a linear system.
+        let cov = chi_covered(&ex);
+        assert!(
+            cov >= 0.7,
+            "extrapolated chi covered at {cov} of the points"
+        );
+        // The smallest amplitude alone keeps the +30% bias: it misses at the later times.
+        let small = reduced_with(&spec, 499, Combine::Smallest);
+        let late: Vec<f64> = small
+            .points
+            .iter()
+            .filter(|p| p.t - p.tw > 100.0)
+            .map(|p| p.chi.unwrap() / exact_chi(p.t - p.tw))
+            .collect();
+        let mean = late.iter().sum::<f64>() / late.len() as f64;
+        assert!(
+            (mean - 1.3).abs() < 0.1,
+            "smallest amplitude: chi/exact {mean}"
+        );
+        assert!(chi_covered(&small) < 0.5);
+    }
+
+    #[test]
+    fn quench_fields_that_do_not_line_up_are_refused_with_line_and_column() {
+        let dir = tempfile::tempdir().unwrap();
+        let spec = QuenchSpec {
+            fields: vec![0.5, 1.0],
+            ..QuenchSpec::standard(60, 3, true)
+        };
+        let file = write(dir.path(), &spec);
+        let text = std::fs::read_to_string(&file).unwrap();
+        let out = dir.path().join("p.csv");
+        let run = |bad: &str| {
+            std::fs::write(&file, bad).unwrap();
+            super::fdtemp()
+                .arg("reduce")
+                .arg(&file)
+                .arg("--out")
+                .arg(&out)
+                .args(["-B", "199"])
+                .assert()
+                .code(2)
+        };
+        let line_of =
+            |bad: &str, start: &str| bad.lines().position(|l| l.starts_with(start)).unwrap() + 1;
+        // Run q00005 (tw = 50, h = 1) recorded at another time than the h = 0.5 runs.
+        let bad = text.replacen("q00005,25.0,", "q00005,26.0,", 1);
+        let line = line_of(&bad, "q00005,26.0,");
+        run(&bad).stderr(format!(
+            "error: {}:{line}:2: run 'q00005' (tw = 50, h = 1): time t = 26 is not among the \
+             times of run 'q00001'; every run needs the same times\n",
+            file.display()
+        ));
+        // Run q00006 (tw = 500, h = 1) without its row at t = 25: named at its last row.
+        let lines: Vec<&str> = text
+            .lines()
+            .filter(|l| !l.starts_with("q00006,25.0,"))
+            .collect();
+        let bad = lines.join("\n") + "\n";
+        let last = bad
+            .lines()
+            .collect::<Vec<_>>()
+            .iter()
+            .rposition(|l| l.starts_with("q00006,"))
+            .unwrap()
+            + 1;
+        run(&bad).stderr(format!(
+            "error: {}:{last}:2: run 'q00006' (tw = 500, h = 1) has no row at t = 25, which run \
+             'q00001' has; every run needs the same times\n",
+            file.display()
+        ));
+        // One run at a third field: too few runs for its χ and the test.
+        let bad: String = text
+            .lines()
+            .map(|l| {
+                if l.starts_with("q00005,") {
+                    l.replacen(",1.0,50.0", ",2.0,50.0", 1)
+                } else {
+                    l.to_string()
+                }
+            })
+            .collect::<Vec<_>>()
+            .join("\n")
+            + "\n";
+        let line = line_of(&bad, "q00005,");
+        run(&bad).stderr(format!(
+            "error: {}:{line}:4: only 1 run switched on at tw = 50 with h = 2; with several \
+             fields at a tw each field needs at least 2 runs (for χ per field and the linearity \
+             test)\n",
+            file.display()
+        ));
+        assert!(!out.exists(), "a partial output was written");
+    }
+
+    #[test]
+    fn quenches_at_several_fields_report_the_test_like_twins() {
+        let dir = tempfile::tempdir().unwrap();
+        let spec = QuenchSpec {
+            fields: vec![0.5, 1.0],
+            cubic: 2.0,
+            ..QuenchSpec::standard(3000, 4, true)
+        };
+        let file = write(dir.path(), &spec);
+        let (out, table, json) = (
+            dir.path().join("p.csv"),
+            dir.path().join("t.csv"),
+            dir.path().join("r.json"),
+        );
+        super::fdtemp()
+            .arg("reduce")
+            .arg(&file)
+            .arg("--out")
+            .arg(&out)
+            .arg("--table")
+            .arg(&table)
+            .arg("--json")
+            .arg(&json)
+            .args(["-B", "199"])
+            .assert()
+            .success()
+            .stdout(predicate::str::contains(
+                "perturbed 1000 from tw = 50 (500 at h = 0.5, 500 at h = 1), 1000 from tw = 500 \
+                 (500 at h = 0.5, 500 at h = 1)",
+            ))
+            .stdout(predicate::str::contains(
+                "chi        tw = 50: chi = (<A(t)>_h − <A(t)>_0)/h per field; Richardson \
+                 extrapolation to h → 0: least-squares line in h over 2 levels, its intercept",
+            ))
+            .stdout(predicate::str::contains(
+                "linearity  chi depends on h: max |t| = ",
+            ))
+            .stdout(predicate::str::contains(
+                "           test of (<A(t)>_h − <A(t)>_0)/h against h (second-order response), \
+                 199 Poisson-bootstrap replicates of runs stratified by (tw, h)",
+            ));
+        let t = std::fs::read_to_string(&table).unwrap();
+        assert!(
+            t.starts_with("tw,t,corr,chi,chi_low,chi_high,chi_level1_0.5,chi_level2_1.0,shift,p\n")
+        );
+        assert_eq!(t.lines().count(), 54);
+        let v: serde_json::Value = serde_json::from_slice(&std::fs::read(&json).unwrap()).unwrap();
+        assert_eq!(v["linearity"]["rejects"], true);
+        assert_eq!(v["design"].as_array().unwrap().len(), 2);
+        assert_eq!(v["design"][0]["fields"], serde_json::json!([0.5, 1.0]));
+        assert_eq!(v["settings"]["combine"], "extrapolate");
+        let codes: Vec<&str> = v["cautions"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|c| c["code"].as_str().unwrap())
+            .collect();
+        assert!(codes.contains(&"nonlinear_response") && codes.contains(&"pointwise_only"));
+        assert!(!codes.contains(&"linearity_untested"));
+        assert!(v["points"][0]["p"].is_number());
+        // One field per tw: the test is not run, and the caution says so.
+        let one = write(dir.path(), &QuenchSpec::standard(300, 4, true));
+        super::fdtemp()
+            .arg("reduce")
+            .arg(&one)
+            .arg("--out")
+            .arg(dir.path().join("p1.csv"))
+            .arg("--json")
+            .arg(dir.path().join("r1.json"))
+            .args(["-B", "199"])
+            .assert()
+            .success()
+            .stdout(predicate::str::contains(
+                "linearity  not tested: one field per waiting time (run a second amplitude to \
+                 test that chi does not depend on h)",
+            ));
+        let v: serde_json::Value =
+            serde_json::from_slice(&std::fs::read(dir.path().join("r1.json")).unwrap()).unwrap();
+        assert!(v["linearity"].is_null());
+        assert_eq!(v["cautions"][0]["code"], "linearity_untested");
+        assert!(v["points"][0].get("p").is_none());
+    }
+
+    /// Rejection rate of the overall linearity test over `campaigns` quench campaigns of
+    /// `runs` runs at `fields` with force h + κ₃h³ (B = 499, level 0.05).
+    fn quench_rejections(campaigns: usize, runs: usize, fields: &[f64], cubic: f64) -> (f64, f64) {
+        let dir = tempfile::tempdir().unwrap();
+        let settings = QuenchSettings {
+            resamples: 499,
+            ..Default::default()
+        };
+        let mut hits = 0usize;
+        for s in 0..campaigns {
+            let spec = QuenchSpec {
+                fields: fields.to_vec(),
+                cubic,
+                ..QuenchSpec::standard(runs, 70_000 + s as u64, true)
+            };
+            let file = write(dir.path(), &spec);
+            let r = reduce_quenches(&file, &settings).unwrap();
+            hits += usize::from(r.test.unwrap().rejects);
+        }
+        let p = hits as f64 / campaigns as f64;
+        (p, (p * (1.0 - p) / campaigns as f64).sqrt())
+    }
+
+    /// False alarms of the quench linearity test on the linear two-bath system and its
+    /// power on a small cubic term (docs/validation.md, section "reduce").
+    ///
+    /// `cargo test --release --test reduce -- --ignored --nocapture quench_linearity_study`
+    /// (`FDTEMP_QLIN_CAMPAIGNS`: campaigns per false-alarm row, 200 by default; the power
+    /// rows run at most 200)
+    #[test]
+    #[ignore]
+    fn quench_linearity_study() {
+        let m: usize = std::env::var("FDTEMP_QLIN_CAMPAIGNS")
+            .ok()
+            .and_then(|v| v.parse().ok())
+            .unwrap_or(200);
+        let runs = 2400;
+        let rows: [(&str, &[f64], f64); 5] = [
+            ("±0.5, ±1 (h²)", &[-1.0, -0.5, 0.5, 1.0], 0.0),
+            ("0.5, 1 (h)", &[0.5, 1.0], 0.0),
+            ("±0.5, ±1 (h²)", &[-1.0, -0.5, 0.5, 1.0], 0.1),
+            ("±0.5, ±1 (h²)", &[-1.0, -0.5, 0.5, 1.0], 0.3),
+            ("0.5, 1 (h)", &[0.5, 1.0], 0.3),
+        ];
+        println!(
+            "{runs} runs per campaign (a third unperturbed, a third per tw), 53 points, B = 499, level 0.05"
+        );
+        for (name, fields, cubic) in rows {
+            // The power rows need fewer campaigns than the false-alarm rows.
+            let m = if cubic == 0.0 { m } else { m.min(200) };
+            let (p, sd) = quench_rejections(m, runs, fields, cubic);
+            println!(
+                "fields {name}, force h + {cubic} h³: rejections {p:.4} ± {sd:.4} over {m} campaigns"
+            );
+        }
     }
 
     /// Coverage of X (the fit over all tw and per tw) and the equilibrium verdict of the
@@ -760,7 +1073,7 @@ fn the_worked_examples_in_the_docs_print_what_the_docs_show() {
         }
         checked += 1;
     }
-    assert_eq!(checked, 2);
+    assert_eq!(checked, 3);
 }
 
 /// The Glauber–Ising chain as twin runs with a random-sign field: the reduced χ (±h,
@@ -811,7 +1124,8 @@ fn ising_twins_agree_with_the_field_free_estimator() {
     );
 }
 
-/// The same seed gives byte-identical files at 1 and 2 worker threads (both protocols).
+/// The same seed gives byte-identical files at 1 and 2 worker threads (both protocols;
+/// quenches with one field and with several).
 #[test]
 fn reduce_output_does_not_depend_on_the_thread_count() {
     let dir = tempfile::tempdir().unwrap();
@@ -824,7 +1138,16 @@ fn reduce_output_does_not_depend_on_the_thread_count() {
         ),
     )
     .unwrap();
-    for (input, extra) in [(&twins, true), (&quenches, false)] {
+    let fields = dir.path().join("qf.csv");
+    std::fs::write(
+        &fields,
+        fdtemp::scenarios::sim::twins::quench_csv(&fdtemp::scenarios::sim::twins::QuenchSpec {
+            fields: vec![-1.0, -0.5, 0.5, 1.0],
+            ..fdtemp::scenarios::sim::twins::QuenchSpec::standard(600, 2, true)
+        }),
+    )
+    .unwrap();
+    for (input, extra) in [(&twins, true), (&quenches, false), (&fields, true)] {
         let mut outs = Vec::new();
         for threads in ["1", "2"] {
             let out = dir.path().join(format!("out{threads}.csv"));

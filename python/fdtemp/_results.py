@@ -274,7 +274,8 @@ class ReduceResult(_Result):
         return _frame(self.out)
 
     def table_frame(self):
-        """The per-point table of twin runs as a pandas DataFrame (None for quenches)."""
+        """The per-point table (twin runs; quenches with several fields at a tw) as a pandas
+        DataFrame (None for quenches with one field per tw)."""
         return None if self.table is None else _frame(self.table)
 
     def fit(self, *, temperature, **options):
@@ -294,8 +295,8 @@ class ReduceResult(_Result):
         files = [(Path(out), self.out)] if out is not None else []
         if table is not None:
             if self.table is None:
-                raise ValueError("table is for twin runs; for repeated quenches out is "
-                                 "already the per-point table")
+                raise ValueError("table is for twin runs and quenches with several fields at "
+                                 "a tw; for these quenches out is already the per-point table")
             files.append((Path(table), self.table))
         for p, _ in files:
             if p.exists() and not overwrite:

@@ -21,10 +21,12 @@ pub struct ReduceArgs {
     /// The protocol of the raw file.
     #[arg(long, value_enum, default_value_t = Protocol::Auto)]
     protocol: Protocol,
-    /// How χ is formed from several field levels (twins).
+    /// How χ is formed from several field levels (twins; quenches with several fields at a
+    /// tw).
     #[arg(long, value_enum, default_value_t = Combine::Extrapolate)]
     combine: Combine,
-    /// Also write the per-point table (means, intervals, levels, shifts, p-values) here.
+    /// Also write the per-point table (means, intervals, levels, shifts, p-values) here
+    /// (twins; quenches with several fields at a tw).
     #[arg(long, value_name = "FILE")]
     table: Option<PathBuf>,
     /// Write the reduction as JSON to this file (settings, levels, the linearity test,
@@ -88,12 +90,6 @@ pub fn run(a: ReduceArgs) -> fdtemp::Result<()> {
         Protocol::Auto => src.detect()?,
         p => p,
     };
-    if protocol == Protocol::Quenches && a.table.is_some() {
-        return Err(fdtemp::Error::Setting(
-            "--table is for twin runs; for repeated quenches --out is already the per-point table"
-                .into(),
-        ));
-    }
     let settings = ReduceSettings {
         protocol,
         combine: a.combine,
@@ -111,6 +107,14 @@ pub fn run(a: ReduceArgs) -> fdtemp::Result<()> {
         },
     };
     let red = fdtemp::reduce::reduce(&src, &settings)?;
+    let table = reduce_report::table_csv(&red);
+    if a.table.is_some() && table.is_none() {
+        return Err(fdtemp::Error::Setting(
+            "--table is for twin runs and for repeated quenches with several fields at a tw; \
+             with one field per tw --out is already the per-point table"
+                .into(),
+        ));
+    }
     let mut outputs = vec![Output {
         path: a.out.clone(),
         bytes: reduce_report::out_csv(&red),
@@ -118,7 +122,7 @@ pub fn run(a: ReduceArgs) -> fdtemp::Result<()> {
     if let Some(p) = &a.table {
         outputs.push(Output {
             path: p.clone(),
-            bytes: reduce_report::table_csv(&red).unwrap_or_default(),
+            bytes: table.clone().unwrap_or_default(),
         });
     }
     if let Some(p) = &a.json {

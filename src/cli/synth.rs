@@ -2,7 +2,7 @@
 
 use super::RunArgs;
 use fdtemp::output::{self, Output};
-use fdtemp::scenarios::sim::{Scenario, SimSpec, simulate};
+use fdtemp::scenarios::sim::{Scenario, SimSpec, simulate_with_fields};
 use fdtemp::twotime::settings::Hold;
 use std::path::PathBuf;
 
@@ -31,6 +31,16 @@ pub struct SynthArgs {
     /// ratio X(t, s)).
     #[arg(long, value_enum, default_value_t = Hold::Tw)]
     hold: Hold,
+    /// two-baths-quenches only: the fields of the perturbed runs (comma-separated, signed;
+    /// they take turns within each waiting time; default 0.5). Two or more give `reduce`
+    /// its linear-response test.
+    #[arg(
+        long,
+        value_name = "H,...",
+        value_delimiter = ',',
+        allow_negative_numbers = true
+    )]
+    fields: Vec<f64>,
     #[command(flatten)]
     pub(super) run: RunArgs,
 }
@@ -50,7 +60,7 @@ pub fn run(a: SynthArgs) -> fdtemp::Result<()> {
         quick: a.quick,
         hold: a.hold,
     };
-    let sim = simulate(&spec)?;
+    let sim = simulate_with_fields(&spec, &a.fields)?;
     let fit = sim.truth["fit"]
         .as_str()
         .unwrap_or("")

@@ -119,7 +119,8 @@ impl RawSource {
 pub struct ReduceSettings {
     /// The protocol (`auto`: from the header).
     pub protocol: Protocol,
-    /// How χ is formed from several field levels (twins).
+    /// How χ is formed from several field levels (twins, and quenches with several fields
+    /// at a tw).
     pub combine: twin::Combine,
     /// Bootstrap resamples of the samples (runs).
     pub resamples: usize,
@@ -156,7 +157,7 @@ pub enum Reduced {
     /// Twin runs: a campaign per sample, and the linear-response test.
     Twins(Box<TwinReduction>),
     /// Repeated quenches: pointwise C and χ.
-    Quenches(quench::QuenchReduction),
+    Quenches(Box<quench::QuenchReduction>),
 }
 
 /// A reduction with the name of its input.
@@ -208,17 +209,18 @@ pub fn reduce(src: &RawSource, settings: &ReduceSettings) -> Result<Reduction> {
                 resamples: settings.resamples,
                 seed: settings.seed,
                 level: settings.level,
+                combine: settings.combine,
             };
             let red = quench::reduce_quenches_from(src, &q).map_err(&named)?;
             if let Some(f) = &settings.quench_fit {
                 let fits = quench_fit::fit_quenches(&red, f).map_err(&named)?;
                 return Ok(Reduction {
                     label,
-                    reduced: Reduced::Quenches(red),
+                    reduced: Reduced::Quenches(Box::new(red)),
                     quench_fit: Some(fits),
                 });
             }
-            Reduced::Quenches(red)
+            Reduced::Quenches(Box::new(red))
         }
         _ => {
             if settings.quench_fit.is_some() {

@@ -614,34 +614,132 @@ fn lined_up(
     Ok(())
 }
 
-/// The levels and their χ arrays (samples × points), and whether they are ±h pairs.
-fn levels(runs: &TwinRuns) -> (bool, Vec<f64>, Vec<Array2<f64>>) {
-    let f = &runs.fields;
-    let mut amps: Vec<f64> = f.iter().map(|h| h.abs()).collect();
+/// One field level: how its χ is formed from the means of the runs at each field.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct Level {
+    /// Index (in the fields) of the run at +a (±h pairs) or at h (one-sided).
+    pub plus: usize,
+    /// Index of the run at −a (±h pairs only).
+    pub minus: Option<usize>,
+    /// The amplitude a (±h pairs) or the signed h.
+    pub value: f64,
+}
+
+/// How χ is formed from a set of fields: the levels, the combination, the slope.
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) struct LevelPlan {
+    /// The design as reported.
+    pub design: LevelDesign,
+    /// The levels, in the order of `design.levels`.
+    pub levels: Vec<Level>,
+    /// The level variable u (h² for ±h pairs, h otherwise).
+    pub u: Vec<f64>,
+    /// Least-squares slope weights in u (two levels or more).
+    pub slope: Option<Vec<f64>>,
+    /// max u − min u.
+    pub span: f64,
+    /// What the linearity test looks at, in words.
+    pub looks_at: &'static str,
+}
+
+/// The levels of a set of distinct nonzero signed fields: ±h pairs when every amplitude
+/// was run with both signs (χ = (m₊ − m₋)/(2a), u = a²), one-sided otherwise
+/// (χ = (m_h − m₀)/h, u = h, ordered by |h|); the weights of the reduced χ by `combine`.
+/// Shared by twin runs and repeated quenches.
+pub(crate) fn plan_levels(fields: &[f64], combine: Combine) -> LevelPlan {
+    let mut amps: Vec<f64> = fields.iter().map(|h| h.abs()).collect();
     amps.sort_by(f64::total_cmp);
     amps.dedup_by(|a, b| key(*a) == key(*b));
-    let find = |h: f64| f.iter().position(|&g| key(g) == key(h));
+    let find = |h: f64| fields.iter().position(|&g| key(g) == key(h));
     let paired = amps
         .iter()
         .all(|&a| find(a).is_some() && find(-a).is_some());
-    if paired {
-        let chis = amps
-            .iter()
-            .map(|&a| {
-                let (p, m) = (find(a).unwrap_or(0), find(-a).unwrap_or(0));
-                (&runs.mh[p] - &runs.mh[m]) / (2.0 * a)
+    let levels: Vec<Level> = if paired {
+        amps.iter()
+            .map(|&a| Level {
+                plus: find(a).unwrap_or(0),
+                minus: find(-a),
+                value: a,
             })
-            .collect();
-        (true, amps, chis)
+            .collect()
     } else {
-        let mut hs = f.clone();
+        let mut hs = fields.to_vec();
         hs.sort_by(|a, b| a.abs().total_cmp(&b.abs()).then(a.total_cmp(b)));
-        let chis = hs
-            .iter()
-            .map(|&h| (&runs.mh[find(h).unwrap_or(0)] - &runs.m0) / h)
-            .collect();
-        (false, hs, chis)
+        hs.iter()
+            .map(|&h| Level {
+                plus: find(h).unwrap_or(0),
+                minus: None,
+                value: h,
+            })
+            .collect()
+    };
+    let lv: Vec<f64> = levels.iter().map(|l| l.value).collect();
+    let u: Vec<f64> = if paired {
+        lv.iter().map(|a| a * a).collect()
+    } else {
+        lv.clone()
+    };
+    let kl = lv.len();
+    let (weights, slope, rule) = match (combine, kl) {
+        (Combine::Extrapolate, k) if k >= 2 => {
+            let (w, s) = line_weights(&u);
+            let rule = format!(
+                "Richardson extrapolation to h → 0: least-squares line in {} over {k} levels, its intercept",
+                if paired { "h²" } else { "h" }
+            );
+            (w, Some(s), rule)
+        }
+        (_, k) => {
+            let mut w = vec![0.0; k];
+            w[0] = 1.0;
+            let s = (k >= 2).then(|| line_weights(&u).1);
+            let rule = if k == 1 {
+                "one field level only: no extrapolation".to_string()
+            } else {
+                "the smallest amplitude alone".to_string()
+            };
+            (w, s, rule)
+        }
+    };
+    let rule = format!(
+        "{}; {}",
+        if paired {
+            "χ = (m(+h) − m(−h))/(2h) per amplitude"
+        } else {
+            "χ = (m(h) − m(0))/h per field"
+        },
+        rule
+    );
+    let span = u.iter().copied().fold(f64::NEG_INFINITY, f64::max)
+        - u.iter().copied().fold(f64::INFINITY, f64::min);
+    LevelPlan {
+        design: LevelDesign {
+            symmetric: paired,
+            levels: lv,
+            weights,
+            rule,
+        },
+        levels,
+        u,
+        slope,
+        span,
+        looks_at: if paired {
+            "the ±h combination against h² (third-order response)"
+        } else {
+            "(m(h) − m(0))/h against h (second-order response)"
+        },
     }
+}
+
+/// The levels' χ arrays (samples × points), in the plan's order.
+fn level_chis(runs: &TwinRuns, plan: &LevelPlan) -> Vec<Array2<f64>> {
+    plan.levels
+        .iter()
+        .map(|l| match l.minus {
+            Some(m) => (&runs.mh[l.plus] - &runs.mh[m]) / (2.0 * l.value),
+            None => (&runs.mh[l.plus] - &runs.m0) / l.value,
+        })
+        .collect()
 }
 
 /// Least-squares intercept and slope weights in `u` over the levels.
@@ -661,43 +759,11 @@ fn line_weights(u: &[f64]) -> (Vec<f64>, Vec<f64>) {
 /// campaign cannot be formed.
 pub fn reduce_twins(runs: &TwinRuns, settings: &TwinSettings) -> Result<TwinReduction> {
     settings.validate()?;
-    let (symmetric, lv, chis) = levels(runs);
-    let u: Vec<f64> = if symmetric {
-        lv.iter().map(|a| a * a).collect()
-    } else {
-        lv.clone()
-    };
-    let kl = lv.len();
-    let (weights, slope_w, rule) = match (settings.combine, kl) {
-        (Combine::Extrapolate, k) if k >= 2 => {
-            let (w, s) = line_weights(&u);
-            let rule = format!(
-                "Richardson extrapolation to h → 0: least-squares line in {} over {k} levels, its intercept",
-                if symmetric { "h²" } else { "h" }
-            );
-            (w, Some(s), rule)
-        }
-        (_, k) => {
-            let mut w = vec![0.0; k];
-            w[0] = 1.0;
-            let s = (k >= 2).then(|| line_weights(&u).1);
-            let rule = if k == 1 {
-                "one field level only: no extrapolation".to_string()
-            } else {
-                "the smallest amplitude alone".to_string()
-            };
-            (w, s, rule)
-        }
-    };
-    let rule = format!(
-        "{}; {}",
-        if symmetric {
-            "χ = (m(+h) − m(−h))/(2h) per amplitude"
-        } else {
-            "χ = (m(h) − m(0))/h per field"
-        },
-        rule
-    );
+    let plan = plan_levels(&runs.fields, settings.combine);
+    let chis = level_chis(runs, &plan);
+    let weights = plan.design.weights.clone();
+    let slope_w = plan.slope.clone();
+    let span = plan.span;
     let (n, np) = runs.m0.dim();
     let mut chi = Array2::<f64>::zeros((n, np));
     for (w, c) in weights.iter().zip(&chis) {
@@ -710,8 +776,6 @@ pub fn reduce_twins(runs: &TwinRuns, settings: &TwinSettings) -> Result<TwinRedu
         }
         s
     });
-    let span = u.iter().copied().fold(f64::NEG_INFINITY, f64::max)
-        - u.iter().copied().fold(f64::INFINITY, f64::min);
     let boot = bootstrap(&chi, slope.as_ref(), &chis, span, settings);
     let alpha = settings.test_level();
     let nf = n as f64;
@@ -736,11 +800,7 @@ pub fn reduce_twins(runs: &TwinRuns, settings: &TwinSettings) -> Result<TwinRedu
         })
         .collect();
     let test = boot.max_p.map(|(stat, p, worst)| FieldTest {
-        looks_at: if symmetric {
-            "the ±h combination against h² (third-order response)".into()
-        } else {
-            "(m(h) − m(0))/h against h (second-order response)".into()
-        },
+        looks_at: plan.looks_at.into(),
         statistic: stat,
         p,
         alpha,
@@ -760,12 +820,7 @@ pub fn reduce_twins(runs: &TwinRuns, settings: &TwinSettings) -> Result<TwinRedu
     )?;
     Ok(TwinReduction {
         campaign,
-        design: LevelDesign {
-            symmetric,
-            levels: lv,
-            weights,
-            rule,
-        },
+        design: plan.design,
         points,
         test,
         early: runs.early.clone(),
@@ -792,17 +847,50 @@ fn t_stats(sum: &[f64], sum2: &[f64], n: f64, scale: &[f64]) -> Vec<f64> {
         .map(|((s, s2), sc)| {
             let mean = s / n;
             let var = ((s2 - s * mean) / (n - 1.0)).max(0.0);
-            let se = (var / n).sqrt();
-            let tiny = 1e-12 * sc;
-            if se > tiny {
-                mean / se
-            } else if mean.abs() <= tiny {
-                0.0
-            } else {
-                f64::INFINITY.copysign(mean)
-            }
+            studentize(mean, (var / n).sqrt(), *sc)
         })
         .collect()
+}
+
+/// `estimate / se`; with no spread (se within 10⁻¹² of `scale`) 0 when the estimate is 0
+/// to rounding, infinite otherwise.
+pub(crate) fn studentize(estimate: f64, se: f64, scale: f64) -> f64 {
+    let tiny = 1e-12 * scale;
+    if se > tiny {
+        estimate / se
+    } else if estimate.abs() <= tiny {
+        0.0
+    } else {
+        f64::INFINITY.copysign(estimate)
+    }
+}
+
+/// The max-|t| test over points: `observed` t_p, and per replicate the |t*_p| with the
+/// null imposed (centred). Returns the points' p-values `(1 + #{|t*_p| ≥ |t_p|})/(B + 1)`,
+/// the statistic `max_p |t_p|`, its p-value `(1 + #{max_p |t*_p| ≥ max})/(B + 1)` and the
+/// index of the worst point (Westfall & Young 1993, ch. 2: the single-step max-T).
+pub(crate) fn max_t_test(observed: &[f64], replicates: &[&[f64]]) -> (Vec<f64>, f64, f64, usize) {
+    let bf = replicates.len() as f64 + 1.0;
+    let pp: Vec<f64> = (0..observed.len())
+        .map(|p| {
+            let o = observed[p].abs();
+            (1.0 + replicates.iter().filter(|r| r[p] >= o).count() as f64) / bf
+        })
+        .collect();
+    let (worst, stat) =
+        observed
+            .iter()
+            .map(|v| v.abs())
+            .enumerate()
+            .fold(
+                (0, f64::NEG_INFINITY),
+                |acc, (i, v)| if v > acc.1 { (i, v) } else { acc },
+            );
+    let exceed = replicates
+        .iter()
+        .filter(|r| r.iter().copied().fold(0.0, f64::max) >= stat)
+        .count();
+    (pp, stat, (1.0 + exceed as f64) / bf, worst)
 }
 
 fn bootstrap(
@@ -891,22 +979,9 @@ fn bootstrap(
     let (point_p, max_p) = match observed {
         None => (None, None),
         Some(obs) => {
-            let bf = b as f64 + 1.0;
-            let pp: Vec<f64> = (0..np)
-                .map(|p| {
-                    let o = obs[p].abs();
-                    (1.0 + reps.iter().filter(|r| r.1[p] >= o).count() as f64) / bf
-                })
-                .collect();
-            let (worst, stat) = obs.iter().map(|v| v.abs()).enumerate().fold(
-                (0, f64::NEG_INFINITY),
-                |acc, (i, v)| if v > acc.1 { (i, v) } else { acc },
-            );
-            let exceed = reps
-                .iter()
-                .filter(|r| r.1.iter().copied().fold(0.0, f64::max) >= stat)
-                .count();
-            (Some(pp), Some((stat, (1.0 + exceed as f64) / bf, worst)))
+            let rt: Vec<&[f64]> = reps.iter().map(|r| r.1.as_slice()).collect();
+            let (pp, stat, p, worst) = max_t_test(&obs, &rt);
+            (Some(pp), Some((stat, p, worst)))
         }
     };
     Boot {

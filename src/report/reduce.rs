@@ -3,7 +3,7 @@
 
 use crate::reduce::quench::QuenchReduction;
 use crate::reduce::quench_fit::QuenchFits;
-use crate::reduce::twin::TwinReduction;
+use crate::reduce::twin::{FieldTest, TwinReduction};
 use crate::reduce::{Reduced, Reduction};
 use crate::report::format::{fmt_num, p_clause, sig};
 use serde_json::{Value, json};
@@ -92,10 +92,12 @@ pub fn out_csv(r: &Reduction) -> Vec<u8> {
     }
 }
 
-/// The per-point table `--table` names (twins only).
+/// The per-point table `--table` names: twins, and quenches with several fields at a tw
+/// (χ per field, shift, p-value); None for quenches with one field per tw.
 pub fn table_csv(r: &Reduction) -> Option<Vec<u8>> {
     match &r.reduced {
         Reduced::Twins(t) => Some(table_twins(t)),
+        Reduced::Quenches(q) if !q.designs.is_empty() => Some(table_quench_levels(q)),
         Reduced::Quenches(_) => None,
     }
 }
@@ -131,6 +133,8 @@ pub fn json(r: &Reduction) -> Vec<u8> {
             "perturbed_runs": q.perturbed.iter().map(|(tw, n)| json!({"tw": tw, "runs": n})).collect::<Vec<_>>(),
             "n_times": q.times,
             "n_points": q.points.len(),
+            "design": q.designs,
+            "linearity": q.test,
             "early": q.early,
             "cautions": cautions(&quench_lines(q)),
             "fit": r.quench_fit,
@@ -188,11 +192,36 @@ fn render_twins(r: &TwinReduction, file: &str) -> String {
         levels.join(", ")
     );
     let _ = writeln!(s, "chi        {}", r.design.rule);
-    match &r.test {
+    render_linearity(
+        &mut s,
+        r.test.as_ref(),
+        r.points.len(),
+        &format!("{} resamples of samples", r.settings.resamples),
+        r.settings.resamples,
+        "one field level only",
+    );
+    for l in twin_lines(r).iter().filter(|l| l.code == EARLY) {
+        let _ = writeln!(s, "caution    {}", l.message);
+    }
+    s
+}
+
+/// The `linearity` lines of the text report (twins and quenches): `tested` points,
+/// `resampled` says what the bootstrap resampled, `b` its replicates, `single` why there
+/// is no test.
+fn render_linearity(
+    s: &mut String,
+    test: Option<&FieldTest>,
+    tested: usize,
+    resampled: &str,
+    b: usize,
+    single: &str,
+) {
+    match test {
         None => {
             let _ = writeln!(
                 s,
-                "linearity  not tested: one field level only (run a second amplitude to test that chi does not depend on h)"
+                "linearity  not tested: {single} (run a second amplitude to test that chi does not depend on h)"
             );
         }
         Some(t) => {
@@ -201,17 +230,15 @@ fn render_twins(r: &TwinReduction, file: &str) -> String {
             } else {
                 "∞".into()
             };
-            let b = r.settings.resamples;
             if t.rejects {
                 let _ = writeln!(
                     s,
-                    "linearity  chi depends on h: max |t| = {stat} at tw = {}, t = {} ({}; level {}); {} of {} points reject on their own",
+                    "linearity  chi depends on h: max |t| = {stat} at tw = {}, t = {} ({}; level {}); {} of {tested} points reject on their own",
                     fmt_num(t.worst.tw),
                     fmt_num(t.worst.t),
                     p_clause(t.p, b),
                     fmt_num(t.alpha),
                     t.points_rejecting,
-                    r.points.len()
                 );
                 let _ = writeln!(
                     s,
@@ -220,23 +247,30 @@ fn render_twins(r: &TwinReduction, file: &str) -> String {
             } else {
                 let _ = writeln!(
                     s,
-                    "linearity  no dependence of chi on h detected: max |t| = {stat} over {} points ({}; level {})",
-                    r.points.len(),
+                    "linearity  no dependence of chi on h detected: max |t| = {stat} over {tested} points ({}; level {})",
                     p_clause(t.p, b),
                     fmt_num(t.alpha)
                 );
             }
-            let _ = writeln!(
-                s,
-                "           test of {}, {b} resamples of samples",
-                t.looks_at
-            );
+            let _ = writeln!(s, "           test of {}, {resampled}", t.looks_at);
         }
     }
-    for l in twin_lines(r).iter().filter(|l| l.code == EARLY) {
-        let _ = writeln!(s, "caution    {}", l.message);
+}
+
+/// The `nonlinear_response` caution of a rejecting test.
+fn nonlinear_line(t: &FieldTest, b: usize) -> Line {
+    Line {
+        code: "nonlinear_response",
+        message: format!(
+            "chi depends on h (max |t| at tw = {}, t = {}; {}; level {}): the response is \
+             not linear at these fields; use smaller fields, or keep the extrapolation to \
+             h → 0 and check it with a third amplitude",
+            fmt_num(t.worst.tw),
+            fmt_num(t.worst.t),
+            p_clause(t.p, b),
+            fmt_num(t.alpha)
+        ),
     }
-    s
 }
 
 /// Code of the caution that a perturbed run moved before its field was switched on.
@@ -252,18 +286,7 @@ fn twin_lines(r: &TwinReduction) -> Vec<Line> {
                       second amplitude to test it)"
                 .into(),
         }),
-        Some(t) if t.rejects => v.push(Line {
-            code: "nonlinear_response",
-            message: format!(
-                "chi depends on h (max |t| at tw = {}, t = {}; {}; level {}): the response is \
-                 not linear at these fields; use smaller fields, or keep the extrapolation to \
-                 h → 0 and check it with a third amplitude",
-                fmt_num(t.worst.tw),
-                fmt_num(t.worst.t),
-                p_clause(t.p, r.settings.resamples),
-                fmt_num(t.alpha)
-            ),
-        }),
+        Some(t) if t.rejects => v.push(nonlinear_line(t, r.settings.resamples)),
         Some(_) => {}
     }
     if let Some(e) = &r.early {
@@ -311,7 +334,22 @@ fn render_quenches(r: &QuenchReduction, file: &str) -> String {
     let groups: Vec<String> = r
         .perturbed
         .iter()
-        .map(|(tw, n)| format!("{n} from tw = {}", fmt_num(*tw)))
+        .map(|(tw, n)| {
+            let fields = r
+                .designs
+                .iter()
+                .find(|d| d.tw.to_bits() == tw.to_bits())
+                .map_or(String::new(), |d| {
+                    let f: Vec<String> = d
+                        .fields
+                        .iter()
+                        .zip(&d.runs)
+                        .map(|(h, k)| format!("{k} at h = {}", fmt_num(*h)))
+                        .collect();
+                    format!(" ({})", f.join(", "))
+                });
+            format!("{n} from tw = {}{fields}", fmt_num(*tw))
+        })
         .collect();
     let _ = writeln!(
         s,
@@ -330,6 +368,9 @@ fn render_quenches(r: &QuenchReduction, file: &str) -> String {
             "plain <A(t)A(tw)>"
         }
     );
+    for d in &r.designs {
+        let _ = writeln!(s, "chi        tw = {}: {}", fmt_num(d.tw), d.design.rule);
+    }
     let _ = writeln!(
         s,
         "intervals  {}% percentile, {} Poisson-bootstrap replicates of runs, unperturbed and perturbed runs apart (seed {})",
@@ -337,6 +378,33 @@ fn render_quenches(r: &QuenchReduction, file: &str) -> String {
         r.settings.resamples,
         r.settings.seed
     );
+    let tested = r.points.iter().filter(|p| p.p.is_some()).count();
+    render_linearity(
+        &mut s,
+        r.test.as_ref(),
+        tested,
+        &format!(
+            "{} Poisson-bootstrap replicates of runs stratified by (tw, h)",
+            r.settings.resamples
+        ),
+        r.settings.resamples,
+        if r.designs.is_empty() {
+            "one field per waiting time"
+        } else {
+            "one field level per waiting time (±h of one amplitude)"
+        },
+    );
+    if r.test.is_some() && !r.untested.is_empty() {
+        let _ = writeln!(
+            s,
+            "           not tested at tw = {} (one field there)",
+            r.untested
+                .iter()
+                .map(|v| fmt_num(*v))
+                .collect::<Vec<_>>()
+                .join(", ")
+        );
+    }
     match &r.early {
         None => {
             let _ = writeln!(
@@ -361,6 +429,39 @@ fn render_quenches(r: &QuenchReduction, file: &str) -> String {
 /// The quench reduction's cautions.
 fn quench_lines(r: &QuenchReduction) -> Vec<Line> {
     let mut v = Vec::new();
+    match &r.test {
+        None => v.push(Line {
+            code: "linearity_untested",
+            message: format!(
+                "{}: that chi does not depend on h is not tested (run a second amplitude at a \
+                 tw to test it)",
+                if r.designs.is_empty() {
+                    "one field per waiting time"
+                } else {
+                    "one field level per waiting time (±h of one amplitude)"
+                }
+            ),
+        }),
+        Some(t) => {
+            if t.rejects {
+                v.push(nonlinear_line(t, r.settings.resamples));
+            }
+            if !r.untested.is_empty() {
+                v.push(Line {
+                    code: "linearity_untested",
+                    message: format!(
+                        "one field at tw = {}: that chi does not depend on h is not tested there \
+                         (run a second amplitude at that tw to test it)",
+                        r.untested
+                            .iter()
+                            .map(|v| fmt_num(*v))
+                            .collect::<Vec<_>>()
+                            .join(", ")
+                    ),
+                });
+            }
+        }
+    }
     if let Some(e) = &r.early {
         v.push(Line {
             code: EARLY,
@@ -400,6 +501,53 @@ fn table_quenches(r: &QuenchReduction) -> Vec<u8> {
             opt(p.chi_low),
             opt(p.chi_high)
         );
+    }
+    s.into_bytes()
+}
+
+/// The per-point table of quenches with several fields at a tw: χ per level, the shift
+/// across the levels and the point's linearity p-value (empty cells at points of a tw with
+/// one field).
+fn table_quench_levels(r: &QuenchReduction) -> Vec<u8> {
+    let k = r
+        .designs
+        .iter()
+        .map(|d| d.design.levels.len())
+        .max()
+        .unwrap_or(0);
+    let shared = r
+        .designs
+        .windows(2)
+        .all(|w| w[0].design.levels == w[1].design.levels);
+    let mut s = String::from("tw,t,corr,chi,chi_low,chi_high");
+    for j in 0..k {
+        match r.designs.first().filter(|_| shared) {
+            Some(d) => {
+                let _ = write!(s, ",chi_level{}_{:?}", j + 1, d.design.levels[j]);
+            }
+            None => {
+                let _ = write!(s, ",chi_level{}", j + 1);
+            }
+        }
+    }
+    s.push_str(",shift,p\n");
+    let opt = |v: Option<f64>| v.map_or(String::new(), |x| format!("{x:?}"));
+    for p in &r.points {
+        let _ = write!(
+            s,
+            "{:?},{:?},{:?},{},{},{}",
+            p.tw,
+            p.t,
+            p.corr,
+            opt(p.chi),
+            opt(p.chi_low),
+            opt(p.chi_high)
+        );
+        for j in 0..k {
+            let c = p.chi_levels.as_ref().and_then(|c| c.get(j).copied());
+            let _ = write!(s, ",{}", opt(c));
+        }
+        let _ = writeln!(s, ",{},{}", opt(p.shift), opt(p.p));
     }
     s.into_bytes()
 }

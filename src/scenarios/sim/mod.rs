@@ -104,6 +104,22 @@ pub struct SimOutput {
 /// # Errors
 /// [`Error::Setting`] when fewer than 2 samples are asked for.
 pub fn simulate(spec: &SimSpec) -> Result<SimOutput> {
+    check(spec)?;
+    Ok(match spec.scenario {
+        Scenario::TwoBaths => ou::two_baths(spec),
+        Scenario::OuEquilibrium => ou::equilibrium(spec),
+        Scenario::Brownian => brownian::brownian(spec),
+        Scenario::IsingChain => ising::ising_chain(spec),
+        Scenario::Resistor => resistor::resistor(spec),
+        Scenario::TwoLines => two_lines::two_lines(spec)?,
+        Scenario::TwoBathsTwins => twins::two_baths(spec),
+        Scenario::TwoBathsQuenches => twins::two_baths_quenches(spec, &[])?,
+        Scenario::IsingTwins => ising_twins::ising_twins(spec),
+    })
+}
+
+/// The settings' checks shared by every scenario.
+fn check(spec: &SimSpec) -> Result<()> {
     if spec.samples < 2 {
         return Err(Error::Setting(format!(
             "--samples is {}, expected at least 2 independent runs",
@@ -115,17 +131,26 @@ pub fn simulate(spec: &SimSpec) -> Result<SimOutput> {
             "--hold t is simulated only for ising-chain; the other systems hold tw".into(),
         ));
     }
-    Ok(match spec.scenario {
-        Scenario::TwoBaths => ou::two_baths(spec),
-        Scenario::OuEquilibrium => ou::equilibrium(spec),
-        Scenario::Brownian => brownian::brownian(spec),
-        Scenario::IsingChain => ising::ising_chain(spec),
-        Scenario::Resistor => resistor::resistor(spec),
-        Scenario::TwoLines => two_lines::two_lines(spec)?,
-        Scenario::TwoBathsTwins => twins::two_baths(spec),
-        Scenario::TwoBathsQuenches => twins::two_baths_quenches(spec),
-        Scenario::IsingTwins => ising_twins::ising_twins(spec),
-    })
+    Ok(())
+}
+
+/// Runs the simulation with the perturbed runs at `fields` (`two-baths-quenches` only;
+/// empty: as [`simulate`]).
+///
+/// # Errors
+/// As [`simulate`]; [`Error::Setting`] for fields with another scenario, a zero or
+/// repeated field.
+pub fn simulate_with_fields(spec: &SimSpec, fields: &[f64]) -> Result<SimOutput> {
+    if fields.is_empty() {
+        return simulate(spec);
+    }
+    if spec.scenario != Scenario::TwoBathsQuenches {
+        return Err(Error::Setting(
+            "--fields is simulated only for two-baths-quenches".into(),
+        ));
+    }
+    check(spec)?;
+    twins::two_baths_quenches(spec, fields)
 }
 
 /// The small constant force of the perturbed twins.

@@ -15,6 +15,7 @@
 
 use super::ou::Mode;
 use super::{PARTICLES, SimOutput, SimSpec, log_grid};
+use crate::error::{Error, Result};
 use crate::resample::replicate_rng;
 use rand::RngExt;
 use rand_distr::StandardNormal;
@@ -214,8 +215,11 @@ pub(super) fn two_baths(spec: &SimSpec) -> SimOutput {
 
 /// Repeated quenches of the two-bath system for `reduce` (protocol 2): independent runs of
 /// one particle started in equilibrium; run k is unperturbed when k mod 3 = 0, otherwise
-/// a step force h from tw = 50 (k mod 3 = 1) or 500 (k mod 3 = 2). Every run is recorded
-/// at the same times: two before the first tw, both tws, and the lags after each.
+/// a step force from tw = 50 (k mod 3 = 1) or 500 (k mod 3 = 2), with the field
+/// `fields[(k / 3) mod len]` (the fields take turns within each tw). Every run is recorded
+/// at the same times: two before the first tw, both tws, and the lags after each. As for
+/// twins, the force can be made nonlinear, `h + κ₂h² + κ₃h³`, so that
+/// χ(h) = χ₁ (1 + κ₂h + κ₃h²) exactly.
 #[derive(Debug, Clone, PartialEq)]
 pub struct QuenchSpec {
     /// Independent runs.
@@ -224,8 +228,12 @@ pub struct QuenchSpec {
     pub seed: u64,
     /// Fewer times.
     pub quick: bool,
-    /// The field of the perturbed runs.
-    pub field: f64,
+    /// The fields of the perturbed runs (signed; they take turns within each tw).
+    pub fields: Vec<f64>,
+    /// κ₂ of the force `h + κ₂h² + κ₃h³` (0 for a linear system).
+    pub quadratic: f64,
+    /// κ₃ of the force (0 for a linear system).
+    pub cubic: f64,
     /// How long before tw the field is really switched on (0: at tw, as recorded).
     pub lead: f64,
     /// The slow mode's temperature (2.5 as `two-baths`; 1, the bath's, for equilibrium).
@@ -239,12 +247,17 @@ impl QuenchSpec {
             runs,
             seed,
             quick,
-            field: 0.5,
+            fields: vec![QUENCH_FIELD],
+            quadratic: 0.0,
+            cubic: 0.0,
             lead: 0.0,
             slow_temperature: Mode::SLOW.temperature,
         }
     }
 }
+
+/// The field of `synth two-baths-quenches` (without `--fields`).
+pub const QUENCH_FIELD: f64 = 0.5;
 
 /// The recorded times of every quench run.
 pub fn quench_times(quick: bool) -> Vec<f64> {
@@ -274,8 +287,12 @@ pub fn quench_csv(spec: &QuenchSpec) -> Vec<u8> {
             let mut rng = replicate_rng(spec.seed, k as u64);
             let (h, tw) = match k % 3 {
                 0 => (0.0, None),
-                g => (spec.field, Some(TWS[g - 1])),
+                g => (
+                    spec.fields[(k / 3) % spec.fields.len().max(1)],
+                    Some(TWS[g - 1]),
+                ),
             };
+            let force = h + spec.quadratic * h * h + spec.cubic * h * h * h;
             let on = tw.map_or(f64::INFINITY, |tw| tw - spec.lead);
             let mut x: Vec<f64> = modes
                 .iter()
@@ -289,7 +306,7 @@ pub fn quench_csv(spec: &QuenchSpec) -> Vec<u8> {
                 for stop in [on.min(t), t] {
                     let dt = stop - now;
                     if dt > 0.0 {
-                        let f = if now >= on { h } else { 0.0 };
+                        let f = if now >= on { force } else { 0.0 };
                         for (xk, m) in x.iter_mut().zip(&modes) {
                             let (e, drift, sd) = m.step(dt, f);
                             *xk = *xk * e + drift + sd * rng.sample::<f64, _>(StandardNormal);
@@ -311,20 +328,42 @@ pub fn quench_csv(spec: &QuenchSpec) -> Vec<u8> {
 }
 
 /// `synth two-baths-quenches`: the raw file and its truth.
-pub(super) fn two_baths_quenches(spec: &SimSpec) -> SimOutput {
-    let q = QuenchSpec::standard(spec.samples, spec.seed, spec.quick);
+pub(super) fn two_baths_quenches(spec: &SimSpec, fields: &[f64]) -> Result<SimOutput> {
+    let mut q = QuenchSpec::standard(spec.samples, spec.seed, spec.quick);
+    if !fields.is_empty() {
+        for (i, h) in fields.iter().enumerate() {
+            if !(h.abs() > 0.0) || !h.is_finite() {
+                return Err(Error::Setting(format!(
+                    "--fields has {h}, expected nonzero fields"
+                )));
+            }
+            if fields[..i].contains(h) {
+                return Err(Error::Setting(format!("--fields has {h} twice")));
+            }
+        }
+        q.fields = fields.to_vec();
+    }
     let [f, s] = modes();
-    SimOutput {
-        data: quench_csv(&q),
-        truth: json!({
+    let mut truth = json!({
             "scenario": "two-baths-quenches",
             "fit": "fdtemp reduce FILE --out points.csv",
             "temperature": f.temperature,
             "ratio": f.temperature / s.temperature,
-            "field": q.field,
             "runs": "run k: unperturbed when k mod 3 = 0, field from tw = 50 when 1, from tw = 500 when 2",
             "closed_form": "C(t,tw) = sum_i mu_i T_i tau_i exp(-(t-tw)/tau_i) (connected); chi(t,tw) = sum_i mu_i tau_i (1 - exp(-(t-tw)/tau_i))",
             "source": "exact for independent Ornstein-Uhlenbeck modes (Gardiner, Stochastic Methods, 4th ed. (2009), section 3.8.4, from memory)",
-        }),
+    });
+    if let [h] = q.fields.as_slice() {
+        truth["field"] = json!(h);
+    } else {
+        truth["fields"] = json!(q.fields);
+        truth["runs"] = json!(
+            "run k: unperturbed when k mod 3 = 0, field from tw = 50 when 1, from tw = 500 when 2; the field of run k is fields[(k / 3) mod (number of fields)]"
+        );
+        truth["linear_response"] = json!("exact: the system is linear, chi does not depend on h");
     }
+    Ok(SimOutput {
+        data: quench_csv(&q),
+        truth,
+    })
 }
