@@ -349,8 +349,9 @@ fn limit_methods(r: &FitReport) -> String {
              the curves (each curve interpolated linearly in C) as y = y∞(C) + a(C)·(tw/tw₀)^−α \
              with one exponent α for every C (least squares, α searched from 0.05 to 3), and \
              X∞ is minus the slope of the least-squares line through y∞(C) {}; the whole fit \
-             was repeated on every resample, and the intervals are percentile intervals read \
-             at Student's width.",
+             was repeated on every resample (percentile intervals of α and y∞ read at \
+             Student's width) and without each sample (X∞ ± t_{{n−1}} times its jackknife \
+             standard error).",
             l.points.len(),
             l.break_used.map_or_else(
                 || "over every value".to_string(),
