@@ -370,7 +370,7 @@ fn jackknife_t(setup: &Setup, pm: &Parametric, x_inf: f64, level: f64) -> Option
     let t = StudentsT::new(0.0, 1.0, (n - 1) as f64)
         .ok()?
         .inverse_cdf(0.5 + level / 2.0);
-    (se.is_finite() && t.is_finite()).then(|| Estimate {
+    (se.is_finite() && t.is_finite()).then_some(Estimate {
         estimate: Some(x_inf),
         low: Some(x_inf - t * se),
         high: Some(x_inf + t * se),
