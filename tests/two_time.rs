@@ -299,7 +299,7 @@ fn invented_truths_coverage_study() {
                 truth.name(),
                 points * campaigns as usize
             );
-            assert!((0.9..=0.99).contains(&rate));
+            assert!((0.9..=0.99).contains(&rate), "coverage {rate}");
         }
     }
 }

@@ -16,9 +16,10 @@ pub fn section(o: &mut String, r: &FitReport) {
     let _ = writeln!(
         o,
         "two-time ratio X(t,tw) = -∂_tw(k·T·chi) / ∂_tw C at fixed t (not the slope of a \
-         fixed-tw curve); local fits in ln tw over {} neighbouring waiting times; {:.0}% \
+         fixed-tw curve); local fits in ln tw over {} neighbouring waiting times ({}); {:.0}% \
          percentile intervals read at {}",
         rec.window,
+        if rec.window == 3 { "line" } else { "cubic" },
         100.0 * r.settings.given.level,
         percent(rec.read_level)
     );
@@ -108,12 +109,14 @@ pub fn methods(r: &FitReport) -> String {
          (Sollich, Fielding & Mayer, J. Phys.: Condens. Matter 14, 1683 (2002); not the \
          slope of a fixed-tw curve) was estimated at each t measured on at least {w} waiting \
          times (C and chi interpolated linearly in log t inside a curve's measured range where \
-         t was not measured on it) from the slopes of straight lines in ln tw through each \
-         waiting time and its {h} neighbour(s) on each side; its {lvl:.0}% percentile \
+         t was not measured on it) from the derivatives at the centre of least-squares \
+         {poly} in ln tw through each waiting time and its {h} neighbour(s) on each side; \
+         its {lvl:.0}% percentile \
          intervals come from the same bootstrap resamples of whole samples, read at the \
          {read} level, and it is not given where the interval of ∂C/∂ln tw reaches 0.",
         w = rec.window,
         h = rec.window / 2,
+        poly = if rec.window == 3 { "lines" } else { "cubics" },
         lvl = 100.0 * r.settings.given.level,
         read = percent(rec.read_level),
     )
