@@ -458,7 +458,7 @@ mod tests {
         let ts: Vec<f64> = r.points.iter().map(|p| p.t).collect();
         assert_eq!(ts, [40.0]);
         for p in &r.points {
-            assert_eq!(p.tw, 2.0);
+            assert!((p.tw - 2.0).abs() < 1e-12);
             assert!((p.x.estimate.unwrap() - 0.25).abs() < 1e-9, "{p:?}");
             assert!((p.c - (1.0 + 0.2 * (2.0 / p.t).ln())).abs() < 1e-9);
         }
