@@ -584,7 +584,7 @@ pub(super) fn fd_smooth<'a, DB: DrawingBackend + 'a>(
 
 /// The two-time ratio's colour and legend entry.
 const TWO_TIME: RGBColor = RGBColor(0xc0, 0x39, 0x2b);
-const TWO_TIME_LABEL: &str = "two-time ratio: local slope −X(t,tw)";
+const TWO_TIME_LABEL: &str = "two-time ratio, slope −X(t,tw)";
 
 /// With `--two-time`: at every measured point where the two-time ratio is given, a short
 /// segment of slope −X(t,tw), the direction in which the point moves as tw changes at
