@@ -132,7 +132,8 @@ pub fn fit_campaign_with(
         d.validate()?;
     }
     if let Some(tt) = two_time {
-        crate::twotime::two_time::check(&read.campaign, tt).map_err(in_file(label))?;
+        crate::twotime::two_time::check(&read.campaign, tt, settings.resamples)
+            .map_err(in_file(label))?;
     }
     let ReadCampaign { campaign, excluded } = read;
     let input = Some(label.display().to_string());

@@ -404,3 +404,31 @@ fn the_report_names_each_quantity_and_the_csv_matches_the_json() {
     assert!(lines.next().unwrap().starts_with("t,tw,c,y,interpolated,"));
     assert_eq!(lines.count(), 44);
 }
+
+#[test]
+fn the_two_time_ratio_does_not_depend_on_the_threads() {
+    // Fixed chunks of replicates with streams from (seed, index): byte-identical JSON.
+    let dir = tempfile::tempdir().unwrap();
+    let file = ising(dir.path(), 8, true, 9);
+    let run = |threads: &str| {
+        let json = dir.path().join(format!("t{threads}.json"));
+        fdtemp()
+            .arg("fit")
+            .arg(&file)
+            .args(["-T", "0.25", "--hold", "t", "--model", "line", "-B", "300"])
+            .args([
+                "--two-time",
+                "--two-time-window",
+                "5",
+                "--threads",
+                threads,
+                "--json",
+            ])
+            .arg(&json)
+            .assert()
+            .success();
+        let v: serde_json::Value = serde_json::from_slice(&std::fs::read(json).unwrap()).unwrap();
+        v["two_time"].to_string()
+    };
+    assert_eq!(run("1"), run("2"));
+}

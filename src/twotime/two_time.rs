@@ -257,9 +257,10 @@ fn derivative_weights(u: &[f64], degree: usize) -> Option<Vec<f64>> {
 /// Refuses a campaign on which no two-time ratio can be formed, with the reason.
 ///
 /// # Errors
-/// [`Error::Setting`] for a window other than 3 or 5; [`Error::Analysis`] for fewer than
-/// 3 waiting times, or no later time reached by enough waiting times.
-pub fn check(campaign: &Campaign, settings: &TwoTimeSettings) -> Result<()> {
+/// [`Error::Setting`] for a window other than 3 or 5, or `resamples` whose replicates
+/// would not fit in memory; [`Error::Analysis`] for fewer than 3 waiting times, or no
+/// later time reached by enough waiting times.
+pub fn check(campaign: &Campaign, settings: &TwoTimeSettings, resamples: usize) -> Result<()> {
     if settings.window != 3 && settings.window != 5 {
         return Err(Error::Setting(format!(
             "--two-time-window is {}, expected 3 or 5 waiting times",
@@ -274,7 +275,8 @@ pub fn check(campaign: &Campaign, settings: &TwoTimeSettings) -> Result<()> {
             tws.len()
         )));
     }
-    if plans(campaign, settings.window).0.is_empty() {
+    let q = plans(campaign, settings.window).0.len();
+    if q == 0 {
         return Err(Error::Analysis(format!(
             "--two-time: no later time t is measured on (or inside the measured range of) \
              {} waiting times, so no derivative along tw can be formed; measure common later \
@@ -287,7 +289,11 @@ pub fn check(campaign: &Campaign, settings: &TwoTimeSettings) -> Result<()> {
             }
         )));
     }
-    Ok(())
+    // The replicates of both slopes at every grid point, one slope's column and the
+    // ratios while a point is read, and the per-sample slopes.
+    let need =
+        8.0 * (2 * q + 3) as f64 * resamples as f64 + 8.0 * (2 * q * campaign.n_samples()) as f64;
+    crate::budget::check(need, resamples, crate::budget::available_bytes())
 }
 
 /// The two-time ratio of a campaign: `kt = k·T`, the fit's `resamples`, `seed` and stated
@@ -303,7 +309,7 @@ pub fn two_time_ratio(
     seed: u64,
     level: f64,
 ) -> Result<TwoTime> {
-    check(campaign, settings)?;
+    check(campaign, settings, resamples)?;
     let (plans, times_left_out) = plans(campaign, settings.window);
     let (n, q) = (campaign.n_samples(), plans.len());
     let (corr, resp) = (campaign.corr(), campaign.resp());
@@ -485,7 +491,7 @@ mod tests {
     #[test]
     fn fewer_than_three_waiting_times_are_refused() {
         let camp = campaign(&[1.0, 2.0], &[10.0, 20.0], |t, tw| (tw / t, 1.0 - tw / t));
-        let e = check(&camp, &TwoTimeSettings::default()).unwrap_err();
+        let e = check(&camp, &TwoTimeSettings::default(), 200).unwrap_err();
         assert!(e.to_string().contains("at least 3 waiting times"), "{e}");
     }
 }
