@@ -109,9 +109,31 @@ pub fn fit_campaign(
     label: &Path,
     progress: &dyn Progress,
 ) -> Result<FitReport> {
+    fit_campaign_with(read, settings, design, overlap, None, label, progress)
+}
+
+/// [`fit_campaign`], and with `two_time` the two-time ratio X(t,tw) at fixed t
+/// ([`crate::twotime::two_time`]), from the same seed, resamples and level. A campaign on
+/// which it cannot be formed is refused before any fitting.
+///
+/// # Errors
+/// As [`fit_campaign`], and as [`crate::twotime::two_time::check`].
+pub fn fit_campaign_with(
+    read: ReadCampaign,
+    settings: &FitSettings,
+    design: Option<&DesignSettings>,
+    overlap: Option<&Overlap>,
+    two_time: Option<&crate::twotime::TwoTimeSettings>,
+    label: &Path,
+    progress: &dyn Progress,
+) -> Result<FitReport> {
     settings.validate()?;
     if let Some(d) = design {
         d.validate()?;
+    }
+    if let Some(tt) = two_time {
+        crate::twotime::two_time::check(&read.campaign, tt, settings.resamples)
+            .map_err(in_file(label))?;
     }
     let ReadCampaign { campaign, excluded } = read;
     let input = Some(label.display().to_string());
@@ -129,6 +151,24 @@ pub fn fit_campaign(
         }
     }
     report.excluded_samples = excluded;
+    if let Some(tt) = two_time {
+        let kt = settings.units.boltzmann() * settings.temperature;
+        let r = crate::twotime::two_time::two_time_ratio(
+            &campaign,
+            tt,
+            kt,
+            settings.resamples,
+            settings.seed,
+            settings.level,
+        )
+        .map_err(in_file(label))?;
+        report.settings.two_time = Some(crate::twotime::TwoTimeRecord {
+            window: r.window,
+            read_level: r.read_level,
+            times_left_out: r.times_left_out,
+        });
+        report.two_time = Some(r.points);
+    }
     Ok(report)
 }
 

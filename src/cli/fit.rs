@@ -172,6 +172,18 @@ pub struct FitArgs {
     /// With --model smooth: draw X(C) with its band into this file (.svg, .png or .pdf).
     #[arg(long, value_name = "FILE")]
     plot_x_of_c: Option<PathBuf>,
+    /// Also estimate the two-time ratio X(t,tw) = -∂_tw(kT chi)/∂_tw C at fixed later time
+    /// t (not the slope of a fixed-tw curve), from local fits in ln tw over neighbouring
+    /// waiting times; needs at least 3 waiting times reaching a common t (measured, or
+    /// inside a curve's range by interpolation in log t).
+    #[arg(long)]
+    two_time: bool,
+    /// With --two-time: waiting times per local fit along tw, 3 or 5 (centred windows).
+    #[arg(long, value_name = "N", default_value_t = 3, requires = "two_time")]
+    two_time_window: usize,
+    /// With --two-time: write the two-time ratio table as CSV to this file.
+    #[arg(long, value_name = "FILE", requires = "two_time")]
+    two_time_csv: Option<PathBuf>,
     /// Replace output files that exist already.
     #[arg(long)]
     overwrite: bool,
@@ -232,6 +244,7 @@ pub fn run(a: FitArgs) -> fdtemp::Result<()> {
             &a.plot_panels,
             &a.x_of_c,
             &a.plot_x_of_c,
+            &a.two_time_csv,
         ],
         &std::iter::once(a.opts.file.as_path())
             .chain(a.overlap.as_deref())
@@ -249,17 +262,25 @@ pub fn run(a: FitArgs) -> fdtemp::Result<()> {
         None => Bar::new(),
         Some(_) => Bar::labelled("simulating"),
     };
-    let report = fdtemp::api::fit_campaign(
+    let two_time = a.two_time.then_some(fdtemp::twotime::TwoTimeSettings {
+        window: a.two_time_window,
+    });
+    let report = fdtemp::api::fit_campaign_with(
         read,
         &settings,
         design.as_ref(),
         overlap.as_ref(),
+        two_time.as_ref(),
         file,
         &progress,
     )?;
     let mut outputs = outputs(&report, a.json, a.points, figure, resample_figure)?;
     if let Some((path, fig)) = panels {
         let bytes = plot::fd_panels(&report, fig)?;
+        outputs.push(Output { path, bytes });
+    }
+    if let Some(path) = a.two_time_csv {
+        let bytes = fdtemp::report::csv::two_time_csv(&report);
         outputs.push(Output { path, bytes });
     }
     if let Some(path) = a.x_of_c {

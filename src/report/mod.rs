@@ -11,5 +11,6 @@ pub mod reduce;
 pub mod shape;
 pub mod spectrum;
 pub mod text;
+pub mod two_time;
 
 pub use format::sig;

@@ -58,6 +58,7 @@ pub fn render(r: &FitReport) -> Vec<u8> {
     fits_table(&mut o, r);
     calibrated_table(&mut o, r);
     super::shape::section(&mut o, r);
+    super::two_time::section(&mut o, r);
     verdicts(&mut o, r);
     super::shape::verdicts(&mut o, r);
     aging_line(&mut o, r);
@@ -161,6 +162,12 @@ fn fits_table(o: &mut String, r: &FitReport) {
         ]);
     }
     o.push_str(&table(&rows));
+    if r.two_time.is_some() {
+        let _ = writeln!(
+            o,
+            "(X in this table: minus the slope of the fixed-{held} curve (jointly: of all              curves), not the two-time ratio X(t,tw) below)"
+        );
+    }
     if let Some(note) = model::of(g.model).table_note() {
         let _ = writeln!(o, "{note}");
     }
@@ -477,10 +484,11 @@ pub fn methods(r: &FitReport) -> String {
          sample are kept (seed {seed}); the intervals of X, T_eff and the slope above q \
          were read from the resamples at the {read} level, which gives Student's width for \
          {n} samples (the expanded percentile interval, Hesterberg, Am. Stat. 69, 371 \
-         (2015)). {test}{aging}{shape}{calibration}",
+         (2015)). {test}{aging}{shape}{two_time}{calibration}",
         read = percent(r.settings.slope_level),
         calibration = calibration_sentence(r),
         shape = super::shape::methods(r),
+        two_time = super::two_time::methods(r),
         ver = r.tool.version,
         model = m.methods_phrase(),
         held = g.hold.name(),

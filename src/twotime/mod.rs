@@ -29,16 +29,18 @@ pub mod limit;
 pub mod overlap;
 mod resampling;
 pub mod shape;
+pub mod two_time;
 
 pub use crate::common::{Estimate, Progress, Silent, ToolInfo};
 pub use campaign::{Campaign, GridPoint};
 pub use findings::{Caution, Finding, Subject, Verdict};
 pub use result::{
     AgingTrend, Calibrated, CalibratedInterval, Curve, FitReport, GroupFit, LeftOut, PointRecord,
-    SCHEMA, SettingsRecord,
+    SCHEMA, SettingsRecord, TwoTimeRecord,
 };
 pub use result::{ShapeFit, ShapeTest, ShapeVerdict, StaticComparison, XAtC};
 pub use settings::{FitSettings, Hold, Model, Weighting};
+pub use two_time::{TwoTime, TwoTimePoint, TwoTimeSettings};
 
 pub(crate) use fitting::BYTES_PER_DRAW;
 pub(crate) use resampling::CHUNK;
@@ -288,6 +290,7 @@ fn report(
                 Axes::Plain
             },
             slope_level: assess::slope_level(settings.level, campaign.n_samples()),
+            two_time: None,
         },
         n_samples: campaign.n_samples(),
         excluded_samples: Vec::new(),
@@ -298,6 +301,7 @@ fn report(
         age_limit: None,
         cautions,
         points,
+        two_time: None,
     }
 }
 

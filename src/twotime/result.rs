@@ -7,7 +7,7 @@ use crate::common::{Estimate, ToolInfo};
 use serde::Serialize;
 
 /// The JSON schema version of [`FitReport`].
-pub const SCHEMA: u32 = 7;
+pub const SCHEMA: u32 = 8;
 
 /// The fitted two-segment curve in plot coordinates: `y = intercept + slope_above · x`
 /// for `x >= q`, and slope `slope_below` for `x < q` (continuous at `q`).
@@ -439,6 +439,21 @@ pub struct SettingsRecord {
     /// The level at which the slopes' replicates (X, T_eff, the slope above the break)
     /// were read: the stated level widened to Student's width for these samples.
     pub slope_level: f64,
+    /// With `--two-time`: waiting times per local fit along tw, and the level at which
+    /// the two-time ratio's replicates were read.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub two_time: Option<TwoTimeRecord>,
+}
+
+/// How the two-time ratio was formed (with `--two-time`).
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct TwoTimeRecord {
+    /// Waiting times per local fit (3 or 5).
+    pub window: usize,
+    /// The level at which its replicates were read (percentile intervals).
+    pub read_level: f64,
+    /// Later times left out to stay within the limit (evenly spread in rank).
+    pub times_left_out: usize,
 }
 
 /// The full result of a time-domain fit; serialized as the JSON output.
@@ -474,6 +489,9 @@ pub struct FitReport {
     pub cautions: Vec<Caution>,
     /// The parametric points.
     pub points: Vec<PointRecord>,
+    /// The two-time ratio X(t,tw) at fixed t (`fit --two-time`), absent otherwise.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub two_time: Option<Vec<super::two_time::TwoTimePoint>>,
 }
 
 /// The limit as its object, or `{"note": why}` when it could not be formed.

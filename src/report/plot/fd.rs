@@ -128,6 +128,7 @@ pub(super) fn draw_fd<DB: DrawingBackend>(
     fd_points(&mut chart, r, &sc)?;
     fd_fit(&mut chart, joint, curve, &rg, &sc)?;
     fd_smooth(&mut chart, joint, &sc)?;
+    fd_two_time(&mut chart, r, &rg, &sc)?;
     match (corner, below) {
         (Some(c), _) => legend_at(&mut chart, &sc, c)?,
         (None, Some(b)) => legend_below(&b, &legend_entries(r, band), &sc)?,
@@ -180,6 +181,9 @@ fn legend_entries(r: &FitReport, band: Option<bool>) -> [Vec<(Mark, String)>; 2]
     right.push((Mark::Nothing, teff_label(joint)));
     if joint.shape.is_some() {
         right.push((Mark::Dashed(SMOOTH, 2), SMOOTH_LABEL.into()));
+    }
+    if r.two_time.is_some() {
+        right.push((Mark::Line(TWO_TIME, 2), TWO_TIME_LABEL.into()));
     }
     [left, right]
 }
@@ -339,13 +343,15 @@ pub(super) fn fd_layout(
     let joint = &r.fits[0];
     let fs = sc.legend / PLOTTERS_EM;
     let labels = [break_label(joint), fit_label(joint), teff_label(joint)];
+    let two_time = r.two_time.is_some();
     let chars = labels
         .iter()
         .map(|l| l.chars().count())
+        .chain(two_time.then(|| TWO_TIME_LABEL.chars().count()))
         .max()
         .unwrap_or(0)
         .max(22);
-    let rows = r.waiting_times.len() + 5;
+    let rows = r.waiting_times.len() + 5 + usize::from(two_time);
     let pad = 4.0 * sc.px;
     let w = f64::from(sc.sample) + 3.0 * pad + 0.6 * fs * chars as f64;
     let h = rows as f64 * 1.6 * fs + 2.0 * pad;
@@ -572,6 +578,54 @@ pub(super) fn fd_smooth<'a, DB: DrawingBackend + 'a>(
         ))
         .map_err(&e)?
         .label(SMOOTH_LABEL)
+        .legend(stroke(style, sc.sample));
+    Ok(())
+}
+
+/// The two-time ratio's colour and legend entry.
+const TWO_TIME: RGBColor = RGBColor(0xc0, 0x39, 0x2b);
+const TWO_TIME_LABEL: &str = "two-time ratio, slope −X(t,tw)";
+
+/// With `--two-time`: at every measured point where the two-time ratio is given, a short
+/// segment of slope −X(t,tw), the direction in which the point moves as tw changes at
+/// fixed t (not the slope of its fixed-tw curve). Normalized axes divide both coordinates
+/// by C(t,t), the same at fixed t, so the slope is unchanged.
+pub(super) fn fd_two_time<'a, DB: DrawingBackend + 'a>(
+    chart: &mut Chart<'a, DB>,
+    r: &FitReport,
+    rg: &FdRanges,
+    sc: &Scale,
+) -> Result<()> {
+    let Some(points) = &r.two_time else {
+        return Ok(());
+    };
+    let e = err::<DrawingAreaErrorKind<DB::ErrorType>>(FD);
+    let style = TWO_TIME.stroke_width(2 * sc.line);
+    // Half a segment spans 2.5% of each axis, whatever the slope.
+    let (hx, hy) = (0.025 * (rg.x1 - rg.x0), 0.025 * (rg.y1 - rg.y0));
+    let segments: Vec<[(f64, f64); 2]> = points
+        .iter()
+        .filter(|p| p.resolved && !p.interpolated)
+        .filter_map(|p| {
+            let x = p.x.estimate?;
+            let at = r
+                .points
+                .iter()
+                .find(|q| q.t.total_cmp(&p.t).is_eq() && q.tw.total_cmp(&p.tw).is_eq())?;
+            let (dx, dy) = (hx, -x * hx);
+            let k = (hy / dy.abs().max(1e-300)).min(1.0);
+            let (dx, dy) = (k * dx, k * dy);
+            Some([(at.x - dx, at.y - dy), (at.x + dx, at.y + dy)])
+        })
+        .collect();
+    chart
+        .draw_series(
+            segments
+                .into_iter()
+                .map(|s| PathElement::new(s.to_vec(), style)),
+        )
+        .map_err(&e)?
+        .label(TWO_TIME_LABEL)
         .legend(stroke(style, sc.sample));
     Ok(())
 }
