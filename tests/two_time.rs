@@ -114,10 +114,7 @@ fn the_glauber_chain_two_time_ratio_is_recovered() {
 #[test]
 #[ignore = "long: see the module header"]
 fn the_glauber_chain_two_time_ratio_is_recovered_long() {
-    let seeds: u64 = std::env::var("FDTEMP_TWO_TIME_SEEDS")
-        .ok()
-        .and_then(|v| v.parse().ok())
-        .unwrap_or(10);
+    let seeds = env_u64("FDTEMP_TWO_TIME_SEEDS", 10);
     for (quick, samples, window) in [(true, 24, 3), (true, 24, 5), (false, 40, 3), (false, 40, 5)] {
         let dir = tempfile::tempdir().unwrap();
         let (mut covered, mut resolved, mut total) = (0, 0, 0);
@@ -264,10 +261,7 @@ fn invented_truths_are_covered() {
 #[test]
 #[ignore = "long: see the module header"]
 fn invented_truths_coverage_study() {
-    let campaigns: u64 = std::env::var("FDTEMP_TWO_TIME_CAMPAIGNS")
-        .ok()
-        .and_then(|v| v.parse().ok())
-        .unwrap_or(400);
+    let campaigns = env_u64("FDTEMP_TWO_TIME_CAMPAIGNS", 400);
     for window in [3, 5] {
         for truth in [Truth::Equilibrium, Truth::Aging] {
             let rows: Vec<Vec<Option<bool>>> = (0..campaigns)
@@ -431,4 +425,12 @@ fn the_two_time_ratio_does_not_depend_on_the_threads() {
         v["two_time"].to_string()
     };
     assert_eq!(run("1"), run("2"));
+}
+
+/// A whole number from the environment, or the default.
+fn env_u64(name: &str, default: u64) -> u64 {
+    std::env::var(name)
+        .ok()
+        .and_then(|v| v.parse().ok())
+        .unwrap_or(default)
 }
