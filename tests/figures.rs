@@ -537,3 +537,21 @@ fn the_panels_figure_is_drawn_at_double_size_and_refused_at_another() {
         .stderr("error: --plot-panels draws two panels side by side at double-column size: give --plot-size double\n");
     assert!(!single.exists());
 }
+
+#[test]
+fn the_panels_figure_shows_the_long_age_limit_when_asked_for() {
+    let dir = tempfile::tempdir().unwrap();
+    let input = campaign(dir.path(), 0.03);
+    let svg = dir.path().join("panels.svg");
+    fdtemp()
+        .arg("fit")
+        .arg(&input)
+        .args(["-T", "0.6", "-B", "200", "--limit", "--plot-size", "double"])
+        .arg("--plot-panels")
+        .arg(&svg)
+        .assert()
+        .success();
+    let text = std::fs::read_to_string(&svg).unwrap();
+    assert!(text.contains("X∞ = "), "no X∞ legend entry");
+    assert!(text.contains("--limit)"));
+}

@@ -78,7 +78,8 @@ def fit(data=None, *, temperature, corr=None, resp=None, tw=None, t=None, corr_e
         weights="inverse-variance", resamples=2000, seed=1, level=0.95, interval="bca",
         min_branch=5, hold="tw", range=None, column=(), delimiter="comma",
         drop_incomplete=False, calibrate=None, sim_noise="gaussian", overlap=None,
-        threads=None, progress=False, limit=False, settled_within=0.05) -> FitResult:
+        threads=None, progress=False, limit=False, settled_within=0.05,
+        two_time=None) -> FitResult:
     """X and T_eff of a campaign, as ``fdtemp fit`` (options as its long options).
 
     ``data``: a file path (tidy CSV or .npz), a pandas/polars DataFrame with the tidy
@@ -86,6 +87,9 @@ def fit(data=None, *, temperature, corr=None, resp=None, tw=None, t=None, corr_e
     arrays as ``corr=``, ``resp=`` (samples × points), ``tw=``, ``t=`` (one per point)
     [, ``corr_eq=``, ``sample=``]. ``column`` maps roles to names, e.g.
     ``column=["resp=chi_zfc"]``; ``range`` is (CMIN, CMAX) or "CMIN:CMAX".
+    ``limit=True`` adds the long-age limit (``--limit``); ``two_time=3`` or ``5`` the
+    two-time ratio X(t,tw) with that many waiting times per local fit (``--two-time
+    --two-time-window N``).
     """
     label, path, text, arrs = _campaign(
         data, dict(corr=corr, resp=resp, tw=tw, t=t, corr_eq=corr_eq, sample=sample))
@@ -97,7 +101,8 @@ def fit(data=None, *, temperature, corr=None, resp=None, tw=None, t=None, corr_e
         int(min_branch), hold, _band(range, "range"), list(column), delimiter,
         bool(drop_incomplete), calibrate, sim_noise,
         None if overlap is None else os.fspath(overlap), threads, bool(progress),
-        bool(limit), float(settled_within)))
+        bool(limit), float(settled_within),
+        None if two_time is None else int(two_time)))
 
 
 def spectrum(data, *, temperature, convention=None, window=None, units="si",

@@ -138,7 +138,7 @@ fn campaign_arrays(
     label, path, text, arrays, temperature, units, axes, model, smooth_shape, weights,
     resamples, seed, level, interval, min_branch, hold, range, columns, delimiter,
     drop_incomplete, calibrate, sim_noise, overlap, threads, show_progress, limit,
-    settled_within
+    settled_within, two_time
 ))]
 #[allow(clippy::too_many_arguments)]
 fn fit(
@@ -170,6 +170,7 @@ fn fit(
     show_progress: bool,
     limit: bool,
     settled_within: f64,
+    two_time: Option<usize>,
 ) -> PyResult<String> {
     let model = choice("model", model).map_err(to_py)?;
     let smooth_shape = smooth_shape
@@ -240,11 +241,13 @@ fn fit(
                 .transpose()?;
             let label = source.label().to_path_buf();
             let read = api::read_campaign(source, &how)?;
-            let report = api::fit_campaign(
+            let two_time = two_time.map(|window| fdtemp::twotime::TwoTimeSettings { window });
+            let report = api::fit_campaign_with(
                 read,
                 &settings,
                 design.as_ref(),
                 overlap.as_ref(),
+                two_time.as_ref(),
                 &label,
                 bar,
             )?;

@@ -121,3 +121,16 @@ def test_progress_and_threads_do_not_change_the_result(two_baths, capfd):
     b = fdtemp.fit(d / "tb.csv", temperature=1, resamples=100, threads=2, progress=True)
     assert a.to_json() == b.to_json()
     assert "resampling" in capfd.readouterr().err
+
+
+def test_limit_matches_cli(cli, tmp_path, monkeypatch):
+    # An invented campaign at 3 waiting times; the long-age limit as `fit --limit`.
+    cli("synth", "two-lines", "--quick", "--samples", 20, "--out", "tl.csv", cwd=tmp_path)
+    cli("fit", "tl.csv", "-T", 0.6, "-B", 200, "--limit", "--json", "lim.json",
+        cwd=tmp_path)
+    monkeypatch.chdir(tmp_path)
+    r = fdtemp.fit("tl.csv", temperature=0.6, resamples=200, limit=True)
+    assert r.to_json() == (tmp_path / "lim.json").read_text()
+    limit = r.to_dict()["age_limit"]
+    assert limit["x_inf"]["estimate"] is not None
+    assert len(limit["points"]) == 16

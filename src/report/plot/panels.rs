@@ -78,15 +78,21 @@ fn draw_aging<DB: DrawingBackend>(
     let sc = scale(fig);
     let pts = aging_points(r);
     let joint = &r.fits[0].ratio;
+    let limit = limit_point(r);
     let (t0, t1) = pts.iter().fold((f64::INFINITY, 0.0f64), |(a, b), p| {
         (a.min(p.0), b.max(p.0))
     });
-    let (t0, t1) = (t0 / 2.0, t1 * 2.0);
-    let ys = pts.iter().flat_map(|p| [p.2, p.3]).chain(
-        [joint.low, joint.high, joint.estimate]
-            .into_iter()
-            .flatten(),
-    );
+    // With the limit, the axis runs one more factor of 4 to the right, where X∞ stands.
+    let (t0, t1) = (t0 / 2.0, t1 * if limit.is_some() { 8.0 } else { 2.0 });
+    let ys = pts
+        .iter()
+        .flat_map(|p| [p.2, p.3])
+        .chain(
+            [joint.low, joint.high, joint.estimate]
+                .into_iter()
+                .flatten(),
+        )
+        .chain(limit.iter().flat_map(|l| [l.1, l.2]));
     let (y0, y1) = axes::padded_range(ys, 0.1).unwrap_or((0.0, 1.0));
     // Head room for the two-row legend.
     let y1 = y1 + 0.35 * (y1 - y0);
@@ -155,6 +161,40 @@ fn draw_aging<DB: DrawingBackend>(
         .map_err(&e)?
         .label(format!("X of each {held}, with its interval"))
         .legend(move |(x, y)| Circle::new((x + sc.sample / 2, y), sc.marker, c.filled()));
+    if let Some((x, lo, hi)) = limit {
+        let at = t1 / 2.0;
+        let k = PALETTE[1];
+        chart
+            .draw_series(std::iter::once(ErrorBar::new_vertical(
+                at,
+                lo,
+                x,
+                hi,
+                k.stroke_width(sc.thin),
+                sc.marker as u32 * 2,
+            )))
+            .map_err(&e)?;
+        chart
+            .draw_series(std::iter::once(TriangleMarker::new(
+                (at, x),
+                sc.marker + 2,
+                k.filled(),
+            )))
+            .map_err(&e)?
+            .label(format!(
+                "X∞ = {} (t_{{w}} → ∞, --limit)",
+                fmt_iv(Some(x), Some(lo), Some(hi))
+            ))
+            .legend(move |(x, y)| {
+                TriangleMarker::new((x + sc.sample / 2, y), sc.marker + 2, k.filled())
+            });
+    }
     legend(&mut chart, &sc)?;
     Ok(())
+}
+
+/// X∞ with its interval, when `--limit` formed one with both ends.
+fn limit_point(r: &FitReport) -> Option<(f64, f64, f64)> {
+    let l = r.age_limit.as_ref()?.as_ref().ok()?;
+    Some((l.x_inf.estimate?, l.x_inf.low?, l.x_inf.high?))
 }
