@@ -87,6 +87,14 @@ fn a_coarsening_like_set_extrapolates_to_a_limit_consistent_with_zero() {
         "{text}"
     );
     assert!(text.contains("limit      tw → ∞ at fixed C over tw = 30, 100, 300, 1000, 3000"));
+    // The caution is a typed finding with its code in the JSON.
+    assert!(
+        r.cautions
+            .iter()
+            .any(|c| matches!(c.finding, fdtemp::twotime::Finding::LimitUnbounded))
+    );
+    let json = String::from_utf8(fdtemp::report::json::fit_json(&r)).unwrap();
+    assert!(json.contains("\"code\": \"limit_unbounded\""), "{json}");
 }
 
 #[test]

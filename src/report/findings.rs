@@ -34,6 +34,15 @@ pub fn finding(f: &Finding) -> String {
              sample-to-sample spread, so the intervals only reflect rounding; check that the \
              samples are independent runs"
             .into(),
+        Finding::LimitApproachUnresolved { share } => format!(
+            "long-age limit: α is not resolved (at an end of 0.05–3 in the data or in {} of \
+             resamples): the approach to the limit is not measured, and X∞ rests on the \
+             model alone",
+            super::format::percent(*share)
+        ),
+        Finding::LimitUnbounded => "X∞'s interval reaches 0: T_eff∞ has no upper bound \
+             (coarsening-like: the slow modes may not equilibrate at any temperature)"
+            .into(),
         Finding::SmallSamples { samples } => format!(
             "{samples} samples: X and T_eff are read at Student's width and their 95% \
              intervals cover 0.94–0.955 at 20 samples, but the per-curve intervals of the \

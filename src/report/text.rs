@@ -323,22 +323,6 @@ fn limit_section(o: &mut String, r: &FitReport) {
         sig(lo, 3),
         sig(hi, 3),
     );
-    if l.alpha_unresolved {
-        let _ = writeln!(
-            o,
-            "           caution: α is not resolved (at an end of 0.05–3 in the data or in {} of \
-             resamples): the approach to the limit is not measured, and X∞ rests on the model \
-             alone",
-            percent(l.alpha_at_edge_share)
-        );
-    }
-    if l.x_inf.low.is_some_and(|v| v <= 0.0) {
-        let _ = writeln!(
-            o,
-            "           X∞'s interval reaches 0: T_eff∞ has no upper bound (coarsening-like: the \
-             slow modes may not equilibrate at any temperature)"
-        );
-    }
     if l.failed_resamples > 0 {
         let _ = writeln!(
             o,

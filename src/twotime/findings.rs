@@ -90,6 +90,14 @@ pub enum Finding {
     },
     /// No sample-to-sample spread: the intervals only reflect rounding.
     IdenticalSamples,
+    /// `--limit`: the approach exponent α sits at an end of its search range in the data
+    /// or in over 5% of resamples, so X∞ rests on the model alone.
+    LimitApproachUnresolved {
+        /// Share of resamples with α at an end of its range.
+        share: f64,
+    },
+    /// `--limit`: X∞'s interval reaches 0, so T_eff∞ has no upper bound.
+    LimitUnbounded,
     /// 20–39 samples: intervals run a little short (measured).
     SmallSamples {
         /// Number of samples.

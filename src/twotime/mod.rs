@@ -96,6 +96,16 @@ pub fn analyze(
         limit::age_limit(campaign, &prep, settings, fits.0[0].brk.estimate)
             .map_err(|e| e.to_string())
     });
+    if let Some(Ok(l)) = &age_limit {
+        if l.alpha_unresolved {
+            cautions.push(campaign_caution(Finding::LimitApproachUnresolved {
+                share: l.alpha_at_edge_share,
+            }));
+        }
+        if l.x_inf.low.is_some_and(|v| v <= 0.0) {
+            cautions.push(campaign_caution(Finding::LimitUnbounded));
+        }
+    }
     let mut r = report(campaign, settings, input, &prep, fits.0, aging, cautions);
     r.age_limit = age_limit;
     Ok(r)
