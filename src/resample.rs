@@ -63,6 +63,21 @@ pub fn draw_counts(seed: u64, index: u64, n: usize, counts: &mut [u32]) {
     }
 }
 
+/// The weight rows of replicates `b0 .. b0 + rows` over `n` units, each row the draw
+/// counts of [`draw_counts`] divided by `n`: one row of `W` in the product `W · D`, whose
+/// rows are then the replicates' means. `counts` is scratch of length `n`.
+pub fn weight_rows(seed: u64, b0: usize, rows: usize, counts: &mut [u32]) -> ndarray::Array2<f64> {
+    let n = counts.len();
+    let mut wm = ndarray::Array2::<f64>::zeros((rows, n));
+    for r in 0..rows {
+        draw_counts(seed, (b0 + r) as u64, n, counts);
+        for (i, &cnt) in counts.iter().enumerate() {
+            wm[[r, i]] = f64::from(cnt) / n as f64;
+        }
+    }
+    wm
+}
+
 /// Bootstraps a statistic of `n` independent units: `stat` receives the drawn indices.
 ///
 /// Replicates run in parallel; the result is the same for any number of threads.

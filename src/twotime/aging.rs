@@ -134,7 +134,8 @@ pub fn aging_finding(a: &AgingTrend, curved: bool) -> Option<Finding> {
     })
 }
 
-fn ols_slope(x: &[f64], y: &[f64]) -> f64 {
+/// The least-squares slope of y on x.
+pub(super) fn ols_slope(x: &[f64], y: &[f64]) -> f64 {
     let n = x.len() as f64;
     let (mx, my) = (x.iter().sum::<f64>() / n, y.iter().sum::<f64>() / n);
     let sxy: f64 = x.iter().zip(y).map(|(a, b)| (a - mx) * (b - my)).sum();

@@ -33,7 +33,6 @@ use super::settings::{FitSettings, Hold};
 use crate::common::Estimate;
 use crate::error::{Error, Result};
 use crate::resample::{self, IntervalMethod, interval, widened_level};
-use ndarray::Array2;
 use rayon::prelude::*;
 use statrs::distribution::{ContinuousCDF, StudentsT};
 
@@ -210,7 +209,7 @@ impl Setup {
         let (_, y_inf) = profile(&table, &logu, k, alpha);
         let xs: Vec<f64> = self.below.iter().map(|&i| self.grid[i]).collect();
         let ys: Vec<f64> = self.below.iter().map(|&i| y_inf[i]).collect();
-        let x_inf = -ols_slope(&xs, &ys);
+        let x_inf = -super::aging::ols_slope(&xs, &ys);
         Some(LimitFit {
             y_inf,
             alpha,
@@ -278,17 +277,6 @@ fn golden(f: &dyn Fn(f64) -> f64, mut a: f64, mut b: f64) -> f64 {
         }
     }
     0.5 * (a + b)
-}
-
-fn ols_slope(x: &[f64], y: &[f64]) -> f64 {
-    let n = x.len() as f64;
-    let (mx, my) = (x.iter().sum::<f64>() / n, y.iter().sum::<f64>() / n);
-    let (mut sxy, mut sxx) = (0.0, 0.0);
-    for (a, b) in x.iter().zip(y) {
-        sxy += (a - mx) * (b - my);
-        sxx += (a - mx) * (a - mx);
-    }
-    sxy / sxx
 }
 
 /// The limit with its intervals: the full-data fit, then the same fit on every replicate
@@ -388,14 +376,7 @@ fn replicates(prep: &Prepared, setup: &Setup, s: &FitSettings) -> Vec<Option<Lim
         .flat_map_iter(|&c| {
             let b0 = c * CHUNK;
             let here = CHUNK.min(b_total - b0);
-            let mut counts = vec![0u32; n];
-            let mut wm = Array2::<f64>::zeros((here, n));
-            for r in 0..here {
-                resample::draw_counts(s.seed, (b0 + r) as u64, n, &mut counts);
-                for (i, &cnt) in counts.iter().enumerate() {
-                    wm[[r, i]] = f64::from(cnt) / n as f64;
-                }
-            }
+            let wm = resample::weight_rows(s.seed, b0, here, &mut vec![0u32; n]);
             let means = resample::product(&wm, &prep.data);
             let (mut x, mut y) = (vec![0.0; p], vec![0.0; p]);
             (0..here)

@@ -310,13 +310,7 @@ pub fn bootstrap(
             |(sc, counts, bufs), (c, (slot, rows))| {
                 let b0 = c * CHUNK;
                 let reps_here = slot.len() / ng;
-                let mut wm = Array2::<f64>::zeros((reps_here, n));
-                for r in 0..reps_here {
-                    resample::draw_counts(settings.seed, (b0 + r) as u64, n, counts);
-                    for (i, &cnt) in counts.iter().enumerate() {
-                        wm[[r, i]] = f64::from(cnt) / n as f64;
-                    }
-                }
+                let wm = resample::weight_rows(settings.seed, b0, reps_here, counts);
                 let means = resample::product(&wm, &prep.data);
                 for (r, reps) in slot.chunks_mut(ng).enumerate() {
                     let [x, y, var, w] = &mut bufs[..] else {

@@ -338,14 +338,7 @@ pub fn two_time_ratio(
             |counts, c| {
                 let b0 = c * crate::twotime::CHUNK;
                 let here = crate::twotime::CHUNK.min(resamples - b0);
-                let mut wm = Array2::<f64>::zeros((here, n));
-                for r in 0..here {
-                    resample::draw_counts(seed, (b0 + r) as u64, n, counts);
-                    for (i, &cnt) in counts.iter().enumerate() {
-                        wm[[r, i]] = f64::from(cnt) / n as f64;
-                    }
-                }
-                resample::product(&wm, &d)
+                resample::product(&resample::weight_rows(seed, b0, here, counts), &d)
             },
         )
         .collect();
