@@ -186,6 +186,16 @@ pub fn fit_campaign_with(
             read_level: r.read_level,
             times_left_out: r.times_left_out,
         });
+        let unresolved = r.points.iter().filter(|p| !p.resolved).count();
+        if unresolved > 0 {
+            report.cautions.push(crate::twotime::Caution {
+                subject: crate::twotime::Subject::Campaign,
+                finding: crate::twotime::Finding::TwoTimeUnresolved {
+                    points: unresolved,
+                    of: r.points.len(),
+                },
+            });
+        }
         report.two_time = Some(r.points);
     }
     Ok(report)

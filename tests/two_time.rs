@@ -61,7 +61,30 @@ fn two_time_of(file: &Path, window: usize) -> Vec<serde_json::Value> {
         .success();
     let r: serde_json::Value = serde_json::from_slice(&std::fs::read(json).unwrap()).unwrap();
     assert_eq!(r["settings"]["two_time"]["window"], window);
+    check_unresolved_caution(&r);
     r["two_time"].as_array().unwrap().clone()
+}
+
+/// The `two_time_unresolved` caution is in the JSON exactly when some grid point has no
+/// ratio, with their number.
+fn check_unresolved_caution(r: &serde_json::Value) {
+    let points = r["two_time"].as_array().unwrap();
+    let unresolved = points.iter().filter(|p| p["resolved"] == false).count();
+    let caution = r["cautions"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|c| c["code"] == "two_time_unresolved");
+    match caution {
+        None => assert_eq!(
+            unresolved, 0,
+            "no caution for {unresolved} unresolved points"
+        ),
+        Some(c) => {
+            assert_eq!(c["points"], unresolved);
+            assert_eq!(c["of"], points.len());
+        }
+    }
 }
 
 /// Source: Godrèche & Luck, J. Phys. A 33, 1151 (2000): in the scaling regime of the
@@ -433,4 +456,68 @@ fn env_u64(name: &str, default: u64) -> u64 {
         .ok()
         .and_then(|v| v.parse().ok())
         .unwrap_or(default)
+}
+
+#[test]
+fn grid_points_without_a_ratio_raise_the_typed_caution() {
+    // Invented: C(t,tw) = exp(−t/5000) does not depend on tw at all (and chi = tw/t), so
+    // dC/d ln tw is 0 up to the noise and no two-time ratio can be formed.
+    let tws: Vec<f64> = (0..6).map(|k| 10.0 * 2f64.powi(k)).collect();
+    let pts: Vec<GridPoint> = tws
+        .iter()
+        .flat_map(|&tw| [1000.0, 2000.0].map(|t| GridPoint { tw, t }))
+        .collect();
+    let mut rng = fdtemp::resample::replicate_rng(3, 0);
+    let (mut c, mut r) = (
+        Array2::zeros((20, pts.len())),
+        Array2::zeros((20, pts.len())),
+    );
+    for i in 0..20 {
+        for (j, g) in pts.iter().enumerate() {
+            c[[i, j]] = (-g.t / 5000.0).exp() + 0.01 * rng.sample::<f64, _>(StandardNormal);
+            r[[i, j]] = g.tw / g.t + 0.01 * rng.sample::<f64, _>(StandardNormal);
+        }
+    }
+    let ids = (0..20).map(|i| format!("s{i:03}")).collect();
+    let flat = Campaign::new(ids, pts, c, r, None).unwrap();
+    let dir = tempfile::tempdir().unwrap();
+    let file = dir.path().join("eq.csv");
+    std::fs::write(&file, fdtemp::input::tidy::write_campaign(&flat)).unwrap();
+    let json = dir.path().join("eq.json");
+    let out = fdtemp()
+        .arg("fit")
+        .arg(&file)
+        .args([
+            "-T",
+            "1",
+            "--model",
+            "line",
+            "-B",
+            "499",
+            "--two-time",
+            "--json",
+        ])
+        .arg(&json)
+        .assert()
+        .success()
+        .get_output()
+        .stdout
+        .clone();
+    let r: serde_json::Value = serde_json::from_slice(&std::fs::read(json).unwrap()).unwrap();
+    check_unresolved_caution(&r);
+    let unresolved = r["two_time"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|p| p["resolved"] == false)
+        .count();
+    assert!(unresolved > 0, "the flat campaign resolved every point");
+    let text = String::from_utf8_lossy(&out)
+        .split_whitespace()
+        .collect::<Vec<_>>()
+        .join(" ");
+    assert!(
+        text.contains("C does not change measurably with tw"),
+        "{text}"
+    );
 }

@@ -43,6 +43,11 @@ pub fn finding(f: &Finding) -> String {
         Finding::LimitUnbounded => "X∞'s interval reaches 0: T_eff∞ has no upper bound \
              (coarsening-like: the slow modes may not equilibrate at any temperature)"
             .into(),
+        Finding::TwoTimeUnresolved { points, of } => format!(
+            "two-time ratio: at {points} of {of} grid points C does not change measurably \
+             with tw (the interval of dC/d ln tw reaches 0), so no ratio is given there: a \
+             ratio of two unresolved derivatives can take any value"
+        ),
         Finding::SmallSamples { samples } => format!(
             "{samples} samples: X and T_eff are read at Student's width and their 95% \
              intervals cover 0.94–0.955 at 20 samples, but the per-curve intervals of the \

@@ -68,7 +68,6 @@ fn note(p: &TwoTimePoint) -> String {
 /// The cautions in words under the table.
 fn cautions(r: &FitReport, points: &[TwoTimePoint]) -> Vec<String> {
     let mut out = Vec::new();
-    let unresolved = points.iter().filter(|p| !p.resolved).count();
     out.push(format!(
         "(X(t,tw) here is the two-time ratio at fixed t; the X of the fits above is minus the \
          slope of the fixed-{held} curves, a different quantity. The intervals are pointwise: \
@@ -78,14 +77,6 @@ fn cautions(r: &FitReport, points: &[TwoTimePoint]) -> Vec<String> {
         held = r.settings.given.hold.name(),
         n = points.len(),
     ));
-    if unresolved > 0 {
-        out.push(format!(
-            "caution: at {unresolved} of {} grid points C does not change measurably with tw \
-             (the interval of dC/d ln tw reaches 0), so no two-time ratio is given there: a \
-             ratio of two unresolved derivatives can take any value.",
-            points.len()
-        ));
-    }
     if let Some(rec) = &r.settings.two_time
         && rec.times_left_out > 0
     {

@@ -98,6 +98,14 @@ pub enum Finding {
     },
     /// `--limit`: X∞'s interval reaches 0, so T_eff∞ has no upper bound.
     LimitUnbounded,
+    /// `--two-time`: at some grid points C does not change measurably with tw (the
+    /// interval of dC/d ln tw reaches 0), so no two-time ratio is given there.
+    TwoTimeUnresolved {
+        /// Grid points without a ratio.
+        points: usize,
+        /// Grid points in all.
+        of: usize,
+    },
     /// 20–39 samples: intervals run a little short (measured).
     SmallSamples {
         /// Number of samples.
