@@ -7,6 +7,7 @@
 //!   truth file naming the source of the expected value; what `fdtemp synth` runs.
 //! - [`demo`]: the demo scenario fitted end to end and compared with its truth.
 
+pub mod aging_noise;
 pub mod demo;
 pub mod sim;
 pub mod synth;

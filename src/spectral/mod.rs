@@ -5,6 +5,7 @@
 //! Every convention below is the same statement in other units; fdtemp never guesses
 //! which one the data follow: the convention is a setting and is printed with the result.
 
+pub mod aging;
 pub mod analysis;
 pub mod findings;
 pub mod input;
