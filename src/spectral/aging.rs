@@ -274,7 +274,10 @@ mod tests {
             width: Width::Fraction(0.4),
             quench_at: 0.0,
         };
-        assert_eq!(s.window(100.0), [80.0, 120.0]);
+        assert_eq!(
+            s.window(100.0).map(f64::to_bits),
+            [80.0f64, 120.0].map(f64::to_bits)
+        );
         s.validate().unwrap();
         let early = AgeSettings {
             width: Width::Seconds(30.0),
