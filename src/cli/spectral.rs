@@ -96,7 +96,8 @@ pub struct SpectralArgs {
     /// but comma, numbers may have a decimal comma (0,25).
     #[arg(long, value_enum, default_value_t = Delimiter::Comma)]
     delimiter: Delimiter,
-    /// Where intervals come from: auto, chi-square, or runs (bootstrap over runs).
+    /// Where intervals come from: auto, chi-square, runs (bootstrap over runs), or normal
+    /// (from each value's variance; the cross-spectrum's and a subtracted PSD's).
     #[arg(long, value_enum, default_value_t = ErrorModel::Auto)]
     errors: ErrorModel,
     /// Degrees of freedom of every PSD value, when the file has no dof column.

@@ -704,6 +704,8 @@ fn choose_errors(
 ) -> Result<ErrorModel> {
     let single = s.estimator == Estimator::SingleChannel;
     let errors = match s.errors {
+        // Resampling the record's runs would miss the amplifier table's own scatter.
+        ErrorModel::Auto if s.estimator == Estimator::Subtracted && has_var => ErrorModel::Normal,
         ErrorModel::Auto if n_runs >= FEW_RUNS => ErrorModel::Runs,
         ErrorModel::Auto if !single && has_var => ErrorModel::Normal,
         ErrorModel::Auto if single && has_dof => ErrorModel::ChiSquare,
