@@ -310,6 +310,15 @@ fn the_second_channel_must_match_the_first_and_options_must_not_conflict() {
         .stderr(predicates::str::contains(
             "b_long.csv: run 'r1' of the second channel has 700 samples where a.csv has 600",
         ));
+    // A bad number in the second channel is named by its own file, line and column.
+    let bad = std::fs::read_to_string(d.join("a.csv")).unwrap();
+    let mut lines: Vec<String> = bad.lines().map(String::from).collect();
+    lines[4] = "1,n/a".into();
+    std::fs::write(d.join("b_bad.csv"), lines.join("\n") + "\n").unwrap();
+    base("b_bad.csv")
+        .assert()
+        .code(2)
+        .stderr(predicates::str::contains("b_bad.csv:5:2:"));
     assert!(!d.join("out.json").exists(), "no output after a refusal");
     // chi-square is one channel's law, not the cross-spectrum's.
     base("a.csv")
