@@ -467,6 +467,83 @@ fn campaign(
     (cross, subtracted)
 }
 
+/// One campaign of `runs` runs of `n` samples: the cross-spectrum's T_eff with intervals
+/// from resampling runs (`resamples` replicates, BCa read at Student's width).
+fn runs_campaign(seed: u64, i: u64, runs: u64, n: usize, resamples: usize) -> SpectrumReport {
+    let settings = WelchSettings {
+        sample_rate: tc::RATE,
+        segment: 256,
+        overlap: 128,
+    };
+    let crosses = (0..runs)
+        .map(|r| {
+            let (a, b) = tc::record(seed, i * runs + r, n);
+            cross_welch(&a, &b, settings).unwrap()
+        })
+        .collect();
+    let names: Vec<String> = (0..runs).map(|r| r.to_string()).collect();
+    let mut pair = PairPsd::from_runs(crosses, names.clone(), names, tc::RATE, 256);
+    pair.divide_gains(tc::GAINS[0], tc::GAINS[1]);
+    let (g, var, _) = to_cross_group(&pair, &Dissipation::Constant(tc::RESISTANCE)).unwrap();
+    let s = SpectrumSettings {
+        temperature: Some(tc::TEMPERATURE),
+        convention: Convention::Voltage,
+        band: Some([100.0, 5000.0]),
+        estimator: Estimator::CrossSpectrum,
+        errors: ErrorModel::Runs,
+        resamples,
+        seed: i + 1,
+        ..SpectrumSettings::default()
+    };
+    analyze_estimates(&[g], &[Some(var)], &pair.a.bin_rho2, &s, None).unwrap()
+}
+
+/// Coverage of the cross-spectrum's intervals from resampling runs:
+/// `FDTEMP_TWO_CHANNEL_RUNS` runs (default 40) of 16 segments per campaign,
+/// `FDTEMP_TWO_CHANNEL_CAMPAIGNS` campaigns (default 500), B = 999.
+#[test]
+#[ignore = "coverage study: cargo test --release --test two_channels -- --ignored --nocapture"]
+fn runs_coverage_study() {
+    let env = |k: &str, d: u64| {
+        std::env::var(k)
+            .ok()
+            .and_then(|v| v.parse().ok())
+            .unwrap_or(d)
+    };
+    let campaigns = env("FDTEMP_TWO_CHANNEL_CAMPAIGNS", 500);
+    let runs = env("FDTEMP_TWO_CHANNEL_RUNS", 40);
+    let t = tc::TEMPERATURE;
+    let reps: Vec<SpectrumReport> = (0..campaigns)
+        .into_par_iter()
+        .map(|i| runs_campaign(13, i, runs, 256 * 16, 999))
+        .collect();
+    let nf = reps[0].points.len();
+    let pooled: usize = reps
+        .iter()
+        .map(|r| {
+            r.points
+                .iter()
+                .filter(|p| matches!((p.low, p.high), (Some(lo), Some(hi)) if lo <= t && t <= hi))
+                .count()
+        })
+        .sum();
+    let band = reps
+        .iter()
+        .filter(|r| {
+            let e = &r.band.as_ref().unwrap().t_eff;
+            e.low.unwrap() <= t && t <= e.high.unwrap()
+        })
+        .count();
+    println!(
+        "\n{campaigns} campaigns of {runs} runs (16 segments of 256 each), cross-spectrum, runs resampled (B = 999)"
+    );
+    println!(
+        "  T_eff(f) pooled over {nf} bins: {:.3}",
+        pooled as f64 / (reps.len() * nf) as f64
+    );
+    println!("  band 100–5000 Hz: {}", rate(band, reps.len()));
+}
+
 /// Rate and binomial standard error of `hits` out of `n`.
 fn rate(hits: usize, n: usize) -> String {
     let p = hits as f64 / n as f64;
