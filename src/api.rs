@@ -139,7 +139,25 @@ pub fn fit_campaign_with(
         crate::twotime::two_time::check(&read.campaign, tt, settings.resamples)
             .map_err(in_file(label))?;
     }
-    let ReadCampaign { campaign, excluded } = read;
+    if !read.more.is_empty() {
+        let names: Vec<&str> = std::iter::once(&read)
+            .chain(&read.more)
+            .filter_map(|r| r.observable.as_deref())
+            .collect();
+        return Err(Error::Setting(format!(
+            "{}: the file holds {} observables ({}); fit them together (fdtemp fit, which tests \
+             whether they share one X) or choose one with --observable NAME",
+            label.display(),
+            names.len(),
+            names.join(", ")
+        )));
+    }
+    let ReadCampaign {
+        campaign,
+        excluded,
+        observable,
+        ..
+    } = read;
     let input = Some(label.display().to_string());
     let mut report = match design {
         None => analyze(&campaign, settings, input, progress),
@@ -155,6 +173,7 @@ pub fn fit_campaign_with(
         }
     }
     report.excluded_samples = excluded;
+    report.observable = observable;
     if let Some(tt) = two_time {
         let kt = settings.units.boltzmann() * settings.temperature;
         let r = crate::twotime::two_time::two_time_ratio(
@@ -174,6 +193,47 @@ pub fn fit_campaign_with(
         report.two_time = Some(r.points);
     }
     Ok(report)
+}
+
+/// `fit` on a file of one or more observables: each observable as
+/// [`fit_campaign_with`] fits it (same seed, so resample b draws the same samples in
+/// all), then the joint test that they share one X
+/// ([`crate::twotime::observables::shared_ratio`]).
+///
+/// # Errors
+/// As [`fit_campaign_with`], each naming its observable.
+pub fn fit_observables(
+    read: ReadCampaign,
+    settings: &FitSettings,
+    design: Option<&DesignSettings>,
+    overlap: Option<&Overlap>,
+    two_time: Option<&crate::twotime::TwoTimeSettings>,
+    label: &Path,
+    progress: &dyn Progress,
+) -> Result<crate::twotime::observables::ObservablesReport> {
+    settings.validate()?;
+    let mut first = read;
+    let more = std::mem::take(&mut first.more);
+    let mut reports = Vec::with_capacity(1 + more.len());
+    for r in std::iter::once(first).chain(more) {
+        let name = r.observable.clone().unwrap_or_default();
+        let report = fit_campaign_with(r, settings, design, overlap, two_time, label, progress)
+            .map_err(|e| e.about(&format!("observable '{name}'")))?;
+        reports.push(report);
+    }
+    let kt = settings.units.boltzmann() * settings.temperature;
+    let named: Vec<(String, &FitReport)> = reports
+        .iter()
+        .map(|r| (r.observable.clone().unwrap_or_default(), r))
+        .collect();
+    let shared_ratio = crate::twotime::observables::shared_ratio(&named, kt, settings.level);
+    Ok(crate::twotime::observables::ObservablesReport {
+        schema: crate::twotime::SCHEMA,
+        tool: crate::common::ToolInfo::default(),
+        input: Some(label.display().to_string()),
+        observables: reports,
+        shared_ratio,
+    })
 }
 
 /// Errors of the analysis name the input.

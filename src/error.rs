@@ -77,6 +77,21 @@ impl Error {
             message: message.into(),
         }
     }
+
+    /// The same error with `what: ` put before its message (for example the observable a
+    /// problem belongs to).
+    #[must_use]
+    pub fn about(self, what: &str) -> Self {
+        match self {
+            Error::Input { at, message } => Error::Input {
+                at,
+                message: format!("{what}: {message}"),
+            },
+            Error::Setting(m) => Error::Setting(format!("{what}: {m}")),
+            Error::Analysis(m) => Error::Analysis(format!("{what}: {m}")),
+            io @ Error::Io { .. } => io,
+        }
+    }
 }
 
 /// The library's result type.

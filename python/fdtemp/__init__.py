@@ -8,14 +8,14 @@ options and seed (``to_json()`` is that text itself). See docs/python.md.
 from __future__ import annotations
 
 from ._errors import AnalysisError, FdtempError, FileError, InputError, SettingError
-from ._results import (Estimate, Fit, FitResult, NoiseResult, ReduceResult, SpectrumResult,
-                       SynthResult)
+from ._results import (Estimate, Fit, FitResult, NoiseResult, ObservablesResult, ReduceResult,
+                       SpectrumResult, SynthResult)
 from ._api import demo_campaign, demo_files, fit, noise, reduce, spectrum, synth
 
 __all__ = [
     "fit", "spectrum", "noise", "reduce", "synth", "demo_campaign", "demo_files",
     "FitResult", "Fit", "SpectrumResult", "NoiseResult", "ReduceResult", "SynthResult",
-    "Estimate",
+    "Estimate", "ObservablesResult",
     "FdtempError", "InputError", "SettingError", "AnalysisError", "FileError",
 ]
 

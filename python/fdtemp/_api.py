@@ -8,7 +8,8 @@ import numpy as np
 
 from . import _native
 from ._errors import SettingError, call
-from ._results import FitResult, NoiseResult, ReduceResult, SpectrumResult, SynthResult
+from ._results import (FitResult, NoiseResult, ObservablesResult, ReduceResult, SpectrumResult,
+                       SynthResult)
 
 
 def exact_floats(pd):
@@ -79,7 +80,7 @@ def fit(data=None, *, temperature, corr=None, resp=None, tw=None, t=None, corr_e
         min_branch=5, hold="tw", range=None, column=(), delimiter="comma",
         drop_incomplete=False, calibrate=None, sim_noise="gaussian", overlap=None,
         threads=None, progress=False, limit=False, settled_within=0.05,
-        two_time=None) -> FitResult:
+        two_time=None, observable=None) -> FitResult | ObservablesResult:
     """X and T_eff of a campaign, as ``fdtemp fit`` (options as its long options).
 
     ``data``: a file path (tidy CSV or .npz), a pandas/polars DataFrame with the tidy
@@ -90,19 +91,27 @@ def fit(data=None, *, temperature, corr=None, resp=None, tw=None, t=None, corr_e
     ``limit=True`` adds the long-age limit (``--limit``); ``two_time=3`` or ``5`` the
     two-time ratio X(t,tw) with that many waiting times per local fit (``--two-time
     --two-time-window N``).
+
+    A table with an ``observable`` column and several observables gives an
+    ``ObservablesResult``: every observable's ``FitResult`` and the joint test that they
+    share one X; ``observable="NAME"`` fits that one alone (``--observable``).
     """
     label, path, text, arrs = _campaign(
         data, dict(corr=corr, resp=resp, tw=tw, t=t, corr_eq=corr_eq, sample=sample))
     if isinstance(column, str):
         column = [column]
-    return FitResult(call(
+    text_out = call(
         _native.fit, label, path, text, arrs, float(temperature), units, axes, model,
         smooth_shape, weights, int(resamples), int(seed), float(level), interval,
         int(min_branch), hold, _band(range, "range"), list(column), delimiter,
         bool(drop_incomplete), calibrate, sim_noise,
         None if overlap is None else os.fspath(overlap), threads, bool(progress),
         bool(limit), float(settled_within),
-        None if two_time is None else int(two_time)))
+        None if two_time is None else int(two_time),
+        None if observable is None else str(observable))
+    if '"shared_ratio"' in text_out:
+        return ObservablesResult(text_out)
+    return FitResult(text_out)
 
 
 def spectrum(data, *, temperature, convention=None, window=None, units="si",

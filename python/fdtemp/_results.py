@@ -135,6 +135,33 @@ class FitResult(_Result):
         return f"FitResult(n_samples={self.n_samples}, joint={self.joint!r})"
 
 
+class ObservablesResult(_Result):
+    """``fdtemp.fit`` on a table of several observables: each observable's fit (same
+    samples, same resamples) and the joint test that they share one X."""
+
+    def __init__(self, text: str):
+        super().__init__(text)
+        d = self._dict
+        #: Observable name → its ``FitResult``, in file order.
+        self.observables = {
+            o.get("observable"): FitResult(json.dumps(o)) for o in d.get("observables", [])
+        }
+        shared = d.get("shared_ratio", {})
+        #: The joint test as a dict (Wald statistic, F, df, p-value, correlation, …).
+        self.shared = shared
+        self.p_value = shared.get("p_value")
+        #: "consistent", "differ" or "undecided".
+        self.verdict = shared.get("verdict")
+        self.message = shared.get("message")
+        #: The common X and T_eff (estimates without numbers unless consistent).
+        self.common_x = Estimate.of(shared.get("common_ratio"))
+        self.common_t_eff = Estimate.of(shared.get("common_t_eff"))
+
+    def __repr__(self):
+        return (f"ObservablesResult({list(self.observables)}, verdict={self.verdict!r}, "
+                f"p={self.p_value})")
+
+
 class SpectrumResult(_Result):
     """``fdtemp.spectrum`` / ``fdtemp.noise`` with a dissipation: T_eff(f)."""
 

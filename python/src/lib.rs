@@ -138,7 +138,7 @@ fn campaign_arrays(
     label, path, text, arrays, temperature, units, axes, model, smooth_shape, weights,
     resamples, seed, level, interval, min_branch, hold, range, columns, delimiter,
     drop_incomplete, calibrate, sim_noise, overlap, threads, show_progress, limit,
-    settled_within, two_time
+    settled_within, two_time, observable
 ))]
 #[allow(clippy::too_many_arguments)]
 fn fit(
@@ -171,6 +171,7 @@ fn fit(
     limit: bool,
     settled_within: f64,
     two_time: Option<usize>,
+    observable: Option<String>,
 ) -> PyResult<String> {
     let model = choice("model", model).map_err(to_py)?;
     let smooth_shape = smooth_shape
@@ -213,6 +214,7 @@ fn fit(
         names,
         delimiter: choice::<Delimiter>("delimiter", delimiter).map_err(to_py)?,
         drop_incomplete,
+        observable,
     };
     let label = PathBuf::from(label);
     let source = match (path, text, arrays) {
@@ -242,6 +244,18 @@ fn fit(
             let label = source.label().to_path_buf();
             let read = api::read_campaign(source, &how)?;
             let two_time = two_time.map(|window| fdtemp::twotime::TwoTimeSettings { window });
+            if !read.more.is_empty() {
+                let report = api::fit_observables(
+                    read,
+                    &settings,
+                    design.as_ref(),
+                    overlap.as_ref(),
+                    two_time.as_ref(),
+                    &label,
+                    bar,
+                )?;
+                return Ok(fdtemp::report::observables::json(&report));
+            }
             let report = api::fit_campaign_with(
                 read,
                 &settings,

@@ -134,3 +134,22 @@ def test_limit_matches_cli(cli, tmp_path, monkeypatch):
     limit = r.to_dict()["age_limit"]
     assert limit["x_inf"]["estimate"] is not None
     assert len(limit["points"]) == 16
+
+
+def test_observables_give_the_joint_test_as_the_cli(tmp_path, cli, monkeypatch):
+    # Two observables of the two-bath system sharing X = 0.4 (exact for independent
+    # Ornstein-Uhlenbeck modes, common practice).
+    s = fdtemp.synth("two-baths-observables", samples=24, seed=3, quick=True)
+    s.write(tmp_path / "obs.csv")
+    monkeypatch.chdir(tmp_path)
+    r = fdtemp.fit("obs.csv", temperature=1.0, resamples=299)
+    assert isinstance(r, fdtemp.ObservablesResult)
+    assert list(r.observables) == ["a", "b"]
+    cli("fit", "obs.csv", "-T", 1, "-B", 299, "--json", "r.json", cwd=tmp_path)
+    assert r.to_json() == (tmp_path / "r.json").read_text()
+    assert r.verdict in ("consistent", "differ")
+    assert 0.0 <= r.p_value <= 1.0
+    one = fdtemp.fit("obs.csv", temperature=1.0, resamples=299, observable="b")
+    assert isinstance(one, fdtemp.FitResult)
+    assert one["observable"] == "b"
+    assert one.x.estimate == r.observables["b"].x.estimate

@@ -38,6 +38,14 @@ pub fn run(a: DesignArgs) -> fdtemp::Result<()> {
     design.validate()?;
     output::check_paths(&[&a.json], &[a.opts.file.as_path()], a.overwrite)?;
     let read = a.opts.campaign()?;
+    if !read.more.is_empty() {
+        return Err(fdtemp::Error::Setting(format!(
+            "{}: design-check simulates one observable at a time; the file holds {}, choose \
+             one with --observable NAME",
+            a.opts.file.display(),
+            read.more.len() + 1
+        )));
+    }
     let campaign = read.campaign;
     let file = &a.opts.file;
     let mut report = check_design(

@@ -79,6 +79,10 @@ pub struct FitOptions {
     /// refusing the file; the report and the JSON list them.
     #[arg(long)]
     drop_incomplete: bool,
+    /// Fit only this observable of a file with an observable column (without it, every
+    /// observable is fitted and the joint test asks whether they share one X).
+    #[arg(long, value_name = "NAME")]
+    observable: Option<String>,
 }
 
 impl FitOptions {
@@ -118,6 +122,7 @@ impl FitOptions {
             names: self.names()?,
             delimiter: self.delimiter,
             drop_incomplete: self.drop_incomplete,
+            observable: self.observable.clone(),
         };
         fdtemp::api::read_campaign(fdtemp::api::CampaignSource::File(self.file.clone()), &how)
     }
@@ -265,6 +270,42 @@ pub fn run(a: FitArgs) -> fdtemp::Result<()> {
     let two_time = a.two_time.then_some(fdtemp::twotime::TwoTimeSettings {
         window: a.two_time_window,
     });
+    let files = Files {
+        points: a.points,
+        figure,
+        resample_figure,
+        panels,
+        two_time_csv: a.two_time_csv,
+        x_of_c: a.x_of_c,
+        x_of_c_figure,
+    };
+    if !read.more.is_empty() {
+        let report = fdtemp::api::fit_observables(
+            read,
+            &settings,
+            design.as_ref(),
+            overlap.as_ref(),
+            two_time.as_ref(),
+            file,
+            &progress,
+        )?;
+        let mut outputs = Vec::new();
+        if let Some(path) = a.json {
+            let bytes = fdtemp::report::observables::json(&report);
+            outputs.push(Output { path, bytes });
+        }
+        for r in &report.observables {
+            let name = r.observable.as_deref().unwrap_or_default();
+            outputs.extend(files.outputs(r, Some(name))?);
+        }
+        let inputs: Vec<&std::path::Path> = std::iter::once(file.as_path())
+            .chain(a.overlap.as_deref())
+            .collect();
+        output::check(&outputs, &inputs, a.overwrite)?;
+        output::write_all(&outputs, a.overwrite)?;
+        print(&fdtemp::report::observables::render(&report));
+        return Ok(());
+    }
     let report = fdtemp::api::fit_campaign_with(
         read,
         &settings,
@@ -274,60 +315,87 @@ pub fn run(a: FitArgs) -> fdtemp::Result<()> {
         file,
         &progress,
     )?;
-    let mut outputs = outputs(&report, a.json, a.points, figure, resample_figure)?;
-    if let Some((path, fig)) = panels {
-        let bytes = plot::fd_panels(&report, fig)?;
+    let mut outputs = Vec::new();
+    if let Some(path) = a.json {
+        let bytes = fdtemp::report::json::fit_json(&report);
         outputs.push(Output { path, bytes });
     }
-    if let Some(path) = a.two_time_csv {
-        let bytes = fdtemp::report::csv::two_time_csv(&report);
-        outputs.push(Output { path, bytes });
-    }
-    if let Some(path) = a.x_of_c {
-        let bytes = fdtemp::report::shape::curve_csv(&report);
-        outputs.push(Output { path, bytes });
-    }
-    if let Some((path, fig)) = x_of_c_figure {
-        let bytes = plot::x_of_c_plot(&report, fig)?;
-        outputs.push(Output { path, bytes });
-    }
+    outputs.extend(files.outputs(&report, None)?);
     output::write_all(&outputs, a.overwrite)?;
     print(&fdtemp::report::text::render(&report));
     Ok(())
 }
 
-/// The files asked for: JSON, points CSV, FD plot, resample histogram.
-fn outputs(
-    report: &fdtemp::FitReport,
-    json: Option<PathBuf>,
+/// The files of one fit that `fit` can write besides the JSON, with their figures' sizes.
+struct Files {
     points: Option<PathBuf>,
     figure: Option<(PathBuf, Figure)>,
     resample_figure: Option<(PathBuf, Figure)>,
-) -> fdtemp::Result<Vec<Output>> {
-    let mut outputs = Vec::new();
-    if let Some(path) = json {
-        outputs.push(Output {
-            path,
-            bytes: fdtemp::report::json::fit_json(report),
-        });
+    panels: Option<(PathBuf, Figure)>,
+    two_time_csv: Option<PathBuf>,
+    x_of_c: Option<PathBuf>,
+    x_of_c_figure: Option<(PathBuf, Figure)>,
+}
+
+/// `fd.svg` for observable `q1` becomes `fd-q1.svg` (characters other than letters,
+/// digits, `.`, `_` and `-` in the name become `_`).
+pub(super) fn for_observable(path: &std::path::Path, name: &str) -> PathBuf {
+    let safe: String = name
+        .chars()
+        .map(|c| {
+            if c.is_alphanumeric() || matches!(c, '.' | '_' | '-') {
+                c
+            } else {
+                '_'
+            }
+        })
+        .collect();
+    let stem = path
+        .file_stem()
+        .map_or_else(String::new, |s| s.to_string_lossy().into_owned());
+    let file = match path.extension() {
+        Some(ext) => format!("{stem}-{safe}.{}", ext.to_string_lossy()),
+        None => format!("{stem}-{safe}"),
+    };
+    path.with_file_name(file)
+}
+
+impl Files {
+    /// The files of `report`; with `observable`, each path carries its name.
+    fn outputs(
+        &self,
+        report: &fdtemp::FitReport,
+        observable: Option<&str>,
+    ) -> fdtemp::Result<Vec<Output>> {
+        let at = |p: &PathBuf| observable.map_or_else(|| p.clone(), |n| for_observable(p, n));
+        let mut outputs = Vec::new();
+        let mut push = |path: &PathBuf, bytes: Vec<u8>| {
+            outputs.push(Output {
+                path: at(path),
+                bytes,
+            })
+        };
+        if let Some(path) = &self.points {
+            push(path, fdtemp::report::csv::points_csv(report));
+        }
+        if let Some((path, fig)) = &self.figure {
+            push(path, plot::fd_plot(report, *fig)?);
+        }
+        if let Some((path, fig)) = &self.resample_figure {
+            push(path, plot::ratio_histogram(report, *fig)?);
+        }
+        if let Some((path, fig)) = &self.panels {
+            push(path, plot::fd_panels(report, *fig)?);
+        }
+        if let Some(path) = &self.two_time_csv {
+            push(path, fdtemp::report::csv::two_time_csv(report));
+        }
+        if let Some(path) = &self.x_of_c {
+            push(path, fdtemp::report::shape::curve_csv(report));
+        }
+        if let Some((path, fig)) = &self.x_of_c_figure {
+            push(path, plot::x_of_c_plot(report, *fig)?);
+        }
+        Ok(outputs)
     }
-    if let Some(path) = points {
-        outputs.push(Output {
-            path,
-            bytes: fdtemp::report::csv::points_csv(report),
-        });
-    }
-    if let Some((path, fig)) = figure {
-        outputs.push(Output {
-            path,
-            bytes: plot::fd_plot(report, fig)?,
-        });
-    }
-    if let Some((path, fig)) = resample_figure {
-        outputs.push(Output {
-            path,
-            bytes: plot::ratio_histogram(report, fig)?,
-        });
-    }
-    Ok(outputs)
 }

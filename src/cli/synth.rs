@@ -41,6 +41,11 @@ pub struct SynthArgs {
         allow_negative_numbers = true
     )]
     fields: Vec<f64>,
+    /// two-baths-observables only: the temperature of the second slow bath, which only
+    /// observable b feels (default 2.5, the first slow bath's: both observables share
+    /// X = 0.4; another value gives b its own X, written in the truth file).
+    #[arg(long, value_name = "T")]
+    bath_b: Option<f64>,
     #[command(flatten)]
     pub(super) run: RunArgs,
 }
@@ -71,7 +76,10 @@ pub fn run(a: SynthArgs) -> fdtemp::Result<()> {
         &[],
         a.overwrite,
     )?;
-    let sim = simulate_with_fields(&spec, &a.fields)?;
+    let sim = match a.bath_b {
+        Some(t) => fdtemp::scenarios::sim::simulate_observables(&spec, t)?,
+        None => simulate_with_fields(&spec, &a.fields)?,
+    };
     let mut fit = sim.truth["fit"]
         .as_str()
         .unwrap_or("")

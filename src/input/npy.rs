@@ -317,7 +317,12 @@ pub fn campaign_from_arrays(
         corr_eq.as_ref().map(rows),
     )
     .map_err(|e| err(e.to_string()))?;
-    Ok(ReadCampaign { campaign, excluded })
+    Ok(ReadCampaign {
+        campaign,
+        excluded,
+        observable: None,
+        more: Vec::new(),
+    })
 }
 
 /// A 2-D array, with the shape of `like` = (name, rows, columns) when given.

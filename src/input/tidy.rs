@@ -31,6 +31,8 @@ pub struct ColumnNames {
     pub resp: String,
     /// Optional equal-time correlation `C(t,t)`.
     pub corr_eq: String,
+    /// Optional name of the observable (wavevector, overlap, …) a row belongs to.
+    pub observable: String,
 }
 
 impl Default for ColumnNames {
@@ -42,6 +44,7 @@ impl Default for ColumnNames {
             corr: "corr".into(),
             resp: "resp".into(),
             corr_eq: "corr_eq".into(),
+            observable: "observable".into(),
         }
     }
 }
@@ -64,10 +67,11 @@ impl ColumnNames {
             "corr" => &mut self.corr,
             "resp" => &mut self.resp,
             "corr_eq" => &mut self.corr_eq,
+            "observable" => &mut self.observable,
             other => {
                 return Err(Error::Setting(format!(
                     "column mapping '{mapping}': unknown role '{other}', expected one of \
-                     sample, tw, t, corr, resp, corr_eq"
+                     sample, tw, t, corr, resp, corr_eq, observable"
                 )));
             }
         };
@@ -102,6 +106,9 @@ pub struct CampaignRead {
     /// Leave out the samples that miss points (`--drop-incomplete`) instead of refusing
     /// the file.
     pub drop_incomplete: bool,
+    /// Read only the rows of this observable (`--observable NAME`); the file must have an
+    /// observable column.
+    pub observable: Option<String>,
 }
 
 /// A sample left out by `--drop-incomplete`, with the points it misses.
@@ -120,6 +127,24 @@ pub struct ReadCampaign {
     pub campaign: Campaign,
     /// The samples left out, in file order (empty unless `drop_incomplete`).
     pub excluded: Vec<ExcludedSample>,
+    /// The observable these rows belong to, when the file has an observable column.
+    pub observable: Option<String>,
+    /// The file's further observables, in order of first appearance, each with the same
+    /// samples as `campaign` (so that resample index i names one sample in all of them);
+    /// empty for a file of one observable.
+    pub more: Vec<ReadCampaign>,
+}
+
+impl ReadCampaign {
+    /// A campaign of one observable with nothing left out.
+    pub fn whole(campaign: Campaign) -> Self {
+        ReadCampaign {
+            campaign,
+            excluded: Vec::new(),
+            observable: None,
+            more: Vec::new(),
+        }
+    }
 }
 
 /// Reads a campaign file as `how` says: a NumPy `.npz` archive by its name, else a text
@@ -155,6 +180,7 @@ struct Columns {
     corr: usize,
     resp: usize,
     corr_eq: Option<usize>,
+    observable: Option<usize>,
 }
 
 /// The rows read so far, column by column, with the samples and grid points numbered in
@@ -235,7 +261,10 @@ fn parse_in_blocks<R: Read>(
             .par_iter()
             .zip(&skip)
             .zip(pool.par_iter_mut())
-            .map(|((part, &skip), vals)| parse_part(part, skip, header, cols, names, d, vals))
+            .map(|((part, &skip), vals)| {
+                let only = how.observable.as_deref();
+                parse_part(part, skip, header, cols, (names, only), d, vals)
+            })
             .collect();
         for (runs, vals) in runs.into_iter().zip(&pool) {
             let mut at = 0;
@@ -263,11 +292,158 @@ fn parse_in_blocks<R: Read>(
             ),
         ));
     }
-    rows.into_campaign(
-        file,
-        head.is_some_and(|h| h.1.corr_eq.is_some()),
-        how.drop_incomplete,
-    )
+    let with_eq = head.as_ref().is_some_and(|h| h.1.corr_eq.is_some());
+    if let Some(only) = &how.observable {
+        if rows.line.is_empty() {
+            return Err(Error::input(
+                file,
+                None,
+                None,
+                format!(
+                    "no rows of observable '{only}' (--observable); expected rows whose column \
+                     '{}' is '{only}'",
+                    names.observable
+                ),
+            ));
+        }
+        let mut read = rows.into_campaign(file, with_eq, how.drop_incomplete)?;
+        read.observable = Some(only.clone());
+        return Ok(read);
+    }
+    if head.as_ref().is_some_and(|h| h.1.observable.is_some()) {
+        return observables(rows, file, with_eq, how.drop_incomplete);
+    }
+    rows.into_campaign(file, with_eq, how.drop_incomplete)
+}
+
+/// Splits the rows of a file with an observable column into one campaign per observable,
+/// in order of first appearance, on the samples that every observable has.
+fn observables(rows: Rows, file: &Path, with_eq: bool, drop: bool) -> Result<ReadCampaign> {
+    if rows.line.is_empty() {
+        return Err(Error::input(
+            file,
+            None,
+            None,
+            "no data rows after the header",
+        ));
+    }
+    let mut names: Vec<String> = Vec::new();
+    let mut split: Vec<Rows> = Vec::new();
+    let mut of_sample: Vec<(usize, String)> = Vec::with_capacity(rows.sample_ids.len());
+    for id in &rows.sample_ids {
+        let (obs, sample) = id.split_once(OBSERVABLE_SEP).unwrap_or(("", id));
+        let o = match names.iter().position(|n| n == obs) {
+            Some(o) => o,
+            None => {
+                names.push(obs.to_string());
+                split.push(Rows::default());
+                names.len() - 1
+            }
+        };
+        of_sample.push((o, sample.to_string()));
+    }
+    for k in 0..rows.line.len() {
+        let (o, sample) = &of_sample[rows.sample[k] as usize];
+        let r = &mut split[*o];
+        let s = r.sample_of(sample, file)?;
+        let g = rows.points[rows.point[k] as usize];
+        let v = Vals {
+            tw: g.tw,
+            t: g.t,
+            corr: rows.corr[k],
+            resp: rows.resp[k],
+            corr_eq: if with_eq { rows.corr_eq[k] } else { f64::NAN },
+            line: rows.line[k],
+        };
+        r.push(s, &v, with_eq, file)?;
+    }
+    let mut reads: Vec<ReadCampaign> = Vec::with_capacity(names.len());
+    for (name, r) in names.iter().zip(split) {
+        let mut read = r
+            .into_campaign(file, with_eq, drop)
+            .map_err(|e| e.about(&format!("observable '{name}'")))?;
+        read.observable = Some(name.clone());
+        reads.push(read);
+    }
+    share_samples(&mut reads, file, drop)?;
+    let mut first = reads.remove(0);
+    first.more = reads;
+    Ok(first)
+}
+
+/// Keeps the samples that every observable has (with `drop`), or refuses a file in which
+/// some sample misses an observable.
+fn share_samples(reads: &mut [ReadCampaign], file: &Path, drop: bool) -> Result<()> {
+    use std::collections::HashSet;
+    let sets: Vec<HashSet<&str>> = reads
+        .iter()
+        .map(|r| r.campaign.sample_ids().iter().map(String::as_str).collect())
+        .collect();
+    let common: HashSet<&str> = sets.iter().skip(1).fold(sets[0].clone(), |acc, s| {
+        acc.intersection(s).copied().collect()
+    });
+    if sets.iter().all(|s| s.len() == common.len()) {
+        return Ok(());
+    }
+    if !drop {
+        let name = |r: &ReadCampaign| r.observable.clone().unwrap_or_default();
+        for r in reads.iter() {
+            let ids = r.campaign.sample_ids();
+            if let Some(extra) = ids.iter().find(|id| !common.contains(id.as_str())) {
+                let missing = reads
+                    .iter()
+                    .zip(&sets)
+                    .find(|(_, o)| !o.contains(extra.as_str()))
+                    .map(|(o, _)| name(o))
+                    .unwrap_or_default();
+                return Err(Error::input(
+                    file,
+                    None,
+                    None,
+                    format!(
+                        "sample '{extra}' has rows for observable '{}' but none for '{missing}'; \
+                         every sample needs every observable, so that the observables are \
+                         resampled together (--drop-incomplete leaves out the samples that \
+                         miss one)",
+                        name(r)
+                    ),
+                ));
+            }
+        }
+    }
+    let common: HashSet<String> = common.into_iter().map(str::to_string).collect();
+    if common.len() < 2 {
+        return Err(Error::input(
+            file,
+            None,
+            None,
+            format!(
+                "only {} sample(s) have every observable; at least 2 are needed",
+                common.len()
+            ),
+        ));
+    }
+    for r in reads.iter_mut() {
+        let left: Vec<ExcludedSample> = r
+            .campaign
+            .sample_ids()
+            .iter()
+            .filter(|id| !common.contains(*id))
+            .map(|id| ExcludedSample {
+                sample: id.clone(),
+                missing: Vec::new(),
+            })
+            .collect();
+        if left.is_empty() {
+            continue;
+        }
+        r.campaign = r
+            .campaign
+            .keep_samples(|id| common.contains(id))
+            .map_err(|e| Error::input(file, None, None, e.to_string()))?;
+        r.excluded.extend(left);
+    }
+    Ok(())
 }
 
 /// The header among the first lines of `parts`, if it is there; `skip` gets the number of
@@ -296,7 +472,21 @@ fn find_header(
                 corr: idx[3],
                 resp: idx[4],
                 corr_eq: header.find(&names.corr_eq),
+                observable: header.find(&names.observable),
             };
+            if how.observable.is_some() && cols.observable.is_none() {
+                return Err(Error::input(
+                    file,
+                    Some(line.number),
+                    None,
+                    format!(
+                        "--observable is given but the header has no column '{}'; expected \
+                         a column naming each row's observable (or map one with \
+                         --column observable=NAME)",
+                        names.observable
+                    ),
+                ));
+            }
             skip[k] = j + 1;
             return Ok(Some((header, cols)));
         }
@@ -325,12 +515,16 @@ type Runs<'a> = Vec<(Cow<'a, str>, usize)>;
 
 /// The data rows of one part, their values in `vals` and their samples as runs of one
 /// name with their lengths, or the first error among them.
+/// Separates the observable from the sample in the sample key of a file with an
+/// observable column (a control character no CSV field of a name holds).
+const OBSERVABLE_SEP: char = '\u{1f}';
+
 fn parse_part<'a>(
     part: &Part<'a>,
     skip: usize,
     header: &Header,
     cols: &Columns,
-    names: &ColumnNames,
+    (names, only): (&ColumnNames, Option<&str>),
     d: Delimiter,
     vals: &mut Vec<Vals>,
 ) -> Result<Runs<'a>> {
@@ -344,11 +538,32 @@ fn parse_part<'a>(
             continue;
         }
         header.check_count(file, fields.len(), line.number)?;
+        let key = match cols.observable {
+            None => fields[cols.sample].clone(),
+            Some(o) => {
+                let obs = &fields[o];
+                if obs.is_empty() || obs.contains(OBSERVABLE_SEP) {
+                    return Err(Error::input(
+                        file,
+                        Some(line.number),
+                        Some(o as u64 + 1),
+                        format!(
+                            "column '{}' is empty, expected the name of the row's observable",
+                            names.observable
+                        ),
+                    ));
+                }
+                match only {
+                    Some(only) if obs != only => continue,
+                    Some(_) => fields[cols.sample].clone(),
+                    None => Cow::Owned(format!("{obs}{OBSERVABLE_SEP}{}", fields[cols.sample])),
+                }
+            }
+        };
         vals.push(parse_row(&fields, cols, names, d, line.number, file)?);
-        let sample = &fields[cols.sample];
         match runs.last_mut() {
-            Some((name, count)) if name == sample => *count += 1,
-            _ => runs.push((sample.clone(), 1)),
+            Some((name, count)) if *name == key => *count += 1,
+            _ => runs.push((key, 1)),
         }
     }
     match bad {
@@ -575,7 +790,12 @@ impl Rows {
         }
         let campaign = Campaign::new(ids, self.points, corr, resp, corr_eq)
             .map_err(|e| err(None, e.to_string()))?;
-        Ok(ReadCampaign { campaign, excluded })
+        Ok(ReadCampaign {
+            campaign,
+            excluded,
+            observable: None,
+            more: Vec::new(),
+        })
     }
 
     /// Every sample has every grid point (`seen_at` holds the line of each, 0 if none).
@@ -658,6 +878,31 @@ pub fn write_campaign(campaign: &Campaign) -> Vec<u8> {
         }
     }
     s.into_bytes()
+}
+
+/// Writes several observables of one campaign as one tidy table with an `observable`
+/// column (first), in the format that [`read_campaign_with`] reads.
+pub fn write_observables(campaigns: &[(&str, &Campaign)]) -> Vec<u8> {
+    let mut out = Vec::new();
+    for (k, (name, c)) in campaigns.iter().enumerate() {
+        let text = write_campaign(c);
+        for (j, line) in text.split(|&b| b == b'\n').enumerate() {
+            if line.is_empty() || (j == 0 && k > 0) {
+                continue;
+            }
+            out.extend_from_slice(if j == 0 {
+                b"observable," as &[u8]
+            } else {
+                name.as_bytes()
+            });
+            if j > 0 {
+                out.push(b',');
+            }
+            out.extend_from_slice(line);
+            out.push(b'\n');
+        }
+    }
+    out
 }
 
 #[cfg(test)]

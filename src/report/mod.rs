@@ -6,6 +6,7 @@ pub mod design;
 pub mod findings;
 pub mod format;
 pub mod json;
+pub mod observables;
 pub mod plot;
 pub mod reduce;
 pub mod shape;

@@ -82,8 +82,11 @@ fn header(o: &mut String, r: &FitReport) {
     let tws: Vec<String> = r.waiting_times.iter().map(|&t| fmt_num(t)).collect();
     let _ = writeln!(
         o,
-        "data       {}{} samples, {} waiting time{} ({}), {} points",
+        "data       {}{}{} samples, {} waiting time{} ({}), {} points",
         r.input.as_ref().map_or(String::new(), |f| format!("{f}: ")),
+        r.observable
+            .as_ref()
+            .map_or(String::new(), |n| format!("observable '{n}', ")),
         r.n_samples,
         tws.len(),
         if tws.len() == 1 { "" } else { "s" },

@@ -241,6 +241,69 @@ pub fn generate(spec: &SynthSpec) -> Result<Campaign> {
     Campaign::new(ids, points, corr, resp, None)
 }
 
+/// Several observables of one invented campaign, one per recipe, measured on the same
+/// samples: every recipe must have the same samples, waiting times and points per
+/// waiting time. Observable k's noise is `coupling` times a noise shared by all
+/// observables (the stream of the first recipe's seed) plus `√(1 − coupling²)` times its
+/// own (another stream), so the observables' estimates are correlated across samples as
+/// those of one simulation run are.
+///
+/// # Errors
+/// As [`generate`]; [`crate::Error::Setting`] when the recipes' designs differ or
+/// `coupling` is outside [0, 1].
+pub fn generate_observables(specs: &[SynthSpec], coupling: f64) -> Result<Vec<Campaign>> {
+    let Some(first) = specs.first() else {
+        return Ok(Vec::new());
+    };
+    if !(0.0..=1.0).contains(&coupling) {
+        return Err(crate::Error::Setting(format!(
+            "coupling {coupling} between observables, expected a number in [0, 1]"
+        )));
+    }
+    let design = |s: &SynthSpec| (s.samples, s.waiting_times.clone(), s.points_per_tw);
+    if specs.iter().any(|s| design(s) != design(first)) {
+        return Err(crate::Error::Setting(
+            "the observables' recipes need the same samples, waiting times and points".into(),
+        ));
+    }
+    let own_share = (1.0 - coupling * coupling).sqrt();
+    specs
+        .iter()
+        .enumerate()
+        .map(|(k, spec)| {
+            let shared = generate(&SynthSpec {
+                seed: first.seed,
+                ..spec.clone()
+            })?;
+            let own = generate(&SynthSpec {
+                seed: first.seed.wrapping_add(7919 * (k as u64 + 1)),
+                ..spec.clone()
+            })?;
+            let mut corr = shared.corr().clone();
+            let mut resp = shared.resp().clone();
+            for (j, g) in shared.points().iter().enumerate() {
+                let c = spec.correlation(g.tw, g.t);
+                let y = spec.response(g.tw, c) / spec.temperature;
+                for i in 0..spec.samples {
+                    corr[[i, j]] = c
+                        + coupling * (shared.corr()[[i, j]] - c)
+                        + own_share * (own.corr()[[i, j]] - c);
+                    resp[[i, j]] = y
+                        + coupling * (shared.resp()[[i, j]] - y)
+                        + own_share * (own.resp()[[i, j]] - y);
+                }
+            }
+            Campaign::new(
+                shared.sample_ids().to_vec(),
+                shared.points().to_vec(),
+                corr,
+                resp,
+                None,
+            )
+        })
+        .collect()
+}
+
 /// The recipe of a synthetic noise spectrum with a known `T_eff(f)`.
 ///
 /// `T_eff(f) = T (1 + (f_hot / f)^2)`: equal to the bath at high frequency, hot below

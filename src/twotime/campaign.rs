@@ -109,6 +109,24 @@ impl Campaign {
         })
     }
 
+    /// The campaign of the samples whose identifier `keep` accepts.
+    ///
+    /// # Errors
+    /// As [`Campaign::new`] (fewer than 2 samples kept).
+    pub fn keep_samples(&self, keep: impl Fn(&str) -> bool) -> Result<Campaign> {
+        let rows: Vec<usize> = (0..self.n_samples())
+            .filter(|&i| keep(&self.sample_ids[i]))
+            .collect();
+        let pick = |a: &Array2<f64>| a.select(ndarray::Axis(0), &rows);
+        Campaign::new(
+            rows.iter().map(|&i| self.sample_ids[i].clone()).collect(),
+            self.points.clone(),
+            pick(&self.corr),
+            pick(&self.resp),
+            self.corr_eq.as_ref().map(pick),
+        )
+    }
+
     /// Number of independent samples `n`.
     pub fn n_samples(&self) -> usize {
         self.sample_ids.len()

@@ -26,6 +26,7 @@ mod assess;
 mod fitting;
 mod lack_of_fit;
 pub mod limit;
+pub mod observables;
 pub mod overlap;
 mod resampling;
 pub mod shape;
@@ -106,8 +107,16 @@ pub fn analyze(
             cautions.push(campaign_caution(Finding::LimitUnbounded));
         }
     }
+    let ng = groups.len();
+    let ratio_draws = fits
+        .1
+        .iter()
+        .step_by(ng)
+        .map(|d| d.map_or(f64::NAN, |d| d.ratio))
+        .collect();
     let mut r = report(campaign, settings, input, &prep, fits.0, aging, cautions);
     r.age_limit = age_limit;
+    r.ratio_draws = ratio_draws;
     Ok(r)
 }
 
@@ -312,6 +321,8 @@ fn report(
         cautions,
         points,
         two_time: None,
+        observable: None,
+        ratio_draws: Vec::new(),
     }
 }
 

@@ -492,6 +492,13 @@ pub struct FitReport {
     /// The two-time ratio X(t,tw) at fixed t (`fit --two-time`), absent otherwise.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub two_time: Option<Vec<super::two_time::TwoTimePoint>>,
+    /// The observable this report is of, when the file has an observable column.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub observable: Option<String>,
+    /// The joint fit's X in each resample (NaN where it had none), in resample order: what
+    /// the joint test of several observables pairs across them. Not serialized.
+    #[serde(skip)]
+    pub ratio_draws: Vec<f64>,
 }
 
 /// The limit as its object, or `{"note": why}` when it could not be formed.

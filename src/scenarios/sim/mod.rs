@@ -76,6 +76,10 @@ pub enum Scenario {
     /// Invented two-line campaign with a built-in answer (not a simulation; for
     /// benchmarks): 12 waiting times × 100 times (3 × 40 with `--quick`).
     TwoLines,
+    /// Two observables of the two-bath system (column `observable`: a, b), b also coupled
+    /// to a second slow bath at `--bath-b` (default 2.5: both share X = 0.4), for `fit`'s
+    /// joint test.
+    TwoBathsObservables,
 }
 
 /// What to simulate.
@@ -120,6 +124,7 @@ pub fn simulate(spec: &SimSpec) -> Result<SimOutput> {
         Scenario::TwoBathsTwins => twins::two_baths(spec),
         Scenario::TwoBathsQuenches => twins::two_baths_quenches(spec, &[])?,
         Scenario::IsingTwins => ising_twins::ising_twins(spec),
+        Scenario::TwoBathsObservables => ou::two_observables(spec, SLOW_B_DEFAULT),
     })
 }
 
@@ -138,6 +143,30 @@ pub fn companions(spec: &SimSpec) -> Result<Vec<(&'static str, Vec<u8>)>> {
         }
         _ => Vec::new(),
     })
+}
+
+/// The default temperature of `two-baths-observables`' second slow bath: that of the
+/// first, so that both observables share X = 0.4.
+pub const SLOW_B_DEFAULT: f64 = 2.5;
+
+/// `two-baths-observables` with the second slow bath at `bath_b` (positive).
+///
+/// # Errors
+/// As [`simulate`]; [`Error::Setting`] for another scenario or a temperature that is not
+/// positive.
+pub fn simulate_observables(spec: &SimSpec, bath_b: f64) -> Result<SimOutput> {
+    if spec.scenario != Scenario::TwoBathsObservables {
+        return Err(Error::Setting(
+            "--bath-b is simulated only for two-baths-observables".into(),
+        ));
+    }
+    if !(bath_b > 0.0 && bath_b.is_finite()) {
+        return Err(Error::Setting(format!(
+            "--bath-b is {bath_b}, expected a positive temperature"
+        )));
+    }
+    check(spec)?;
+    Ok(ou::two_observables(spec, bath_b))
 }
 
 /// The settings' checks shared by every scenario.
