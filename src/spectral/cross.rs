@@ -20,7 +20,9 @@
 //! ## Reference
 //! J. S. Bendat & A. G. Piersol, *Random Data: Analysis and Measurement Procedures*, 4th ed.
 //! (Wiley, 2010), ch. 9 (statistical errors of co-spectrum estimates,
-//! `Var[Ĉ_xy] = (G_xx G_yy + C²_xy − Q²_xy)/(2n_d)`); P. D. Welch, IEEE Trans. Audio
+//! `Var[Ĉ_xy] = (G_xx G_yy + C²_xy − Q²_xy)/(2n_d)`; quoted from memory — it follows from
+//! Isserlis' theorem for Gaussian Fourier coefficients, and `tests/two_channels.rs` checks
+//! it against the scatter of simulated records); P. D. Welch, IEEE Trans. Audio
 //! Electroacoust. 15, 70 (1967) (segment averaging, overlap).
 
 use super::input::{Records, SpectrumGroup};
