@@ -5,19 +5,23 @@
 //! - [`choice`]: an option's value by its command-line name (`--model smooth`).
 //! - [`CampaignSource`], [`read_campaign`], [`fit_campaign`]: `fit`.
 //! - [`SpectrumSource`], [`read_spectrum`]: `spectrum`.
-//! - [`NoiseSource`], [`noise_psd`], [`noise_convention`], [`noise_spectrum`]: `noise`.
+//! - [`NoiseSource`], [`noise_psd`], [`noise_convention`], [`noise_spectrum`]: `noise`;
+//!   [`noise_cross_psd`], [`noise_cross_spectrum`] (two channels),
+//!   [`noise_subtracted_spectrum`] (a measured amplifier noise subtracted).
 
 use crate::common::Progress;
 use crate::error::{Error, Result};
 use crate::fit::smooth::Constraint;
 use crate::input::npy::{CampaignArrays, campaign_from_arrays};
 use crate::input::{CampaignRead, Delimiter, ReadCampaign};
+use crate::spectral::cross::PairPsd;
 use crate::spectral::findings::{SpectralCaution, SpectralFinding};
 use crate::spectral::input::{SpectrumGroup, Window};
 use crate::spectral::leakage;
 use crate::spectral::noise::{self, Dissipation, RecordPsd};
+use crate::spectral::subtract::AmplifierNoise;
 use crate::spectral::welch::WelchSettings;
-use crate::spectral::{Convention, SpectrumReport, SpectrumSettings};
+use crate::spectral::{Convention, Estimator, SpectrumReport, SpectrumSettings};
 use crate::twotime::design::{DesignSettings, calibrated_fit};
 use crate::twotime::overlap::Overlap;
 use crate::twotime::settings::{FitSettings, Model};
@@ -462,47 +466,71 @@ pub fn noise_spectrum(
     loss_file: Option<&Path>,
 ) -> Result<SpectrumReport> {
     settings.validate()?;
-    let table_range = match diss {
+    let (group, dropped) = noise::to_group(rec, diss)
+        .map_err(|e| no_common_frequency(e, rec, diss, label, loss_file))?;
+    let settings = SpectrumSettings {
+        estimator: Estimator::SingleChannel,
+        ..settings.clone()
+    };
+    let mut report = crate::spectral::analyze_spectra(
+        std::slice::from_ref(&group),
+        &rec.bin_rho2,
+        &settings,
+        Some(label.display().to_string()),
+    )
+    .map_err(in_file(label))?;
+    outside_table(&mut report, diss, dropped);
+    leakage_caution(&mut report, rec, &group);
+    Ok(report)
+}
+
+/// The range of a dissipation table (`None` for a constant).
+fn table_range(diss: &Dissipation) -> Option<[f64; 2]> {
+    match diss {
         Dissipation::Table(t) => match (t.first(), t.last()) {
             (Some(a), Some(b)) => Some([a.0, b.0]),
             _ => None,
         },
         Dissipation::Constant(_) => None,
+    }
+}
+
+/// The error of a PSD and a dissipation table without a frequency in common, naming the
+/// loss file and both ranges; other errors name the records.
+fn no_common_frequency(
+    e: Error,
+    rec: &RecordPsd,
+    diss: &Dissipation,
+    label: &Path,
+    loss_file: Option<&Path>,
+) -> Error {
+    let (Error::Analysis(_), Some([lo, hi])) = (&e, table_range(diss)) else {
+        return in_file(label)(e);
     };
-    let (group, dropped) = match noise::to_group(rec, diss) {
-        Ok(g) => g,
-        Err(Error::Analysis(_)) if table_range.is_some() => {
-            let [lo, hi] = table_range.unwrap_or_default();
-            let f = &rec.psd[0].freqs;
-            let first = f.get(noise::FIRST_BIN).copied().unwrap_or(0.0);
-            let last = f.last().copied().unwrap_or(0.0);
-            let sig = crate::report::format::fmt_num;
-            return Err(Error::input(
-                loss_file.unwrap_or(label),
-                None,
-                None,
-                format!(
-                    "the dissipation table covers {}–{} Hz and the PSD of {} {}–{} Hz: no \
-                     frequency in common; expected a table that covers the record's frequencies",
-                    sig(lo),
-                    sig(hi),
-                    label.display(),
-                    sig(first),
-                    sig(last)
-                ),
-            ));
-        }
-        Err(e) => return Err(in_file(label)(e)),
-    };
-    let mut report = crate::spectral::analyze_spectra(
-        std::slice::from_ref(&group),
-        &rec.bin_rho2,
-        settings,
-        Some(label.display().to_string()),
+    let f = &rec.psd[0].freqs;
+    let first = f.get(noise::FIRST_BIN).copied().unwrap_or(0.0);
+    let last = f.last().copied().unwrap_or(0.0);
+    let sig = crate::report::format::fmt_num;
+    Error::input(
+        loss_file.unwrap_or(label),
+        None,
+        None,
+        format!(
+            "the dissipation table covers {}–{} Hz and the PSD of {} {}–{} Hz: no \
+             frequency in common; expected a table that covers the record's frequencies",
+            sig(lo),
+            sig(hi),
+            label.display(),
+            sig(first),
+            sig(last)
+        ),
     )
-    .map_err(in_file(label))?;
+}
+
+/// The `outside_table` caution when `dropped` frequencies lay outside the table.
+fn outside_table(report: &mut SpectrumReport, diss: &Dissipation, dropped: usize) {
     if dropped > 0
-        && let Some(range) = table_range
+        && let Some(range) = table_range(diss)
     {
         report.cautions.push(SpectralCaution {
             tw: None,
@@ -512,6 +540,10 @@ pub fn noise_spectrum(
             },
         });
     }
+}
+
+/// The `window_leakage` caution of the records' PSD (`group` at their frequencies).
+fn leakage_caution(report: &mut SpectrumReport, rec: &RecordPsd, group: &SpectrumGroup) {
     let f = &rec.psd[0].freqs;
     if f.len() > 1 && f[1] > 0.0 {
         let segment = (rec.sample_rate / f[1]).round() as usize;
@@ -519,9 +551,128 @@ pub fn noise_spectrum(
         // Half the record's lowest Fourier frequency: its first line stands for the band
         // from there (the f^-3 bias grows with the log of it; measured in tests/leakage.rs).
         let lowest = segment as f64 / (2.0 * samples as f64);
-        if let Some(finding) = leakage::group_leakage(&group, f[1], segment, lowest) {
+        if let Some(finding) = leakage::group_leakage(group, f[1], segment, lowest) {
             report.cautions.push(SpectralCaution { tw: None, finding });
         }
     }
+}
+
+/// `noise` with two channels: each record's Welch PSD and their cross-spectrum, streamed
+/// in step, referred to the sample by the gains (`gain_b` defaults to `gain_a`).
+///
+/// # Errors
+/// As [`crate::spectral::cross::cross_records_in`]; [`Error::Setting`] for a gain that is
+/// not a positive number.
+pub fn noise_cross_psd(
+    a: &Path,
+    b: &Path,
+    delimiter: Delimiter,
+    welch: WelchSettings,
+    sample_rate: Option<f64>,
+    gain_a: Option<f64>,
+    gain_b: Option<f64>,
+) -> Result<PairPsd> {
+    positive("--gain", gain_a, "a positive voltage gain (output/input)")?;
+    positive(
+        "--cross-gain",
+        gain_b,
+        "a positive voltage gain (output/input)",
+    )?;
+    let mut pair = crate::spectral::cross::cross_records_in(a, b, delimiter, welch, sample_rate)?;
+    let ga = gain_a.unwrap_or(1.0);
+    pair.divide_gains(ga, gain_b.unwrap_or(ga));
+    Ok(pair)
+}
+
+/// `noise` with two channels: T_eff(f) from the real part of the cross-spectrum, with
+/// normal intervals from its variance (or run resampling), cautions as for one channel
+/// (`window_leakage` from the first channel's PSD). `label` names the first record,
+/// `second` the second.
+///
+/// # Errors
+/// As [`noise_spectrum`].
+pub fn noise_cross_spectrum(
+    pair: &PairPsd,
+    diss: &Dissipation,
+    settings: &SpectrumSettings,
+    label: &Path,
+    second: &Path,
+    loss_file: Option<&Path>,
+) -> Result<SpectrumReport> {
+    let settings = SpectrumSettings {
+        estimator: Estimator::CrossSpectrum,
+        ..settings.clone()
+    };
+    settings.validate()?;
+    let (group, var, dropped) = crate::spectral::cross::to_cross_group(pair, diss)
+        .map_err(|e| no_common_frequency(e, &pair.a, diss, label, loss_file))?;
+    let mut report = crate::spectral::analyze_estimates(
+        std::slice::from_ref(&group),
+        &[Some(var)],
+        &pair.a.bin_rho2,
+        &settings,
+        Some(label.display().to_string()),
+    )
+    .map_err(in_file(label))?;
+    report.second_input = Some(second.display().to_string());
+    outside_table(&mut report, diss, dropped);
+    let (auto, _) = noise::to_group(&pair.a, diss).map_err(in_file(label))?;
+    leakage_caution(&mut report, &pair.a, &auto);
+    Ok(report)
+}
+
+/// `noise --amplifier-noise`: T_eff(f) of one channel's PSD minus a measured
+/// amplifier-noise PSD (`amp`, read from `amp_file`), with normal intervals from the sum
+/// of both variances (or run resampling), the `large_subtraction` caution and, for
+/// frequencies outside the amplifier table, `outside_amplifier_table`.
+///
+/// # Errors
+/// As [`noise_spectrum`]; [`Error::Input`] naming `amp_file` when it shares no frequency
+/// with the PSD.
+pub fn noise_subtracted_spectrum(
+    rec: &RecordPsd,
+    amp: &AmplifierNoise,
+    amp_file: &Path,
+    diss: &Dissipation,
+    settings: &SpectrumSettings,
+    label: &Path,
+    loss_file: Option<&Path>,
+) -> Result<SpectrumReport> {
+    let settings = SpectrumSettings {
+        estimator: Estimator::Subtracted,
+        ..settings.clone()
+    };
+    settings.validate()?;
+    noise::to_group(rec, diss).map_err(|e| no_common_frequency(e, rec, diss, label, loss_file))?;
+    let sub = crate::spectral::subtract::subtract(rec, amp, diss).map_err(|e| match e {
+        Error::Analysis(m) => Error::input(amp_file, None, None, m),
+        e => e,
+    })?;
+    let mut report = crate::spectral::analyze_estimates(
+        std::slice::from_ref(&sub.group),
+        &[Some(sub.var.clone())],
+        &rec.bin_rho2,
+        &settings,
+        Some(label.display().to_string()),
+    )
+    .map_err(in_file(label))?;
+    report.amplifier_noise = Some(amp_file.display().to_string());
+    outside_table(&mut report, diss, sub.outside_dissipation);
+    if sub.outside_amplifier > 0 {
+        report.cautions.push(SpectralCaution {
+            tw: None,
+            finding: SpectralFinding::OutsideAmplifierTable {
+                frequencies: sub.outside_amplifier,
+                range: amp.range,
+            },
+        });
+    }
+    if let Some(finding) =
+        crate::spectral::subtract::large_subtraction(&sub, settings.bands_per_decade)
+    {
+        report.cautions.push(SpectralCaution { tw: None, finding });
+    }
+    let (auto, _) = noise::to_group(rec, diss).map_err(in_file(label))?;
+    leakage_caution(&mut report, rec, &auto);
     Ok(report)
 }

@@ -118,7 +118,7 @@ fn johnson_nyquist_noise_of_a_resistor_gives_back_its_temperature() {
     assert!((est / t - 1.0).abs() < 0.01, "T_eff {est}");
     assert!(lo <= t && t <= hi, "[{lo}, {hi}]");
     assert!(v["departure"].is_null());
-    assert_eq!(v["schema"], 2);
+    assert_eq!(v["schema"], 3);
     // Band edges print as plain numbers: the top edge is the Nyquist frequency, 5000 Hz.
     let tests = v["spectra"][0]["test_bands"].as_array().unwrap();
     assert_eq!(tests.last().unwrap()["fmax"].as_f64(), Some(5000.0));

@@ -299,6 +299,7 @@ fn spectral_settings(
         band: band.map(|(a, b)| [a, b]),
         dof,
         bands_per_decade,
+        ..SpectrumSettings::default()
     };
     s.validate()?;
     Ok(s)
@@ -462,7 +463,7 @@ fn noise(
                 column.as_deref(),
                 loss_file.as_deref().unwrap_or(label.as_path()),
             )?;
-            let settings = spectral_settings(
+            let mut settings = spectral_settings(
                 temperature,
                 convention,
                 &units,
@@ -475,6 +476,7 @@ fn noise(
                 seed,
                 &interval,
             )?;
+            settings.gain = gain;
             let rec = api::noise_psd(source, welch, sample_rate, gain)?;
             let psd = fdtemp::spectral::noise::psd_csv(&rec, diss.as_ref());
             let json = diss

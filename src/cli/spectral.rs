@@ -45,6 +45,20 @@ pub struct NoiseArgs {
     /// that it is referred to the sample.
     #[arg(long, allow_negative_numbers = true)]
     gain: Option<f64>,
+    /// A second record of the same sample taken at the same time through another,
+    /// independent amplifier (same layout as FILE: runs, length, sample rate). T_eff then
+    /// comes from the real part of the two records' cross-spectrum, in which the
+    /// amplifiers' uncorrelated noise averages out.
+    #[arg(long, value_name = "FILE", conflicts_with = "psd_out")]
+    cross_with: Option<PathBuf>,
+    /// Voltage gain of the second channel (--cross-with) [default: --gain].
+    #[arg(long, allow_negative_numbers = true, requires = "cross_with")]
+    cross_gain: Option<f64>,
+    /// A measured amplifier-noise PSD to subtract from the record's PSD: a CSV with
+    /// columns f, psd, dof (as --psd-out writes from a record of the amplifier alone),
+    /// referred to the sample like the record's PSD after --gain.
+    #[arg(long, value_name = "FILE", conflicts_with = "cross_with")]
+    amplifier_noise: Option<PathBuf>,
     /// Segment length of Welch's method (samples).
     #[arg(long, default_value_t = 4096)]
     segment: usize,
@@ -82,7 +96,8 @@ pub struct SpectralArgs {
     /// but comma, numbers may have a decimal comma (0,25).
     #[arg(long, value_enum, default_value_t = Delimiter::Comma)]
     delimiter: Delimiter,
-    /// Where intervals come from: auto, chi-square, or runs (bootstrap over runs).
+    /// Where intervals come from: auto, chi-square, runs (bootstrap over runs), or normal
+    /// (from each value's variance; the cross-spectrum's and a subtracted PSD's).
     #[arg(long, value_enum, default_value_t = ErrorModel::Auto)]
     errors: ErrorModel,
     /// Degrees of freedom of every PSD value, when the file has no dof column.
@@ -132,6 +147,7 @@ impl SpectralArgs {
             band: self.band,
             dof: self.dof,
             bands_per_decade: self.bands_per_decade,
+            ..SpectrumSettings::default()
         }
     }
 }
@@ -170,8 +186,11 @@ pub fn spectrum(a: SpectrumArgs) -> fdtemp::Result<()> {
 /// `fdtemp noise`: Welch PSD of the records; with a dissipation, T_eff(f) and its report.
 pub fn noise(a: NoiseArgs) -> fdtemp::Result<()> {
     let mut inputs = vec![a.file.as_path()];
-    if let Some(l) = &a.loss_file {
-        inputs.push(l.as_path());
+    for p in [&a.loss_file, &a.cross_with, &a.amplifier_noise]
+        .into_iter()
+        .flatten()
+    {
+        inputs.push(p.as_path());
     }
     output::check_paths(
         &[&a.common.json, &a.psd_out, &a.common.plot.plot],
@@ -192,10 +211,30 @@ pub fn noise(a: NoiseArgs) -> fdtemp::Result<()> {
         figure,
         convention_note,
     } = noise_settings(&a, column.as_deref())?;
+    if let Some(b) = &a.cross_with {
+        let Some(diss) = diss else {
+            return Err(no_dissipation("--cross-with"));
+        };
+        return noise_cross(&a, b, &diss, welch, &settings, figure, convention_note);
+    }
+    let amp = match &a.amplifier_noise {
+        Some(_) if diss.is_none() => return Err(no_dissipation("--amplifier-noise")),
+        Some(p) => Some(noise::read_amplifier_noise(p, a.common.delimiter)?),
+        None => None,
+    };
     let source = fdtemp::api::NoiseSource::File(a.file.clone(), a.common.delimiter);
     let rec = fdtemp::api::noise_psd(source, welch, a.sample_rate, a.gain)?;
     let mut header = noise_header(&a, &welch, &rec);
     header.extend(convention_note);
+    if let (Some(p), Some(amp)) = (&a.amplifier_noise, &amp) {
+        header.push(format!(
+            "amplifier   {} ({} run(s), {}–{} Hz) subtracted from the PSD (referred to the sample)",
+            p.display(),
+            amp.runs,
+            fdtemp::report::format::fmt_num(amp.range[0]),
+            fdtemp::report::format::fmt_num(amp.range[1])
+        ));
+    }
     let mut outputs = Vec::new();
     if let Some(p) = &a.psd_out {
         outputs.push(Output {
@@ -206,13 +245,94 @@ pub fn noise(a: NoiseArgs) -> fdtemp::Result<()> {
     let Some(diss) = diss else {
         return psd_only(&a, &header, &outputs);
     };
-    let report = noise_analysis(&a, &rec, &diss, &settings)?;
+    let report = match (&a.amplifier_noise, &amp) {
+        (Some(p), Some(amp)) => fdtemp::api::noise_subtracted_spectrum(
+            &rec,
+            amp,
+            p,
+            &diss,
+            &settings,
+            &a.file,
+            a.loss_file.as_deref(),
+        )?,
+        _ => noise_analysis(&a, &rec, &diss, &settings)?,
+    };
+    resistance_line(&a, &mut header);
+    spectral_outputs(&mut outputs, &report, &a.common.json, figure)?;
+    output::write_all(&outputs, a.common.overwrite)?;
+    print(&fdtemp::report::spectrum::render(&report, &header));
+    Ok(())
+}
+
+/// The header's line on a constant resistance.
+fn resistance_line(a: &NoiseArgs, header: &mut Vec<String>) {
     if let Some(r) = a.resistance {
         header.push(format!(
             "dissipation Re Z = {} ohm at every frequency",
             fdtemp::report::format::fmt_num(r)
         ));
     }
+}
+
+/// The error for an option that needs a dissipation given without one.
+fn no_dissipation(option: &str) -> fdtemp::Error {
+    fdtemp::Error::Setting(format!(
+        "{option} gives T_eff, which needs a dissipation: give --resistance R or --loss-file FILE"
+    ))
+}
+
+/// `noise --cross-with`: the two channels' cross-spectrum, T_eff(f) from its real part.
+fn noise_cross(
+    a: &NoiseArgs,
+    b: &std::path::Path,
+    diss: &Dissipation,
+    welch: WelchSettings,
+    settings: &SpectrumSettings,
+    figure: Option<(PathBuf, Figure)>,
+    convention_note: Option<String>,
+) -> fdtemp::Result<()> {
+    use fdtemp::report::format::{fmt_num, sig};
+    let pair = fdtemp::api::noise_cross_psd(
+        &a.file,
+        b,
+        a.common.delimiter,
+        welch,
+        a.sample_rate,
+        a.gain,
+        a.cross_gain,
+    )?;
+    let mut header = noise_header(a, &welch, &pair.a);
+    let gb = pair.b.gain;
+    header.push(format!(
+        "channel 2   {}: {} run(s), same length and rate{}",
+        b.display(),
+        pair.b.runs.len(),
+        if gb == 1.0 {
+            String::new()
+        } else {
+            format!(
+                "; gain {}, its PSD divided by {}",
+                fmt_num(gb),
+                sig(gb * gb, 4)
+            )
+        }
+    ));
+    header.push(
+        "estimate    real part of the cross-spectrum of the two channels (the amplifiers' \
+         uncorrelated noise averages out)"
+            .into(),
+    );
+    header.extend(convention_note);
+    let report = fdtemp::api::noise_cross_spectrum(
+        &pair,
+        diss,
+        settings,
+        &a.file,
+        b,
+        a.loss_file.as_deref(),
+    )?;
+    resistance_line(a, &mut header);
+    let mut outputs = Vec::new();
     spectral_outputs(&mut outputs, &report, &a.common.json, figure)?;
     output::write_all(&outputs, a.common.overwrite)?;
     print(&fdtemp::report::spectrum::render(&report, &header));
@@ -246,7 +366,19 @@ fn noise_settings(a: &NoiseArgs, column: Option<&str>) -> fdtemp::Result<NoiseSe
         column,
         a.loss_file.as_deref().unwrap_or(a.file.as_path()),
     )?;
-    let settings = a.common.settings(a.temperature, convention);
+    fdtemp::api::positive(
+        "--cross-gain",
+        a.cross_gain,
+        "a positive voltage gain (output/input)",
+    )?;
+    let mut settings = a.common.settings(a.temperature, convention);
+    settings.gain = a.gain;
+    if a.cross_with.is_some() {
+        settings.estimator = fdtemp::spectral::Estimator::CrossSpectrum;
+        settings.second_gain = a.cross_gain.or(a.gain);
+    } else if a.amplifier_noise.is_some() {
+        settings.estimator = fdtemp::spectral::Estimator::Subtracted;
+    }
     settings.validate()?;
     let figure = a.common.plot.figure()?;
     if figure.is_some() && a.resistance.is_none() && a.loss_file.is_none() {

@@ -65,27 +65,46 @@ pub fn run(a: SynthArgs) -> fdtemp::Result<()> {
         quick: a.quick,
         hold: a.hold,
     };
+    let companions: Vec<(PathBuf, Vec<u8>)> = fdtemp::scenarios::sim::companions(&spec)?
+        .into_iter()
+        .map(|(ext, bytes)| (a.out.with_extension(ext), bytes))
+        .collect();
+    let companion_paths: Vec<Option<PathBuf>> =
+        companions.iter().map(|(p, _)| Some(p.clone())).collect();
+    output::check_paths(
+        &companion_paths.iter().collect::<Vec<_>>(),
+        &[],
+        a.overwrite,
+    )?;
     let sim = match a.bath_b {
         Some(t) => fdtemp::scenarios::sim::simulate_observables(&spec, t)?,
         None => simulate_with_fields(&spec, &a.fields)?,
     };
-    let fit = sim.truth["fit"]
+    let mut fit = sim.truth["fit"]
         .as_str()
         .unwrap_or("")
         .replace("FILE", &a.out.display().to_string());
-    output::write_all(
-        &[
-            Output {
-                path: a.out.clone(),
-                bytes: sim.data,
-            },
-            Output {
-                path: truth_path.clone(),
-                bytes: fdtemp::report::json::sorted_json(&sim.truth),
-            },
-        ],
-        a.overwrite,
-    )?;
+    if let Some((p, _)) = companions.first() {
+        fit = fit.replace("SECOND", &p.display().to_string());
+    }
+    let mut outputs = vec![
+        Output {
+            path: a.out.clone(),
+            bytes: sim.data,
+        },
+        Output {
+            path: truth_path.clone(),
+            bytes: fdtemp::report::json::sorted_json(&sim.truth),
+        },
+    ];
+    let also: Vec<PathBuf> = companions.iter().map(|(p, _)| p.clone()).collect();
+    for (path, bytes) in companions {
+        outputs.push(Output { path, bytes });
+    }
+    output::write_all(&outputs, a.overwrite)?;
+    for p in also {
+        println!("also       {}", p.display());
+    }
     println!(
         "wrote      {} ({} runs) and {}",
         a.out.display(),

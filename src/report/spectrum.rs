@@ -4,7 +4,7 @@ use super::format::fmt_num;
 use super::sig;
 use super::text::wrap;
 use crate::common::Units;
-use crate::spectral::analysis::{ErrorModel, SpectrumFit, SpectrumReport};
+use crate::spectral::analysis::{ErrorModel, Estimator, SpectrumFit, SpectrumReport};
 use crate::spectral::findings::{BathRelation, SpectralCaution, SpectralFinding, SpectralVerdict};
 use std::fmt::Write;
 
@@ -95,6 +95,11 @@ fn summary(o: &mut String, r: &SpectrumReport, fit: &SpectrumFit, unit: &str) {
             s.resamples,
             s.seed
         ),
+        ErrorModel::Normal => format!(
+            "{:.0}% normal, from the variance of each {} value",
+            100.0 * s.level,
+            estimate_name(s.estimator)
+        ),
         _ => format!(
             "{:.0}% chi-square, from each PSD value's degrees of freedom",
             100.0 * s.level
@@ -182,6 +187,63 @@ fn points_table(o: &mut String, fit: &SpectrumFit) {
     }
 }
 
+/// What the PSD column holds for an estimator, in words.
+fn estimate_name(e: Estimator) -> &'static str {
+    match e {
+        Estimator::SingleChannel => "PSD",
+        Estimator::CrossSpectrum => "cross-spectrum",
+        Estimator::Subtracted => "subtracted PSD",
+    }
+}
+
+/// The methods sentences on the gain and on how the PSD was estimated (empty for one
+/// channel without a gain).
+fn estimate_methods(r: &SpectrumReport) -> String {
+    let s = &r.settings;
+    let mut out = String::new();
+    match (s.estimator, s.gain, s.second_gain) {
+        (Estimator::CrossSpectrum, g1, g2) => {
+            let (g1, g2) = (g1.unwrap_or(1.0), g2.or(g1).unwrap_or(1.0));
+            let _ = write!(
+                out,
+                " The sample's noise was recorded simultaneously through two independent \
+                 amplifiers (voltage gains {} and {}); its PSD was estimated by the real part of \
+                 the Welch cross-spectrum of the two records (same Hann segments), divided by \
+                 the product of the gains, so that the amplifiers' uncorrelated noise averages \
+                 out. Its variance is (G11 G22 + Re(G12)^2 - Im(G12)^2)/nu with nu the \
+                 overlap-corrected degrees of freedom (Bendat & Piersol, Random Data, ch. 9).",
+                fmt_num(g1),
+                fmt_num(g2)
+            );
+        }
+        (Estimator::Subtracted, g, _) => {
+            if let Some(g) = g {
+                let _ = write!(
+                    out,
+                    " The record's PSD was divided by the squared voltage gain {} (referred to \
+                     the sample).",
+                    fmt_num(g)
+                );
+            }
+            out.push_str(
+                " A measured amplifier-noise PSD (interpolated in log f and log PSD) was \
+                 subtracted from it; the variance of the difference is the sum of the two \
+                 estimates' variances (2G^2/nu each, from their own degrees of freedom).",
+            );
+        }
+        (Estimator::SingleChannel, Some(g), _) => {
+            let _ = write!(
+                out,
+                " The record's PSD was divided by the squared voltage gain {} (referred to the \
+                 sample); the amplifier's own noise is included in it.",
+                fmt_num(g)
+            );
+        }
+        (Estimator::SingleChannel, None, _) => {}
+    }
+    out
+}
+
 /// A methods paragraph for the spectral analysis.
 pub fn methods(r: &SpectrumReport) -> String {
     let s = &r.settings;
@@ -192,6 +254,11 @@ pub fn methods(r: &SpectrumReport) -> String {
             s.resamples,
             s.seed
         )
+    } else if r.spectra.iter().all(|f| f.errors == ErrorModel::Normal) {
+        "intervals from the normal approximation with each value's variance (the dissipation \
+         taken as exact); band averages weight each frequency by its degrees of freedom, their \
+         variance including the correlation of neighbouring bins"
+            .into()
     } else {
         "intervals from the chi-square distribution of an averaged periodogram with the stated \
          degrees of freedom (the dissipation taken as exact); band averages weight each \
@@ -212,7 +279,7 @@ pub fn methods(r: &SpectrumReport) -> String {
         None => String::new(),
     };
     format!(
-        "Effective temperatures were computed with fdtemp {} as T_eff(f) = {} — convention: {}. \
+        "Effective temperatures were computed with fdtemp {} as T_eff(f) = {} — convention: {}.{} \
          Uncertainties are {:.0}% {}.{}",
         r.tool.version,
         match s.convention {
@@ -222,6 +289,7 @@ pub fn methods(r: &SpectrumReport) -> String {
             crate::spectral::Convention::Current => "G_I / (4 k Re Y)",
         },
         r.convention_text,
+        estimate_methods(r),
         100.0 * s.level,
         errors,
         test
@@ -252,6 +320,61 @@ pub fn caution(c: &SpectralCaution) -> String {
              noise and an exact dissipation; intermittent noise makes them too narrow (resample \
              runs when you have them)"
             .into(),
+        SpectralFinding::NormalAssumesGaussian => "normal intervals assume Gaussian noise, \
+             many averaged segments and an exact dissipation; with few segments per frequency \
+             or intermittent noise they are too narrow (resample runs when you have them)"
+            .into(),
+        SpectralFinding::NonPositiveTeff {
+            frequencies,
+            total,
+            estimator,
+        } => format!(
+            "T_eff <= 0 at {frequencies} of {total} frequencies: the {} is at or below zero \
+             there ({}); these values are reported as computed and left out of the figure's \
+             log axes",
+            estimate_name(*estimator),
+            match estimator {
+                Estimator::CrossSpectrum => {
+                    "the common noise is small against the amplifiers' there, or the channels \
+                     are not in phase"
+                }
+                Estimator::Subtracted => {
+                    "the amplifier noise is most of the measured PSD there, or was measured \
+                     higher than it is in this setup"
+                }
+                Estimator::SingleChannel => "a PSD of zero",
+            }
+        ),
+        SpectralFinding::LargeSubtraction { bands, limit } => {
+            let list: Vec<String> = bands
+                .iter()
+                .map(|b| {
+                    format!(
+                        "{}–{} Hz (up to {:.0}%)",
+                        sig(b.fmin, 4),
+                        sig(b.fmax, 4),
+                        100.0 * b.fraction
+                    )
+                })
+                .collect();
+            format!(
+                "the subtracted amplifier noise is more than {:.0}% of the measured PSD in {}: \
+                 T_eff there is the difference of two nearly equal numbers and rests on the \
+                 amplifier-noise measurement being right for this setup (same gain, input \
+                 impedance and temperature); a second channel (cross-spectrum) avoids this",
+                100.0 * limit,
+                list.join(", ")
+            )
+        }
+        SpectralFinding::OutsideAmplifierTable {
+            frequencies,
+            range: [lo, hi],
+        } => format!(
+            "{frequencies} frequencies outside the amplifier-noise table's range ({}–{} Hz) \
+             were left out",
+            fmt_num(*lo),
+            fmt_num(*hi)
+        ),
         SpectralFinding::FewRunsNoDof { runs } => format!(
             "only {runs} runs and no degrees of freedom: intervals from resampling so few runs \
              are unreliable"

@@ -36,8 +36,9 @@ use rayon::prelude::*;
 use serde::Serialize;
 use statrs::distribution::{ChiSquared, ContinuousCDF, Normal, StudentsT};
 
-/// JSON schema version of [`SpectrumReport`].
-pub const SCHEMA: u32 = 2;
+/// JSON schema version of [`SpectrumReport`] (3: `settings.estimator`, `settings.gain`,
+/// `settings.second_gain`, the `normal` error model, `second_input`, `amplifier_noise`).
+pub const SCHEMA: u32 = 3;
 /// Below this many runs, resampling runs is not the automatic choice.
 pub const FEW_RUNS: usize = 10;
 /// Below this many runs, resampled intervals of `T_eff(f)` and of the band run short
@@ -60,6 +61,35 @@ pub enum ErrorModel {
     ChiSquare,
     /// Bootstrap over independent runs.
     Runs,
+    /// The normal approximation from each value's variance: the cross-spectrum's
+    /// (Bendat & Piersol) and a subtracted PSD's (sum of the two variances); for one
+    /// channel's PSD `2G²/ν`.
+    Normal,
+}
+
+/// How the PSD that `T_eff` is computed from was estimated.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Estimator {
+    /// One channel's PSD (its amplifier's noise included).
+    #[default]
+    SingleChannel,
+    /// The real part of the Welch cross-spectrum of two channels through independent
+    /// amplifiers: their uncorrelated noise averages out.
+    CrossSpectrum,
+    /// One channel's PSD minus a measured amplifier-noise PSD.
+    Subtracted,
+}
+
+impl Estimator {
+    /// In words, for reports and figures.
+    pub fn label(self) -> &'static str {
+        match self {
+            Estimator::SingleChannel => "single channel",
+            Estimator::CrossSpectrum => "cross-spectrum",
+            Estimator::Subtracted => "amplifier noise subtracted",
+        }
+    }
 }
 
 /// Settings of a spectral analysis.
@@ -87,6 +117,13 @@ pub struct SpectrumSettings {
     pub dof: Option<f64>,
     /// Log-spaced bands per decade for the departure test.
     pub bands_per_decade: usize,
+    /// How the PSD was estimated (one channel, a cross-spectrum, or with a measured
+    /// amplifier noise subtracted).
+    pub estimator: Estimator,
+    /// The voltage gain divided out of the (first) record (`noise --gain`), when given.
+    pub gain: Option<f64>,
+    /// The second channel's voltage gain (`noise --cross-gain`), when two channels are used.
+    pub second_gain: Option<f64>,
 }
 
 impl Default for SpectrumSettings {
@@ -103,6 +140,9 @@ impl Default for SpectrumSettings {
             band: None,
             dof: None,
             bands_per_decade: 5,
+            estimator: Estimator::SingleChannel,
+            gain: None,
+            second_gain: None,
         }
     }
 }
@@ -140,6 +180,13 @@ impl SpectrumSettings {
             return Err(Error::Setting(
                 "--bands-per-decade is 0, expected at least 1".into(),
             ));
+        }
+        if self.estimator != Estimator::SingleChannel && self.errors == ErrorModel::ChiSquare {
+            return Err(Error::Setting(format!(
+                "--errors chi-square is the law of one channel's PSD; the {} estimate is not \
+                 chi-square distributed: use --errors normal, runs or auto",
+                self.estimator.label()
+            )));
         }
         Ok(())
     }
@@ -304,6 +351,10 @@ pub struct SpectrumReport {
     pub departure: Option<Departure>,
     /// Cautions about the whole input.
     pub cautions: Vec<SpectralCaution>,
+    /// The second channel's record (cross-spectrum), when one was used.
+    pub second_input: Option<String>,
+    /// The measured amplifier-noise PSD that was subtracted, when one was.
+    pub amplifier_noise: Option<String>,
 }
 
 /// Analyzes every spectrum group.
@@ -317,11 +368,35 @@ pub fn analyze_spectra(
     settings: &SpectrumSettings,
     input: Option<String>,
 ) -> Result<SpectrumReport> {
+    analyze_estimates(groups, &vec![None; groups.len()], bin_rho2, settings, input)
+}
+
+/// As [`analyze_spectra`], with, for each group when known, the variance of its run-mean
+/// PSD at each frequency (what the `normal` error model uses: the cross-spectrum's or a
+/// subtracted PSD's). A group's PSD may be negative at some frequencies when the
+/// estimator is not a single channel's (`T_eff ≤ 0` there is reported as computed, with
+/// a caution).
+///
+/// # Errors
+/// As [`analyze_spectra`]; [`Error::Analysis`] when a variance does not match its group.
+pub fn analyze_estimates(
+    groups: &[SpectrumGroup],
+    variances: &[Option<Vec<f64>>],
+    bin_rho2: &[f64],
+    settings: &SpectrumSettings,
+    input: Option<String>,
+) -> Result<SpectrumReport> {
     settings.validate()?;
     let k = settings.units.boltzmann();
+    if variances.len() != groups.len() {
+        return Err(Error::Analysis(
+            "one variance (or none) per spectrum group is expected".into(),
+        ));
+    }
     let spectra = groups
         .iter()
-        .map(|g| analyze_group(g, bin_rho2, settings, k))
+        .zip(variances)
+        .map(|(g, v)| analyze_group(g, v.as_deref(), bin_rho2, settings, k))
         .collect::<Result<Vec<_>>>()?;
     let last = spectra
         .last()
@@ -333,6 +408,13 @@ pub fn analyze_spectra(
         warnings.push(SpectralCaution {
             tw: None,
             finding: SpectralFinding::ChiSquareAssumesGaussian,
+        });
+    }
+    if settings.errors != ErrorModel::Runs && spectra.iter().any(|s| s.errors == ErrorModel::Normal)
+    {
+        warnings.push(SpectralCaution {
+            tw: None,
+            finding: SpectralFinding::NormalAssumesGaussian,
         });
     }
     if let Some(t) = settings.temperature {
@@ -360,6 +442,8 @@ pub fn analyze_spectra(
         departure: last.departure.clone(),
         spectra,
         cautions: warnings,
+        second_input: None,
+        amplifier_noise: None,
     })
 }
 
@@ -482,22 +566,42 @@ fn chi_interval(t: f64, nu: f64, level: f64) -> Ends {
 
 fn analyze_group(
     g: &SpectrumGroup,
+    var: Option<&[f64]>,
     bin_rho2: &[f64],
     s: &SpectrumSettings,
     k: f64,
 ) -> Result<SpectrumFit> {
     let who = g.tw.map_or_else(String::new, |t| format!("tw = {t}: "));
     let n_runs = g.runs.len();
-    check_group(g, &who)?;
+    check_group(g, &who, s.estimator != Estimator::SingleChannel)?;
+    if let Some(v) = var
+        && (v.len() != g.freqs.len() || !v.iter().all(|x| *x >= 0.0 && x.is_finite()))
+    {
+        return Err(Error::Analysis(format!(
+            "{who}the PSD's variance is not usable: expected one finite value >= 0 per frequency"
+        )));
+    }
     let dof = total_dof(g, s);
     let mut warnings = Vec::new();
-    let errors = choose_errors(s, n_runs, dof.is_some(), &who, &mut warnings)?;
+    let errors = choose_errors(s, n_runs, dof.is_some(), var.is_some(), &who, &mut warnings)?;
     let fit = GroupFit::new(g, s, k, dof.as_deref(), &who)?;
 
     // Intervals per frequency and per band: (low, high) at the band's level.
-    // `choose_errors` picks chi-square only when the degrees of freedom are known.
+    // `choose_errors` picks chi-square only when the degrees of freedom are known, and
+    // normal only when a variance or the degrees of freedom are.
     let iv = match (errors, dof.as_ref()) {
         (ErrorModel::ChiSquare, Some(nu)) => fit.chi_square_intervals(nu, bin_rho2),
+        (ErrorModel::Normal, nu) => {
+            let v: Vec<f64> = match (var, nu) {
+                (Some(v), _) => v.to_vec(),
+                // One channel's PSD: Ĝ ~ G χ²_ν / ν has variance 2G²/ν.
+                (None, Some(nu)) => (0..nu.len())
+                    .map(|j| 2.0 * fit.gbar[j] * fit.gbar[j] / nu[j])
+                    .collect(),
+                (None, None) => vec![f64::NAN; g.freqs.len()],
+            };
+            fit.normal_intervals(&v, bin_rho2)
+        }
         _ => {
             let n_bands = fit.grid.edges.len();
             crate::budget::check_spectrum(s.resamples, g.runs.len(), g.freqs.len(), n_bands)?;
@@ -505,12 +609,20 @@ fn analyze_group(
         }
     };
 
-    let point_dof = if errors == ErrorModel::ChiSquare {
+    let point_dof = if matches!(errors, ErrorModel::ChiSquare | ErrorModel::Normal) {
         dof.as_deref()
     } else {
         None
     };
     let points = fit.points(&iv, point_dof);
+    let non_positive = points.iter().filter(|p| !(p.t_eff > 0.0)).count();
+    if non_positive > 0 {
+        warnings.push(SpectralFinding::NonPositiveTeff {
+            frequencies: non_positive,
+            total: points.len(),
+            estimator: s.estimator,
+        });
+    }
     let band = fit.band(0, &iv);
     let test_bands = fit.test_bands(&iv);
     let (departure, separate_bands) = find_departure(&test_bands);
@@ -543,7 +655,7 @@ fn analyze_group(
 
 /// Groups from the reader are valid by construction; a caller of the library may build
 /// one by hand, so check the shapes and values once here.
-fn check_group(g: &SpectrumGroup, who: &str) -> Result<()> {
+fn check_group(g: &SpectrumGroup, who: &str, signed: bool) -> Result<()> {
     let n_runs = g.runs.len();
     let nf = g.freqs.len();
     let shape_ok = |a: &Array2<f64>| a.dim() == (n_runs, nf);
@@ -555,7 +667,7 @@ fn check_group(g: &SpectrumGroup, who: &str) -> Result<()> {
         && g.freqs.iter().all(|f| *f > 0.0 && f.is_finite())
         && g.freqs.windows(2).all(|w| w[1] > w[0])
         && g.loss.iter().all(|v| *v > 0.0 && v.is_finite())
-        && g.psd.iter().all(|v| *v >= 0.0 && v.is_finite())
+        && g.psd.iter().all(|v| (signed || *v >= 0.0) && v.is_finite())
         && g.dof
             .as_ref()
             .is_none_or(|d| d.iter().all(|v| *v > 0.0 && v.is_finite()));
@@ -586,12 +698,23 @@ fn choose_errors(
     s: &SpectrumSettings,
     n_runs: usize,
     has_dof: bool,
+    has_var: bool,
     who: &str,
     warnings: &mut Vec<SpectralFinding>,
 ) -> Result<ErrorModel> {
+    let single = s.estimator == Estimator::SingleChannel;
     let errors = match s.errors {
+        // Resampling the record's runs would miss the amplifier table's own scatter.
+        ErrorModel::Auto if s.estimator == Estimator::Subtracted && has_var => ErrorModel::Normal,
         ErrorModel::Auto if n_runs >= FEW_RUNS => ErrorModel::Runs,
-        ErrorModel::Auto if has_dof => ErrorModel::ChiSquare,
+        ErrorModel::Auto if !single && has_var => ErrorModel::Normal,
+        ErrorModel::Auto if single && has_dof => ErrorModel::ChiSquare,
+        ErrorModel::Normal if !(has_var || single && has_dof) => {
+            return Err(Error::Analysis(format!(
+                "{who}normal intervals need the PSD's variance or its degrees of freedom: add \
+                 a 'dof' column or give --dof"
+            )));
+        }
         ErrorModel::Auto if n_runs >= 2 => {
             warnings.push(SpectralFinding::FewRunsNoDof { runs: n_runs });
             ErrorModel::Runs
@@ -790,6 +913,53 @@ impl<'a> GroupFit<'a> {
             point,
             band,
             band_dof,
+        }
+    }
+
+    /// Normal intervals from the variance `var` of the run-mean PSD at each frequency:
+    /// `T̂ ± z·se`. A band's variance is `Σ_j w_j² v_j + 2 Σ_m ρ²_m Σ_j w_j w_{j+m} √(v_j
+    /// v_{j+m})` over its frequencies (`v` the variance of `T_eff`, `ρ²_m` the correlation of
+    /// values `m` bins apart, the same for a cross-spectrum's real part as for a PSD),
+    /// divided by `(Σ w)²`.
+    fn normal_intervals(&self, var: &[f64], bin_rho2: &[f64]) -> Intervals {
+        let s = self.s;
+        let nf = var.len();
+        let z = |level: f64| Normal::standard().inverse_cdf(0.5 + level / 2.0);
+        let vt: Vec<f64> = (0..nf)
+            .map(|j| (self.factor[j] / self.lbar[j]).powi(2) * var[j])
+            .collect();
+        let ends = |est: f64, v: f64, level: f64| {
+            let half = z(level) * v.sqrt();
+            (half.is_finite()).then_some((est - half, est + half))
+        };
+        let point = (0..nf)
+            .map(|j| ends(self.t_hat[j], vt[j], s.level))
+            .collect();
+        let band = (0..self.grid.edges.len())
+            .map(|b| {
+                if self.grid.count[b] == 0 {
+                    return None;
+                }
+                let inside = |j: usize| self.grid.members[j].contains(&b);
+                let w = &self.weights;
+                let (mut v, mut wsum) = (0.0, 0.0);
+                for j in (0..nf).filter(|&j| inside(j)) {
+                    wsum += w[j];
+                    v += w[j] * w[j] * vt[j];
+                    for (m, r2) in bin_rho2.iter().enumerate() {
+                        let k = j + m + 1;
+                        if k < nf && inside(k) {
+                            v += 2.0 * r2 * w[j] * w[k] * (vt[j] * vt[k]).sqrt();
+                        }
+                    }
+                }
+                ends(self.band_est[b], v / (wsum * wsum), self.grid.level(b, s))
+            })
+            .collect();
+        Intervals {
+            point,
+            band,
+            band_dof: vec![None; self.grid.edges.len()],
         }
     }
 

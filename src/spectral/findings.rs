@@ -10,6 +10,33 @@ use serde::Serialize;
 pub enum SpectralFinding {
     /// Chi-square intervals assume Gaussian noise and an exact dissipation.
     ChiSquareAssumesGaussian,
+    /// Normal intervals assume Gaussian noise, many segments and an exact dissipation.
+    NormalAssumesGaussian,
+    /// `T_eff ≤ 0` at some frequencies (a cross-spectrum's real part or a subtracted PSD
+    /// at or below zero there), reported as computed.
+    NonPositiveTeff {
+        /// How many frequencies.
+        frequencies: usize,
+        /// Of how many.
+        total: usize,
+        /// The estimator.
+        estimator: super::analysis::Estimator,
+    },
+    /// The subtracted amplifier noise is more than `limit` of the measured PSD in some
+    /// bands: T_eff there is the small difference of two large numbers.
+    LargeSubtraction {
+        /// The bands (Hz) where it is, with the largest fraction in each.
+        bands: Vec<SubtractedBand>,
+        /// The fraction above which it fires (0.5).
+        limit: f64,
+    },
+    /// Frequencies outside the amplifier-noise table's range were left out.
+    OutsideAmplifierTable {
+        /// How many.
+        frequencies: usize,
+        /// The table's frequency range (Hz).
+        range: [f64; 2],
+    },
     /// A few runs and no degrees of freedom: run resampling is unreliable.
     FewRunsNoDof {
         /// Runs.
@@ -67,6 +94,17 @@ pub enum SpectralFinding {
         /// The factor beyond which it fires.
         factor: f64,
     },
+}
+
+/// A band where a large part of the measured PSD was subtracted as amplifier noise.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct SubtractedBand {
+    /// Lower edge (Hz).
+    pub fmin: f64,
+    /// Upper edge (Hz).
+    pub fmax: f64,
+    /// The largest subtracted fraction (amplifier PSD / measured PSD) of its log bands.
+    pub fraction: f64,
 }
 
 /// A spectral caution with its subject: the spectrum at a waiting time, or all of them.

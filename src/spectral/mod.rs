@@ -7,13 +7,17 @@
 
 pub mod aging;
 pub mod analysis;
+pub mod cross;
 pub mod findings;
 pub mod input;
 pub mod leakage;
 pub mod noise;
+pub mod subtract;
 pub mod welch;
 
-pub use analysis::{SpectrumReport, SpectrumSettings, analyze_spectra};
+pub use analysis::{
+    Estimator, SpectrumReport, SpectrumSettings, analyze_estimates, analyze_spectra,
+};
 
 /// How the noise and the dissipation are normalized.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, clap::ValueEnum)]

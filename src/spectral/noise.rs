@@ -327,7 +327,7 @@ fn welch_stream(
 }
 
 /// The sample rate: given, or the time column's, checked against each other.
-fn rate_of(path: &Path, given: Option<f64>, time: Option<&TimeColumn>) -> Result<f64> {
+pub(crate) fn rate_of(path: &Path, given: Option<f64>, time: Option<&TimeColumn>) -> Result<f64> {
     let from_time = time.map(|t| (1.0 / t.step, t));
     match (given, from_time) {
         (Some(fs), None) => Ok(fs),
@@ -430,4 +430,13 @@ pub fn psd_csv(rec: &RecordPsd, diss: Option<&Dissipation>) -> Vec<u8> {
         }
     }
     s.into_bytes()
+}
+
+/// Reads a measured amplifier-noise PSD (`noise --amplifier-noise`); see
+/// [`super::subtract::read_amplifier_noise_in`].
+///
+/// # Errors
+/// As [`super::subtract::read_amplifier_noise_in`].
+pub fn read_amplifier_noise(path: &Path, d: Delimiter) -> Result<super::subtract::AmplifierNoise> {
+    super::subtract::read_amplifier_noise_in(path, d)
 }

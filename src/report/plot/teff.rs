@@ -142,6 +142,7 @@ where
             band: i == 0,
             departure: r.spectra[..i].iter().all(|s| s.departure.is_none()),
             several: r.spectra.len() > 1,
+            estimator: r.settings.estimator,
         };
         teff_spectrum(&mut chart, s, c, (r.settings.level, named), rg, sc)?;
     }
@@ -222,6 +223,8 @@ pub(super) struct Named {
     departure: bool,
     /// More than one spectrum: the departure's entry names no frequency.
     several: bool,
+    /// How the PSD was estimated: the T_eff entry names it unless it is one channel's.
+    estimator: crate::spectral::Estimator,
 }
 
 /// One spectrum in colour `c`: its interval band, its T_eff(f) and its departure.
@@ -256,10 +259,13 @@ where
                 .legend(swatch(swatch_colour.mix(0.4).filled(), sc.sample));
         }
     }
-    let label = s.tw.map_or_else(
+    let mut label = s.tw.map_or_else(
         || format!("{T_EFF}(f)"),
         |t| format!("{T_EFF}(f), {T_W} = {}", crate::report::format::fmt_num(t)),
     );
+    if named.estimator != crate::spectral::Estimator::SingleChannel {
+        label = format!("{label}, {}", named.estimator.label());
+    }
     chart
         .draw_series(LineSeries::new(
             ok.iter().map(|p| (p.f, p.t_eff)),

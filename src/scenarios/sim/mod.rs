@@ -39,7 +39,7 @@ mod brownian;
 mod ising;
 pub mod ising_twins;
 mod ou;
-mod resistor;
+pub mod resistor;
 pub mod twins;
 mod two_lines;
 pub use ising::ratio_at_fixed_t;
@@ -61,6 +61,10 @@ pub enum Scenario {
     OuEquilibrium,
     /// Johnson–Nyquist noise records of a resistor (for `noise`).
     Resistor,
+    /// A resistor's Johnson–Nyquist noise recorded at once through two amplifiers, each
+    /// adding its own white and 1/f-like noise (for `noise --cross-with`); also writes the
+    /// second channel and a record of the first amplifier alone.
+    ResistorTwoChannels,
     /// Raw twin runs of the two-bath system (fields ±0.05, ±0.1 from tw) for `reduce`.
     TwoBathsTwins,
     /// Raw repeated quenches of the two-bath system (runs, a third unperturbed, field 0.5
@@ -115,11 +119,29 @@ pub fn simulate(spec: &SimSpec) -> Result<SimOutput> {
         Scenario::Brownian => brownian::brownian(spec),
         Scenario::IsingChain => ising::ising_chain(spec),
         Scenario::Resistor => resistor::resistor(spec),
+        Scenario::ResistorTwoChannels => resistor::resistor_two_channels(spec).0,
         Scenario::TwoLines => two_lines::two_lines(spec)?,
         Scenario::TwoBathsTwins => twins::two_baths(spec),
         Scenario::TwoBathsQuenches => twins::two_baths_quenches(spec, &[])?,
         Scenario::IsingTwins => ising_twins::ising_twins(spec),
         Scenario::TwoBathsObservables => ou::two_observables(spec, SLOW_B_DEFAULT),
+    })
+}
+
+/// The files a scenario writes beside its data file and truth: `(suffix, bytes)`, the
+/// suffix replacing the data file's extension (`resistor-two-channels`: the second
+/// channel `STEM.ch2.csv` and the first amplifier alone `STEM.amp.csv`).
+///
+/// # Errors
+/// As [`simulate`].
+pub fn companions(spec: &SimSpec) -> Result<Vec<(&'static str, Vec<u8>)>> {
+    check(spec)?;
+    Ok(match spec.scenario {
+        Scenario::ResistorTwoChannels => {
+            let (_, b, amp) = resistor::resistor_two_channels(spec);
+            vec![("ch2.csv", b), ("amp.csv", amp)]
+        }
+        _ => Vec::new(),
     })
 }
 
