@@ -45,9 +45,12 @@ fn analyse(spec: &AgingNoiseSpec, resamples: usize) -> SpectrumReport {
     // is at 0.39 Hz: the caution is true there and only there.
     assert_eq!(
         cautions,
-        vec![fdtemp::spectral::aging::WindowCaution::FewPeriods {
-            tw: 50.0,
-            below: 0.4
+        vec![fdtemp::spectral::findings::SpectralCaution {
+            tw: Some(50.0),
+            finding: fdtemp::spectral::findings::SpectralFinding::AgeWindowFewPeriods {
+                below: 0.4,
+                periods: 10.0
+            }
         }]
     );
     // The loss at every bin (exact values: the table is hit at its rows).
@@ -57,7 +60,14 @@ fn analyse(spec: &AgingNoiseSpec, resamples: usize) -> SpectrumReport {
             (f, spec.loss(f))
         })
         .collect();
-    let groups = age_groups(&ages, |_| Dissipation::Table(bins.clone())).unwrap();
+    let groups: Vec<_> = age_groups(&ages, |_| Ok(Dissipation::Table(bins.clone())))
+        .unwrap()
+        .into_iter()
+        .map(|(g, dropped)| {
+            assert_eq!(dropped, 0);
+            g
+        })
+        .collect();
     let s = SpectrumSettings {
         temperature: Some(spec.temperature),
         units: Units::Reduced,

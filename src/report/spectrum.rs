@@ -453,6 +453,18 @@ pub fn caution(c: &SpectralCaution) -> String {
             100.0 * limit,
             fmt_num(*below)
         ),
+        SpectralFinding::AgeWindowWide { span, limit } => format!(
+            "the window spans {:.0}% of the age (more than {:.0}%): the system ages inside \
+             it, and the estimate is the window's mean spectrum (narrow it with --age-span or \
+             --age-window)",
+            100.0 * span,
+            100.0 * limit
+        ),
+        SpectralFinding::AgeWindowFewPeriods { below, periods } => format!(
+            "below {} Hz fewer than {periods:.0} periods fit in the window (1/f ≪ Δt does \
+             not hold there): distrust T_eff below it, or widen the window",
+            sig(*below, 3)
+        ),
         SpectralFinding::ImplausibleScale { ratio, factor } => format!(
             "T_eff is {} times the bath temperature (median), and beyond a factor {} from it at \
              every frequency: an aging system departs at low frequencies, not everywhere, so \

@@ -10,6 +10,7 @@
 //! cautions with the numbers. The PSD of one window is the average over the window, so
 //! where the system ages inside it the estimate is of the window's mean spectrum.
 
+use super::findings::{SpectralCaution, SpectralFinding};
 use super::input::SpectrumGroup;
 use super::noise::{Dissipation, RecordPsd, to_group};
 use super::welch::{Welch, WelchSettings, bin_correlation, hann};
@@ -104,45 +105,6 @@ impl AgeSettings {
     }
 }
 
-/// A caution about the windows, with its numbers.
-#[derive(Debug, Clone, PartialEq, serde::Serialize)]
-#[serde(tag = "code", rename_all = "snake_case")]
-pub enum WindowCaution {
-    /// The window is wider than [`MAX_SPAN`] of its age: the system ages inside it.
-    WideWindow {
-        /// The age.
-        tw: f64,
-        /// The window's width over the age.
-        span: f64,
-    },
-    /// Some analysed frequencies have fewer than [`MIN_PERIODS`] periods in the window.
-    FewPeriods {
-        /// The age.
-        tw: f64,
-        /// Below this frequency (Hz) the window holds fewer than [`MIN_PERIODS`] periods.
-        below: f64,
-    },
-}
-
-impl WindowCaution {
-    /// The caution in words.
-    pub fn sentence(&self) -> String {
-        match self {
-            WindowCaution::WideWindow { tw, span } => format!(
-                "tw = {tw}: the window spans {:.0}% of the age (more than {:.0}%): the \
-                 system ages inside it, and the estimate is the window's mean spectrum",
-                100.0 * span,
-                100.0 * MAX_SPAN
-            ),
-            WindowCaution::FewPeriods { tw, below } => format!(
-                "tw = {tw}: below {} Hz fewer than {MIN_PERIODS:.0} periods fit in the \
-                 window (1/f ≪ Δt does not hold there)",
-                crate::report::format::sig(*below, 3)
-            ),
-        }
-    }
-}
-
 /// The PSDs of one age: one Welch estimate per run over its window.
 #[derive(Debug, Clone)]
 pub struct AgePsd {
@@ -167,7 +129,7 @@ pub fn age_windows(
     fs: f64,
     ages: &AgeSettings,
     welch: WelchSettings,
-) -> Result<(Vec<AgePsd>, Vec<WindowCaution>)> {
+) -> Result<(Vec<AgePsd>, Vec<SpectralCaution>)> {
     ages.validate()?;
     let welch = WelchSettings {
         sample_rate: fs,
@@ -206,12 +168,24 @@ pub fn age_windows(
         }
         let span = (end - start) / tw;
         if span > MAX_SPAN {
-            cautions.push(WindowCaution::WideWindow { tw, span });
+            cautions.push(SpectralCaution {
+                tw: Some(tw),
+                finding: SpectralFinding::AgeWindowWide {
+                    span,
+                    limit: MAX_SPAN,
+                },
+            });
         }
         let lowest = super::noise::FIRST_BIN as f64 * fs / welch.segment as f64;
         let below = MIN_PERIODS / (end - start);
         if lowest < below {
-            cautions.push(WindowCaution::FewPeriods { tw, below });
+            cautions.push(SpectralCaution {
+                tw: Some(tw),
+                finding: SpectralFinding::AgeWindowFewPeriods {
+                    below,
+                    periods: MIN_PERIODS,
+                },
+            });
         }
         spans.push((tw, [start, end], first, last));
     }
@@ -245,22 +219,155 @@ pub fn age_windows(
 
 /// The spectrum groups of every age (their `tw` set), with the dissipation of each age
 /// from `loss` (one table for all ages, or one per age), for
-/// [`super::analyze_spectra`].
+/// [`super::analyze_spectra`]; beside each, the number of frequencies outside its
+/// dissipation table.
 ///
 /// # Errors
 /// As [`to_group`], naming the age.
 pub fn age_groups(
     ages: &[AgePsd],
-    loss: impl Fn(f64) -> Dissipation,
-) -> Result<Vec<SpectrumGroup>> {
+    loss: impl Fn(f64) -> Result<Dissipation>,
+) -> Result<Vec<(SpectrumGroup, usize)>> {
     ages.iter()
         .map(|a| {
-            let (mut g, _) =
-                to_group(&a.psd, &loss(a.tw)).map_err(|e| e.about(&format!("tw = {}", a.tw)))?;
+            let (mut g, dropped) =
+                to_group(&a.psd, &loss(a.tw)?).map_err(|e| e.about(&format!("tw = {}", a.tw)))?;
             g.tw = Some(a.tw);
-            Ok(g)
+            Ok((g, dropped))
         })
         .collect()
+}
+
+/// The dissipation of every age from a loss table whose first column is named `tw`:
+/// rows `tw, f, value`, one table per distinct tw (each with increasing f). Returns
+/// `None` when the first column is not named `tw` (one table for every age), else the
+/// tables by tw and the value column's name.
+///
+/// # Errors
+/// [`Error::Input`] with line and column for a bad row, a frequency that does not
+/// increase within its tw, or a tw with fewer than 2 rows.
+pub fn read_loss_by_age(
+    path: &std::path::Path,
+    d: crate::input::Delimiter,
+) -> Result<Option<(Vec<(f64, Dissipation)>, String)>> {
+    use crate::input::{
+        Header, csv_error, csv_reader_in, is_blank, line_of, open, parse_number_in,
+    };
+    let mut rdr = csv_reader_in(open(path)?, d);
+    let mut records = rdr.records();
+    let Some(first) = records.next() else {
+        return Ok(None);
+    };
+    let header = Header::new(path, &first.map_err(|e| csv_error(path, e))?)?.with_delimiter(d);
+    if header.fields.first().map(|f| f.trim()) != Some("tw") {
+        return Ok(None);
+    }
+    if header.fields.len() < 3 {
+        return Err(Error::input(
+            path,
+            Some(header.line),
+            None,
+            "a loss table by age needs three columns: tw, f and the value",
+        ));
+    }
+    let name = header.fields[2].clone();
+    let mut tables: Vec<(f64, Vec<(f64, f64)>)> = Vec::new();
+    for rec in records {
+        let rec = rec.map_err(|e| csv_error(path, e))?;
+        if is_blank(&rec) {
+            continue;
+        }
+        header.check_width(path, &rec)?;
+        let line = line_of(&rec);
+        let at = |c: u64, m: String| Error::input(path, Some(line), Some(c), m);
+        let num = |i: usize| {
+            parse_number_in(&rec[i], &header.fields[i], d).map_err(|m| at(i as u64 + 1, m))
+        };
+        let (tw, f, v) = (num(0)?, num(1)?, num(2)?);
+        if !(tw > 0.0) || !(f > 0.0) || !(v > 0.0) {
+            let (c, what) = if !(tw > 0.0) {
+                (1, "a positive age")
+            } else if !(f > 0.0) {
+                (2, "a positive frequency in hertz")
+            } else {
+                (3, "a positive number")
+            };
+            return Err(at(
+                c,
+                format!(
+                    "column '{}' is {}, expected {what}",
+                    header.fields[c as usize - 1],
+                    rec[c as usize - 1].trim()
+                ),
+            ));
+        }
+        match tables.iter_mut().find(|(t, _)| t.to_bits() == tw.to_bits()) {
+            Some((_, rows)) => {
+                if let Some(&(prev, _)) = rows.last()
+                    && !(f > prev)
+                {
+                    return Err(at(
+                        2,
+                        format!(
+                            "f = {f} is not above the previous frequency {prev} of tw = {tw}; \
+                             expected increasing frequencies within each tw"
+                        ),
+                    ));
+                }
+                rows.push((f, v));
+            }
+            None => tables.push((tw, vec![(f, v)])),
+        }
+    }
+    if let Some((tw, _)) = tables.iter().find(|(_, rows)| rows.len() < 2) {
+        return Err(Error::input(
+            path,
+            None,
+            None,
+            format!("tw = {tw} has fewer than 2 rows; expected a curve to interpolate"),
+        ));
+    }
+    Ok(Some((
+        tables
+            .into_iter()
+            .map(|(tw, rows)| (tw, Dissipation::Table(rows)))
+            .collect(),
+        name,
+    )))
+}
+
+/// Where each age's dissipation comes from.
+#[derive(Debug, Clone, PartialEq)]
+pub enum AgeLoss {
+    /// The same for every age.
+    Same(Dissipation),
+    /// One per age (a loss table with a `tw` column).
+    ByAge(Vec<(f64, Dissipation)>),
+}
+
+impl AgeLoss {
+    /// The dissipation of age `tw`.
+    ///
+    /// # Errors
+    /// [`Error::Setting`] when a table by age has no rows for `tw` (matched to a relative
+    /// 1e-9), naming the ages it has.
+    pub fn at(&self, tw: f64) -> Result<Dissipation> {
+        match self {
+            AgeLoss::Same(d) => Ok(d.clone()),
+            AgeLoss::ByAge(t) => t
+                .iter()
+                .find(|(a, _)| (a - tw).abs() <= 1e-9 * tw.abs())
+                .map(|(_, d)| d.clone())
+                .ok_or_else(|| {
+                    let have: Vec<String> = t.iter().map(|(a, _)| a.to_string()).collect();
+                    Error::Setting(format!(
+                        "the loss table has no rows for tw = {tw} (it has tw = {}); expected \
+                         one table per age given with --ages",
+                        have.join(", ")
+                    ))
+                }),
+        }
+    }
 }
 
 #[cfg(test)]
@@ -317,9 +424,12 @@ mod tests {
         let (_, cautions) = age_windows(&names, &long, 10.0, &wide, welch).unwrap();
         assert_eq!(
             cautions,
-            vec![WindowCaution::WideWindow {
-                tw: 100.0,
-                span: 0.8
+            vec![SpectralCaution {
+                tw: Some(100.0),
+                finding: SpectralFinding::AgeWindowWide {
+                    span: 0.8,
+                    limit: MAX_SPAN
+                }
             }]
         );
     }

@@ -86,6 +86,22 @@ pub enum SpectralFinding {
         /// The relative bias above which it fires (0.05).
         limit: f64,
     },
+    /// Aging records (`noise --ages`): the window at this age is wider than `limit` of the
+    /// age, so the system ages inside it.
+    AgeWindowWide {
+        /// The window's width over the age.
+        span: f64,
+        /// The fraction above which it fires.
+        limit: f64,
+    },
+    /// Aging records: below `below` Hz fewer than `periods` periods fit in the window
+    /// (1/f ≪ Δt does not hold there).
+    AgeWindowFewPeriods {
+        /// The frequency (Hz).
+        below: f64,
+        /// The number of periods asked for.
+        periods: f64,
+    },
     /// At every frequency T_eff's interval lies beyond a factor 10 from the bath: more
     /// likely units, a gain or the convention than physics.
     ImplausibleScale {
