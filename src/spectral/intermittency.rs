@@ -189,10 +189,12 @@ pub struct IntermittencyBand {
     pub p_adjusted: f64,
     /// Whether `p_adjusted ≤ 1 − level`.
     pub flagged: bool,
-    /// Excess kurtosis of the band-passed record (0 for Gaussian noise), runs combined.
-    pub excess_kurtosis: f64,
-    /// Its standard error under Gaussianity.
-    pub kurtosis_se: f64,
+    /// Excess kurtosis of the band-passed record (0 for Gaussian noise), runs combined by
+    /// inverse variance (`None` when the band-passed record has no power).
+    pub excess_kurtosis: Option<f64>,
+    /// Its standard error under Gaussianity (asymptotic; a little high when the record is
+    /// short against the band's correlation time).
+    pub kurtosis_se: Option<f64>,
     /// Median over mean of the per-segment band powers.
     pub median_over_mean: f64,
     /// Its mean over the Gaussian surrogates (`ln 2` for a single bin without overlap).
@@ -530,7 +532,11 @@ impl Prepared {
 
 /// Excess kurtosis of every run band-passed to each band, combined over runs by inverse
 /// variance, with its standard error under Gaussianity `√(24 Σ_τ ρ(τ)⁴ / n)`.
-fn kurtosis(prepared: &[Prepared], models: &[Vec<f64>], edges: &[(f64, f64)]) -> Vec<(f64, f64)> {
+fn kurtosis(
+    prepared: &[Prepared],
+    models: &[Vec<f64>],
+    edges: &[(f64, f64)],
+) -> Vec<Option<(f64, f64)>> {
     edges
         .par_iter()
         .map(|&(f0, f1)| {
@@ -542,11 +548,7 @@ fn kurtosis(prepared: &[Prepared], models: &[Vec<f64>], edges: &[(f64, f64)]) ->
                     den += 1.0 / var;
                 }
             }
-            if den > 0.0 {
-                (num / den, den.recip().sqrt())
-            } else {
-                (f64::NAN, f64::NAN)
-            }
+            (den > 0.0).then(|| (num / den, den.recip().sqrt()))
         })
         .collect()
 }
@@ -740,8 +742,8 @@ pub fn intermittency(
                 p_value: count0[b] as f64 / n_all as f64,
                 p_adjusted,
                 flagged: p_adjusted <= alpha,
-                excess_kurtosis: kurt[b].0,
-                kurtosis_se: kurt[b].1,
+                excess_kurtosis: kurt[b].map(|k| k.0),
+                kurtosis_se: kurt[b].map(|k| k.1),
                 median_over_mean: med0[b],
                 null_median_over_mean: null_med,
                 teff_median_over_mean: med0[b] / null_med,
@@ -806,13 +808,18 @@ fn words(
             band: Some([b.fmin, b.fmax]),
             message: format!(
                 "{}: single segments' band power scatters {} times as much as for Gaussian \
-                 noise (adjusted {}); excess kurtosis of the band-passed record {} ± {} (0 for \
-                 Gaussian noise); the median-based T_eff is {} of the mean-based.",
+                 noise (adjusted {}){}; the median-based T_eff is {} of the mean-based.",
                 band_words(b),
                 sig(b.variance_ratio, 3),
                 p_clause(b.p_adjusted, b_total),
-                sig(b.excess_kurtosis, 3),
-                sig(b.kurtosis_se, 2),
+                match (b.excess_kurtosis, b.kurtosis_se) {
+                    (Some(k), Some(se)) => format!(
+                        "; excess kurtosis of the band-passed record {} ± {} (0 for Gaussian noise)",
+                        sig(k, 3),
+                        sig(se, 2)
+                    ),
+                    _ => String::new(),
+                },
                 sig(b.teff_median_over_mean, 3)
             ),
         })
