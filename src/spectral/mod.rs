@@ -10,6 +10,7 @@ pub mod analysis;
 pub mod cross;
 pub mod findings;
 pub mod input;
+pub mod intermittency;
 pub mod leakage;
 pub mod noise;
 pub mod subtract;
