@@ -484,6 +484,83 @@ pub fn noise_spectrum(
     Ok(report)
 }
 
+/// `noise --ages`: records that start at a quench (or carry it at `ages.quench_at` on their
+/// clock), cut into windows at the ages, a Welch PSD per (run, window) referred to the
+/// sample by `gain`, and T_eff(f, tw) against each age's dissipation, with every age's
+/// cautions (window, leakage, frequencies outside its table). The records are held in
+/// memory (8 bytes a sample).
+///
+/// # Errors
+/// Reader errors; as [`crate::spectral::aging::age_windows`] and
+/// [`crate::spectral::analyze_spectra`], naming the file.
+#[allow(clippy::too_many_arguments)]
+pub fn noise_aging(
+    path: &Path,
+    delimiter: Delimiter,
+    welch: WelchSettings,
+    sample_rate: Option<f64>,
+    gain: Option<f64>,
+    ages: &crate::spectral::aging::AgeSettings,
+    loss: &crate::spectral::aging::AgeLoss,
+    settings: &SpectrumSettings,
+) -> Result<(SpectrumReport, Vec<crate::spectral::aging::AgePsd>)> {
+    use crate::spectral::aging::{age_groups, age_windows};
+    positive("--gain", gain, "a positive voltage gain (output/input)")?;
+    settings.validate()?;
+    ages.validate()?;
+    let mut runs: Vec<Vec<f64>> = Vec::new();
+    let records = crate::spectral::input::stream_records_in(path, delimiter, |r, v| {
+        while runs.len() <= r {
+            runs.push(Vec::new());
+        }
+        runs[r].push(v);
+    })?;
+    if runs.iter().all(Vec::is_empty) {
+        return Err(Error::input(
+            path,
+            None,
+            None,
+            "the record is empty; expected one number per line (or one column per run)",
+        ));
+    }
+    let fs = noise::rate_of(path, sample_rate, records.time.as_ref())?;
+    let (mut windows, cautions) =
+        age_windows(&records.runs, &runs, fs, ages, welch).map_err(in_file(path))?;
+    drop(runs);
+    if let Some(g) = gain {
+        for w in &mut windows {
+            w.psd.divide_gain(g);
+        }
+    }
+    let groups = age_groups(&windows, |tw| loss.at(tw)).map_err(in_file(path))?;
+    let only: Vec<SpectrumGroup> = groups.iter().map(|(g, _)| g.clone()).collect();
+    let mut report = crate::spectral::analyze_spectra(
+        &only,
+        &windows[0].psd.bin_rho2,
+        settings,
+        Some(path.display().to_string()),
+    )
+    .map_err(in_file(path))?;
+    // Every age's cautions go with its spectrum (the report names its tw).
+    let mut per_age = cautions;
+    for ((g, dropped), w) in groups.iter().zip(&windows) {
+        let before = report.cautions.len();
+        outside_table(&mut report, &loss.at(w.tw)?, *dropped);
+        leakage_caution(&mut report, &w.psd, g);
+        per_age.extend(report.cautions.drain(before..).map(|mut c| {
+            c.tw = Some(w.tw);
+            c
+        }));
+    }
+    for c in per_age {
+        match report.spectra.iter_mut().find(|s| s.tw == c.tw) {
+            Some(s) => s.cautions.push(c),
+            None => report.cautions.push(c),
+        }
+    }
+    Ok((report, windows))
+}
+
 /// The range of a dissipation table (`None` for a constant).
 fn table_range(diss: &Dissipation) -> Option<[f64; 2]> {
     match diss {

@@ -180,3 +180,156 @@ fn aging_noise_coverage_study() {
         );
     }
 }
+
+fn fdtemp() -> assert_cmd::Command {
+    assert_cmd::Command::cargo_bin("fdtemp").unwrap()
+}
+
+#[test]
+fn the_noise_command_reads_aging_records_end_to_end() {
+    let dir = tempfile::tempdir().unwrap();
+    fdtemp()
+        .current_dir(dir.path())
+        .args([
+            "synth",
+            "aging-noise",
+            "--quick",
+            "--samples",
+            "20",
+            "--out",
+            "ag.csv",
+        ])
+        .assert()
+        .success();
+    let truth: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(dir.path().join("ag.truth.json")).unwrap()).unwrap();
+    let args = [
+        "noise",
+        "ag.csv",
+        "--ages",
+        "50,200",
+        "--age-span",
+        "0.5",
+        "--loss-file",
+        "ag.loss.csv",
+        "-T",
+        "1",
+        "--units",
+        "reduced",
+        "--convention",
+        "loss",
+        "--segment",
+        "512",
+        "--band",
+        "3:15",
+        "-B",
+        "999",
+    ];
+    let out = fdtemp()
+        .current_dir(dir.path())
+        .args(args)
+        .args(["--json", "ag.json"])
+        .assert()
+        .success()
+        .get_output()
+        .stdout
+        .clone();
+    let text = String::from_utf8(out).unwrap();
+    assert!(
+        text.contains("tw = 50 s: window 37.5–62.5 s after the quench"),
+        "{text}"
+    );
+    assert!(
+        text.contains("centred at the ages tw = 50.00, 200.0 s"),
+        "{text}"
+    );
+    let r: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(dir.path().join("ag.json")).unwrap()).unwrap();
+    assert_eq!(
+        r["settings"]["ages"]["ages"],
+        serde_json::json!([50.0, 200.0])
+    );
+    for (i, sp) in r["spectra"].as_array().unwrap().iter().enumerate() {
+        let want = truth["ages"][i]["t_eff_band"].as_f64().unwrap();
+        let b = &sp["band"]["t_eff"];
+        let (lo, hi) = (b["low"].as_f64().unwrap(), b["high"].as_f64().unwrap());
+        assert!(
+            lo <= want && want <= hi,
+            "tw index {i}: [{lo}, {hi}] against {want}"
+        );
+    }
+    // The few-periods caution is true at tw = 50 (25 s window, bin 2 at 0.39 Hz < 0.4 Hz)
+    // and only there.
+    let codes: Vec<(f64, String)> = r["spectra"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .flat_map(|s| s["cautions"].as_array().unwrap().clone())
+        .map(|c| {
+            (
+                c["tw"].as_f64().unwrap_or(0.0),
+                c["code"].as_str().unwrap().to_string(),
+            )
+        })
+        .filter(|(_, c)| c.starts_with("age_window"))
+        .collect();
+    assert_eq!(codes, vec![(50.0, "age_window_few_periods".to_string())]);
+
+    // A loss table by age: the same table under each tw, and one missing age refused.
+    let loss = std::fs::read_to_string(dir.path().join("ag.loss.csv")).unwrap();
+    let rows: Vec<&str> = loss.lines().skip(1).collect();
+    let mut by_age = String::from("tw,f,loss\n");
+    for tw in ["50", "200"] {
+        for r in &rows {
+            by_age.push_str(&format!("{tw},{r}\n"));
+        }
+    }
+    std::fs::write(dir.path().join("by_age.csv"), &by_age).unwrap();
+    let mut with_table = args.to_vec();
+    with_table[7] = "by_age.csv";
+    fdtemp()
+        .current_dir(dir.path())
+        .args(&with_table)
+        .assert()
+        .success()
+        .stdout(predicates::str::contains("one table per age"));
+    let mut other_ages = with_table.clone();
+    other_ages[3] = "50,100";
+    fdtemp()
+        .current_dir(dir.path())
+        .args(&other_ages)
+        .assert()
+        .code(2)
+        .stderr(predicates::str::contains("no rows for tw = 100"));
+    // A window past the end of the records (300 s): exit 2, the run named, no output.
+    let mut late = args.to_vec();
+    late[3] = "50,280";
+    fdtemp()
+        .current_dir(dir.path())
+        .args(&late)
+        .args(["--json", "late.json"])
+        .assert()
+        .code(2)
+        .stderr(predicates::str::contains("but run 'run001' ends"));
+    assert!(!dir.path().join("late.json").exists());
+    // Without a dissipation, and with two channels: refused.
+    fdtemp()
+        .current_dir(dir.path())
+        .args(["noise", "ag.csv", "--ages", "50"])
+        .assert()
+        .code(2);
+    fdtemp()
+        .current_dir(dir.path())
+        .args([
+            "noise",
+            "ag.csv",
+            "--ages",
+            "50",
+            "--cross-with",
+            "ag.csv",
+            "--resistance",
+            "1",
+        ])
+        .assert()
+        .code(2);
+}

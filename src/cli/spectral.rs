@@ -83,6 +83,31 @@ pub struct NoiseArgs {
     /// Write the PSD as a CSV that `fdtemp spectrum` reads back.
     #[arg(long, value_name = "FILE")]
     psd_out: Option<PathBuf>,
+    /// Records that start at a quench: T_eff(f, tw) in windows centred at these ages
+    /// (seconds after the quench, comma-separated, increasing); the loss file may give one
+    /// table per age (a first column named tw).
+    #[arg(
+        long,
+        value_name = "TW,...",
+        value_delimiter = ',',
+        conflicts_with_all = ["cross_with", "amplifier_noise", "psd_out"]
+    )]
+    ages: Vec<f64>,
+    /// With --ages: each window's width as a fraction of its age [default: 0.25].
+    #[arg(
+        long,
+        value_name = "FRACTION",
+        requires = "ages",
+        conflicts_with = "age_window"
+    )]
+    age_span: Option<f64>,
+    /// With --ages: each window's width in seconds, the same at every age.
+    #[arg(long, value_name = "SECONDS", requires = "ages")]
+    age_window: Option<f64>,
+    /// With --ages: the time of the quench on the record's clock (seconds after its first
+    /// sample); samples before it are not used.
+    #[arg(long, value_name = "SECONDS", requires = "ages", default_value_t = 0.0)]
+    quench_at: f64,
     #[command(flatten)]
     pub(super) common: SpectralArgs,
 }
@@ -197,13 +222,20 @@ pub fn noise(a: NoiseArgs) -> fdtemp::Result<()> {
         &inputs,
         a.common.overwrite,
     )?;
-    let (diss, column) = match (a.resistance, &a.loss_file) {
-        (Some(r), _) => (Some(Dissipation::Constant(r)), None),
-        (None, Some(p)) => {
+    let by_age = match &a.loss_file {
+        Some(p) if !a.ages.is_empty() => {
+            fdtemp::spectral::aging::read_loss_by_age(p, a.common.delimiter)?
+        }
+        _ => None,
+    };
+    let (diss, column) = match (a.resistance, &a.loss_file, &by_age) {
+        (Some(r), _, _) => (Some(Dissipation::Constant(r)), None),
+        (None, Some(_), Some((_, name))) => (None, Some(name.clone())),
+        (None, Some(p), None) => {
             let (d, name) = noise::read_dissipation_in(p, a.common.delimiter)?;
             (Some(d), Some(name))
         }
-        (None, None) => (None, None),
+        (None, None, _) => (None, None),
     };
     let NoiseSetup {
         welch,
@@ -211,6 +243,14 @@ pub fn noise(a: NoiseArgs) -> fdtemp::Result<()> {
         figure,
         convention_note,
     } = noise_settings(&a, column.as_deref())?;
+    if !a.ages.is_empty() {
+        let loss = match (by_age, diss) {
+            (Some((tables, _)), _) => fdtemp::spectral::aging::AgeLoss::ByAge(tables),
+            (None, Some(d)) => fdtemp::spectral::aging::AgeLoss::Same(d),
+            (None, None) => return Err(no_dissipation("--ages")),
+        };
+        return noise_ages(&a, &loss, welch, settings, figure, convention_note);
+    }
     if let Some(b) = &a.cross_with {
         let Some(diss) = diss else {
             return Err(no_dissipation("--cross-with"));
@@ -258,6 +298,83 @@ pub fn noise(a: NoiseArgs) -> fdtemp::Result<()> {
         _ => noise_analysis(&a, &rec, &diss, &settings)?,
     };
     resistance_line(&a, &mut header);
+    spectral_outputs(&mut outputs, &report, &a.common.json, figure)?;
+    output::write_all(&outputs, a.common.overwrite)?;
+    print(&fdtemp::report::spectrum::render(&report, &header));
+    Ok(())
+}
+
+/// `noise --ages`: T_eff(f, tw) of records that start at a quench, in windows at the
+/// ages.
+fn noise_ages(
+    a: &NoiseArgs,
+    loss: &fdtemp::spectral::aging::AgeLoss,
+    welch: WelchSettings,
+    mut settings: SpectrumSettings,
+    figure: Option<(PathBuf, Figure)>,
+    convention_note: Option<String>,
+) -> fdtemp::Result<()> {
+    use fdtemp::report::format::{fmt_num, sig};
+    use fdtemp::spectral::aging::{AgeSettings, Width};
+    let width = match (a.age_window, a.age_span) {
+        (Some(s), _) => Width::Seconds(s),
+        (None, Some(f)) => Width::Fraction(f),
+        (None, None) => Width::Fraction(0.25),
+    };
+    let ages = AgeSettings {
+        ages: a.ages.clone(),
+        width,
+        quench_at: a.quench_at,
+    };
+    ages.validate()?;
+    settings.ages = Some(ages.clone());
+    let (report, windows) = fdtemp::api::noise_aging(
+        &a.file,
+        a.common.delimiter,
+        welch,
+        a.sample_rate,
+        a.gain,
+        &ages,
+        loss,
+        &settings,
+    )?;
+    let first = &windows[0].psd;
+    let mut header = vec![format!(
+        "data        {}: {} run(s) at {} Hz, from the quench at {} s on their clock",
+        a.file.display(),
+        first.runs.len(),
+        fmt_num(first.sample_rate),
+        fmt_num(a.quench_at)
+    )];
+    for w in &windows {
+        let p = &w.psd.psd[0];
+        header.push(format!(
+            "age         tw = {} s: window {}–{} s after the quench, {} segments per run, {} \
+             degrees of freedom per frequency",
+            fmt_num(w.tw),
+            fmt_num(w.window[0]),
+            fmt_num(w.window[1]),
+            p.segments,
+            sig(p.dof[1.min(p.dof.len() - 1)], 4)
+        ));
+    }
+    if let Some(g) = a.gain {
+        header.push(format!(
+            "gain        {}: the PSD is divided by {} (referred to the sample)",
+            fmt_num(g),
+            sig(g * g, 4)
+        ));
+    }
+    header.push(format!(
+        "welch       Hann window, {} samples per segment, overlap {}",
+        welch.segment, welch.overlap
+    ));
+    header.extend(convention_note);
+    if matches!(loss, fdtemp::spectral::aging::AgeLoss::ByAge(_)) {
+        header.push("loss        one table per age (the loss file's tw column)".into());
+    }
+    resistance_line(a, &mut header);
+    let mut outputs = Vec::new();
     spectral_outputs(&mut outputs, &report, &a.common.json, figure)?;
     output::write_all(&outputs, a.common.overwrite)?;
     print(&fdtemp::report::spectrum::render(&report, &header));

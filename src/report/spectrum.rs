@@ -279,7 +279,7 @@ pub fn methods(r: &SpectrumReport) -> String {
         None => String::new(),
     };
     format!(
-        "Effective temperatures were computed with fdtemp {} as T_eff(f) = {} — convention: {}.{} \
+        "Effective temperatures were computed with fdtemp {} as T_eff(f) = {} — convention: {}.{}{} \
          Uncertainties are {:.0}% {}.{}",
         r.tool.version,
         match s.convention {
@@ -289,10 +289,33 @@ pub fn methods(r: &SpectrumReport) -> String {
             crate::spectral::Convention::Current => "G_I / (4 k Re Y)",
         },
         r.convention_text,
+        ages_methods(r),
         estimate_methods(r),
         100.0 * s.level,
         errors,
         test
+    )
+}
+
+/// The methods sentence of records after a quench (`noise --ages`).
+fn ages_methods(r: &SpectrumReport) -> String {
+    use crate::spectral::aging::Width;
+    let Some(a) = &r.settings.ages else {
+        return String::new();
+    };
+    let width = match a.width {
+        Width::Seconds(s) => format!("{} s long", sig(s, 4)),
+        Width::Fraction(f) => format!("{:.0}% of the age long", 100.0 * f),
+    };
+    let ages: Vec<String> = a.ages.iter().map(|t| sig(*t, 4)).collect();
+    format!(
+        " The records start at a quench ({} s on their clock); each was cut into windows {} \
+         centred at the ages tw = {} s after it, a Welch PSD was estimated in every window of \
+         every run, and T_eff(f, tw) is the window's mean over runs: where the system ages \
+         inside a window, it is the window's mean spectrum.",
+        sig(a.quench_at, 4),
+        width,
+        ages.join(", ")
     )
 }
 

@@ -249,7 +249,7 @@ pub fn age_groups(
 pub fn read_loss_by_age(
     path: &std::path::Path,
     d: crate::input::Delimiter,
-) -> Result<Option<(Vec<(f64, Dissipation)>, String)>> {
+) -> Result<Option<LossByAge>> {
     use crate::input::{
         Header, csv_error, csv_reader_in, is_blank, line_of, open, parse_number_in,
     };
@@ -335,6 +335,9 @@ pub fn read_loss_by_age(
         name,
     )))
 }
+
+/// Loss tables by age with the value column's name.
+pub type LossByAge = (Vec<(f64, Dissipation)>, String);
 
 /// Where each age's dissipation comes from.
 #[derive(Debug, Clone, PartialEq)]

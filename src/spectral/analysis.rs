@@ -124,6 +124,9 @@ pub struct SpectrumSettings {
     pub gain: Option<f64>,
     /// The second channel's voltage gain (`noise --cross-gain`), when two channels are used.
     pub second_gain: Option<f64>,
+    /// The ages and windows of records that start at a quench (`noise --ages`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub ages: Option<super::aging::AgeSettings>,
 }
 
 impl Default for SpectrumSettings {
@@ -143,6 +146,7 @@ impl Default for SpectrumSettings {
             estimator: Estimator::SingleChannel,
             gain: None,
             second_gain: None,
+            ages: None,
         }
     }
 }

@@ -80,6 +80,10 @@ pub enum Scenario {
     /// to a second slow bath at `--bath-b` (default 2.5: both share X = 0.4), for `fit`'s
     /// joint test.
     TwoBathsObservables,
+    /// Invented noise records after a quench (a slow mode cooling with age beside a fast
+    /// one at the bath), for `noise --ages`; its loss table goes beside it as
+    /// `STEM.loss.csv` (not a simulation of a material: `scenarios::aging_noise`).
+    AgingNoise,
 }
 
 /// What to simulate.
@@ -125,6 +129,7 @@ pub fn simulate(spec: &SimSpec) -> Result<SimOutput> {
         Scenario::TwoBathsQuenches => twins::two_baths_quenches(spec, &[])?,
         Scenario::IsingTwins => ising_twins::ising_twins(spec),
         Scenario::TwoBathsObservables => ou::two_observables(spec, SLOW_B_DEFAULT),
+        Scenario::AgingNoise => aging_records(spec).0,
     })
 }
 
@@ -141,8 +146,80 @@ pub fn companions(spec: &SimSpec) -> Result<Vec<(&'static str, Vec<u8>)>> {
             let (_, b, amp) = resistor::resistor_two_channels(spec);
             vec![("ch2.csv", b), ("amp.csv", amp)]
         }
+        Scenario::AgingNoise => vec![("loss.csv", aging_records(spec).1)],
         _ => Vec::new(),
     })
+}
+
+/// `aging-noise`: the records (a time column, then one column per run) and the loss table.
+fn aging_records(spec: &SimSpec) -> (SimOutput, Vec<u8>) {
+    use crate::scenarios::aging_noise::AgingNoiseSpec;
+    let a = AgingNoiseSpec {
+        runs: spec.samples,
+        seed: spec.seed,
+        duration: if spec.quick { 300.0 } else { 1000.0 },
+        ..AgingNoiseSpec::default()
+    };
+    let records = a.records();
+    let n = records.first().map_or(0, Vec::len);
+    let mut data = String::from("time_s");
+    for r in 0..a.runs {
+        let _ = write!(data, ",run{:03}", r + 1);
+    }
+    data.push('\n');
+    for i in 0..n {
+        let _ = write!(data, "{}", i as f64 / a.fs);
+        for rec in &records {
+            let _ = write!(data, ",{:.6}", rec[i]);
+        }
+        data.push('\n');
+    }
+    let mut loss = String::from("f,loss\n");
+    for k in 0..=160 {
+        let f = 0.05 * 10f64.powf(f64::from(k) / 53.0);
+        if f <= a.fs / 2.0 {
+            let _ = writeln!(loss, "{f:?},{:?}", a.loss(f));
+        }
+    }
+    let (ages, span, band) = if spec.quick {
+        ([50.0, 200.0], 0.5, [3.0, 15.0])
+    } else {
+        ([50.0, 800.0], 0.5, [3.0, 15.0])
+    };
+    let segment = 512.0;
+    let band_truth: Vec<serde_json::Value> = ages
+        .iter()
+        .map(|&tw| {
+            let w = [tw * (1.0 - span / 2.0), tw * (1.0 + span / 2.0)];
+            let fs: Vec<f64> = (1..=256)
+                .map(|k| f64::from(k) * a.fs / segment)
+                .filter(|f| band[0] <= *f && *f <= band[1])
+                .collect();
+            let mean = fs.iter().map(|&f| a.t_eff(f, w)).sum::<f64>() / fs.len() as f64;
+            serde_json::json!({"tw": tw, "window": w, "t_eff_band": mean,
+                               "slow_temperature_window_mean": a.mean_slow_temperature(w)})
+        })
+        .collect();
+    let ages_text = ages.map(|t| t.to_string()).join(",");
+    let truth = serde_json::json!({
+        "scenario": "aging-noise",
+        "fit": format!(
+            "fdtemp noise FILE --ages {ages_text} --age-span {span} --loss-file SECOND -T 1 \
+             --units reduced --convention loss --segment 512 --band {}:{}",
+            band[0], band[1]
+        ),
+        "recipe": a,
+        "ages": band_truth,
+        "t_eff": "T_eff(f; a, b) = (T G_fast(f) + Tbar_s G_slow(f)) / (G_fast(f) + G_slow(f)), G of each sampled mode at T = 1, Tbar_s the window mean of T_s(t) = T (1 + hot / (1 + t/age_scale))",
+        "source": "invented records with a built-in answer (common practice: the AR(1) spectrum of an exactly sampled Ornstein-Uhlenbeck mode); the loss is defined so that the equilibrium system obeys G = 2 k T chi''/(pi f)",
+    });
+    (
+        SimOutput {
+            data: data.into_bytes(),
+            truth,
+        },
+        loss.into_bytes(),
+    )
 }
 
 /// The default temperature of `two-baths-observables`' second slow bath: that of the
