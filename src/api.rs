@@ -484,6 +484,63 @@ pub fn noise_spectrum(
     Ok(report)
 }
 
+/// A record file held in memory: run names, each run's samples, and the sample rate
+/// (given, or from the time column).
+///
+/// # Errors
+/// Reader errors; [`Error::Input`] for an empty record or an unknown or disagreeing rate.
+pub fn records_in_memory(
+    path: &Path,
+    delimiter: Delimiter,
+    sample_rate: Option<f64>,
+) -> Result<(Vec<String>, Vec<Vec<f64>>, f64)> {
+    let mut runs: Vec<Vec<f64>> = Vec::new();
+    let records = crate::spectral::input::stream_records_in(path, delimiter, |r, v| {
+        while runs.len() <= r {
+            runs.push(Vec::new());
+        }
+        runs[r].push(v);
+    })?;
+    if runs.iter().all(Vec::is_empty) {
+        return Err(Error::input(
+            path,
+            None,
+            None,
+            "the record is empty; expected one number per line (or one column per run)",
+        ));
+    }
+    let fs = noise::rate_of(path, sample_rate, records.time.as_ref())?;
+    Ok((records.runs, runs, fs))
+}
+
+/// `noise --intermittency`: the records tested against Gaussian noise of their own
+/// spectrum ([`crate::spectral::intermittency`]), with the Welch segments of the PSD.
+///
+/// # Errors
+/// As [`records_in_memory`] and [`crate::spectral::intermittency::intermittency`], naming
+/// the file.
+pub fn noise_intermittency(
+    path: &Path,
+    delimiter: Delimiter,
+    welch: WelchSettings,
+    sample_rate: Option<f64>,
+    level: f64,
+    seed: u64,
+) -> Result<crate::spectral::intermittency::IntermittencyReport> {
+    use crate::spectral::intermittency::{IntermittencySettings, intermittency};
+    let (_, runs, fs) = records_in_memory(path, delimiter, sample_rate)?;
+    let welch = WelchSettings {
+        sample_rate: fs,
+        ..welch
+    };
+    let settings = IntermittencySettings {
+        level,
+        seed,
+        ..IntermittencySettings::default()
+    };
+    intermittency(&runs, &welch, &settings).map_err(in_file(path))
+}
+
 /// `noise --ages`: records that start at a quench (or carry it at `ages.quench_at` on their
 /// clock), cut into windows at the ages, a Welch PSD per (run, window) referred to the
 /// sample by `gain`, and T_eff(f, tw) against each age's dissipation, with every age's
@@ -508,24 +565,9 @@ pub fn noise_aging(
     positive("--gain", gain, "a positive voltage gain (output/input)")?;
     settings.validate()?;
     ages.validate()?;
-    let mut runs: Vec<Vec<f64>> = Vec::new();
-    let records = crate::spectral::input::stream_records_in(path, delimiter, |r, v| {
-        while runs.len() <= r {
-            runs.push(Vec::new());
-        }
-        runs[r].push(v);
-    })?;
-    if runs.iter().all(Vec::is_empty) {
-        return Err(Error::input(
-            path,
-            None,
-            None,
-            "the record is empty; expected one number per line (or one column per run)",
-        ));
-    }
-    let fs = noise::rate_of(path, sample_rate, records.time.as_ref())?;
+    let (names, runs, fs) = records_in_memory(path, delimiter, sample_rate)?;
     let (mut windows, cautions) =
-        age_windows(&records.runs, &runs, fs, ages, welch).map_err(in_file(path))?;
+        age_windows(&names, &runs, fs, ages, welch).map_err(in_file(path))?;
     drop(runs);
     if let Some(g) = gain {
         for w in &mut windows {

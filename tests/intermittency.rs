@@ -554,3 +554,60 @@ fn interval_coverage_study() {
         }
     }
 }
+
+/// Runs as the columns of a record CSV (a header of run names).
+fn record_csv(runs: &[Vec<f64>]) -> String {
+    let mut s: String = (1..=runs.len())
+        .map(|r| format!("run{r}"))
+        .collect::<Vec<_>>()
+        .join(",");
+    s.push('\n');
+    for i in 0..runs[0].len() {
+        let row: Vec<String> = runs.iter().map(|r| format!("{:.6}", r[i])).collect();
+        s.push_str(&row.join(","));
+        s.push('\n');
+    }
+    s
+}
+
+#[test]
+fn the_noise_command_tests_the_records_and_resamples_runs_when_they_are_bursty() {
+    let dir = tempfile::tempdir().unwrap();
+    let bursty: Vec<Vec<f64>> = (0..4)
+        .map(|r| bursty(16384, false, 8.0, 1.0 / 2000.0, 40 + r))
+        .collect();
+    let calm: Vec<Vec<f64>> = (0..4).map(|r| white(16384, 60 + r)).collect();
+    std::fs::write(dir.path().join("bursty.csv"), record_csv(&bursty)).unwrap();
+    std::fs::write(dir.path().join("calm.csv"), record_csv(&calm)).unwrap();
+    let run = |file: &str| -> serde_json::Value {
+        let json = format!("{file}.json");
+        assert_cmd::Command::cargo_bin("fdtemp")
+            .unwrap()
+            .current_dir(dir.path())
+            .args(["noise", file, "--sample-rate", "1000", "--resistance", "1"])
+            .args([
+                "--segment",
+                "512",
+                "--intermittency",
+                "-B",
+                "499",
+                "--json",
+                &json,
+            ])
+            .assert()
+            .success()
+            .stdout(predicates::str::contains(
+                "intermittency: per-segment band powers",
+            ));
+        serde_json::from_slice(&std::fs::read(dir.path().join(json)).unwrap()).unwrap()
+    };
+    let b = run("bursty.csv");
+    assert_eq!(b["intermittency"]["verdict"], "intermittent");
+    assert_eq!(
+        b["spectra"][0]["errors"], "runs",
+        "bursty records resample runs"
+    );
+    let c = run("calm.csv");
+    assert_eq!(c["intermittency"]["verdict"], "consistent_with_gaussian");
+    assert_eq!(c["spectra"][0]["errors"], "chi-square");
+}

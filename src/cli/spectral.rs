@@ -108,6 +108,11 @@ pub struct NoiseArgs {
     /// sample); samples before it are not used.
     #[arg(long, value_name = "SECONDS", requires = "ages", default_value_t = 0.0)]
     quench_at: f64,
+    /// Test the records against Gaussian noise of their own spectrum (per log band, the
+    /// scatter of the per-segment powers against 199 Gaussian surrogates); when it
+    /// rejects, --errors auto resamples runs. Holds the records in memory.
+    #[arg(long, conflicts_with_all = ["ages", "cross_with"])]
+    intermittency: bool,
     #[command(flatten)]
     pub(super) common: SpectralArgs,
 }
@@ -262,10 +267,49 @@ pub fn noise(a: NoiseArgs) -> fdtemp::Result<()> {
         Some(p) => Some(noise::read_amplifier_noise(p, a.common.delimiter)?),
         None => None,
     };
+    let mut settings = settings;
+    let burst = if a.intermittency {
+        Some(fdtemp::api::noise_intermittency(
+            &a.file,
+            a.common.delimiter,
+            welch,
+            a.sample_rate,
+            a.common.level,
+            a.common.seed,
+        )?)
+    } else {
+        None
+    };
     let source = fdtemp::api::NoiseSource::File(a.file.clone(), a.common.delimiter);
     let rec = fdtemp::api::noise_psd(source, welch, a.sample_rate, a.gain)?;
     let mut header = noise_header(&a, &welch, &rec);
     header.extend(convention_note);
+    if let Some(b) = &burst {
+        let switch = b.needs_run_resampling
+            && settings.errors == ErrorModel::Auto
+            && rec.runs.len() >= 2
+            && a.amplifier_noise.is_none();
+        if switch {
+            settings.errors = ErrorModel::Runs;
+        }
+        header.push(format!(
+            "gaussian?   {}: p = {} over {} bands ({} surrogates){}",
+            match b.verdict {
+                fdtemp::spectral::intermittency::IntermittencyVerdict::Intermittent => {
+                    "no, intermittent"
+                }
+                _ => "consistent with Gaussian noise",
+            },
+            fdtemp::report::format::fmt_p(b.p_value),
+            b.bands.len(),
+            b.settings.surrogates,
+            if switch {
+                "; intervals resample runs"
+            } else {
+                ""
+            }
+        ));
+    }
     if let (Some(p), Some(amp)) = (&a.amplifier_noise, &amp) {
         header.push(format!(
             "amplifier   {} ({} run(s), {}–{} Hz) subtracted from the PSD (referred to the sample)",
@@ -297,6 +341,8 @@ pub fn noise(a: NoiseArgs) -> fdtemp::Result<()> {
         )?,
         _ => noise_analysis(&a, &rec, &diss, &settings)?,
     };
+    let mut report = report;
+    report.intermittency = burst;
     resistance_line(&a, &mut header);
     spectral_outputs(&mut outputs, &report, &a.common.json, figure)?;
     output::write_all(&outputs, a.common.overwrite)?;

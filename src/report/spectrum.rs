@@ -45,6 +45,9 @@ pub fn render(r: &SpectrumReport, extra_header: &[String]) -> Vec<u8> {
     for fit in &r.spectra {
         section(&mut o, r, fit, unit);
     }
+    if let Some(i) = &r.intermittency {
+        intermittency_section(&mut o, i);
+    }
     let mut cautions: Vec<String> = r.cautions.iter().map(caution).collect();
     for f in &r.spectra {
         let who =
@@ -295,6 +298,38 @@ pub fn methods(r: &SpectrumReport) -> String {
         errors,
         test
     )
+}
+
+/// `noise --intermittency`: the test per band, its verdict and findings.
+fn intermittency_section(o: &mut String, i: &crate::spectral::intermittency::IntermittencyReport) {
+    let _ = writeln!(
+        o,
+        "\nintermittency: per-segment band powers against {} Gaussian surrogates of the records \
+         (max over {} bands)",
+        i.settings.surrogates,
+        i.bands.len()
+    );
+    let _ = writeln!(
+        o,
+        "   fmin (Hz)   fmax (Hz)   scatter   Gaussian   p (adjusted)   T_eff median/mean   flagged"
+    );
+    for b in &i.bands {
+        let _ = writeln!(
+            o,
+            "  {:>10}  {:>10}  {:>8}  {:>9}  {:>13}  {:>18}   {}",
+            sig(b.fmin, 4),
+            sig(b.fmax, 4),
+            sig(b.normalized_variance, 3),
+            sig(b.null_normalized_variance, 3),
+            crate::report::format::fmt_p(b.p_adjusted),
+            sig(b.teff_median_over_mean, 3),
+            if b.flagged { "yes" } else { "" }
+        );
+    }
+    for f in &i.findings {
+        let _ = writeln!(o, "{}", wrap(&format!("- {}", f.message), 92, "  "));
+    }
+    let _ = writeln!(o, "{}", wrap(&i.interval_note, 92, "  "));
 }
 
 /// The methods sentence of records after a quench (`noise --ages`).

@@ -359,6 +359,9 @@ pub struct SpectrumReport {
     pub second_input: Option<String>,
     /// The measured amplifier-noise PSD that was subtracted, when one was.
     pub amplifier_noise: Option<String>,
+    /// The test of the records against Gaussian noise (`noise --intermittency`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub intermittency: Option<super::intermittency::IntermittencyReport>,
 }
 
 /// Analyzes every spectrum group.
@@ -448,6 +451,7 @@ pub fn analyze_estimates(
         cautions: warnings,
         second_input: None,
         amplifier_noise: None,
+        intermittency: None,
     })
 }
 
