@@ -311,17 +311,22 @@ fn intermittency_section(o: &mut String, i: &crate::spectral::intermittency::Int
     );
     let _ = writeln!(
         o,
-        "   fmin (Hz)   fmax (Hz)   scatter   Gaussian   p (adjusted)   T_eff median/mean   flagged"
+        "   fmin (Hz)   fmax (Hz)   scatter   Gaussian   p (adjusted)   excess kurtosis   T_eff median/mean   flagged"
     );
     for b in &i.bands {
         let _ = writeln!(
             o,
-            "  {:>10}  {:>10}  {:>8}  {:>9}  {:>13}  {:>18}   {}",
+            "  {:>10}  {:>10}  {:>8}  {:>9}  {:>13}  {:>16}  {:>18}   {}",
             sig(b.fmin, 4),
             sig(b.fmax, 4),
             sig(b.normalized_variance, 3),
             sig(b.null_normalized_variance, 3),
             crate::report::format::fmt_p(b.p_adjusted),
+            match (b.excess_kurtosis, b.kurtosis_se) {
+                (Some(k), Some(se)) => format!("{} ± {}", sig(k, 2), sig(se, 2)),
+                (Some(k), None) => sig(k, 2),
+                _ => "—".into(),
+            },
             sig(b.teff_median_over_mean, 3),
             if b.flagged { "yes" } else { "" }
         );

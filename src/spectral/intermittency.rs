@@ -433,6 +433,10 @@ fn statistics(powers: &[Vec<f64>], nb: usize) -> Result<(Vec<f64>, Vec<f64>)> {
 struct Prepared {
     /// The transform of the de-trended samples.
     spectrum: Vec<Complex<f64>>,
+    /// The transform of the samples with only their mean removed (for the kurtosis: the
+    /// end-point line that the surrogates need adds a ramp whose 1/f transform dominates
+    /// narrow low bands).
+    plain: Vec<Complex<f64>>,
     n: usize,
 }
 
@@ -452,7 +456,11 @@ impl Prepared {
         let mut spectrum = fft.make_output_vec();
         // Lengths come from the same plan, so the transform cannot fail.
         let _ = fft.process(&mut y, &mut spectrum);
-        Prepared { spectrum, n }
+        let raw_mean = x.iter().sum::<f64>() / n as f64;
+        let mut z: Vec<f64> = x.iter().map(|v| v - raw_mean).collect();
+        let mut plain = fft.make_output_vec();
+        let _ = fft.process(&mut z, &mut plain);
+        Prepared { spectrum, plain, n }
     }
 
     /// A surrogate: every amplitude kept, every phase drawn (0 Hz empty; Nyquist real with
@@ -496,7 +504,7 @@ impl Prepared {
         };
         let zero = Complex::new(0.0, 0.0);
         let mut band: Vec<Complex<f64>> = self
-            .spectrum
+            .plain
             .iter()
             .enumerate()
             .map(|(j, c)| if inside(j) { *c } else { zero })
@@ -520,13 +528,20 @@ impl Prepared {
         let mut acov = inv.make_output_vec();
         inv.process(&mut band, &mut y).ok()?;
         inv.process(&mut power, &mut acov).ok()?;
-        let m2 = y.iter().map(|v| v * v).sum::<f64>() / n as f64;
-        let m4 = y.iter().map(|v| v.powi(4)).sum::<f64>() / n as f64;
+        // The record's wrap-around (its last sample against its first) is a step whose
+        // band-passed form sits at both ends: leave out two correlation lengths of the band
+        // at each end (at most a quarter of the record each).
+        let inside_bins = (0..band.len()).filter(|&j| inside(j)).count().max(1);
+        let margin = (2 * n).div_ceil(inside_bins).min(n / 4);
+        let kept = &y[margin..n - margin];
+        let nk = kept.len() as f64;
+        let m2 = kept.iter().map(|v| v * v).sum::<f64>() / nk;
+        let m4 = kept.iter().map(|v| v.powi(4)).sum::<f64>() / nk;
         if !(m2 > 0.0 && acov[0] > 0.0) {
             return None;
         }
         let s4 = acov.iter().map(|c| (c / acov[0]).powi(4)).sum::<f64>();
-        Some((m4 / (m2 * m2) - 3.0, s4))
+        Some((m4 / (m2 * m2) - 3.0, s4 * n as f64 / nk))
     }
 }
 
