@@ -130,9 +130,16 @@ def spectrum(data, *, temperature, convention=None, window=None, units="si",
 def noise(data, *, sample_rate=None, gain=None, segment=4096, overlap=None,
           resistance=None, loss_file=None, temperature=None, convention=None, units="si",
           delimiter="comma", errors="auto", dof=None, band=None, bands_per_decade=5,
-          level=0.95, resamples=2000, seed=1, interval="bca", threads=None) -> NoiseResult:
+          level=0.95, resamples=2000, seed=1, interval="bca", threads=None, ages=None,
+          age_span=None, age_window=None, quench_at=0.0,
+          intermittency=False) -> NoiseResult:
     """Welch PSD of noise records and, with ``resistance=`` or ``loss_file=``, T_eff(f), as
-    ``fdtemp noise``. ``data``: a path, or a NumPy array (one run, or runs × samples)."""
+    ``fdtemp noise``. ``data``: a path, or a NumPy array (one run, or runs × samples).
+
+    ``ages=[tw, ...]`` (with ``age_span=`` or ``age_window=``, ``quench_at=``): records
+    after a quench, T_eff(f, tw) per age (``--ages``; the result's PSD CSV is empty).
+    ``intermittency=True``: the test against Gaussian surrogates (``--intermittency``);
+    both need ``data`` as a path."""
     if isinstance(data, (str, os.PathLike)):
         label, path, array = os.fspath(data), os.fspath(data), None
     else:
@@ -142,7 +149,11 @@ def noise(data, *, sample_rate=None, gain=None, segment=4096, overlap=None,
         _native.noise, label, path, array, sample_rate, gain, int(segment), overlap,
         resistance, None if loss_file is None else os.fspath(loss_file), temperature,
         convention, units, delimiter, errors, dof, _band(band, "band"),
-        int(bands_per_decade), float(level), int(resamples), int(seed), interval, threads)
+        int(bands_per_decade), float(level), int(resamples), int(seed), interval, threads,
+        [] if ages is None else [float(a) for a in np.atleast_1d(ages)],
+        None if age_span is None else float(age_span),
+        None if age_window is None else float(age_window), float(quench_at),
+        bool(intermittency))
     return NoiseResult(json_text, psd)
 
 

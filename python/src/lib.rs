@@ -380,7 +380,7 @@ fn spectrum(
 #[pyo3(signature = (
     label, path, array, sample_rate, gain, segment, overlap, resistance, loss_file,
     temperature, convention, units, delimiter, errors, dof, band, bands_per_decade, level,
-    resamples, seed, interval, threads
+    resamples, seed, interval, threads, ages, age_span, age_window, quench_at, intermittency
 ))]
 #[allow(clippy::too_many_arguments)]
 fn noise(
@@ -407,7 +407,25 @@ fn noise(
     seed: u64,
     interval: &str,
     threads: Option<usize>,
+    ages: Vec<f64>,
+    age_span: Option<f64>,
+    age_window: Option<f64>,
+    quench_at: f64,
+    intermittency: bool,
 ) -> PyResult<(Option<String>, String)> {
+    if (!ages.is_empty() || intermittency) && path.is_none() {
+        return Err(setting(
+            "ages= and intermittency= read the records from a file: give its path".into(),
+        ));
+    }
+    if !ages.is_empty() && intermittency {
+        return Err(setting(
+            "ages= and intermittency= are not combined in this version".into(),
+        ));
+    }
+    if age_span.is_some() && age_window.is_some() {
+        return Err(setting("give age_span= or age_window=, not both".into()));
+    }
     if resistance.is_some() && loss_file.is_some() {
         return Err(setting(
             "--resistance and --loss-file both give the dissipation; give one".into(),
@@ -477,12 +495,65 @@ fn noise(
                 &interval,
             )?;
             settings.gain = gain;
+            if !ages.is_empty() {
+                use fdtemp::spectral::aging::{AgeLoss, AgeSettings, Width, read_loss_by_age};
+                let by_age = match &loss_file {
+                    Some(p) => read_loss_by_age(p, delimiter)?,
+                    None => None,
+                };
+                let loss = match (by_age, diss) {
+                    (Some((tables, _)), _) => AgeLoss::ByAge(tables),
+                    (None, Some(d)) => AgeLoss::Same(d),
+                    (None, None) => {
+                        return Err(fdtemp::Error::Setting(
+                            "ages= needs a dissipation: give resistance= or loss_file=".into(),
+                        ));
+                    }
+                };
+                let width = match (age_window, age_span) {
+                    (Some(s), _) => Width::Seconds(s),
+                    (None, Some(f)) => Width::Fraction(f),
+                    (None, None) => Width::Fraction(0.25),
+                };
+                let a = AgeSettings {
+                    ages: ages.clone(),
+                    width,
+                    quench_at,
+                };
+                settings.ages = Some(a.clone());
+                let (report, _) = api::noise_aging(
+                    &label, delimiter, welch, sample_rate, gain, &a, &loss, &settings,
+                )?;
+                return Ok((Some(fdtemp::report::json::spectrum_json(&report)), Vec::new()));
+            }
+            let burst = if intermittency {
+                Some(api::noise_intermittency(
+                    &label,
+                    delimiter,
+                    welch,
+                    sample_rate,
+                    level,
+                    seed,
+                )?)
+            } else {
+                None
+            };
             let rec = api::noise_psd(source, welch, sample_rate, gain)?;
+            if let Some(b) = &burst
+                && b.needs_run_resampling
+                && settings.errors == fdtemp::spectral::analysis::ErrorModel::Auto
+                && rec.runs.len() >= 2
+            {
+                settings.errors = fdtemp::spectral::analysis::ErrorModel::Runs;
+            }
             let psd = fdtemp::spectral::noise::psd_csv(&rec, diss.as_ref());
             let json = diss
                 .map(|d| api::noise_spectrum(&rec, &d, &settings, &label, loss_file.as_deref()))
                 .transpose()?
-                .map(|r| fdtemp::report::json::spectrum_json(&r));
+                .map(|mut r| {
+                    r.intermittency = burst;
+                    fdtemp::report::json::spectrum_json(&r)
+                });
             Ok((json, psd))
         })
     })

@@ -59,3 +59,25 @@ def test_spectrum_from_a_dataframe(resistor):
     r = fdtemp.spectrum(df, temperature=300, band=(100, 4000), convention="voltage")
     assert r["input"] == "<DataFrame>"
     assert r.t_eff.low < 300 < r.t_eff.high
+
+
+def test_noise_ages_and_intermittency_match_the_cli(tmp_path, cli, monkeypatch):
+    # Invented aging records (synth aging-noise) and Johnson-noise records (synth
+    # resistor): the Python calls give the command line's JSON byte for byte.
+    cli("synth", "aging-noise", "--quick", "--samples", 12, "--out", "ag.csv", cwd=tmp_path)
+    cli("noise", "ag.csv", "--ages", "50,200", "--age-span", 0.5, "--loss-file",
+        "ag.loss.csv", "-T", 1, "--units", "reduced", "--convention", "loss", "--segment",
+        512, "-B", 200, "--json", "ag.json", cwd=tmp_path)
+    monkeypatch.chdir(tmp_path)
+    r = fdtemp.noise("ag.csv", ages=[50, 200], age_span=0.5, loss_file="ag.loss.csv",
+                     temperature=1, units="reduced", convention="loss", segment=512,
+                     resamples=200)
+    assert r.to_json() == (tmp_path / "ag.json").read_text()
+    assert [s["tw"] for s in r.to_dict()["spectra"]] == [50.0, 200.0]
+    cli("synth", "resistor", "--quick", "--samples", 4, "--out", "res.csv", cwd=tmp_path)
+    cli("noise", "res.csv", "--sample-rate", 10000, "--resistance", 1000, "--intermittency",
+        "--segment", 1024, "-B", 200, "--json", "res.json", cwd=tmp_path)
+    s = fdtemp.noise("res.csv", sample_rate=10000, resistance=1000, intermittency=True,
+                     segment=1024, resamples=200)
+    assert s.to_json() == (tmp_path / "res.json").read_text()
+    assert s.to_dict()["intermittency"]["verdict"] in ("consistent_with_gaussian", "intermittent")
