@@ -560,14 +560,50 @@ pub fn noise_aging(
     ages: &crate::spectral::aging::AgeSettings,
     loss: &crate::spectral::aging::AgeLoss,
     settings: &SpectrumSettings,
+    intermittency: bool,
 ) -> Result<(SpectrumReport, Vec<crate::spectral::aging::AgePsd>)> {
     use crate::spectral::aging::{age_groups, age_windows};
+    use crate::spectral::analysis::AgeIntermittency;
     positive("--gain", gain, "a positive voltage gain (output/input)")?;
     settings.validate()?;
     ages.validate()?;
     let (names, runs, fs) = records_in_memory(path, delimiter, sample_rate)?;
     let (mut windows, cautions) =
         age_windows(&names, &runs, fs, ages, welch).map_err(in_file(path))?;
+    // The Gaussian-noise test on each age's windows; where it rejects and the errors are
+    // `auto`, every age's intervals resample runs.
+    let mut by_age = Vec::new();
+    if intermittency {
+        use crate::spectral::intermittency::{IntermittencySettings, intermittency};
+        let test_settings = IntermittencySettings {
+            level: settings.level,
+            seed: settings.seed,
+            ..IntermittencySettings::default()
+        };
+        let w = WelchSettings {
+            sample_rate: fs,
+            ..welch
+        };
+        for &tw in &ages.ages {
+            let (first, last) = ages.samples(tw, fs);
+            let slices: Vec<Vec<f64>> = runs.iter().map(|r| r[first..last].to_vec()).collect();
+            let test = intermittency(&slices, &w, &test_settings)
+                .map_err(|e| e.about(&format!("tw = {tw}")))
+                .map_err(in_file(path))?;
+            by_age.push(AgeIntermittency { tw, test });
+        }
+    }
+    let switch = settings.errors == crate::spectral::analysis::ErrorModel::Auto
+        && names.len() >= 2
+        && by_age.iter().any(|a| a.test.needs_run_resampling);
+    let settings = &SpectrumSettings {
+        errors: if switch {
+            crate::spectral::analysis::ErrorModel::Runs
+        } else {
+            settings.errors
+        },
+        ..settings.clone()
+    };
     drop(runs);
     if let Some(g) = gain {
         for w in &mut windows {
@@ -600,6 +636,7 @@ pub fn noise_aging(
             None => report.cautions.push(c),
         }
     }
+    report.intermittency_by_age = by_age;
     Ok((report, windows))
 }
 

@@ -333,3 +333,127 @@ fn the_noise_command_reads_aging_records_end_to_end() {
         .assert()
         .code(2);
 }
+
+#[test]
+fn aging_windows_are_tested_for_intermittency_age_by_age() {
+    // Gaussian records (invented, scenarios::aging_noise): each age's windows are tested on
+    // their own, and the verdicts and the per-age tables reach the JSON and the text.
+    let dir = tempfile::tempdir().unwrap();
+    fdtemp()
+        .current_dir(dir.path())
+        .args([
+            "synth",
+            "aging-noise",
+            "--quick",
+            "--samples",
+            "6",
+            "--out",
+            "ag.csv",
+        ])
+        .assert()
+        .success();
+    let out = fdtemp()
+        .current_dir(dir.path())
+        .args([
+            "noise",
+            "ag.csv",
+            "--ages",
+            "50,200",
+            "--age-span",
+            "0.5",
+            "--loss-file",
+        ])
+        .args([
+            "ag.loss.csv",
+            "--units",
+            "reduced",
+            "--convention",
+            "loss",
+            "--segment",
+            "512",
+        ])
+        .args(["--intermittency", "-B", "199", "--json", "ag.json"])
+        .assert()
+        .success()
+        .get_output()
+        .stdout
+        .clone();
+    let text = String::from_utf8(out).unwrap();
+    assert!(text.contains("gaussian?   tw = 50 s:"), "{text}");
+    assert!(text.contains("intermittency at tw = 200:"), "{text}");
+    let r: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(dir.path().join("ag.json")).unwrap()).unwrap();
+    let by_age = r["intermittency_by_age"].as_array().unwrap();
+    assert_eq!(by_age.len(), 2);
+    assert_eq!(by_age[1]["tw"], 200.0);
+    assert!(by_age[0]["test"]["p_value"].as_f64().is_some());
+}
+
+#[test]
+#[ignore = "study, ~5 min: FDTEMP_AGING_CAMPAIGNS (default 200)"]
+fn aging_intermittency_false_alarm_study() {
+    // Gaussian records whose slow mode cools with age: how often does the per-age test call
+    // them intermittent? Its power drift inside a window is not Gaussian stationarity, so
+    // this measures what the drift costs at each age.
+    use fdtemp::spectral::intermittency::{
+        IntermittencySettings, IntermittencyVerdict, intermittency,
+    };
+    let campaigns: usize = std::env::var("FDTEMP_AGING_CAMPAIGNS")
+        .ok()
+        .and_then(|v| v.parse().ok())
+        .unwrap_or(200);
+    let ages = [50.0, 200.0];
+    let mut flagged = [0usize; 2];
+    for c in 0..campaigns {
+        let spec = AgingNoiseSpec {
+            runs: 6,
+            duration: 300.0,
+            seed: 5000 + c as u64,
+            ..AgingNoiseSpec::default()
+        };
+        let records = spec.records();
+        let s = AgeSettings {
+            ages: ages.to_vec(),
+            width: Width::Fraction(0.5),
+            quench_at: 0.0,
+        };
+        let w = WelchSettings {
+            sample_rate: spec.fs,
+            segment: 512,
+            overlap: 256,
+        };
+        for (i, &tw) in ages.iter().enumerate() {
+            let (first, last) = s.samples(tw, spec.fs);
+            let slices: Vec<Vec<f64>> = records.iter().map(|r| r[first..last].to_vec()).collect();
+            let t = intermittency(
+                &slices,
+                &w,
+                &IntermittencySettings {
+                    seed: c as u64 + 1,
+                    ..IntermittencySettings::default()
+                },
+            )
+            .unwrap();
+            flagged[i] += usize::from(t.verdict == IntermittencyVerdict::Intermittent);
+        }
+    }
+    println!("| tw | window | campaigns | called intermittent (level 0.05) |");
+    println!("|---|---|---|---|");
+    for (i, tw) in ages.iter().enumerate() {
+        let p = flagged[i] as f64 / campaigns as f64;
+        let se = (p * (1.0 - p) / campaigns as f64).sqrt();
+        println!(
+            "| {tw} | {:?} | {campaigns} | {p:.3} ± {se:.3} |",
+            settings_window(*tw)
+        );
+    }
+}
+
+fn settings_window(tw: f64) -> [f64; 2] {
+    AgeSettings {
+        ages: vec![tw],
+        width: Width::Fraction(0.5),
+        quench_at: 0.0,
+    }
+    .window(tw)
+}

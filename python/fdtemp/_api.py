@@ -138,8 +138,8 @@ def noise(data, *, sample_rate=None, gain=None, segment=4096, overlap=None,
 
     ``ages=[tw, ...]`` (with ``age_span=`` or ``age_window=``, ``quench_at=``): records
     after a quench, T_eff(f, tw) per age (``--ages``; the result's PSD CSV is empty).
-    ``intermittency=True``: the test against Gaussian surrogates (``--intermittency``);
-    both need ``data`` as a path."""
+    ``intermittency=True``: the test against Gaussian surrogates (``--intermittency``; per
+    age with ``ages=``); both need ``data`` as a path."""
     if isinstance(data, (str, os.PathLike)):
         label, path, array = os.fspath(data), os.fspath(data), None
     else:

@@ -418,11 +418,6 @@ fn noise(
             "ages= and intermittency= read the records from a file: give its path".into(),
         ));
     }
-    if !ages.is_empty() && intermittency {
-        return Err(setting(
-            "ages= and intermittency= are not combined in this version".into(),
-        ));
-    }
     if age_span.is_some() && age_window.is_some() {
         return Err(setting("give age_span= or age_window=, not both".into()));
     }
@@ -522,7 +517,15 @@ fn noise(
                 };
                 settings.ages = Some(a.clone());
                 let (report, _) = api::noise_aging(
-                    &label, delimiter, welch, sample_rate, gain, &a, &loss, &settings,
+                    &label,
+                    delimiter,
+                    welch,
+                    sample_rate,
+                    gain,
+                    &a,
+                    &loss,
+                    &settings,
+                    intermittency,
                 )?;
                 return Ok((Some(fdtemp::report::json::spectrum_json(&report)), Vec::new()));
             }

@@ -111,7 +111,7 @@ pub struct NoiseArgs {
     /// Test the records against Gaussian noise of their own spectrum (per log band, the
     /// scatter of the per-segment powers against 199 Gaussian surrogates); when it
     /// rejects, --errors auto resamples runs. Holds the records in memory.
-    #[arg(long, conflicts_with_all = ["ages", "cross_with"])]
+    #[arg(long, conflicts_with = "cross_with")]
     intermittency: bool,
     #[command(flatten)]
     pub(super) common: SpectralArgs,
@@ -383,6 +383,7 @@ fn noise_ages(
         &ages,
         loss,
         &settings,
+        a.intermittency,
     )?;
     let first = &windows[0].psd;
     let mut header = vec![format!(
@@ -418,6 +419,29 @@ fn noise_ages(
     header.extend(convention_note);
     if matches!(loss, fdtemp::spectral::aging::AgeLoss::ByAge(_)) {
         header.push("loss        one table per age (the loss file's tw column)".into());
+    }
+    for (t, sp) in report.intermittency_by_age.iter().zip(&report.spectra) {
+        header.push(format!(
+            "gaussian?   tw = {} s: {}: p = {} over {} bands ({} surrogates){}",
+            fmt_num(t.tw),
+            match t.test.verdict {
+                fdtemp::spectral::intermittency::IntermittencyVerdict::Intermittent => {
+                    "no, intermittent"
+                }
+                _ => "consistent with Gaussian noise",
+            },
+            fdtemp::report::format::fmt_p(t.test.p_value),
+            t.test.bands.len(),
+            t.test.settings.surrogates,
+            if t.test.needs_run_resampling
+                && sp.errors == ErrorModel::Runs
+                && a.common.errors == ErrorModel::Auto
+            {
+                "; intervals resample runs"
+            } else {
+                ""
+            }
+        ));
     }
     resistance_line(a, &mut header);
     let mut outputs = Vec::new();

@@ -46,7 +46,10 @@ pub fn render(r: &SpectrumReport, extra_header: &[String]) -> Vec<u8> {
         section(&mut o, r, fit, unit);
     }
     if let Some(i) = &r.intermittency {
-        intermittency_section(&mut o, i);
+        intermittency_section(&mut o, i, "");
+    }
+    for a in &r.intermittency_by_age {
+        intermittency_section(&mut o, &a.test, &format!(" at tw = {}", fmt_num(a.tw)));
     }
     let mut cautions: Vec<String> = r.cautions.iter().map(caution).collect();
     for f in &r.spectra {
@@ -301,11 +304,15 @@ pub fn methods(r: &SpectrumReport) -> String {
 }
 
 /// `noise --intermittency`: the test per band, its verdict and findings.
-fn intermittency_section(o: &mut String, i: &crate::spectral::intermittency::IntermittencyReport) {
+fn intermittency_section(
+    o: &mut String,
+    i: &crate::spectral::intermittency::IntermittencyReport,
+    at: &str,
+) {
     let _ = writeln!(
         o,
-        "\nintermittency: per-segment band powers against {} Gaussian surrogates of the records \
-         (max over {} bands)",
+        "\nintermittency{at}: per-segment band powers against {} Gaussian surrogates of the \
+         records (max over {} bands)",
         i.settings.surrogates,
         i.bands.len()
     );

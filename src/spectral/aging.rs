@@ -56,6 +56,16 @@ impl AgeSettings {
         [tw - dt / 2.0, tw + dt / 2.0]
     }
 
+    /// The sample indices `[first, last)` of age `tw`'s window on the record's clock at
+    /// `fs` Hz.
+    pub fn samples(&self, tw: f64, fs: f64) -> (usize, usize) {
+        let [start, end] = self.window(tw);
+        (
+            ((self.quench_at + start) * fs).ceil() as usize,
+            ((self.quench_at + end) * fs).ceil() as usize,
+        )
+    }
+
     /// Checks the ranges.
     ///
     /// # Errors
@@ -151,8 +161,7 @@ pub fn age_windows(
             )));
         }
         // Sample indices on the record's clock.
-        let first = ((ages.quench_at + start) * fs).ceil() as usize;
-        let last = ((ages.quench_at + end) * fs).ceil() as usize;
+        let (first, last) = ages.samples(tw, fs);
         if let Some((r, len)) = runs
             .iter()
             .enumerate()

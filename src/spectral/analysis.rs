@@ -362,6 +362,9 @@ pub struct SpectrumReport {
     /// The test of the records against Gaussian noise (`noise --intermittency`).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub intermittency: Option<super::intermittency::IntermittencyReport>,
+    /// The same test on each age's windows (`noise --ages --intermittency`), by age.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub intermittency_by_age: Vec<AgeIntermittency>,
 }
 
 /// Analyzes every spectrum group.
@@ -452,7 +455,17 @@ pub fn analyze_estimates(
         second_input: None,
         amplifier_noise: None,
         intermittency: None,
+        intermittency_by_age: Vec::new(),
     })
+}
+
+/// The Gaussian-noise test of one age's windows.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct AgeIntermittency {
+    /// The age.
+    pub tw: f64,
+    /// The test on the windows of every run at that age.
+    pub test: super::intermittency::IntermittencyReport,
 }
 
 /// How far from the bath (a factor) T_eff must lie at every frequency to be called
