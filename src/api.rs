@@ -484,6 +484,26 @@ pub fn noise_spectrum(
     Ok(report)
 }
 
+/// Which estimate of the noise `noise --ages` forms in every window.
+#[derive(Debug, Clone)]
+pub enum AgeChannel {
+    /// One channel's PSD.
+    Single,
+    /// The cross-spectrum with a second record of the same layout (`--cross-with`), its
+    /// gain in `settings.second_gain` (default: the first's).
+    Cross {
+        /// The second record.
+        second: PathBuf,
+    },
+    /// One channel's PSD minus a measured amplifier noise (`--amplifier-noise`).
+    Subtracted {
+        /// The amplifier's PSD.
+        amp: crate::spectral::subtract::AmplifierNoise,
+        /// Its file, named in errors and the report.
+        file: PathBuf,
+    },
+}
+
 /// A record file held in memory: run names, each run's samples, and the sample rate
 /// (given, or from the time column).
 ///
@@ -561,6 +581,7 @@ pub fn noise_aging(
     loss: &crate::spectral::aging::AgeLoss,
     settings: &SpectrumSettings,
     intermittency: bool,
+    channel: &AgeChannel,
 ) -> Result<(SpectrumReport, Vec<crate::spectral::aging::AgePsd>)> {
     use crate::spectral::aging::{age_groups, age_windows};
     use crate::spectral::analysis::AgeIntermittency;
@@ -604,23 +625,128 @@ pub fn noise_aging(
         },
         ..settings.clone()
     };
-    drop(runs);
     if let Some(g) = gain {
         for w in &mut windows {
             w.psd.divide_gain(g);
         }
     }
     let groups = age_groups(&windows, |tw| loss.at(tw)).map_err(in_file(path))?;
-    let only: Vec<SpectrumGroup> = groups.iter().map(|(g, _)| g.clone()).collect();
-    let mut report = crate::spectral::analyze_spectra(
-        &only,
-        &windows[0].psd.bin_rho2,
-        settings,
-        Some(path.display().to_string()),
-    )
-    .map_err(in_file(path))?;
+    let mut extra = Vec::new();
+    let mut report = match channel {
+        AgeChannel::Single => {
+            let only: Vec<SpectrumGroup> = groups.iter().map(|(g, _)| g.clone()).collect();
+            crate::spectral::analyze_spectra(
+                &only,
+                &windows[0].psd.bin_rho2,
+                settings,
+                Some(path.display().to_string()),
+            )
+            .map_err(in_file(path))?
+        }
+        AgeChannel::Subtracted { amp, file } => {
+            let settings = SpectrumSettings {
+                estimator: Estimator::Subtracted,
+                ..settings.clone()
+            };
+            let (mut gs, mut vs) = (Vec::new(), Vec::new());
+            for w in &windows {
+                let mut sub = crate::spectral::subtract::subtract(&w.psd, amp, &loss.at(w.tw)?)
+                    .map_err(|e| match e {
+                        Error::Analysis(m) => Error::input(file, None, None, m),
+                        e => e,
+                    })?;
+                sub.group.tw = Some(w.tw);
+                if let Some(finding) =
+                    crate::spectral::subtract::large_subtraction(&sub, settings.bands_per_decade)
+                {
+                    extra.push(SpectralCaution {
+                        tw: Some(w.tw),
+                        finding,
+                    });
+                }
+                gs.push(sub.group.clone());
+                vs.push(Some(sub.var.clone()));
+            }
+            let mut r = crate::spectral::analyze_estimates(
+                &gs,
+                &vs,
+                &windows[0].psd.bin_rho2,
+                &settings,
+                Some(path.display().to_string()),
+            )
+            .map_err(in_file(path))?;
+            r.amplifier_noise = Some(file.display().to_string());
+            r
+        }
+        AgeChannel::Cross { second } => {
+            let settings = SpectrumSettings {
+                estimator: Estimator::CrossSpectrum,
+                ..settings.clone()
+            };
+            let (names_b, runs_b, fs_b) = records_in_memory(second, delimiter, sample_rate)?;
+            if names_b.len() != names.len()
+                || runs_b.iter().zip(&runs).any(|(b, a)| b.len() != a.len())
+                || (fs_b - fs).abs() > noise::RATE_TOLERANCE * fs
+            {
+                return Err(Error::input(
+                    second,
+                    None,
+                    None,
+                    format!(
+                        "{} run(s) at {fs_b} Hz; expected the layout of {}: {} run(s) of the \
+                         same lengths at {fs} Hz",
+                        names_b.len(),
+                        path.display(),
+                        names.len()
+                    ),
+                ));
+            }
+            let w = WelchSettings {
+                sample_rate: fs,
+                ..welch
+            };
+            let (mut gs, mut vs) = (Vec::new(), Vec::new());
+            for win in &windows {
+                let (first, last) = ages.samples(win.tw, fs);
+                let cross = runs
+                    .iter()
+                    .zip(&runs_b)
+                    .map(|(a, b)| {
+                        crate::spectral::cross::cross_welch(&a[first..last], &b[first..last], w)
+                    })
+                    .collect::<Result<Vec<_>>>()?;
+                let mut pair = crate::spectral::cross::PairPsd::from_runs(
+                    cross,
+                    names.clone(),
+                    names_b.clone(),
+                    fs,
+                    welch.segment,
+                );
+                let ga = gain.unwrap_or(1.0);
+                pair.divide_gains(ga, settings.second_gain.unwrap_or(ga));
+                let (mut g, var, _) =
+                    crate::spectral::cross::to_cross_group(&pair, &loss.at(win.tw)?)
+                        .map_err(in_file(path))?;
+                g.tw = Some(win.tw);
+                gs.push(g);
+                vs.push(Some(var));
+            }
+            let mut r = crate::spectral::analyze_estimates(
+                &gs,
+                &vs,
+                &windows[0].psd.bin_rho2,
+                &settings,
+                Some(path.display().to_string()),
+            )
+            .map_err(in_file(path))?;
+            r.second_input = Some(second.display().to_string());
+            r
+        }
+    };
+    let mut per_age_extra = extra;
     // Every age's cautions go with its spectrum (the report names its tw).
     let mut per_age = cautions;
+    per_age.append(&mut per_age_extra);
     for ((g, dropped), w) in groups.iter().zip(&windows) {
         let before = report.cautions.len();
         outside_table(&mut report, &loss.at(w.tw)?, *dropped);

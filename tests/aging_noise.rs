@@ -457,3 +457,88 @@ fn settings_window(tw: f64) -> [f64; 2] {
     }
     .window(tw)
 }
+
+#[test]
+fn aging_windows_take_two_channels_and_a_subtracted_amplifier() {
+    // Source: Nyquist, Phys. Rev. 32, 110 (1928) — the resistor's 4kTR in both channels of
+    // `synth resistor-two-channels` (stationary records, so every window holds T = 300 K),
+    // each amplifier adding its own invented noise that the cross-spectrum removes.
+    let dir = tempfile::tempdir().unwrap();
+    let run = |args: &[&str]| {
+        fdtemp()
+            .current_dir(dir.path())
+            .args(args)
+            .assert()
+            .success()
+            .get_output()
+            .stdout
+            .clone()
+    };
+    run(&[
+        "synth",
+        "resistor-two-channels",
+        "--quick",
+        "--samples",
+        "12",
+        "--out",
+        "rt.csv",
+    ]);
+    run(&[
+        "noise",
+        "rt.amp.csv",
+        "--sample-rate",
+        "10000",
+        "--gain",
+        "100",
+        "--segment",
+        "1024",
+        "--psd-out",
+        "amp.csv",
+    ]);
+    let common = [
+        "--gain",
+        "100",
+        "--sample-rate",
+        "10000",
+        "--resistance",
+        "1000",
+        "-T",
+        "300",
+        "--ages",
+        "2,4",
+        "--age-window",
+        "2",
+        "--segment",
+        "1024",
+        "-B",
+        "499",
+    ];
+    for (extra, json) in [
+        (
+            ["--cross-with", "rt.ch2.csv", "--cross-gain", "1000"],
+            "cross.json",
+        ),
+        (
+            ["--amplifier-noise", "amp.csv", "--errors", "normal"],
+            "sub.json",
+        ),
+    ] {
+        let mut args = vec!["noise", "rt.csv"];
+        args.extend(common);
+        args.extend(extra);
+        args.extend(["--json", json]);
+        run(&args);
+        let r: serde_json::Value =
+            serde_json::from_slice(&std::fs::read(dir.path().join(json)).unwrap()).unwrap();
+        assert_eq!(r["spectra"].as_array().unwrap().len(), 2, "{json}");
+        for sp in r["spectra"].as_array().unwrap() {
+            let b = &sp["band"]["t_eff"];
+            let (lo, hi) = (b["low"].as_f64().unwrap(), b["high"].as_f64().unwrap());
+            assert!(
+                lo <= 300.0 && 300.0 <= hi,
+                "{json} tw = {}: [{lo}, {hi}]",
+                sp["tw"]
+            );
+        }
+    }
+}

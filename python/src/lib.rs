@@ -526,6 +526,7 @@ fn noise(
                     &loss,
                     &settings,
                     intermittency,
+                    &api::AgeChannel::Single,
                 )?;
                 return Ok((Some(fdtemp::report::json::spectrum_json(&report)), Vec::new()));
             }

@@ -90,7 +90,7 @@ pub struct NoiseArgs {
         long,
         value_name = "TW,...",
         value_delimiter = ',',
-        conflicts_with_all = ["cross_with", "amplifier_noise", "psd_out"]
+        conflicts_with = "psd_out"
     )]
     ages: Vec<f64>,
     /// With --ages: each window's width as a fraction of its age [default: 0.25].
@@ -374,6 +374,14 @@ fn noise_ages(
     };
     ages.validate()?;
     settings.ages = Some(ages.clone());
+    let channel = match (&a.cross_with, &a.amplifier_noise) {
+        (Some(b), _) => fdtemp::api::AgeChannel::Cross { second: b.clone() },
+        (None, Some(p)) => fdtemp::api::AgeChannel::Subtracted {
+            amp: noise::read_amplifier_noise(p, a.common.delimiter)?,
+            file: p.clone(),
+        },
+        (None, None) => fdtemp::api::AgeChannel::Single,
+    };
     let (report, windows) = fdtemp::api::noise_aging(
         &a.file,
         a.common.delimiter,
@@ -384,6 +392,7 @@ fn noise_ages(
         loss,
         &settings,
         a.intermittency,
+        &channel,
     )?;
     let first = &windows[0].psd;
     let mut header = vec![format!(
@@ -417,6 +426,17 @@ fn noise_ages(
         welch.segment, welch.overlap
     ));
     header.extend(convention_note);
+    match &channel {
+        fdtemp::api::AgeChannel::Cross { second } => header.push(format!(
+            "second      {}: the cross-spectrum of the two records in every window",
+            second.display()
+        )),
+        fdtemp::api::AgeChannel::Subtracted { file, .. } => header.push(format!(
+            "amplifier   {} subtracted from every window's PSD (referred to the sample)",
+            file.display()
+        )),
+        fdtemp::api::AgeChannel::Single => {}
+    }
     if matches!(loss, fdtemp::spectral::aging::AgeLoss::ByAge(_)) {
         header.push("loss        one table per age (the loss file's tw column)".into());
     }
