@@ -312,7 +312,7 @@ fn the_noise_command_reads_aging_records_end_to_end() {
         .code(2)
         .stderr(predicates::str::contains("but run 'run001' ends"));
     assert!(!dir.path().join("late.json").exists());
-    // Without a dissipation, and with two channels: refused.
+    // Without a dissipation, and with --psd-out: refused.
     fdtemp()
         .current_dir(dir.path())
         .args(["noise", "ag.csv", "--ages", "50"])
@@ -325,13 +325,15 @@ fn the_noise_command_reads_aging_records_end_to_end() {
             "ag.csv",
             "--ages",
             "50",
-            "--cross-with",
-            "ag.csv",
             "--resistance",
             "1",
+            "--psd-out",
+            "p.csv",
         ])
         .assert()
-        .code(2);
+        .code(2)
+        .stderr(predicates::str::contains("--psd-out"));
+    assert!(!dir.path().join("p.csv").exists());
 }
 
 #[test]
@@ -515,11 +517,17 @@ fn aging_windows_take_two_channels_and_a_subtracted_amplifier() {
     ];
     for (extra, json) in [
         (
-            ["--cross-with", "rt.ch2.csv", "--cross-gain", "1000"],
+            vec![
+                "--cross-with",
+                "rt.ch2.csv",
+                "--cross-gain",
+                "1000",
+                "--intermittency",
+            ],
             "cross.json",
         ),
         (
-            ["--amplifier-noise", "amp.csv", "--errors", "normal"],
+            vec!["--amplifier-noise", "amp.csv", "--errors", "normal"],
             "sub.json",
         ),
     ] {
@@ -531,6 +539,9 @@ fn aging_windows_take_two_channels_and_a_subtracted_amplifier() {
         let r: serde_json::Value =
             serde_json::from_slice(&std::fs::read(dir.path().join(json)).unwrap()).unwrap();
         assert_eq!(r["spectra"].as_array().unwrap().len(), 2, "{json}");
+        if json == "cross.json" {
+            assert_eq!(r["intermittency_by_age"].as_array().unwrap().len(), 2);
+        }
         for sp in r["spectra"].as_array().unwrap() {
             let b = &sp["band"]["t_eff"];
             let (lo, hi) = (b["low"].as_f64().unwrap(), b["high"].as_f64().unwrap());

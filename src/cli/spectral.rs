@@ -111,7 +111,7 @@ pub struct NoiseArgs {
     /// Test the records against Gaussian noise of their own spectrum (per log band, the
     /// scatter of the per-segment powers against 199 Gaussian surrogates); when it
     /// rejects, --errors auto resamples runs. Holds the records in memory.
-    #[arg(long, conflicts_with = "cross_with")]
+    #[arg(long)]
     intermittency: bool,
     #[command(flatten)]
     pub(super) common: SpectralArgs,
@@ -268,47 +268,14 @@ pub fn noise(a: NoiseArgs) -> fdtemp::Result<()> {
         None => None,
     };
     let mut settings = settings;
-    let burst = if a.intermittency {
-        Some(fdtemp::api::noise_intermittency(
-            &a.file,
-            a.common.delimiter,
-            welch,
-            a.sample_rate,
-            a.common.level,
-            a.common.seed,
-        )?)
-    } else {
-        None
-    };
+    let burst = burst_test(&a, welch)?;
     let source = fdtemp::api::NoiseSource::File(a.file.clone(), a.common.delimiter);
     let rec = fdtemp::api::noise_psd(source, welch, a.sample_rate, a.gain)?;
     let mut header = noise_header(&a, &welch, &rec);
     header.extend(convention_note);
     if let Some(b) = &burst {
-        let switch = b.needs_run_resampling
-            && settings.errors == ErrorModel::Auto
-            && rec.runs.len() >= 2
-            && a.amplifier_noise.is_none();
-        if switch {
-            settings.errors = ErrorModel::Runs;
-        }
-        header.push(format!(
-            "gaussian?   {}: p = {} over {} bands ({} surrogates){}",
-            match b.verdict {
-                fdtemp::spectral::intermittency::IntermittencyVerdict::Intermittent => {
-                    "no, intermittent"
-                }
-                _ => "consistent with Gaussian noise",
-            },
-            fdtemp::report::format::fmt_p(b.p_value),
-            b.bands.len(),
-            b.settings.surrogates,
-            if switch {
-                "; intervals resample runs"
-            } else {
-                ""
-            }
-        ));
+        let allowed = a.amplifier_noise.is_none();
+        header.push(burst_line(b, &mut settings, rec.runs.len(), allowed));
     }
     if let (Some(p), Some(amp)) = (&a.amplifier_noise, &amp) {
         header.push(format!(
@@ -471,6 +438,57 @@ fn noise_ages(
     Ok(())
 }
 
+/// `--intermittency`: the records' test against Gaussian surrogates (first channel).
+fn burst_test(
+    a: &NoiseArgs,
+    welch: WelchSettings,
+) -> fdtemp::Result<Option<fdtemp::spectral::intermittency::IntermittencyReport>> {
+    if !a.intermittency {
+        return Ok(None);
+    }
+    fdtemp::api::noise_intermittency(
+        &a.file,
+        a.common.delimiter,
+        welch,
+        a.sample_rate,
+        a.common.level,
+        a.common.seed,
+    )
+    .map(Some)
+}
+
+/// The `gaussian?` header line; where the test rejects, `--errors auto` becomes runs
+/// (with at least 2 runs, when `allowed`).
+fn burst_line(
+    b: &fdtemp::spectral::intermittency::IntermittencyReport,
+    settings: &mut SpectrumSettings,
+    runs: usize,
+    allowed: bool,
+) -> String {
+    let switch =
+        b.needs_run_resampling && settings.errors == ErrorModel::Auto && runs >= 2 && allowed;
+    if switch {
+        settings.errors = ErrorModel::Runs;
+    }
+    format!(
+        "gaussian?   {}: p = {} over {} bands ({} surrogates){}",
+        match b.verdict {
+            fdtemp::spectral::intermittency::IntermittencyVerdict::Intermittent => {
+                "no, intermittent"
+            }
+            _ => "consistent with Gaussian noise",
+        },
+        fdtemp::report::format::fmt_p(b.p_value),
+        b.bands.len(),
+        b.settings.surrogates,
+        if switch {
+            "; intervals resample runs"
+        } else {
+            ""
+        }
+    )
+}
+
 /// The header's line on a constant resistance.
 fn resistance_line(a: &NoiseArgs, header: &mut Vec<String>) {
     if let Some(r) = a.resistance {
@@ -499,6 +517,8 @@ fn noise_cross(
     convention_note: Option<String>,
 ) -> fdtemp::Result<()> {
     use fdtemp::report::format::{fmt_num, sig};
+    let burst = burst_test(a, welch)?;
+    let mut settings = settings.clone();
     let pair = fdtemp::api::noise_cross_psd(
         &a.file,
         b,
@@ -530,14 +550,18 @@ fn noise_cross(
             .into(),
     );
     header.extend(convention_note);
-    let report = fdtemp::api::noise_cross_spectrum(
+    if let Some(t) = &burst {
+        header.push(burst_line(t, &mut settings, pair.a.runs.len(), true));
+    }
+    let mut report = fdtemp::api::noise_cross_spectrum(
         &pair,
         diss,
-        settings,
+        &settings,
         &a.file,
         b,
         a.loss_file.as_deref(),
     )?;
+    report.intermittency = burst;
     resistance_line(a, &mut header);
     let mut outputs = Vec::new();
     spectral_outputs(&mut outputs, &report, &a.common.json, figure)?;
