@@ -528,7 +528,10 @@ fn noise(
                     intermittency,
                     &api::AgeChannel::Single,
                 )?;
-                return Ok((Some(fdtemp::report::json::spectrum_json(&report)), Vec::new()));
+                return Ok((
+                    Some(fdtemp::report::json::spectrum_json(&report)),
+                    Vec::new(),
+                ));
             }
             let burst = if intermittency {
                 Some(api::noise_intermittency(
