@@ -246,6 +246,14 @@ pub fn fit_observables(
     })
 }
 
+/// Errors of subtracting an amplifier noise name its file.
+fn amplifier_error(file: &Path) -> impl Fn(Error) -> Error + '_ {
+    move |e| match e {
+        Error::Analysis(m) => Error::input(file, None, None, m),
+        e => e,
+    }
+}
+
 /// Errors of the analysis name the input.
 pub fn in_file(file: &Path) -> impl Fn(Error) -> Error + '_ {
     move |e| match e {
@@ -484,6 +492,10 @@ pub fn noise_spectrum(
     Ok(report)
 }
 
+/// The estimator, and every window's spectrum group with its variances (two channels or
+/// a subtraction).
+type WindowEstimates = (Estimator, Vec<SpectrumGroup>, Vec<Option<Vec<f64>>>);
+
 /// Which estimate of the noise `noise --ages` forms in every window.
 #[derive(Debug, Clone)]
 pub enum AgeChannel {
@@ -631,30 +643,15 @@ pub fn noise_aging(
         }
     }
     let groups = age_groups(&windows, |tw| loss.at(tw)).map_err(in_file(path))?;
+    // The two-channel and subtracted estimates of every window, with their variances.
     let mut extra = Vec::new();
-    let mut report = match channel {
-        AgeChannel::Single => {
-            let only: Vec<SpectrumGroup> = groups.iter().map(|(g, _)| g.clone()).collect();
-            crate::spectral::analyze_spectra(
-                &only,
-                &windows[0].psd.bin_rho2,
-                settings,
-                Some(path.display().to_string()),
-            )
-            .map_err(in_file(path))?
-        }
+    let estimates: Option<WindowEstimates> = match channel {
+        AgeChannel::Single => None,
         AgeChannel::Subtracted { amp, file } => {
-            let settings = SpectrumSettings {
-                estimator: Estimator::Subtracted,
-                ..settings.clone()
-            };
             let (mut gs, mut vs) = (Vec::new(), Vec::new());
             for w in &windows {
                 let mut sub = crate::spectral::subtract::subtract(&w.psd, amp, &loss.at(w.tw)?)
-                    .map_err(|e| match e {
-                        Error::Analysis(m) => Error::input(file, None, None, m),
-                        e => e,
-                    })?;
+                    .map_err(amplifier_error(file))?;
                 sub.group.tw = Some(w.tw);
                 if let Some(finding) =
                     crate::spectral::subtract::large_subtraction(&sub, settings.bands_per_decade)
@@ -664,25 +661,12 @@ pub fn noise_aging(
                         finding,
                     });
                 }
-                gs.push(sub.group.clone());
-                vs.push(Some(sub.var.clone()));
+                gs.push(sub.group);
+                vs.push(Some(sub.var));
             }
-            let mut r = crate::spectral::analyze_estimates(
-                &gs,
-                &vs,
-                &windows[0].psd.bin_rho2,
-                &settings,
-                Some(path.display().to_string()),
-            )
-            .map_err(in_file(path))?;
-            r.amplifier_noise = Some(file.display().to_string());
-            r
+            Some((Estimator::Subtracted, gs, vs))
         }
         AgeChannel::Cross { second } => {
-            let settings = SpectrumSettings {
-                estimator: Estimator::CrossSpectrum,
-                ..settings.clone()
-            };
             let (names_b, runs_b, fs_b) = records_in_memory(second, delimiter, sample_rate)?;
             if names_b.len() != names.len()
                 || runs_b.iter().zip(&runs).any(|(b, a)| b.len() != a.len())
@@ -705,6 +689,7 @@ pub fn noise_aging(
                 sample_rate: fs,
                 ..welch
             };
+            let ga = gain.unwrap_or(1.0);
             let (mut gs, mut vs) = (Vec::new(), Vec::new());
             for win in &windows {
                 let (first, last) = ages.samples(win.tw, fs);
@@ -722,7 +707,6 @@ pub fn noise_aging(
                     fs,
                     welch.segment,
                 );
-                let ga = gain.unwrap_or(1.0);
                 pair.divide_gains(ga, settings.second_gain.unwrap_or(ga));
                 let (mut g, var, _) =
                     crate::spectral::cross::to_cross_group(&pair, &loss.at(win.tw)?)
@@ -731,22 +715,35 @@ pub fn noise_aging(
                 gs.push(g);
                 vs.push(Some(var));
             }
-            let mut r = crate::spectral::analyze_estimates(
-                &gs,
-                &vs,
-                &windows[0].psd.bin_rho2,
-                &settings,
-                Some(path.display().to_string()),
-            )
-            .map_err(in_file(path))?;
-            r.second_input = Some(second.display().to_string());
-            r
+            Some((Estimator::CrossSpectrum, gs, vs))
         }
     };
-    let mut per_age_extra = extra;
+    let input = Some(path.display().to_string());
+    let rho2 = &windows[0].psd.bin_rho2;
+    let mut report = match estimates {
+        None => {
+            let only: Vec<SpectrumGroup> = groups.iter().map(|(g, _)| g.clone()).collect();
+            crate::spectral::analyze_spectra(&only, rho2, settings, input)
+        }
+        Some((estimator, gs, vs)) => {
+            let settings = SpectrumSettings {
+                estimator,
+                ..settings.clone()
+            };
+            crate::spectral::analyze_estimates(&gs, &vs, rho2, &settings, input)
+        }
+    }
+    .map_err(in_file(path))?;
+    match channel {
+        AgeChannel::Subtracted { file, .. } => {
+            report.amplifier_noise = Some(file.display().to_string());
+        }
+        AgeChannel::Cross { second } => report.second_input = Some(second.display().to_string()),
+        AgeChannel::Single => {}
+    }
     // Every age's cautions go with its spectrum (the report names its tw).
     let mut per_age = cautions;
-    per_age.append(&mut per_age_extra);
+    per_age.extend(extra);
     for ((g, dropped), w) in groups.iter().zip(&windows) {
         let before = report.cautions.len();
         outside_table(&mut report, &loss.at(w.tw)?, *dropped);
@@ -926,10 +923,8 @@ pub fn noise_subtracted_spectrum(
     };
     settings.validate()?;
     noise::to_group(rec, diss).map_err(|e| no_common_frequency(e, rec, diss, label, loss_file))?;
-    let sub = crate::spectral::subtract::subtract(rec, amp, diss).map_err(|e| match e {
-        Error::Analysis(m) => Error::input(amp_file, None, None, m),
-        e => e,
-    })?;
+    let sub =
+        crate::spectral::subtract::subtract(rec, amp, diss).map_err(amplifier_error(amp_file))?;
     let mut report = crate::spectral::analyze_estimates(
         std::slice::from_ref(&sub.group),
         &[Some(sub.var.clone())],

@@ -411,12 +411,7 @@ fn noise_ages(
         header.push(format!(
             "gaussian?   tw = {} s: {}: p = {} over {} bands ({} surrogates){}",
             fmt_num(t.tw),
-            match t.test.verdict {
-                fdtemp::spectral::intermittency::IntermittencyVerdict::Intermittent => {
-                    "no, intermittent"
-                }
-                _ => "consistent with Gaussian noise",
-            },
+            gaussian_words(&t.test),
             fdtemp::report::format::fmt_p(t.test.p_value),
             t.test.bands.len(),
             t.test.settings.surrogates,
@@ -457,6 +452,14 @@ fn burst_test(
     .map(Some)
 }
 
+/// The intermittency verdict in the `gaussian?` header line.
+fn gaussian_words(b: &fdtemp::spectral::intermittency::IntermittencyReport) -> &'static str {
+    match b.verdict {
+        fdtemp::spectral::intermittency::IntermittencyVerdict::Intermittent => "no, intermittent",
+        _ => "consistent with Gaussian noise",
+    }
+}
+
 /// The `gaussian?` header line; where the test rejects, `--errors auto` becomes runs
 /// (with at least 2 runs, when `allowed`).
 fn burst_line(
@@ -472,12 +475,7 @@ fn burst_line(
     }
     format!(
         "gaussian?   {}: p = {} over {} bands ({} surrogates){}",
-        match b.verdict {
-            fdtemp::spectral::intermittency::IntermittencyVerdict::Intermittent => {
-                "no, intermittent"
-            }
-            _ => "consistent with Gaussian noise",
-        },
+        gaussian_words(b),
         fdtemp::report::format::fmt_p(b.p_value),
         b.bands.len(),
         b.settings.surrogates,
