@@ -59,10 +59,25 @@ impl BreakSolution {
 }
 
 /// Scratch space reused across searches so the hot loop does not allocate.
+///
+/// It also remembers the part of the last search that depends only on `x`, the weights,
+/// the base and the least branch (the sort order, the centred x and the prefix sums of
+/// `w`, `w x`, `w x²`): a search on the same points with other responses (the null-moved
+/// and the model-moved refits of one resample) reuses it.
 #[derive(Debug, Default, Clone)]
 pub struct Workspace {
     /// Point indices sorted by x; kept between calls as the starting order.
-    pub order: Vec<usize>,
+    order: Vec<usize>,
+    /// The x part of the last search.
+    xp: XPart,
+    /// The response part per allowed interval: `⟨r,u⟩`, `⟨r,v⟩` after projection.
+    al: Vec<f64>,
+    be: Vec<f64>,
+    /// The best candidate in each allowed interval: its explained sum of squares as
+    /// `num / den`, and its break.
+    num: Vec<f64>,
+    den: Vec<f64>,
+    q: Vec<f64>,
 }
 
 impl Workspace {
@@ -70,8 +85,118 @@ impl Workspace {
     pub fn sorted_by(x: &[f64]) -> Self {
         let mut order: Vec<usize> = (0..x.len()).collect();
         order.sort_by(|&i, &j| x[i].total_cmp(&x[j]));
-        Workspace { order }
+        Workspace {
+            order,
+            ..Workspace::default()
+        }
     }
+}
+
+/// What a search needs that depends only on the points' x and weights, the base and the
+/// least branch `m`. Per allowed interval `i` (break after the first `k = m + i` sorted
+/// points): the prefix sums `Σw`, `Σw x`, `Σw x²` (centred x) and the projected
+/// `⟨u,u⟩`, `⟨u,v⟩`, `⟨v,v⟩`.
+#[derive(Debug, Default, Clone)]
+struct XPart {
+    /// The x, weights, base and `m` it was made from (`None`: nothing made yet).
+    key: Option<(Base, usize)>,
+    x: Vec<f64>,
+    w: Vec<f64>,
+    sw: f64,
+    xm: f64,
+    sxx: f64,
+    /// Centred x in sorted order (all points).
+    dx: Vec<f64>,
+    /// `w · dx` in sorted order (all points).
+    wdx: Vec<f64>,
+    /// Weights in sorted order (all points).
+    ws: Vec<f64>,
+    s0: Vec<f64>,
+    s1: Vec<f64>,
+    s2: Vec<f64>,
+    ga: Vec<f64>,
+    de: Vec<f64>,
+    ep: Vec<f64>,
+}
+
+impl XPart {
+    fn matches(&self, x: &[f64], w: &[f64], key: (Base, usize)) -> bool {
+        self.key == Some(key) && same_bits(&self.x, x) && same_bits(&self.w, w)
+    }
+
+    /// Makes the x part for sorted `order`; `false` when x has no spread.
+    fn make(&mut self, x: &[f64], w: &[f64], order: &[usize], key: (Base, usize)) -> bool {
+        let (p, m) = (x.len(), key.1);
+        let line = key.0 == Base::Line;
+        self.key = None;
+        self.sw = w.iter().sum();
+        self.xm = x.iter().zip(w).map(|(x, w)| w * x).sum::<f64>() / self.sw;
+        self.sxx = x
+            .iter()
+            .zip(w)
+            .map(|(x, w)| {
+                let dx = x - self.xm;
+                w * dx * dx
+            })
+            .sum();
+        if !(self.sxx > 0.0) {
+            return false;
+        }
+        self.dx.clear();
+        self.ws.clear();
+        self.wdx.clear();
+        for &i in order {
+            let dx = x[i] - self.xm;
+            self.dx.push(dx);
+            self.ws.push(w[i]);
+            self.wdx.push(w[i] * dx);
+        }
+        // Prefix sums (one pass in sorted order), then the projection of every interval
+        // (no dependence between intervals: vectorized).
+        let n = p + 1 - 2 * m;
+        for v in [&mut self.s0, &mut self.s1, &mut self.s2] {
+            v.clear();
+        }
+        let mut s = [0.0f64; 3];
+        for k in 0..(p - m) {
+            s[0] += self.ws[k];
+            s[1] += self.wdx[k];
+            s[2] += self.wdx[k] * self.dx[k];
+            if k + 1 >= m {
+                self.s0.push(s[0]);
+                self.s1.push(s[1]);
+                self.s2.push(s[2]);
+            }
+        }
+        for v in [&mut self.ga, &mut self.de, &mut self.ep] {
+            v.resize(n, 0.0);
+        }
+        let (inv_sw, inv_sxx) = (1.0 / self.sw, if line { 1.0 / self.sxx } else { 0.0 });
+        let sums = self.s0.iter().zip(&self.s1).zip(&self.s2);
+        let out = self.ga.iter_mut().zip(&mut self.de).zip(&mut self.ep);
+        pulp::Arch::new().dispatch(|| {
+            for (((uu, uv), vv), ((&s_w, &s_x), &s_xx)) in out.zip(sums) {
+                *uu = s_w - s_w * s_w * inv_sw - s_x * s_x * inv_sxx;
+                *uv = s_x - s_w * s_x * inv_sw - s_x * s_xx * inv_sxx;
+                *vv = s_xx - s_x * s_x * inv_sw - s_xx * s_xx * inv_sxx;
+            }
+        });
+        self.x.clear();
+        self.x.extend_from_slice(x);
+        self.w.clear();
+        self.w.extend_from_slice(w);
+        self.key = Some(key);
+        true
+    }
+}
+
+/// The two slices hold the same numbers, bit for bit.
+fn same_bits(a: &[f64], b: &[f64]) -> bool {
+    a.len() == b.len()
+        && a.iter()
+            .zip(b)
+            .fold(0u64, |acc, (u, v)| acc | (u.to_bits() ^ v.to_bits()))
+            == 0
 }
 
 fn insertion_sort(order: &mut [usize], x: &[f64]) {
@@ -119,175 +244,229 @@ pub fn search(
     if p < 2 * m || r.len() != p || w.len() != p {
         return None;
     }
-    if ws.order.len() != p {
-        *ws = Workspace::sorted_by(x);
-    } else {
-        insertion_sort(&mut ws.order, x);
+    let key = (base, m);
+    if !ws.xp.matches(x, w, key) {
+        if ws.order.len() != p {
+            *ws = Workspace::sorted_by(x);
+        } else {
+            insertion_sort(&mut ws.order, x);
+        }
+        if !ws.xp.make(x, w, &ws.order, key) {
+            return None;
+        }
     }
-    let c = Centred::of(x, r, w)?;
     let line = base == Base::Line;
-    let best = scan(x, r, w, &ws.order, &c, line, m, profile)?;
-    Some(solution(&best, &c, line, m, p + 1 - 2 * m))
+    let c = Centred::of(&ws.xp, x, r, w);
+    ws.response_part(r, &c, line, m);
+    let sse_null = c.sse_null(line, ws.xp.sxx);
+    let tiny = 1e-12 * ws.xp.sxx;
+    ws.candidates(tiny, m);
+    let i = ws.best(sse_null, tiny, m, profile)?;
+    Some(solution(ws, i, &c, line, m))
 }
 
-/// Weighted means and centred second moments of the data.
+/// The response's weighted mean and centred moments (the x ones are in [`XPart`]).
 struct Centred {
-    sw: f64,
-    xm: f64,
     rm: f64,
-    sxx: f64,
     sxr: f64,
     srr: f64,
+    /// `sxr / sxx`: the slope of the base line (read only with [`Base::Line`]).
+    slope: f64,
 }
 
 impl Centred {
-    /// `None` when x has no spread.
-    fn of(x: &[f64], r: &[f64], w: &[f64]) -> Option<Self> {
-        let sw: f64 = w.iter().sum();
-        let xm = x.iter().zip(w).map(|(x, w)| w * x).sum::<f64>() / sw;
-        let rm = r.iter().zip(w).map(|(r, w)| w * r).sum::<f64>() / sw;
-        let (mut sxx, mut sxr, mut srr) = (0.0, 0.0, 0.0);
-        for i in 0..x.len() {
-            let (dx, dr) = (x[i] - xm, r[i] - rm);
-            sxx += w[i] * dx * dx;
-            sxr += w[i] * dx * dr;
-            srr += w[i] * dr * dr;
+    fn of(xp: &XPart, x: &[f64], r: &[f64], w: &[f64]) -> Self {
+        let rm = r.iter().zip(w).map(|(r, w)| w * r).sum::<f64>() / xp.sw;
+        let (mut sxr, mut srr) = (0.0, 0.0);
+        for ((x, r), w) in x.iter().zip(r).zip(w) {
+            let (dx, dr) = (x - xp.xm, r - rm);
+            sxr += w * dx * dr;
+            srr += w * dr * dr;
         }
-        (sxx > 0.0).then_some(Centred {
-            sw,
-            xm,
+        Centred {
             rm,
-            sxx,
             sxr,
             srr,
-        })
+            slope: sxr / xp.sxx,
+        }
     }
 
     /// SSE of the base model alone (no break).
-    fn sse_null(&self, line: bool) -> f64 {
+    fn sse_null(&self, line: bool, sxx: f64) -> f64 {
         if line {
-            self.srr - self.sxr * self.sxr / self.sxx
+            self.srr - self.sxr * self.sxr / sxx
         } else {
             self.srr
         }
     }
 }
 
-/// The best break found: its SSE, its centred position, the prefix sums there and the
-/// number of points below it.
-struct Best {
-    sse: f64,
-    q: f64,
-    sums: [f64; 5],
-    k: usize,
-}
-
-/// One pass over the sorted points: in each interval between neighbouring points, the
-/// interior stationary point (closed form) and the interval's upper end are candidates.
+/// The two candidates of one interval `(lo, hi]` between neighbouring points: the
+/// interior stationary point (closed form) and the upper end. Each is the explained sum
+/// of squares as a fraction `num² / den` (`den > 0`; `-1 / 1` where it is not a
+/// candidate), so candidates compare without dividing. Returns `[interior, upper]` as
+/// numerators, denominators and breaks.
+#[inline(always)]
 #[allow(clippy::too_many_arguments)]
-fn scan(
-    x: &[f64],
-    r: &[f64],
-    w: &[f64],
-    order: &[usize],
-    c: &Centred,
-    line: bool,
-    m: usize,
-    mut profile: Option<&mut Vec<(f64, f64)>>,
-) -> Option<Best> {
-    let sse_null = c.sse_null(line);
-    let tiny = 1e-12 * c.sxx;
-    // Prefix sums over the first k sorted points, in centred coordinates:
-    // [Σw, Σw x, Σw x², Σw r, Σw x r].
-    let mut s = [0.0f64; 5];
-    let mut best: Option<Best> = None;
-    for k in 1..=(x.len() - m) {
-        let i = order[k - 1];
-        let (dx, dr) = (x[i] - c.xm, r[i] - c.rm);
-        s[0] += w[i];
-        s[1] += w[i] * dx;
-        s[2] += w[i] * dx * dx;
-        s[3] += w[i] * dr;
-        s[4] += w[i] * dx * dr;
-        if k < m {
-            continue;
-        }
-        let [al, be, ga, de, ep] = projected(&s, c.sw, c.sxx, c.sxr, line);
-        let lo = x[order[k - 1]] - c.xm;
-        let hi = x[order[k]] - c.xm;
-        let mut consider = |q: f64, best: &mut Option<Best>| {
-            let den = ga * q * q - 2.0 * de * q + ep;
-            if !(den > tiny) {
-                return;
-            }
-            let num = al * q - be;
-            let sse = (sse_null - num * num / den).max(0.0);
-            if let Some(prof) = profile.as_deref_mut() {
-                prof.push((q + c.xm, sse));
-            }
-            if best.as_ref().is_none_or(|b| sse < b.sse) {
-                *best = Some(Best { sse, q, sums: s, k });
-            }
-        };
-        let d = be * ga - al * de;
-        if d != 0.0 {
-            let q_star = (be * de - al * ep) / d;
-            if q_star > lo && q_star < hi {
-                consider(q_star, &mut best);
-            }
-        }
-        consider(hi, &mut best);
-    }
-    best
+fn interval_candidates(
+    al: f64,
+    be: f64,
+    ga: f64,
+    de: f64,
+    ep: f64,
+    lo: f64,
+    hi: f64,
+    tiny: f64,
+) -> [[f64; 2]; 3] {
+    // Both candidates are always computed and then selected, so the loop has no branch.
+    let at = |q: f64| {
+        let den = ga * q * q - 2.0 * de * q + ep;
+        let num = al * q - be;
+        (num * num, den, den > tiny)
+    };
+    // d = 0 gives an infinite or undefined q*, which fails the bounds.
+    let q_star = (be * de - al * ep) / (be * ga - al * de);
+    let (n_in, d_in, ok_in) = at(q_star);
+    let ok_in = ok_in & (q_star > lo) & (q_star < hi);
+    let (n_up, d_up, ok_up) = at(hi);
+    [
+        [
+            if ok_in { n_in } else { -1.0 },
+            if ok_up { n_up } else { -1.0 },
+        ],
+        [
+            if ok_in { d_in } else { 1.0 },
+            if ok_up { d_up } else { 1.0 },
+        ],
+        [q_star, hi],
+    ]
 }
 
-/// The coefficients at the optimum (centred coordinates), then back to the original ones.
-fn solution(best: &Best, c: &Centred, line: bool, m: usize, n_intervals: usize) -> BreakSolution {
-    let qc = best.q;
-    let [s_w, s_x, s_xx, _, _] = best.sums;
+impl Workspace {
+    /// The projected `⟨r,u⟩`, `⟨r,v⟩` of every allowed interval: one pass of prefix sums
+    /// of `w dr` and `w dx dr` over the sorted points.
+    fn response_part(&mut self, r: &[f64], c: &Centred, line: bool, m: usize) {
+        let xp = &self.xp;
+        self.al.clear();
+        self.be.clear();
+        let (mut s3, mut s4) = (0.0f64, 0.0f64);
+        let n_intervals = xp.ga.len();
+        for (k, &i) in self.order[..m + n_intervals - 1].iter().enumerate() {
+            let dr = r[i] - c.rm;
+            s3 += xp.ws[k] * dr;
+            s4 += xp.wdx[k] * dr;
+            if k + 1 >= m {
+                let j = k + 1 - m;
+                if line {
+                    self.al.push(s3 - xp.s1[j] * c.slope);
+                    self.be.push(s4 - xp.s2[j] * c.slope);
+                } else {
+                    self.al.push(s3);
+                    self.be.push(s4);
+                }
+            }
+        }
+    }
+
+    /// The best candidate of every allowed interval (the interior one wins a tie), in a
+    /// pass without branches, gathers or divisions that the compiler vectorizes.
+    fn candidates(&mut self, tiny: f64, m: usize) {
+        let xp = &self.xp;
+        let n = xp.ga.len();
+        self.num.resize(n, 0.0);
+        self.den.resize(n, 0.0);
+        self.q.resize(n, 0.0);
+        let (lo, hi) = (&xp.dx[m - 1..m - 1 + n], &xp.dx[m..m + n]);
+        let rows = self
+            .num
+            .iter_mut()
+            .zip(self.den.iter_mut())
+            .zip(self.q.iter_mut())
+            .zip(self.al.iter().zip(&self.be))
+            .zip(xp.ga.iter().zip(&xp.de).zip(&xp.ep))
+            .zip(lo.iter().zip(hi));
+        pulp::Arch::new().dispatch(|| {
+            for (((((num, den), q), (&al, &be)), ((&ga, &de), &ep)), (&lo, &hi)) in rows {
+                let [n, d, qq] = interval_candidates(al, be, ga, de, ep, lo, hi, tiny);
+                let inner = n[0] * d[1] >= n[1] * d[0];
+                *num = if inner { n[0] } else { n[1] };
+                *den = if inner { d[0] } else { d[1] };
+                *q = if inner { qq[0] } else { qq[1] };
+            }
+        });
+    }
+
+    /// The interval with the largest explained sum of squares (the first on a tie),
+    /// `None` when no interval has a candidate. Fills `profile` with every candidate's
+    /// `(q, SSE)` in increasing q.
+    fn best(
+        &self,
+        sse_null: f64,
+        tiny: f64,
+        m: usize,
+        profile: Option<&mut Vec<(f64, f64)>>,
+    ) -> Option<usize> {
+        let mut best: Option<usize> = None;
+        let (mut bn, mut bd) = (0.0f64, 1.0f64);
+        for (i, (&n, &d)) in self.num.iter().zip(&self.den).enumerate() {
+            if n >= 0.0 && (best.is_none() || n * bd > bn * d) {
+                (bn, bd) = (n, d);
+                best = Some(i);
+            }
+        }
+        if let Some(prof) = profile {
+            let xp = &self.xp;
+            for i in 0..self.num.len() {
+                let [n, d, q] = interval_candidates(
+                    self.al[i],
+                    self.be[i],
+                    xp.ga[i],
+                    xp.de[i],
+                    xp.ep[i],
+                    xp.dx[m - 1 + i],
+                    xp.dx[m + i],
+                    tiny,
+                );
+                for j in 0..2 {
+                    if n[j] >= 0.0 {
+                        prof.push((q[j] + xp.xm, (sse_null - n[j] / d[j]).max(0.0)));
+                    }
+                }
+            }
+        }
+        best
+    }
+}
+
+/// The coefficients at the optimum of interval `i` (centred coordinates), then back to
+/// the original ones.
+fn solution(ws: &Workspace, i: usize, c: &Centred, line: bool, m: usize) -> BreakSolution {
+    let xp = &ws.xp;
+    let sse_null = c.sse_null(line, xp.sxx);
+    let qc = ws.q[i];
+    let (s_w, s_x, s_xx) = (xp.s0[i], xp.s1[i], xp.s2[i]);
     let sum_h = qc * s_w - s_x;
     let sum_xh = qc * s_x - s_xx;
-    let [al, be, ga, de, ep] = projected(&best.sums, c.sw, c.sxx, c.sxr, line);
+    let (al, be, ga, de, ep) = (ws.al[i], ws.be[i], xp.ga[i], xp.de[i], xp.ep[i]);
     let den = ga * qc * qc - 2.0 * de * qc + ep;
     let coef = (al * qc - be) / den;
     let b = if line {
-        (c.sxr - coef * sum_xh) / c.sxx
+        (c.sxr - coef * sum_xh) / xp.sxx
     } else {
         0.0
     };
-    let a_c = -coef * sum_h / c.sw;
+    let a_c = -coef * sum_h / xp.sw;
     BreakSolution {
-        q: qc + c.xm,
-        a: c.rm + a_c - b * c.xm,
+        q: qc + xp.xm,
+        a: c.rm + a_c - b * xp.xm,
         b,
         c: coef,
-        sse: best.sse,
-        sse_null: c.sse_null(line),
-        n_below: best.k,
-        interval: best.k - m,
-        n_intervals,
+        sse: (sse_null - ws.num[i] / ws.den[i]).max(0.0),
+        sse_null,
+        n_below: m + i,
+        interval: i,
+        n_intervals: xp.ga.len(),
     }
-}
-
-/// The inner products `[⟨r,u⟩, ⟨r,v⟩, ⟨u,u⟩, ⟨u,v⟩, ⟨v,v⟩]` after projecting out the base
-/// regressors, from the prefix sums `[Σw, Σw x, Σw x², Σw r, Σw x r]` (centred data).
-fn projected(s: &[f64; 5], sw: f64, sxx: f64, sxr: f64, line: bool) -> [f64; 5] {
-    let [s_w, s_x, s_xx, s_r, s_xr] = *s;
-    let mut out = [
-        s_r,
-        s_xr,
-        s_w - s_w * s_w / sw,
-        s_x - s_w * s_x / sw,
-        s_xx - s_x * s_x / sw,
-    ];
-    if line {
-        out[0] -= s_x * sxr / sxx;
-        out[1] -= s_xx * sxr / sxx;
-        out[2] -= s_x * s_x / sxx;
-        out[3] -= s_x * s_xx / sxx;
-        out[4] -= s_xx * s_xx / sxx;
-    }
-    out
 }
 
 #[cfg(test)]
@@ -374,6 +553,114 @@ mod tests {
                 (sse_coef - s.sse).abs() < 1e-9 * (1.0 + s.sse),
                 "trial {trial}"
             );
+        }
+    }
+
+    /// The search done the slow way: every allowed break interval's sums summed afresh,
+    /// the same closed forms, the first least SSE kept.
+    fn slow_search(x: &[f64], r: &[f64], w: &[f64], line: bool, m: usize) -> Option<(f64, f64)> {
+        let p = x.len();
+        let mut idx: Vec<usize> = (0..p).collect();
+        idx.sort_by(|&i, &j| x[i].total_cmp(&x[j]));
+        let sw: f64 = w.iter().sum();
+        let xm = (0..p).map(|i| w[i] * x[i]).sum::<f64>() / sw;
+        let rm = (0..p).map(|i| w[i] * r[i]).sum::<f64>() / sw;
+        let sxx: f64 = (0..p).map(|i| w[i] * (x[i] - xm).powi(2)).sum();
+        let sxr: f64 = (0..p).map(|i| w[i] * (x[i] - xm) * (r[i] - rm)).sum();
+        let srr: f64 = (0..p).map(|i| w[i] * (r[i] - rm).powi(2)).sum();
+        let sse_null = if line { srr - sxr * sxr / sxx } else { srr };
+        let mut best: Option<(f64, f64)> = None;
+        for k in m..=(p - m) {
+            let mut s = [0.0; 5];
+            for &i in &idx[..k] {
+                let (dx, dr) = (x[i] - xm, r[i] - rm);
+                s = [
+                    s[0] + w[i],
+                    s[1] + w[i] * dx,
+                    s[2] + w[i] * dx * dx,
+                    s[3] + w[i] * dr,
+                    s[4] + w[i] * dx * dr,
+                ];
+            }
+            let l = if line { 1.0 } else { 0.0 };
+            let al = s[3] - l * s[1] * sxr / sxx;
+            let be = s[4] - l * s[2] * sxr / sxx;
+            let ga = s[0] - s[0] * s[0] / sw - l * s[1] * s[1] / sxx;
+            let de = s[1] - s[0] * s[1] / sw - l * s[1] * s[2] / sxx;
+            let ep = s[2] - s[1] * s[1] / sw - l * s[2] * s[2] / sxx;
+            let (lo, hi) = (x[idx[k - 1]] - xm, x[idx[k]] - xm);
+            let q_star = (be * de - al * ep) / (be * ga - al * de);
+            let qs = if q_star > lo && q_star < hi {
+                vec![q_star, hi]
+            } else {
+                vec![hi]
+            };
+            for q in qs {
+                let den = ga * q * q - 2.0 * de * q + ep;
+                if den > 1e-12 * sxx {
+                    let sse = (sse_null - (al * q - be).powi(2) / den).max(0.0);
+                    if best.is_none_or(|b| sse < b.1) {
+                        best = Some((q + xm, sse));
+                    }
+                }
+            }
+        }
+        best
+    }
+
+    #[test]
+    fn the_one_pass_search_finds_what_the_slow_search_finds() {
+        // Random points with ties in x, reused workspaces (the x part remembered between
+        // searches on the same points, then points and weights changed under it).
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(5);
+        let mut ws = Workspace::default();
+        for trial in 0..300 {
+            let line = trial % 2 == 0;
+            let p = 8 + trial % 40;
+            let m = 1 + trial % 4;
+            let x: Vec<f64> = (0..p)
+                .map(|_| (rng.random::<f64>() * 20.0).round() / 20.0)
+                .collect();
+            let w: Vec<f64> = (0..p).map(|_| 0.2 + rng.random::<f64>()).collect();
+            let base = if line { Base::Line } else { Base::Constant };
+            for again in 0..3 {
+                let r: Vec<f64> = x
+                    .iter()
+                    .map(|&x| 0.4 * x - 0.9 * (0.45 - x).max(0.0) + 0.1 * rng.random::<f64>())
+                    .collect();
+                let fast = search(&x, &r, &w, base, m, &mut ws, None).map(|s| (s.q, s.sse));
+                let slow = slow_search(&x, &r, &w, line, m);
+                match (fast, slow) {
+                    (Some(a), Some(b)) => assert!(
+                        (a.0 - b.0).abs() < 1e-9 && (a.1 - b.1).abs() < 1e-9 * (1.0 + b.1),
+                        "trial {trial}.{again}: {a:?} vs {b:?}"
+                    ),
+                    (a, b) => assert_eq!(a.is_some(), b.is_some(), "trial {trial}.{again}"),
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn a_remembered_x_part_gives_what_a_fresh_workspace_gives() {
+        let x: Vec<f64> = (0..40).map(|i| ((i * 17) % 40) as f64 / 40.0).collect();
+        let w: Vec<f64> = (0..40).map(|i| 1.0 + (i % 3) as f64).collect();
+        let r1: Vec<f64> = x.iter().map(|&x| 1.0 - 0.6 * (0.5 - x).max(0.0)).collect();
+        let r2: Vec<f64> = x
+            .iter()
+            .map(|&x| 1.0 - 0.3 * (0.3 - x).max(0.0) + 0.01 * x)
+            .collect();
+        let mut kept = Workspace::default();
+        for base in [Base::Constant, Base::Line] {
+            search(&x, &r1, &w, base, 3, &mut kept, None).unwrap();
+            let again = search(&x, &r2, &w, base, 3, &mut kept, None).unwrap();
+            let fresh = search(&x, &r2, &w, base, 3, &mut Workspace::default(), None).unwrap();
+            assert_eq!(again, fresh);
+            // Other weights on the same x must not reuse the remembered part.
+            let w2: Vec<f64> = w.iter().rev().copied().collect();
+            let other = search(&x, &r2, &w2, base, 3, &mut kept, None).unwrap();
+            let fresh = search(&x, &r2, &w2, base, 3, &mut Workspace::default(), None).unwrap();
+            assert_eq!(other, fresh);
         }
     }
 
