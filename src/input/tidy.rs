@@ -722,6 +722,17 @@ impl Rows {
             ));
         }
         let np = self.points.len();
+        if let Some([corr, resp, corr_eq]) = self.fill(with_eq) {
+            let corr_eq = with_eq.then_some(corr_eq);
+            let campaign = Campaign::new(self.sample_ids, self.points, corr, resp, corr_eq)
+                .map_err(|e| err(None, e.to_string()))?;
+            return Ok(ReadCampaign {
+                campaign,
+                excluded: Vec::new(),
+                observable: None,
+                more: Vec::new(),
+            });
+        }
         let mut seen_at: Vec<u64> = vec![0; n * np];
         for ((&s, &p), &line) in self.sample.iter().zip(&self.point).zip(&self.line) {
             let slot = &mut seen_at[s as usize * np + p as usize];
@@ -796,6 +807,35 @@ impl Rows {
             observable: None,
             more: Vec::new(),
         })
+    }
+
+    /// The samples × points arrays (`corr_eq`'s empty without the column) in one pass,
+    /// when every sample has every point exactly once, as in most files: then there are
+    /// `samples × points` rows and none repeats a slot (a slot not yet filled is NaN; the
+    /// values read are finite). `None` otherwise, for the checks that word the error or
+    /// leave out samples.
+    fn fill(&self, with_eq: bool) -> Option<[Array2<f64>; 3]> {
+        let (n, np) = (self.sample_ids.len(), self.points.len());
+        if self.line.len() != n * np {
+            return None;
+        }
+        let mut corr = Array2::<f64>::from_elem((n, np), f64::NAN);
+        let mut resp = Array2::<f64>::zeros((n, np));
+        let mut corr_eq = Array2::<f64>::zeros(if with_eq { (n, np) } else { (0, 0) });
+        let (c, r) = (corr.as_slice_mut()?, resp.as_slice_mut()?);
+        let e = corr_eq.as_slice_mut()?;
+        for (k, (&s, &p)) in self.sample.iter().zip(&self.point).enumerate() {
+            let at = s as usize * np + p as usize;
+            if !c[at].is_nan() {
+                return None;
+            }
+            c[at] = self.corr[k];
+            r[at] = self.resp[k];
+            if with_eq {
+                e[at] = self.corr_eq[k];
+            }
+        }
+        Some([corr, resp, corr_eq])
     }
 
     /// Every sample has every grid point (`seen_at` holds the line of each, 0 if none).

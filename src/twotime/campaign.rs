@@ -64,7 +64,9 @@ impl Campaign {
             ("resp", Some(&resp)),
             ("corr_eq", corr_eq.as_ref()),
         ] {
+            // One quick pass; the slot is looked for only when there is one.
             if let Some(a) = a
+                && !a.iter().fold(true, |ok, v| ok & v.is_finite())
                 && let Some(((i, j), v)) = a.indexed_iter().find(|(_, v)| !v.is_finite())
             {
                 return Err(Error::Analysis(format!(
@@ -96,15 +98,21 @@ impl Campaign {
         // file changes nothing: resample index i always means the same sample.
         let mut rows: Vec<usize> = (0..n).collect();
         rows.sort_by(|&a, &b| sample_ids[a].cmp(&sample_ids[b]));
-        let reorder = |a: &Array2<f64>| {
-            a.select(ndarray::Axis(0), &rows)
-                .select(ndarray::Axis(1), &order)
+        // Most files are in that order already: then the arrays are kept as they are.
+        let in_place = |v: &[usize]| v.iter().enumerate().all(|(i, &j)| i == j);
+        let keep = in_place(&rows) && in_place(&order);
+        let reorder = |a: Array2<f64>| {
+            if keep {
+                a
+            } else {
+                Array2::from_shape_fn((n, p), |(i, j)| a[[rows[i], order[j]]])
+            }
         };
         Ok(Campaign {
             points: order.iter().map(|&j| points[j]).collect(),
-            corr: reorder(&corr),
-            resp: reorder(&resp),
-            corr_eq: corr_eq.as_ref().map(reorder),
+            corr: reorder(corr),
+            resp: reorder(resp),
+            corr_eq: corr_eq.map(reorder),
             sample_ids: rows.iter().map(|&i| sample_ids[i].clone()).collect(),
         })
     }
