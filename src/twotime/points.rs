@@ -6,7 +6,8 @@
 //! the jackknife over samples, which for plain axes equals the usual `s/√n`.
 
 use crate::twotime::campaign::Campaign;
-use ndarray::{Array2, ArrayView1, Axis};
+use ndarray::{Array1, Array2, ArrayView1, ArrayView2, s};
+use rayon::prelude::*;
 
 /// Which quantities go on the axes.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, clap::ValueEnum)]
@@ -54,11 +55,40 @@ impl Transform {
 
 /// The raw data as one `n × (blocks·P)` matrix: `[C | χ | C(t,t)]` per sample row.
 pub fn data_matrix(campaign: &Campaign, normalized: bool) -> Array2<f64> {
-    let mut parts = vec![campaign.corr().view(), campaign.resp().view()];
+    data_matrix_with_room(campaign, normalized, 0)
+}
+
+/// [`data_matrix`] with `extra` more columns (zeros) after the raw ones, for the moment
+/// columns of [`PointVariance::fill_moments`]: one allocation, no copy.
+pub fn data_matrix_with_room(campaign: &Campaign, normalized: bool, extra: usize) -> Array2<f64> {
+    let mut parts = vec![campaign.corr(), campaign.resp()];
     if normalized && let Some(eq) = campaign.corr_eq() {
-        parts.push(eq.view());
+        parts.push(eq);
     }
-    ndarray::concatenate(Axis(1), &parts).expect("blocks share the sample axis")
+    let (n, p) = (campaign.n_samples(), campaign.n_points());
+    let raw = parts.len() * p;
+    let mut out = Array2::<f64>::zeros((n, raw + extra));
+    for (i, mut row) in out.rows_mut().into_iter().enumerate() {
+        for (b, part) in parts.iter().enumerate() {
+            for (o, v) in row
+                .slice_mut(s![b * p..(b + 1) * p])
+                .iter_mut()
+                .zip(part.row(i))
+            {
+                *o = *v;
+            }
+        }
+    }
+    out
+}
+
+/// The mean of every column, summed row by row.
+fn column_means(data: ArrayView2<'_, f64>) -> Array1<f64> {
+    let mut sum = Array1::zeros(data.ncols());
+    for row in data.rows() {
+        sum += &row;
+    }
+    sum / data.nrows().max(1) as f64
 }
 
 /// Parametric points with their sample errors, and the leave-one-sample-out points.
@@ -81,19 +111,23 @@ pub struct Parametric {
 }
 
 impl Parametric {
-    /// Computes the points from the data matrix of [`data_matrix`].
-    pub fn new(data: &Array2<f64>, tf: Transform) -> Self {
+    /// Computes the points from the raw columns of the data matrix of [`data_matrix`]
+    /// (columns after them are not read).
+    pub fn new(data: ArrayView2<'_, f64>, tf: Transform) -> Self {
         let n = data.nrows();
         let p = tf.points;
-        let means = data.mean_axis(Axis(0)).expect("at least one sample");
+        let data = data.slice(s![.., ..tf.blocks() * p]);
+        let means = column_means(data);
         let (mut x, mut y) = (vec![0.0; p], vec![0.0; p]);
         tf.apply(means.view(), &mut x, &mut y);
         let mut x_jack = Array2::zeros((n, p));
         let mut y_jack = Array2::zeros((n, p));
         let nf = n as f64;
         let mut loo = means.clone();
-        for i in 0..n {
-            loo.assign(&((&means * nf - data.row(i)) / (nf - 1.0)));
+        for (i, row) in data.rows().into_iter().enumerate() {
+            for ((l, m), v) in loo.iter_mut().zip(&means).zip(row) {
+                *l = (m * nf - v) / (nf - 1.0);
+            }
             let (xr, yr) = (x_jack.row_mut(i), y_jack.row_mut(i));
             tf.apply(
                 loo.view(),
@@ -101,22 +135,21 @@ impl Parametric {
                 yr.into_slice().expect("row is contiguous"),
             );
         }
+        // Sums over the leave-one-out points, row by row (the arrays are row-major).
         let scale = (nf - 1.0) / nf;
-        let (mut x_se, mut y_se, mut xy_cov) = (vec![0.0; p], vec![0.0; p], vec![0.0; p]);
-        for j in 0..p {
-            let (cx, cy) = (x_jack.column(j), y_jack.column(j));
-            let (mx, my) = (cx.mean().unwrap_or(0.0), cy.mean().unwrap_or(0.0));
-            let (mut sxx, mut syy, mut sxy) = (0.0, 0.0, 0.0);
-            for i in 0..n {
-                let (dx, dy) = (cx[i] - mx, cy[i] - my);
-                sxx += dx * dx;
-                syy += dy * dy;
-                sxy += dx * dy;
+        let (mx, my) = (column_means(x_jack.view()), column_means(y_jack.view()));
+        let (mut sxx, mut syy, mut sxy) = (vec![0.0; p], vec![0.0; p], vec![0.0; p]);
+        for (xr, yr) in x_jack.rows().into_iter().zip(y_jack.rows()) {
+            for j in 0..p {
+                let (dx, dy) = (xr[j] - mx[j], yr[j] - my[j]);
+                sxx[j] += dx * dx;
+                syy[j] += dy * dy;
+                sxy[j] += dx * dy;
             }
-            x_se[j] = (scale * sxx).sqrt();
-            y_se[j] = (scale * syy).sqrt();
-            xy_cov[j] = scale * sxy;
         }
+        let x_se = sxx.iter().map(|v| (scale * v).sqrt()).collect();
+        let y_se = syy.iter().map(|v| (scale * v).sqrt()).collect();
+        let xy_cov = sxy.iter().map(|v| scale * v).collect();
         Parametric {
             x,
             y,
@@ -160,20 +193,19 @@ pub struct PointVariance {
 }
 
 impl PointVariance {
-    /// The variance spec for `r = (α C + β χ)/e` with the centres taken from `data`.
-    pub fn new(data: &Array2<f64>, tf: Transform, alpha: f64, beta: f64) -> Self {
+    /// The variance spec for `r = (α C + β χ)/e` with the centres taken from the raw
+    /// columns of `data`.
+    pub fn new(data: ArrayView2<'_, f64>, tf: Transform, alpha: f64, beta: f64) -> Self {
         let p = tf.points;
         let n = data.nrows().max(1) as f64;
-        let centre = (0..p)
-            .map(|j| {
-                let (mut a, mut e) = (0.0, 0.0);
-                for row in data.rows() {
-                    a += alpha * row[j] + beta * row[p + j];
-                    e += if tf.normalized { row[2 * p + j] } else { 1.0 };
-                }
-                (a / n) / (e / n)
-            })
-            .collect();
+        let (mut a, mut e) = (vec![0.0; p], vec![0.0; p]);
+        for row in data.rows() {
+            for j in 0..p {
+                a[j] += alpha * row[j] + beta * row[p + j];
+                e[j] += if tf.normalized { row[2 * p + j] } else { 1.0 };
+            }
+        }
+        let centre = a.iter().zip(&e).map(|(a, e)| (a / n) / (e / n)).collect();
         PointVariance {
             alpha,
             beta,
@@ -189,25 +221,26 @@ impl PointVariance {
         self.points * if self.normalized { 3 } else { 1 }
     }
 
-    /// `data` with the moment columns appended.
-    pub fn extend(&self, data: &Array2<f64>) -> Array2<f64> {
-        let p = self.points;
-        let mut out = Array2::zeros((data.nrows(), self.offset + self.extra_columns()));
-        for (i, row) in data.rows().into_iter().enumerate() {
-            for k in 0..self.offset {
-                out[[i, k]] = row[k];
-            }
+    /// Writes the moment columns of every row of `data` (made by
+    /// [`data_matrix_with_room`] with [`PointVariance::extra_columns`] of room), rows in
+    /// parallel.
+    pub fn fill_moments(&self, data: &mut Array2<f64>) {
+        let (p, off, cols) = (self.points, self.offset, data.ncols());
+        let Some(flat) = data.as_slice_mut() else {
+            return;
+        };
+        flat.par_chunks_mut(cols.max(1)).for_each(|row| {
+            let (raw, moments) = row.split_at_mut(off);
             for j in 0..p {
-                let e = if self.normalized { row[2 * p + j] } else { 1.0 };
-                let a = self.alpha * row[j] + self.beta * row[p + j] - self.centre[j] * e;
-                out[[i, self.offset + j]] = a * a;
+                let e = if self.normalized { raw[2 * p + j] } else { 1.0 };
+                let a = self.alpha * raw[j] + self.beta * raw[p + j] - self.centre[j] * e;
+                moments[j] = a * a;
                 if self.normalized {
-                    out[[i, self.offset + p + j]] = a * e;
-                    out[[i, self.offset + 2 * p + j]] = e * e;
+                    moments[p + j] = a * e;
+                    moments[2 * p + j] = e * e;
                 }
             }
-        }
-        out
+        });
     }
 
     /// The variance of every point's fitted quantity from the moments `means` (a row of

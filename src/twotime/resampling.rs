@@ -11,7 +11,7 @@ use super::fitting::{
 };
 use super::lack_of_fit::LofNull;
 use super::model::{Draw, Values};
-use super::points::{Axes, Parametric, PointVariance, Transform, data_matrix};
+use super::points::{Axes, Parametric, PointVariance, Transform, data_matrix_with_room};
 use super::settings::{FitSettings, Hold, Weighting};
 use super::shape::{self, Setup};
 use crate::common::Progress;
@@ -99,8 +99,14 @@ pub fn prepare(
         normalized,
         points: campaign.n_points(),
     };
-    let raw = data_matrix(campaign, normalized);
-    let pm = Parametric::new(&raw, tf);
+    let alpha = spec.model.c_factor();
+    let extra = match settings.weights {
+        Weighting::Uniform => 0,
+        Weighting::InverseVariance => campaign.n_points() * if normalized { 3 } else { 1 },
+    };
+    let mut data = data_matrix_with_room(campaign, normalized, extra);
+    let pm = Parametric::new(data.view(), tf);
+
     let finite = |v: &f64| v.is_finite() && (v * v * 1e6).is_finite();
     if !pm
         .x
@@ -116,13 +122,13 @@ pub fn prepare(
                 .into(),
         ));
     }
-    let alpha = spec.model.c_factor();
-    let (rule, data) = match settings.weights {
-        Weighting::Uniform => (WeightRule::Uniform, raw),
+    let rule = match settings.weights {
+        Weighting::Uniform => WeightRule::Uniform,
         Weighting::InverseVariance => {
-            let pv = PointVariance::new(&raw, tf, alpha, kt);
-            let data = pv.extend(&raw);
-            (WeightRule::Inverse { pv, floor: 0.0 }, data)
+            let pv = PointVariance::new(data.view(), tf, alpha, kt);
+            debug_assert_eq!(pv.extra_columns(), extra);
+            pv.fill_moments(&mut data);
+            WeightRule::Inverse { pv, floor: 0.0 }
         }
     };
     let mut prep = Prepared {
