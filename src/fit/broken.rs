@@ -142,30 +142,32 @@ impl XPart {
         if !(self.sxx > 0.0) {
             return false;
         }
-        self.dx.clear();
-        self.ws.clear();
-        self.wdx.clear();
-        for &i in order {
-            let dx = x[i] - self.xm;
-            self.dx.push(dx);
-            self.ws.push(w[i]);
-            self.wdx.push(w[i] * dx);
+        for v in [&mut self.dx, &mut self.ws, &mut self.wdx] {
+            v.resize(p, 0.0);
+        }
+        let sorted = self.dx.iter_mut().zip(&mut self.ws).zip(&mut self.wdx);
+        for (((dx, ws), wdx), &i) in sorted.zip(order) {
+            *dx = x[i] - self.xm;
+            *ws = w[i];
+            *wdx = w[i] * *dx;
         }
         // Prefix sums (one pass in sorted order), then the projection of every interval
         // (no dependence between intervals: vectorized).
         let n = p + 1 - 2 * m;
         for v in [&mut self.s0, &mut self.s1, &mut self.s2] {
-            v.clear();
+            v.resize(n, 0.0);
         }
         let mut s = [0.0f64; 3];
-        for k in 0..(p - m) {
-            s[0] += self.ws[k];
-            s[1] += self.wdx[k];
-            s[2] += self.wdx[k] * self.dx[k];
+        let points = self.ws.iter().zip(&self.wdx).zip(&self.dx);
+        for (k, ((w, wdx), dx)) in points.take(p - m).enumerate() {
+            s[0] += w;
+            s[1] += wdx;
+            s[2] += wdx * dx;
             if k + 1 >= m {
-                self.s0.push(s[0]);
-                self.s1.push(s[1]);
-                self.s2.push(s[2]);
+                let j = k + 1 - m;
+                self.s0[j] = s[0];
+                self.s1[j] = s[1];
+                self.s2[j] = s[2];
             }
         }
         for v in [&mut self.ga, &mut self.de, &mut self.ep] {
@@ -347,23 +349,20 @@ impl Workspace {
     /// of `w dr` and `w dx dr` over the sorted points.
     fn response_part(&mut self, r: &[f64], c: &Centred, line: bool, m: usize) {
         let xp = &self.xp;
-        self.al.clear();
-        self.be.clear();
-        let (mut s3, mut s4) = (0.0f64, 0.0f64);
         let n_intervals = xp.ga.len();
-        for (k, &i) in self.order[..m + n_intervals - 1].iter().enumerate() {
+        self.al.resize(n_intervals, 0.0);
+        self.be.resize(n_intervals, 0.0);
+        let (mut s3, mut s4) = (0.0f64, 0.0f64);
+        let slope = if line { c.slope } else { 0.0 };
+        let sorted = self.order.iter().zip(&xp.ws).zip(&xp.wdx);
+        for (k, ((&i, w), wdx)) in sorted.take(m + n_intervals - 1).enumerate() {
             let dr = r[i] - c.rm;
-            s3 += xp.ws[k] * dr;
-            s4 += xp.wdx[k] * dr;
+            s3 += w * dr;
+            s4 += wdx * dr;
             if k + 1 >= m {
                 let j = k + 1 - m;
-                if line {
-                    self.al.push(s3 - xp.s1[j] * c.slope);
-                    self.be.push(s4 - xp.s2[j] * c.slope);
-                } else {
-                    self.al.push(s3);
-                    self.be.push(s4);
-                }
+                self.al[j] = s3 - xp.s1[j] * slope;
+                self.be[j] = s4 - xp.s2[j] * slope;
             }
         }
     }

@@ -83,6 +83,15 @@ impl Scratch {
     }
 }
 
+/// The responses of the points in `sc`, moved by `shift` (`r = α x + y − shift`).
+fn moved_responses(spec: Spec, sc: &mut Scratch, shift: &[f64]) {
+    let alpha = spec.model.c_factor();
+    sc.r.resize(sc.x.len(), 0.0);
+    for (((r, x), y), d) in sc.r.iter_mut().zip(&sc.x).zip(&sc.y).zip(shift) {
+        *r = alpha * x + y - d;
+    }
+}
+
 /// Fits one group. Leaves the group's points in `sc` for [`null_statistic`].
 pub fn fit_group(
     g: &Group,
@@ -91,15 +100,14 @@ pub fn fit_group(
     sc: &mut Scratch,
     profile: Option<&mut Vec<(f64, f64)>>,
 ) -> Option<Values> {
-    sc.x.clear();
-    sc.y.clear();
-    sc.r.clear();
-    sc.w.clear();
-    for &j in &g.idx {
-        sc.x.push(pts.x[j]);
-        sc.y.push(pts.y[j]);
-        sc.w.push(pts.w[j]);
-        sc.r.push(spec.model.response(pts.x[j], pts.y[j]));
+    for v in [&mut sc.x, &mut sc.y, &mut sc.r, &mut sc.w] {
+        v.resize(g.idx.len(), 0.0);
+    }
+    let alpha = spec.model.c_factor();
+    let out = sc.x.iter_mut().zip(&mut sc.y).zip(&mut sc.w).zip(&mut sc.r);
+    for ((((x, y), w), r), &j) in out.zip(&g.idx) {
+        (*x, *y, *w) = (pts.x[j], pts.y[j], pts.w[j]);
+        *r = alpha * *x + *y;
     }
     let mut buf = std::mem::take(&mut sc.buf);
     let v = spec
@@ -112,10 +120,7 @@ pub fn fit_group(
 /// The statistic `SSE(null) − SSE(model)` of the resample whose points [`fit_group`] just
 /// left in `sc`, after moving it onto the fitted null model (`r − shift`).
 pub fn null_statistic(spec: Spec, sc: &mut Scratch, shift: &[f64]) -> f64 {
-    sc.r.clear();
-    for ((x, y), d) in sc.x.iter().zip(&sc.y).zip(shift) {
-        sc.r.push(spec.model.response(*x, *y) - d);
-    }
+    moved_responses(spec, sc, shift);
     let mut buf = std::mem::take(&mut sc.buf);
     let gap = spec.model.sse_gap(sc.points(), spec.min_branch, &mut buf);
     sc.buf = buf;
@@ -126,10 +131,7 @@ pub fn null_statistic(spec: Spec, sc: &mut Scratch, shift: &[f64]) -> f64 {
 /// (x, y and its own weights), after moving it onto the fitted model (`r − shift`):
 /// refitted with its own weights, its residuals binned with the full-data weights.
 pub fn lof_statistic(spec: Spec, sc: &mut Scratch, null: &LofNull) -> f64 {
-    sc.r.clear();
-    for ((x, y), d) in sc.x.iter().zip(&sc.y).zip(&null.shift) {
-        sc.r.push(spec.model.response(*x, *y) - d);
-    }
+    moved_responses(spec, sc, &null.shift);
     let mut buf = std::mem::take(&mut sc.buf);
     let sol = spec.model.solve(sc.points(), spec.min_branch, &mut buf);
     sc.buf = buf;
@@ -199,10 +201,7 @@ pub fn shape_record(sc: &Scratch, setup: &Setup, row: &mut [f64]) {
 /// The shape statistic of the resample whose points [`fit_group`] left in `sc`, after
 /// moving it onto the fitted broken stick: both models refitted with its own weights.
 pub fn shape_null(spec: Spec, sc: &mut Scratch, setup: &Setup) -> f64 {
-    sc.r.clear();
-    for ((x, y), d) in sc.x.iter().zip(&sc.y).zip(&setup.shift) {
-        sc.r.push(spec.model.response(*x, *y) - d);
-    }
+    moved_responses(spec, sc, &setup.shift);
     let mut buf = std::mem::take(&mut sc.buf);
     let sol = spec.model.solve(sc.points(), spec.min_branch, &mut buf);
     sc.buf = buf;
