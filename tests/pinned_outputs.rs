@@ -185,6 +185,37 @@ fn comparable_json(text: &str) -> String {
     serde_json::to_string_pretty(&v).unwrap()
 }
 
+/// Where two JSON texts differ: the same keys, strings and flags, and numbers equal to
+/// 1e-9 relative (a change in the order of a sum moves the last digits of a number, not
+/// what the tool says; the text report, compared exactly, prints fewer digits).
+fn json_difference(a: &str, b: &str) -> Option<String> {
+    fn walk(a: &serde_json::Value, b: &serde_json::Value, at: &str) -> Option<String> {
+        use serde_json::Value as V;
+        match (a, b) {
+            (V::Number(x), V::Number(y)) => {
+                let (x, y) = (x.as_f64()?, y.as_f64()?);
+                ((x - y).abs() > 1e-9 * x.abs().max(y.abs()).max(1e-300))
+                    .then(|| format!("{at}: {x} vs {y}"))
+            }
+            (V::Array(x), V::Array(y)) if x.len() == y.len() => x
+                .iter()
+                .zip(y)
+                .enumerate()
+                .find_map(|(i, (u, v))| walk(u, v, &format!("{at}[{i}]"))),
+            (V::Object(x), V::Object(y)) if x.len() == y.len() => {
+                x.iter().find_map(|(k, u)| match y.get(k) {
+                    Some(v) => walk(u, v, &format!("{at}/{k}")),
+                    None => Some(format!("{at}/{k}: missing")),
+                })
+            }
+            _ => (a != b).then(|| format!("{at}: {a} vs {b}")),
+        }
+    }
+    let (a, b): (serde_json::Value, serde_json::Value) =
+        (serde_json::from_str(a).ok()?, serde_json::from_str(b).ok()?);
+    walk(&a, &b, "")
+}
+
 #[test]
 fn reports_and_json_are_unchanged_on_every_pinned_campaign() {
     let bless = std::env::var_os("FDTEMP_BLESS").is_some();
@@ -227,8 +258,8 @@ fn reports_and_json_are_unchanged_on_every_pinned_campaign() {
         if text != pinned_text {
             failures.push(format!("{}: text report differs", case.name));
         }
-        if comparable_json(&json) != comparable_json(&pinned_json) {
-            failures.push(format!("{}: JSON differs", case.name));
+        if let Some(at) = json_difference(&comparable_json(&json), &comparable_json(&pinned_json)) {
+            failures.push(format!("{}: JSON differs at {at}", case.name));
         }
     }
     assert!(failures.is_empty(), "{failures:#?}");
