@@ -67,15 +67,30 @@ pub fn draw_counts(seed: u64, index: u64, n: usize, counts: &mut [u32]) {
 /// counts of [`draw_counts`] divided by `n`: one row of `W` in the product `W · D`, whose
 /// rows are then the replicates' means. `counts` is scratch of length `n`.
 pub fn weight_rows(seed: u64, b0: usize, rows: usize, counts: &mut [u32]) -> ndarray::Array2<f64> {
+    let mut wm = ndarray::Array2::<f64>::zeros((0, 0));
+    weight_rows_into(seed, b0, rows, counts, &mut wm);
+    wm
+}
+
+/// [`weight_rows`] written into `wm` (reshaped when its shape differs), so that chunk
+/// after chunk reuses one allocation.
+pub fn weight_rows_into(
+    seed: u64,
+    b0: usize,
+    rows: usize,
+    counts: &mut [u32],
+    wm: &mut ndarray::Array2<f64>,
+) {
     let n = counts.len();
-    let mut wm = ndarray::Array2::<f64>::zeros((rows, n));
-    for r in 0..rows {
+    if wm.dim() != (rows, n) {
+        *wm = ndarray::Array2::<f64>::zeros((rows, n));
+    }
+    for (r, mut row) in wm.rows_mut().into_iter().enumerate() {
         draw_counts(seed, (b0 + r) as u64, n, counts);
-        for (i, &cnt) in counts.iter().enumerate() {
-            wm[[r, i]] = f64::from(cnt) / n as f64;
+        for (w, &cnt) in row.iter_mut().zip(counts.iter()) {
+            *w = f64::from(cnt) / n as f64;
         }
     }
-    wm
 }
 
 /// Bootstraps a statistic of `n` independent units: `stat` receives the drawn indices.
@@ -182,27 +197,31 @@ pub struct Interval {
 /// `W · D` for a row-major `W` (`reps × n`) and `D` (`n × cols`) on faer's matrix product
 /// (runtime AVX2/AVX-512 dispatch), one thread per call: chunks already run in parallel.
 pub fn product(w: &ndarray::Array2<f64>, d: &ndarray::Array2<f64>) -> ndarray::Array2<f64> {
+    let mut out = ndarray::Array2::<f64>::zeros((0, 0));
+    product_into(w, d, &mut out);
+    out
+}
+
+/// [`product`] written into `out` (reshaped when its shape differs), so that chunk after
+/// chunk reuses one allocation.
+pub fn product_into(
+    w: &ndarray::Array2<f64>,
+    d: &ndarray::Array2<f64>,
+    out: &mut ndarray::Array2<f64>,
+) {
     let (rows, n, cols) = (w.nrows(), w.ncols(), d.ncols());
-    match (w.as_slice(), d.as_slice()) {
-        (Some(ws), Some(ds)) if d.nrows() == n => {
-            let mut out = ndarray::Array2::<f64>::zeros((rows, cols));
-            if let Some(os) = out.as_slice_mut() {
-                let lhs = faer::MatRef::from_row_major_slice(ws, rows, n);
-                let rhs = faer::MatRef::from_row_major_slice(ds, n, cols);
-                let dst = faer::MatMut::from_row_major_slice_mut(os, rows, cols);
-                faer::linalg::matmul::matmul(
-                    dst,
-                    faer::Accum::Replace,
-                    lhs,
-                    rhs,
-                    1.0,
-                    faer::Par::Seq,
-                );
-                return out;
-            }
-            w.dot(d)
-        }
-        _ => w.dot(d),
+    if out.dim() != (rows, cols) {
+        *out = ndarray::Array2::<f64>::zeros((rows, cols));
+    }
+    if let (Some(ws), Some(ds), Some(os)) = (w.as_slice(), d.as_slice(), out.as_slice_mut())
+        && d.nrows() == n
+    {
+        let lhs = faer::MatRef::from_row_major_slice(ws, rows, n);
+        let rhs = faer::MatRef::from_row_major_slice(ds, n, cols);
+        let dst = faer::MatMut::from_row_major_slice_mut(os, rows, cols);
+        faer::linalg::matmul::matmul(dst, faer::Accum::Replace, lhs, rhs, 1.0, faer::Par::Seq);
+    } else {
+        out.assign(&w.dot(d));
     }
 }
 

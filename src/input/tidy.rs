@@ -191,6 +191,8 @@ struct Rows {
     sample_ids: Vec<String>,
     point_index: HashMap<(u64, u64), u32>,
     points: Vec<GridPoint>,
+    /// The bits of each point's (tw, t), -0 read as 0.
+    point_keys: Vec<(u64, u64)>,
     sample: Vec<u32>,
     point: Vec<u32>,
     corr: Vec<f64>,
@@ -270,9 +272,7 @@ fn parse_in_blocks<R: Read>(
             let mut at = 0;
             for (name, count) in runs? {
                 let s = rows.sample_of(&name, file)?;
-                for v in &vals[at..at + count] {
-                    rows.push(s, v, cols.corr_eq.is_some(), file)?;
-                }
+                rows.push_run(s, &vals[at..at + count], cols.corr_eq.is_some(), file)?;
                 at += count;
             }
         }
@@ -355,7 +355,7 @@ fn observables(rows: Rows, file: &Path, with_eq: bool, drop: bool) -> Result<Rea
             corr_eq: if with_eq { rows.corr_eq[k] } else { f64::NAN },
             line: rows.line[k],
         };
-        r.push(s, &v, with_eq, file)?;
+        r.push_run(s, std::slice::from_ref(&v), with_eq, file)?;
     }
     let mut reads: Vec<ReadCampaign> = Vec::with_capacity(names.len());
     for (name, r) in names.iter().zip(split) {
@@ -632,17 +632,19 @@ fn parse_row(
 }
 
 impl Rows {
-    /// Keeps a row of sample `s`, numbering its point.
-    fn push(&mut self, s: u32, v: &Vals, with_eq: bool, file: &Path) -> Result<()> {
-        let p = self.point_of(v.tw, v.t, file)?;
-        self.sample.push(s);
-        self.point.push(p);
-        self.corr.push(v.corr);
-        self.resp.push(v.resp);
+    /// Keeps a run of rows of sample `s`, numbering their points, column by column.
+    fn push_run(&mut self, s: u32, vals: &[Vals], with_eq: bool, file: &Path) -> Result<()> {
+        self.sample.extend(std::iter::repeat_n(s, vals.len()));
+        self.corr.extend(vals.iter().map(|v| v.corr));
+        self.resp.extend(vals.iter().map(|v| v.resp));
         if with_eq {
-            self.corr_eq.push(v.corr_eq);
+            self.corr_eq.extend(vals.iter().map(|v| v.corr_eq));
         }
-        self.line.push(v.line);
+        self.line.extend(vals.iter().map(|v| v.line));
+        for v in vals {
+            let p = self.point_of(v.tw, v.t, file)?;
+            self.point.push(p);
+        }
         Ok(())
     }
 
@@ -684,13 +686,8 @@ impl Rows {
         let key = (normalize_zero(tw).to_bits(), normalize_zero(t).to_bits());
         // Samples usually list their points in one order: try the one after the last.
         if let Some(&p) = self.point.last() {
-            let next = (p as usize + 1) % self.points.len();
-            let g = self.points[next];
-            if (
-                normalize_zero(g.tw).to_bits(),
-                normalize_zero(g.t).to_bits(),
-            ) == key
-            {
+            let next = (p as usize + 1) % self.point_keys.len();
+            if self.point_keys[next] == key {
                 return Ok(next as u32);
             }
         }
@@ -699,6 +696,7 @@ impl Rows {
         }
         let p = numbered(self.points.len(), "(tw, t) points", file)?;
         self.points.push(GridPoint { tw, t });
+        self.point_keys.push(key);
         self.point_index.insert(key, p);
         Ok(p)
     }

@@ -311,13 +311,14 @@ pub fn bootstrap(
         .for_each_init(
             || {
                 let bufs = vec![vec![0.0; p]; 4];
-                (scratch.to_vec(), vec![0u32; n], bufs)
+                let mats = [Array2::zeros((0, 0)), Array2::zeros((0, 0))];
+                (scratch.to_vec(), vec![0u32; n], bufs, mats)
             },
-            |(sc, counts, bufs), (c, (slot, rows))| {
+            |(sc, counts, bufs, [wm, means]), (c, (slot, rows))| {
                 let b0 = c * CHUNK;
                 let reps_here = slot.len() / ng;
-                let wm = resample::weight_rows(settings.seed, b0, reps_here, counts);
-                let means = resample::product(&wm, &prep.data);
+                resample::weight_rows_into(settings.seed, b0, reps_here, counts, wm);
+                resample::product_into(wm, &prep.data, means);
                 for (r, reps) in slot.chunks_mut(ng).enumerate() {
                     let [x, y, var, w] = &mut bufs[..] else {
                         return;
