@@ -16,8 +16,9 @@ careful reference (polars, BLAS, batched prefix sums) and the vectorized one. Th
 straightforward reference is too slow to run whole at these sizes: its resample cost is
 timed on a few resamples and its jackknife on a few leave-one-out fits, then scaled
 linearly (stated in the output). Floors: the careful reference's own timings of reading
-the CSV alone with polars and of one B x n by n x columns product on numpy's BLAS; and
-fdtemp's (examples/product_floor). Before timing, the estimates of X and q are compared.
+the CSV alone with polars and of one B x n by n x columns product on numpy's BLAS, also
+with the one moment column per point that fdtemp's re-estimated weights add (the fair
+floor of its estimator); and fdtemp's own (examples/product_floor). Before timing, the estimates of X and q are compared.
 With FDTEMP_BIN set, nothing is built and the floor examples are looked for beside it.
 """
 import argparse
@@ -99,11 +100,18 @@ def workload(name, path, b, interval, work):
           f"{' and 5 leave-one-out fits' if p['jackknife_fits'] else ''})")
     print(f"python floor: polars read {fl['polars_read_seconds']:.2f} s + numpy product {fl['numpy_product_seconds']:.2f} s;"
           f" fdtemp / (read + product) = {t_fd / t_floor:.2f}")
+    t_wide = fl["polars_read_seconds"] + fl["numpy_product_with_moments_seconds"]
+    print(f"    with the moment columns of re-estimated weights: numpy product"
+          f" {fl['numpy_product_with_moments_seconds']:.2f} s; fdtemp / (read + product) = {t_fd / t_wide:.2f}")
     if os.path.exists(FLOOR):
         _, text = run([FLOOR, path, str(b)])
         floor = json.loads(text)
         print(f"fdtemp floor: resampling product {floor['product_seconds']:.2f} s + reading {floor['read_seconds']:.2f} s;"
               f" fdtemp / (product + read) = {t_fd / (floor['product_seconds'] + floor['read_seconds']):.2f}")
+        wide = floor["product_with_moments_seconds"]
+        print(f"    with the moment columns: product {wide:.2f} s"
+              f" ({wide / fl['numpy_product_with_moments_seconds']:.2f}x numpy's BLAS on the same shape);"
+              f" fdtemp / (product + read) = {t_fd / (wide + floor['read_seconds']):.2f}")
 
 
 def w2(work):

@@ -66,20 +66,19 @@ pub fn data_matrix_with_room(campaign: &Campaign, normalized: bool, extra: usize
         parts.push(eq);
     }
     let (n, p) = (campaign.n_samples(), campaign.n_points());
-    let raw = parts.len() * p;
-    let mut out = Array2::<f64>::zeros((n, raw + extra));
-    for (i, mut row) in out.rows_mut().into_iter().enumerate() {
-        for (b, part) in parts.iter().enumerate() {
-            for (o, v) in row
-                .slice_mut(s![b * p..(b + 1) * p])
-                .iter_mut()
-                .zip(part.row(i))
-            {
-                *o = *v;
+    let width = parts.len() * p + extra;
+    let mut flat = vec![0.0; n * width];
+    // Rows in parallel (the pages are first touched there too).
+    flat.par_chunks_mut(width.max(1))
+        .enumerate()
+        .for_each(|(i, row)| {
+            for (b, part) in parts.iter().enumerate() {
+                for (o, v) in row[b * p..(b + 1) * p].iter_mut().zip(part.row(i)) {
+                    *o = *v;
+                }
             }
-        }
-    }
-    out
+        });
+    Array2::from_shape_vec((n, width), flat).expect("n rows of the full width")
 }
 
 /// The mean of every column, summed row by row.
@@ -120,21 +119,22 @@ impl Parametric {
         let means = column_means(data);
         let (mut x, mut y) = (vec![0.0; p], vec![0.0; p]);
         tf.apply(means.view(), &mut x, &mut y);
-        let mut x_jack = Array2::zeros((n, p));
-        let mut y_jack = Array2::zeros((n, p));
         let nf = n as f64;
-        let mut loo = means.clone();
-        for (i, row) in data.rows().into_iter().enumerate() {
-            for ((l, m), v) in loo.iter_mut().zip(&means).zip(row) {
-                *l = (m * nf - v) / (nf - 1.0);
-            }
-            let (xr, yr) = (x_jack.row_mut(i), y_jack.row_mut(i));
-            tf.apply(
-                loo.view(),
-                xr.into_slice().expect("row is contiguous"),
-                yr.into_slice().expect("row is contiguous"),
+        let (mut xj, mut yj) = (vec![0.0; n * p], vec![0.0; n * p]);
+        xj.par_chunks_mut(p.max(1))
+            .zip(yj.par_chunks_mut(p.max(1)))
+            .enumerate()
+            .for_each_init(
+                || means.clone(),
+                |loo, (i, (xr, yr))| {
+                    for ((l, m), v) in loo.iter_mut().zip(&means).zip(data.row(i)) {
+                        *l = (m * nf - v) / (nf - 1.0);
+                    }
+                    tf.apply(loo.view(), xr, yr);
+                },
             );
-        }
+        let x_jack = Array2::from_shape_vec((n, p), xj).expect("n rows of P");
+        let y_jack = Array2::from_shape_vec((n, p), yj).expect("n rows of P");
         // Sums over the leave-one-out points, row by row (the arrays are row-major).
         let scale = (nf - 1.0) / nf;
         let (mx, my) = (column_means(x_jack.view()), column_means(y_jack.view()));
