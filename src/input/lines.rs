@@ -287,6 +287,8 @@ impl<'f, R: Read> Blocks<'f, R> {
         // Up to a block more (twice the carry for a long line); the buffer grows only as
         // far as the file goes, so a small file costs no more than its size.
         let want = self.block.max(2 * filled) - filled;
+        // Room for exactly that much: read_to_end would otherwise double the buffer.
+        self.buf.reserve_exact(want);
         let got = (&mut self.reader)
             .take(want as u64)
             .read_to_end(&mut self.buf)

@@ -281,6 +281,9 @@ fn parse_in_blocks<R: Read>(
             rows.reserve_for(size, bytes);
         }
     }
+    // The text and the parsed values are done with before the arrays are made.
+    drop(pool);
+    drop(blocks);
     if head.is_none() {
         return Err(Error::input(
             file,

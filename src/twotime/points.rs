@@ -111,8 +111,10 @@ pub struct Parametric {
 
 impl Parametric {
     /// Computes the points from the raw columns of the data matrix of [`data_matrix`]
-    /// (columns after them are not read).
-    pub fn new(data: ArrayView2<'_, f64>, tf: Transform) -> Self {
+    /// (columns after them are not read). The leave-one-out points are kept only with
+    /// `keep_loo` (BCa intervals and the long-age limit read them); otherwise they are
+    /// made a block of rows at a time for the standard errors, which come out the same.
+    pub fn new(data: ArrayView2<'_, f64>, tf: Transform, keep_loo: bool) -> Self {
         let n = data.nrows();
         let p = tf.points;
         let data = data.slice(s![.., ..tf.blocks() * p]);
@@ -120,44 +122,72 @@ impl Parametric {
         let (mut x, mut y) = (vec![0.0; p], vec![0.0; p]);
         tf.apply(means.view(), &mut x, &mut y);
         let nf = n as f64;
-        let (mut xj, mut yj) = (vec![0.0; n * p], vec![0.0; n * p]);
-        xj.par_chunks_mut(p.max(1))
-            .zip(yj.par_chunks_mut(p.max(1)))
-            .enumerate()
-            .for_each_init(
-                || means.clone(),
-                |loo, (i, (xr, yr))| {
-                    for ((l, m), v) in loo.iter_mut().zip(&means).zip(data.row(i)) {
-                        *l = (m * nf - v) / (nf - 1.0);
-                    }
-                    tf.apply(loo.view(), xr, yr);
-                },
-            );
-        let x_jack = Array2::from_shape_vec((n, p), xj).expect("n rows of P");
-        let y_jack = Array2::from_shape_vec((n, p), yj).expect("n rows of P");
-        // Sums over the leave-one-out points, row by row (the arrays are row-major).
-        let scale = (nf - 1.0) / nf;
-        let (mx, my) = (column_means(x_jack.view()), column_means(y_jack.view()));
+        // Leave-one-out points of rows `first..` into row-major `xj`, `yj`, rows in parallel.
+        let fill = |first: usize, xj: &mut [f64], yj: &mut [f64]| {
+            xj.par_chunks_mut(p.max(1))
+                .zip(yj.par_chunks_mut(p.max(1)))
+                .enumerate()
+                .for_each_init(
+                    || means.clone(),
+                    |loo, (i, (xr, yr))| {
+                        let row = data.row(first + i);
+                        for ((l, m), v) in loo.iter_mut().zip(&means).zip(row) {
+                            *l = (m * nf - v) / (nf - 1.0);
+                        }
+                        tf.apply(loo.view(), xr, yr);
+                    },
+                );
+        };
+        let rows = if keep_loo { n } else { n.min(64) };
+        let (mut xj, mut yj) = (vec![0.0; rows * p], vec![0.0; rows * p]);
+        if keep_loo {
+            fill(0, &mut xj, &mut yj);
+        }
+        // Every leave-one-out row in order, block by block (one block when kept).
+        let mut each_row = |f: &mut dyn FnMut(&[f64], &[f64])| {
+            for first in (0..n).step_by(rows.max(1)) {
+                let here = rows.min(n - first) * p;
+                if !keep_loo {
+                    fill(first, &mut xj[..here], &mut yj[..here]);
+                }
+                for (xr, yr) in xj[..here].chunks(p.max(1)).zip(yj[..here].chunks(p.max(1))) {
+                    f(xr, yr);
+                }
+            }
+        };
+        // Sums over the leave-one-out points, row by row: their means, then the spreads.
+        let (mut mx, mut my) = (Array1::<f64>::zeros(p), Array1::<f64>::zeros(p));
+        each_row(&mut |xr, yr| {
+            for j in 0..p {
+                mx[j] += xr[j];
+                my[j] += yr[j];
+            }
+        });
+        let (mx, my) = (mx / n.max(1) as f64, my / n.max(1) as f64);
         let (mut sxx, mut syy, mut sxy) = (vec![0.0; p], vec![0.0; p], vec![0.0; p]);
-        for (xr, yr) in x_jack.rows().into_iter().zip(y_jack.rows()) {
+        each_row(&mut |xr, yr| {
             for j in 0..p {
                 let (dx, dy) = (xr[j] - mx[j], yr[j] - my[j]);
                 sxx[j] += dx * dx;
                 syy[j] += dy * dy;
                 sxy[j] += dx * dy;
             }
-        }
+        });
+        let scale = (nf - 1.0) / nf;
         let x_se = sxx.iter().map(|v| (scale * v).sqrt()).collect();
         let y_se = syy.iter().map(|v| (scale * v).sqrt()).collect();
         let xy_cov = sxy.iter().map(|v| scale * v).collect();
+        let kept = if keep_loo { n } else { 0 };
+        xj.truncate(kept * p);
+        yj.truncate(kept * p);
         Parametric {
             x,
             y,
             x_se,
             y_se,
             xy_cov,
-            x_jack,
-            y_jack,
+            x_jack: Array2::from_shape_vec((kept, p), xj).expect("rows of P"),
+            y_jack: Array2::from_shape_vec((kept, p), yj).expect("rows of P"),
         }
     }
 }
@@ -266,5 +296,47 @@ impl PointVariance {
             };
             *v = s.max(0.0) / (e * e * dof);
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn standard_errors_do_not_depend_on_keeping_the_leave_one_out_points() {
+        // 150 samples (more than one block of 64 rows), 7 points, normalized axes.
+        let (n, p) = (150, 7);
+        let data = Array2::from_shape_fn((n, 3 * p), |(i, j)| {
+            let u = ((i * 31 + j * 17) % 97) as f64 / 97.0;
+            if j >= 2 * p { 1.0 + 0.1 * u } else { u - 0.3 }
+        });
+        let tf = Transform {
+            kt: 0.7,
+            normalized: true,
+            points: p,
+        };
+        let kept = Parametric::new(data.view(), tf, true);
+        let streamed = Parametric::new(data.view(), tf, false);
+        assert_eq!(kept.x_jack.dim(), (n, p));
+        assert_eq!(streamed.x_jack.nrows(), 0);
+        for (a, b) in [
+            (&kept.x_se, &streamed.x_se),
+            (&kept.y_se, &streamed.y_se),
+            (&kept.xy_cov, &streamed.xy_cov),
+        ] {
+            assert!(a.iter().zip(b).all(|(u, v)| u.to_bits() == v.to_bits()));
+            assert!(a.iter().all(|v| v.is_finite() && *v != 0.0));
+        }
+        // Plain axes: the jackknife standard error of a mean is s/√n (common practice).
+        let tf = Transform {
+            normalized: false,
+            ..tf
+        };
+        let plain = Parametric::new(data.view(), tf, false);
+        let col: Vec<f64> = (0..n).map(|i| data[[i, 0]]).collect();
+        let m = col.iter().sum::<f64>() / n as f64;
+        let s2 = col.iter().map(|v| (v - m).powi(2)).sum::<f64>() / (n as f64 - 1.0);
+        assert!((plain.x_se[0] - (s2 / n as f64).sqrt()).abs() < 1e-12);
     }
 }

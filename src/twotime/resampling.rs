@@ -105,7 +105,9 @@ pub fn prepare(
         Weighting::InverseVariance => campaign.n_points() * if normalized { 3 } else { 1 },
     };
     let mut data = data_matrix_with_room(campaign, normalized, extra);
-    let pm = Parametric::new(data.view(), tf);
+    // Only BCa intervals and the long-age limit read the leave-one-out points.
+    let keep_loo = settings.interval == crate::resample::IntervalMethod::Bca || settings.limit;
+    let pm = Parametric::new(data.view(), tf, keep_loo);
 
     let finite = |v: &f64| v.is_finite() && (v * v * 1e6).is_finite();
     if !pm
