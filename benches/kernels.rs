@@ -22,17 +22,40 @@ fn w_shape(samples: usize) -> fdtemp::Campaign {
 fn break_search(c: &mut Criterion) {
     let p = 1200;
     let x: Vec<f64> = (0..p).map(|i| i as f64 / p as f64).collect();
+    // A second set of x a little off the first (a resample's), so that every search of
+    // the first bench makes its x part afresh, as a resample's fit does.
+    let x2: Vec<f64> = x.iter().map(|&x| x + 1e-4 * (x * 613.0).sin()).collect();
     let r: Vec<f64> = x
         .iter()
         .map(|&x| 1.0 - 0.55 * (0.6 - x).max(0.0) + 1e-3 * (x * 977.0).sin())
         .collect();
+    let r2: Vec<f64> = r.iter().map(|r| r + 1e-3).collect();
     let w = vec![1.0; p];
     let mut ws = Workspace::sorted_by(&x);
-    c.bench_function("break search, 1200 points (order known)", |b| {
+    c.bench_function("break search, 1200 points, new x each call", |b| {
+        let mut flip = false;
         b.iter(|| {
+            flip = !flip;
+            let xs = if flip { &x } else { &x2 };
+            search(
+                black_box(xs),
+                black_box(&r),
+                &w,
+                Base::Constant,
+                5,
+                &mut ws,
+                None,
+            )
+        })
+    });
+    c.bench_function("break search, 1200 points, same x (x part reused)", |b| {
+        let mut flip = false;
+        b.iter(|| {
+            flip = !flip;
+            let rs = if flip { &r } else { &r2 };
             search(
                 black_box(&x),
-                black_box(&r),
+                black_box(rs),
                 &w,
                 Base::Constant,
                 5,

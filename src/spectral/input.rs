@@ -815,7 +815,7 @@ fn first_record_line(
 }
 
 fn memchr_newline(b: &[u8]) -> Option<usize> {
-    b.iter().position(|&c| c == b'\n')
+    memchr::memchr(b'\n', b)
 }
 
 /// Parses one data line of `names.len()` numbers and hands them to `sink`.
@@ -834,12 +834,9 @@ fn emit(
             count = i + 1;
             continue;
         }
-        let v = match field.parse::<f64>() {
-            Ok(v) if v.is_finite() => v,
-            _ => match parse_number_in(field, &names[i], d) {
-                Ok(v) => v,
-                Err(msg) => return Err(Error::input(file, Some(line), Some(i as u64 + 1), msg)),
-            },
+        let v = match parse_number_in(field, &names[i], d) {
+            Ok(v) => v,
+            Err(msg) => return Err(Error::input(file, Some(line), Some(i as u64 + 1), msg)),
         };
         sink(i, v);
         count = i + 1;
