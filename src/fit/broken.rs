@@ -129,8 +129,12 @@ impl XPart {
         let (p, m) = (x.len(), key.1);
         let line = key.0 == Base::Line;
         self.key = None;
-        self.sw = w.iter().sum();
-        self.xm = x.iter().zip(w).map(|(x, w)| w * x).sum::<f64>() / self.sw;
+        let (sw, swx) = x
+            .iter()
+            .zip(w)
+            .fold((0.0, 0.0), |(a, b), (x, w)| (a + w, b + w * x));
+        self.sw = sw;
+        self.xm = swx / sw;
         self.sxx = x
             .iter()
             .zip(w)
@@ -145,29 +149,28 @@ impl XPart {
         for v in [&mut self.dx, &mut self.ws, &mut self.wdx] {
             v.resize(p, 0.0);
         }
-        let sorted = self.dx.iter_mut().zip(&mut self.ws).zip(&mut self.wdx);
-        for (((dx, ws), wdx), &i) in sorted.zip(order) {
-            *dx = x[i] - self.xm;
-            *ws = w[i];
-            *wdx = w[i] * *dx;
-        }
-        // Prefix sums (one pass in sorted order), then the projection of every interval
-        // (no dependence between intervals: vectorized).
+        // The points in sorted order and, in the same pass, the prefix sums (then the
+        // projection of every interval, with no dependence between intervals: vectorized).
         let n = p + 1 - 2 * m;
         for v in [&mut self.s0, &mut self.s1, &mut self.s2] {
             v.resize(n, 0.0);
         }
         let mut s = [0.0f64; 3];
-        let points = self.ws.iter().zip(&self.wdx).zip(&self.dx);
-        for (k, ((w, wdx), dx)) in points.take(p - m).enumerate() {
-            s[0] += w;
-            s[1] += wdx;
-            s[2] += wdx * dx;
-            if k + 1 >= m {
-                let j = k + 1 - m;
-                self.s0[j] = s[0];
-                self.s1[j] = s[1];
-                self.s2[j] = s[2];
+        let sorted = self.dx.iter_mut().zip(&mut self.ws).zip(&mut self.wdx);
+        for (k, (((dx, ws), wdx), &i)) in sorted.zip(order).enumerate() {
+            *dx = x[i] - self.xm;
+            *ws = w[i];
+            *wdx = w[i] * *dx;
+            if k + m < p {
+                s[0] += *ws;
+                s[1] += *wdx;
+                s[2] += *wdx * *dx;
+                if k + 1 >= m {
+                    let j = k + 1 - m;
+                    self.s0[j] = s[0];
+                    self.s1[j] = s[1];
+                    self.s2[j] = s[2];
+                }
             }
         }
         for v in [&mut self.ga, &mut self.de, &mut self.ep] {
