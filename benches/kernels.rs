@@ -32,38 +32,22 @@ fn break_search(c: &mut Criterion) {
     let r2: Vec<f64> = r.iter().map(|r| r + 1e-3).collect();
     let w = vec![1.0; p];
     let mut ws = Workspace::sorted_by(&x);
-    c.bench_function("break search, 1200 points, new x each call", |b| {
-        let mut flip = false;
-        b.iter(|| {
-            flip = !flip;
-            let xs = if flip { &x } else { &x2 };
-            search(
-                black_box(xs),
-                black_box(&r),
-                &w,
-                Base::Constant,
-                5,
-                &mut ws,
-                None,
-            )
-        })
-    });
-    c.bench_function("break search, 1200 points, same x (x part reused)", |b| {
-        let mut flip = false;
-        b.iter(|| {
-            flip = !flip;
-            let rs = if flip { &r } else { &r2 };
-            search(
-                black_box(&x),
-                black_box(rs),
-                &w,
-                Base::Constant,
-                5,
-                &mut ws,
-                None,
-            )
-        })
-    });
+    // Each call alternates between two inputs: new x (the x part made afresh, as in a
+    // resample's fit), or the same x with other responses (the x part reused).
+    let cases = [
+        ("new x each call", [&x, &x2], [&r, &r]),
+        ("same x (x part reused)", [&x, &x], [&r, &r2]),
+    ];
+    for (label, xs, rs) in cases {
+        c.bench_function(&format!("break search, 1200 points, {label}"), |b| {
+            let mut k = 0;
+            b.iter(|| {
+                k ^= 1;
+                let (x, r) = (black_box(xs[k]), black_box(rs[k]));
+                search(x, r, &w, Base::Constant, 5, &mut ws, None)
+            })
+        });
+    }
 }
 
 fn resampling_product(c: &mut Criterion) {

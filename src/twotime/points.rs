@@ -248,7 +248,13 @@ impl PointVariance {
 
     /// Number of moment columns appended (per point: 1 plain, 3 normalized).
     pub fn extra_columns(&self) -> usize {
-        self.points * if self.normalized { 3 } else { 1 }
+        Self::moment_columns(self.points, self.normalized)
+    }
+
+    /// The moment columns that `points` points need, before a spec is made (the room
+    /// [`data_matrix_with_room`] leaves).
+    pub fn moment_columns(points: usize, normalized: bool) -> usize {
+        points * if normalized { 3 } else { 1 }
     }
 
     /// Writes the moment columns of every row of `data` (made by

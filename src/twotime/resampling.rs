@@ -102,7 +102,9 @@ pub fn prepare(
     let alpha = spec.model.c_factor();
     let extra = match settings.weights {
         Weighting::Uniform => 0,
-        Weighting::InverseVariance => campaign.n_points() * if normalized { 3 } else { 1 },
+        Weighting::InverseVariance => {
+            PointVariance::moment_columns(campaign.n_points(), normalized)
+        }
     };
     let mut data = data_matrix_with_room(campaign, normalized, extra);
     // Only BCa intervals and the long-age limit read the leave-one-out points.
