@@ -206,7 +206,11 @@ struct Rows {
 ///
 /// # Errors
 /// As [`read_campaign`].
-pub fn parse_campaign<R: Read>(reader: R, file: &Path, names: &ColumnNames) -> Result<Campaign> {
+pub fn parse_campaign<R: Read + Send>(
+    reader: R,
+    file: &Path,
+    names: &ColumnNames,
+) -> Result<Campaign> {
     let how = CampaignRead {
         names: names.clone(),
         ..CampaignRead::default()
@@ -223,7 +227,7 @@ pub fn parse_campaign<R: Read>(reader: R, file: &Path, names: &ColumnNames) -> R
 ///
 /// # Errors
 /// As [`read_campaign_with`].
-pub fn parse_campaign_with<R: Read>(
+pub fn parse_campaign_with<R: Read + Send>(
     reader: R,
     file: &Path,
     how: &CampaignRead,
@@ -233,7 +237,7 @@ pub fn parse_campaign_with<R: Read>(
 
 /// [`parse_campaign_with`], reading `block` bytes at a time; `size` (the file's length,
 /// when known) lets the row store be sized once.
-fn parse_in_blocks<R: Read>(
+fn parse_in_blocks<R: Read + Send>(
     reader: R,
     file: &Path,
     how: &CampaignRead,
@@ -249,14 +253,16 @@ fn parse_in_blocks<R: Read>(
     let mut rows = Rows::default();
     // One buffer of values per part, kept from block to block.
     let mut pool: Vec<Vec<Vals>> = Vec::new();
-    while let Some(parts) = blocks.next(per_block)? {
+    // One block: its lines split and parsed on all threads, then numbered in file order
+    // (while the next block is read).
+    let mut step = |parts: Vec<Part<'_>>| -> Result<()> {
         // Lines to pass over in each part: those up to and including the header.
         let mut skip = vec![0; parts.len()];
         if head.is_none() {
             head = find_header(&parts, &mut skip, file, how)?;
         }
         let Some((header, cols)) = &head else {
-            continue;
+            return Ok(());
         };
         pool.resize_with(parts.len(), Vec::new);
         let runs: Vec<Result<Runs>> = parts
@@ -280,6 +286,10 @@ fn parse_in_blocks<R: Read>(
             let bytes: usize = parts.iter().map(Part::len).sum();
             rows.reserve_for(size, bytes);
         }
+        Ok(())
+    };
+    while let Some(done) = blocks.next(per_block, &mut step)? {
+        done?;
     }
     // The text and the parsed values are done with before the arrays are made.
     drop(pool);
@@ -532,15 +542,10 @@ fn parse_part<'a>(
     vals: &mut Vec<Vals>,
 ) -> Result<Runs<'a>> {
     let file = part.file();
-    let (lines, bad) = part.lines();
     vals.clear();
     let mut runs: Runs<'a> = Vec::new();
-    let mut fields = Vec::new();
-    for line in lines.skip(skip) {
-        if !lines::fields_of(line, d, &mut fields, file)? {
-            continue;
-        }
-        header.check_count(file, fields.len(), line.number)?;
+    part.rows(d, skip, |number, fields| {
+        header.check_count(file, fields.len(), number)?;
         let key = match cols.observable {
             None => fields[cols.sample].clone(),
             Some(o) => {
@@ -548,7 +553,7 @@ fn parse_part<'a>(
                 if obs.is_empty() || obs.contains(OBSERVABLE_SEP) {
                     return Err(Error::input(
                         file,
-                        Some(line.number),
+                        Some(number),
                         Some(o as u64 + 1),
                         format!(
                             "column '{}' is empty, expected the name of the row's observable",
@@ -557,22 +562,20 @@ fn parse_part<'a>(
                     ));
                 }
                 match only {
-                    Some(only) if obs != only => continue,
+                    Some(only) if obs != only => return Ok(()),
                     Some(_) => fields[cols.sample].clone(),
                     None => Cow::Owned(format!("{obs}{OBSERVABLE_SEP}{}", fields[cols.sample])),
                 }
             }
         };
-        vals.push(parse_row(&fields, cols, names, d, line.number, file)?);
+        vals.push(parse_row(fields, cols, names, d, number, file)?);
         match runs.last_mut() {
             Some((name, count)) if *name == key => *count += 1,
             _ => runs.push((key, 1)),
         }
-    }
-    match bad {
-        Some(e) => Err(e),
-        None => Ok(runs),
-    }
+        Ok(())
+    })?;
+    Ok(runs)
 }
 
 /// Parses and checks one data row.
@@ -706,7 +709,7 @@ impl Rows {
 
     /// The samples × points arrays, once every sample has every point exactly once (or,
     /// with `drop`, of the samples that have every point).
-    fn into_campaign(self, file: &Path, with_eq: bool, drop: bool) -> Result<ReadCampaign> {
+    fn into_campaign(mut self, file: &Path, with_eq: bool, drop: bool) -> Result<ReadCampaign> {
         let err = |line: Option<u64>, msg: String| Error::input(file, line, None, msg);
         if self.line.is_empty() {
             return Err(err(None, "no data rows after the header".into()));
@@ -815,10 +818,26 @@ impl Rows {
     /// `samples × points` rows and none repeats a slot (a slot not yet filled is NaN; the
     /// values read are finite). `None` otherwise, for the checks that word the error or
     /// leave out samples.
-    fn fill(&self, with_eq: bool) -> Option<[Array2<f64>; 3]> {
+    fn fill(&mut self, with_eq: bool) -> Option<[Array2<f64>; 3]> {
         let (n, np) = (self.sample_ids.len(), self.points.len());
         if self.line.len() != n * np {
             return None;
+        }
+        // Rows in sample-major, point-minor order are the arrays already.
+        let in_order = self
+            .sample
+            .iter()
+            .zip(&self.point)
+            .enumerate()
+            .all(|(k, (&s, &p))| s as usize * np + p as usize == k);
+        if in_order {
+            let eq = if with_eq { (n, np) } else { (0, 0) };
+            let take = |v: &mut Vec<f64>, shape| Array2::from_shape_vec(shape, std::mem::take(v));
+            return Some([
+                take(&mut self.corr, (n, np)).ok()?,
+                take(&mut self.resp, (n, np)).ok()?,
+                take(&mut self.corr_eq, eq).ok()?,
+            ]);
         }
         let mut corr = Array2::<f64>::from_elem((n, np), f64::NAN);
         let mut resp = Array2::<f64>::zeros((n, np));
