@@ -544,6 +544,7 @@ fn parse_part<'a>(
     let file = part.file();
     vals.clear();
     let mut runs: Runs<'a> = Vec::new();
+    let mut seen = Seen::default();
     part.rows(d, skip, |number, fields| {
         header.check_count(file, fields.len(), number)?;
         let key = match cols.observable {
@@ -568,9 +569,13 @@ fn parse_part<'a>(
                 }
             }
         };
-        vals.push(parse_row(fields, cols, names, d, number, file)?);
+        let same_run = runs.last().is_some_and(|(name, _)| *name == key);
+        if !same_run {
+            seen.at = 0;
+        }
+        vals.push(parse_row(fields, cols, names, d, number, file, &mut seen)?);
         match runs.last_mut() {
-            Some((name, count)) if *name == key => *count += 1,
+            Some((_, count)) if same_run => *count += 1,
             _ => runs.push((key, 1)),
         }
         Ok(())
@@ -578,14 +583,43 @@ fn parse_part<'a>(
     Ok(runs)
 }
 
+/// The time fields of the rows before, by their text. Files repeat a waiting time over
+/// many rows and list each sample's times in the same order, so most time fields are the
+/// text of one already read, whose number is taken again instead of parsed again (the
+/// same text gives the same number).
+#[derive(Default)]
+struct Seen<'a> {
+    /// The last row's tw.
+    tw: Option<(&'a str, f64)>,
+    /// The t of the rows of the last run of one sample, by place in the run.
+    t: Vec<(&'a str, f64)>,
+    /// The place of the row in its run.
+    at: usize,
+}
+
+/// The number in `field` of column `i`: the one of `last` when the text is the same, else
+/// parsed (and kept in `last` when the text is the file's own).
+fn number_again<'a>(
+    field: &Cow<'a, str>,
+    last: Option<&mut (&'a str, f64)>,
+    parse: impl FnOnce() -> Result<f64>,
+) -> Result<(f64, Option<(&'a str, f64)>)> {
+    match (field, last) {
+        (Cow::Borrowed(f), Some(l)) if *f == l.0 => Ok((l.1, None)),
+        (Cow::Borrowed(f), _) => parse().map(|v| (v, Some((*f, v)))),
+        (Cow::Owned(_), _) => parse().map(|v| (v, None)),
+    }
+}
+
 /// Parses and checks one data row.
-fn parse_row(
-    fields: &[Cow<'_, str>],
+fn parse_row<'a>(
+    fields: &[Cow<'a, str>],
     cols: &Columns,
     names: &ColumnNames,
     d: Delimiter,
     line: u64,
     file: &Path,
+    seen: &mut Seen<'a>,
 ) -> Result<Vals> {
     let err = |col: usize, msg: String| Error::input(file, Some(line), Some(col as u64 + 1), msg);
     let num = |i: usize, name: &str| {
@@ -598,8 +632,22 @@ fn parse_row(
             format!("column '{}' is empty, expected a sample name", names.sample),
         ));
     }
-    let tw = num(cols.tw, &names.tw)?;
-    let t = num(cols.t, &names.t)?;
+    let (tw, keep) = number_again(&fields[cols.tw], seen.tw.as_mut(), || {
+        num(cols.tw, &names.tw)
+    })?;
+    if keep.is_some() {
+        seen.tw = keep;
+    }
+    let (t, keep) = number_again(&fields[cols.t], seen.t.get_mut(seen.at), || {
+        num(cols.t, &names.t)
+    })?;
+    if let Some(k) = keep {
+        match seen.t.get_mut(seen.at) {
+            Some(slot) => *slot = k,
+            None => seen.t.push(k),
+        }
+    }
+    seen.at += 1;
     if !(t > tw) {
         return Err(err(
             cols.t,
@@ -1005,5 +1053,27 @@ mod tests {
                 assert!(e.contains(at), "block {block}: {e}");
             }
         }
+    }
+
+    #[test]
+    fn times_read_again_by_their_text_are_the_times_parsed() {
+        // Samples list their times in other orders and spellings, and a bad time after a
+        // good one of the same place is still an error at its column.
+        let text = "sample,tw,t,corr,resp\n\
+                    a,1,2,0.9,0.1\na,1,3,0.8,0.2\na,1,4,0.7,0.3\n\
+                    b,1,3,0.6,0.4\nb,1.0,2,0.5,0.5\nb,1,4.0,0.4,0.6\n\
+                    c,1,2,0.3,0.7\nc,1,3,0.2,0.8\nc,1,4e0,0.1,0.9\n";
+        for block in [7, 64, lines::BLOCK] {
+            let c = read(text, block).unwrap();
+            let t: Vec<f64> = c.points().iter().map(|g| g.t).collect();
+            assert_eq!(t, [2.0, 3.0, 4.0], "block {block}");
+            // Sample b's rows land at their own times.
+            assert_eq!(c.corr().row(1).to_vec(), [0.5, 0.6, 0.4], "block {block}");
+            assert_eq!(c.corr().row(2).to_vec(), [0.3, 0.2, 0.1], "block {block}");
+        }
+        let bad =
+            "sample,tw,t,corr,resp\na,1,2,0.9,0.1\na,1,3,0.8,0.2\nb,1,2,0.6,0.4\nb,1,3x,0.5,0.5\n";
+        let e = read(bad, lines::BLOCK).unwrap_err();
+        assert!(e.contains("t.csv:5:3"), "{e}");
     }
 }
