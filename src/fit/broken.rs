@@ -149,29 +149,32 @@ impl XPart {
         for v in [&mut self.dx, &mut self.ws, &mut self.wdx] {
             v.resize(p, 0.0);
         }
-        // The points in sorted order and, in the same pass, the prefix sums (then the
-        // projection of every interval, with no dependence between intervals: vectorized).
+        // The points in sorted order, their prefix sums, then the projection of every
+        // interval (with no dependence between intervals: vectorized).
         let n = p + 1 - 2 * m;
         for v in [&mut self.s0, &mut self.s1, &mut self.s2] {
             v.resize(n, 0.0);
         }
-        let mut s = [0.0f64; 3];
         let sorted = self.dx.iter_mut().zip(&mut self.ws).zip(&mut self.wdx);
-        for (k, (((dx, ws), wdx), &i)) in sorted.zip(order).enumerate() {
+        for (((dx, ws), wdx), &i) in sorted.zip(order) {
             *dx = x[i] - self.xm;
             *ws = w[i];
             *wdx = w[i] * *dx;
-            if k + m < p {
-                s[0] += *ws;
-                s[1] += *wdx;
-                s[2] += *wdx * *dx;
-                if k + 1 >= m {
-                    let j = k + 1 - m;
-                    self.s0[j] = s[0];
-                    self.s1[j] = s[1];
-                    self.s2[j] = s[2];
-                }
-            }
+        }
+        // The first m − 1 points only add; each of the next n ends an allowed interval.
+        let mut s = [0.0f64; 3];
+        let mut sorted = self.ws.iter().zip(&self.wdx).zip(&self.dx);
+        for ((ws, wdx), dx) in sorted.by_ref().take(m - 1) {
+            s[0] += ws;
+            s[1] += wdx;
+            s[2] += wdx * dx;
+        }
+        let out = self.s0.iter_mut().zip(&mut self.s1).zip(&mut self.s2);
+        for (((ws, wdx), dx), ((s0, s1), s2)) in sorted.zip(out) {
+            s[0] += ws;
+            s[1] += wdx;
+            s[2] += wdx * dx;
+            (*s0, *s1, *s2) = (s[0], s[1], s[2]);
         }
         for v in [&mut self.ga, &mut self.de, &mut self.ep] {
             v.resize(n, 0.0);
@@ -357,16 +360,21 @@ impl Workspace {
         self.be.resize(n_intervals, 0.0);
         let (mut s3, mut s4) = (0.0f64, 0.0f64);
         let slope = if line { c.slope } else { 0.0 };
-        let sorted = self.order.iter().zip(&xp.ws).zip(&xp.wdx);
-        for (k, ((&i, w), wdx)) in sorted.take(m + n_intervals - 1).enumerate() {
+        let mut sorted = self.order.iter().zip(&xp.ws).zip(&xp.wdx);
+        // The first m − 1 points only add; each later one ends an allowed interval.
+        for ((&i, w), wdx) in sorted.by_ref().take(m - 1) {
             let dr = r[i] - c.rm;
             s3 += w * dr;
             s4 += wdx * dr;
-            if k + 1 >= m {
-                let j = k + 1 - m;
-                self.al[j] = s3 - xp.s1[j] * slope;
-                self.be[j] = s4 - xp.s2[j] * slope;
-            }
+        }
+        let out = self.al.iter_mut().zip(self.be.iter_mut());
+        let sums = xp.s1.iter().zip(&xp.s2);
+        for ((((&i, w), wdx), (al, be)), (s1, s2)) in sorted.zip(out).zip(sums) {
+            let dr = r[i] - c.rm;
+            s3 += w * dr;
+            s4 += wdx * dr;
+            *al = s3 - s1 * slope;
+            *be = s4 - s2 * slope;
         }
     }
 
