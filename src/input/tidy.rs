@@ -597,11 +597,11 @@ struct Seen<'a> {
     at: usize,
 }
 
-/// The number in `field` of column `i`: the one of `last` when the text is the same, else
-/// parsed (and kept in `last` when the text is the file's own).
+/// The number in `field`: `last`'s when the text is the same (and nothing new to keep),
+/// else parsed, with the text and number to keep when the text is the file's own.
 fn number_again<'a>(
     field: &Cow<'a, str>,
-    last: Option<&mut (&'a str, f64)>,
+    last: Option<&(&'a str, f64)>,
     parse: impl FnOnce() -> Result<f64>,
 ) -> Result<(f64, Option<(&'a str, f64)>)> {
     match (field, last) {
@@ -632,13 +632,13 @@ fn parse_row<'a>(
             format!("column '{}' is empty, expected a sample name", names.sample),
         ));
     }
-    let (tw, keep) = number_again(&fields[cols.tw], seen.tw.as_mut(), || {
+    let (tw, keep) = number_again(&fields[cols.tw], seen.tw.as_ref(), || {
         num(cols.tw, &names.tw)
     })?;
     if keep.is_some() {
         seen.tw = keep;
     }
-    let (t, keep) = number_again(&fields[cols.t], seen.t.get_mut(seen.at), || {
+    let (t, keep) = number_again(&fields[cols.t], seen.t.get(seen.at), || {
         num(cols.t, &names.t)
     })?;
     if let Some(k) = keep {
