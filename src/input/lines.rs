@@ -88,8 +88,8 @@ impl<'a> Part<'a> {
     /// error of [`Part::lines`] if the part is not all UTF-8.
     ///
     /// A part with no quote and no `\r`, split at one byte, is cut in a single pass that
-    /// finds every delimiter and line end 64 bytes at a time; any other goes line by line
-    /// through [`fields_of`]. Both give the same fields (see the tests).
+    /// finds every delimiter and line end eight bytes at a time ([`Separators`]); any other
+    /// goes line by line through [`fields_of`]. Both give the same fields (see the tests).
     ///
     /// # Errors
     /// The first error of `row`, of [`fields_of`], or the part's UTF-8 error.
@@ -445,9 +445,9 @@ impl<'f, R: Read + Send> Blocks<'f, R> {
             return Ok(None);
         }
         if !self.filled {
-            self.at_end = fill(&mut self.reader, &mut self.buf, self.step, self.file)?;
+            let step = self.next_step();
+            self.at_end = fill(&mut self.reader, &mut self.buf, step, self.file)?;
             self.filled = true;
-            self.step = (2 * self.step).min(self.block);
         }
         let filled = self.buf.len();
         let end = if self.at_end {
@@ -462,6 +462,7 @@ impl<'f, R: Read + Send> Blocks<'f, R> {
             let line = self.next_line + count_newlines(&self.buf[..end]);
             return Err(line_too_long(self.file, line));
         }
+        let block = self.next_step();
         let (out, line) = cut(
             &self.buf[..end],
             parts,
@@ -471,8 +472,7 @@ impl<'f, R: Read + Send> Blocks<'f, R> {
         )?;
         self.started |= !out.is_empty();
         self.next_line = line;
-        let (at_end, block, file) = (self.at_end, self.step, self.file);
-        self.step = (2 * self.step).min(self.block);
+        let (at_end, file) = (self.at_end, self.file);
         let (buf, spare, reader) = (&self.buf, &mut self.spare, &mut self.reader);
         let (read, done) = rayon::join(
             move || {
@@ -496,6 +496,15 @@ impl<'f, R: Read + Send> Blocks<'f, R> {
             }
         }
         Ok(Some(done))
+    }
+}
+
+impl<R> Blocks<'_, R> {
+    /// The bytes to read next; the step after it is twice as large, up to a block.
+    fn next_step(&mut self) -> usize {
+        let step = self.step;
+        self.step = (2 * step).min(self.block);
+        step
     }
 }
 
