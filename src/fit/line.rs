@@ -77,6 +77,42 @@ pub fn fit_line(x: &[f64], y: &[f64], w: Option<&[f64]>) -> Option<LineFit> {
     })
 }
 
+/// The slope of [`fit_line`] through the points whose x passes `keep`, without gathering
+/// them first: the same sums in the same order, so the same number, bit for bit. `None`
+/// where [`fit_line`] of those points is `None` (fewer than 3, a weight that is not
+/// positive, all x equal). Pairs beyond the shortest of `x`, `y`, `w` are not read.
+///
+/// # Examples
+/// ```
+/// let (x, y, w) = ([0.0, 1.0, 2.0, 3.0, 4.0], [9.0, 1.0, 3.0, 5.0, 7.0], [1.0; 5]);
+/// let b = fdtemp::fit::line::slope_where(&x, &y, &w, |x| x >= 1.0).unwrap();
+/// assert!((b - 2.0).abs() < 1e-12);
+/// ```
+pub fn slope_where(x: &[f64], y: &[f64], w: &[f64], keep: impl Fn(f64) -> bool) -> Option<f64> {
+    let kept = || x.iter().zip(y).zip(w).filter(|((x, _), _)| keep(**x));
+    let (mut n, mut sw, mut swx, mut swy) = (0usize, -0.0f64, -0.0f64, -0.0f64);
+    for ((&x, &y), &w) in kept() {
+        if !(w > 0.0) {
+            return None;
+        }
+        n += 1;
+        sw += w;
+        swx += w * x;
+        swy += w * y;
+    }
+    if n < 3 {
+        return None;
+    }
+    let (xm, ym) = (swx / sw, swy / sw);
+    let (mut sxx, mut sxy) = (0.0, 0.0);
+    for ((&x, &y), &w) in kept() {
+        let (dx, dy) = (x - xm, y - ym);
+        sxx += w * dx * dx;
+        sxy += w * dx * dy;
+    }
+    (sxx > 0.0).then(|| sxy / sxx)
+}
+
 /// The weighted least-squares curvature `c` of `y = a + b x + c x²`, from orthogonal
 /// polynomials (Forsythe's three-term recurrence, so no normal matrix is formed): with
 /// `p₀ = 1`, `p₁ = x − α₁`, `p₂ = (x − α₂) p₁ − β₁`, where `α₁ = Σw x / Σw`,
@@ -122,7 +158,30 @@ pub fn curvature(x: &[f64], y: &[f64], w: &[f64]) -> Option<f64> {
 
 #[cfg(test)]
 mod tests {
-    use super::curvature;
+    use super::{curvature, fit_line, slope_where};
+
+    /// The slope of the kept points is fit_line's, bit for bit, and `None` where fit_line
+    /// is.
+    #[test]
+    fn slope_where_is_fit_lines_slope_of_the_kept_points() {
+        let x: Vec<f64> = (0..40).map(|i| (i as f64 * 0.37).sin()).collect();
+        let y: Vec<f64> = x
+            .iter()
+            .map(|x| 0.3 - 1.7 * x + 0.1 * (x * 31.0).cos())
+            .collect();
+        let w: Vec<f64> = (0..40).map(|i| 0.5 + (i % 7) as f64 / 3.0).collect();
+        for q in [-2.0, -0.5, 0.0, 0.4, 0.9, 0.99, 2.0] {
+            let keep: Vec<usize> = (0..40).filter(|&i| x[i] >= q).collect();
+            let pick = |v: &[f64]| keep.iter().map(|&i| v[i]).collect::<Vec<f64>>();
+            let want = fit_line(&pick(&x), &pick(&y), Some(&pick(&w))).map(|l| l.slope.to_bits());
+            let got = slope_where(&x, &y, &w, |x| x >= q).map(f64::to_bits);
+            assert_eq!(got, want, "q {q}");
+        }
+        let mut w0 = w.clone();
+        w0[3] = 0.0;
+        assert_eq!(slope_where(&x, &y, &w0, |_| true), None);
+        assert_eq!(slope_where(&[1.0; 5], &y[..5], &w[..5], |_| true), None);
+    }
 
     /// Against the 3×3 normal equations solved by Cramer's rule (an independent route to
     /// the same least-squares solution; common practice), on uneven x and weights.

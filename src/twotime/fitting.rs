@@ -51,6 +51,10 @@ pub struct Scratch {
     x: Vec<f64>,
     y: Vec<f64>,
     r: Vec<f64>,
+    /// The responses moved onto the equilibrium null and onto the fitted model (the
+    /// lack-of-fit null), for [`fit_resample`].
+    rn: Vec<f64>,
+    rl: Vec<f64>,
     w: Vec<f64>,
     buf: FitBuffers,
     sums: Vec<[f64; 2]>,
@@ -61,12 +65,13 @@ impl Scratch {
     pub fn new(x: &[f64]) -> Self {
         let buf = FitBuffers {
             ws: crate::fit::Workspace::sorted_by(x),
-            ..FitBuffers::default()
         };
         Scratch {
             x: Vec::with_capacity(x.len()),
             y: Vec::with_capacity(x.len()),
             r: Vec::with_capacity(x.len()),
+            rn: Vec::with_capacity(x.len()),
+            rl: Vec::with_capacity(x.len()),
             w: Vec::with_capacity(x.len()),
             buf,
             sums: Vec::new(),
@@ -83,16 +88,22 @@ impl Scratch {
     }
 }
 
-/// The responses of the points in `sc`, moved by `shift` (`r = α x + y − shift`).
+/// The responses of the points in `sc`, moved by `shift` (`r = α x + y − shift`), into
+/// `sc.r`.
 fn moved_responses(spec: Spec, sc: &mut Scratch, shift: &[f64]) {
+    moved_into(spec, &mut sc.r, &sc.x, &sc.y, shift);
+}
+
+/// `r = α x + y − shift` per point.
+fn moved_into(spec: Spec, r: &mut Vec<f64>, x: &[f64], y: &[f64], shift: &[f64]) {
     let alpha = spec.model.c_factor();
-    sc.r.resize(sc.x.len(), 0.0);
-    for (((r, x), y), d) in sc.r.iter_mut().zip(&sc.x).zip(&sc.y).zip(shift) {
+    r.resize(x.len(), 0.0);
+    for (((r, x), y), d) in r.iter_mut().zip(x).zip(y).zip(shift) {
         *r = alpha * x + y - d;
     }
 }
 
-/// Fits one group. Leaves the group's points in `sc` for [`null_statistic`].
+/// Fits one group. Leaves the group's points in `sc`.
 pub fn fit_group(
     g: &Group,
     pts: Points<'_>,
@@ -100,6 +111,17 @@ pub fn fit_group(
     sc: &mut Scratch,
     profile: Option<&mut Vec<(f64, f64)>>,
 ) -> Option<Values> {
+    gather(g, pts, spec, sc);
+    let mut buf = std::mem::take(&mut sc.buf);
+    let v = spec
+        .model
+        .fit(sc.points(), spec.min_branch, &mut buf, profile);
+    sc.buf = buf;
+    v
+}
+
+/// The group's points, weights and responses `r = α x + y` into `sc`.
+fn gather(g: &Group, pts: Points<'_>, spec: Spec, sc: &mut Scratch) {
     for v in [&mut sc.x, &mut sc.y, &mut sc.r, &mut sc.w] {
         v.resize(g.idx.len(), 0.0);
     }
@@ -109,40 +131,59 @@ pub fn fit_group(
         (*x, *y, *w) = (pts.x[j], pts.y[j], pts.w[j]);
         *r = alpha * *x + *y;
     }
-    let mut buf = std::mem::take(&mut sc.buf);
-    let v = spec
-        .model
-        .fit(sc.points(), spec.min_branch, &mut buf, profile);
-    sc.buf = buf;
-    v
 }
 
-/// The statistic `SSE(null) − SSE(model)` of the resample whose points [`fit_group`] just
-/// left in `sc`, after moving it onto the fitted null model (`r − shift`).
-pub fn null_statistic(spec: Spec, sc: &mut Scratch, shift: &[f64]) -> f64 {
-    moved_responses(spec, sc, shift);
+/// Fits one resample of a group with its null-moved statistics, the fit and both refits
+/// in one search pass:
+/// - the equilibrium statistic `SSE(null) − SSE(model)` after moving the resample onto
+///   the fitted null model (`r − shift`);
+/// - with `lof`, the lack-of-fit statistic after moving it onto the fitted model
+///   (`r − lof.shift`): refitted with its own weights, its residuals binned with the
+///   full-data weights (NaN without `lof`).
+///
+/// Returns the fit and the two statistics (NaN where the refit failed). Leaves the
+/// resample's points and responses in `sc`, as [`fit_group`] does.
+pub fn fit_resample(
+    g: &Group,
+    pts: Points<'_>,
+    spec: Spec,
+    sc: &mut Scratch,
+    shift: &[f64],
+    lof: Option<&LofNull>,
+) -> Option<(Values, f64, f64)> {
+    gather(g, pts, spec, sc);
+    moved_into(spec, &mut sc.rn, &sc.x, &sc.y, shift);
+    let mut sols = [None, None];
     let mut buf = std::mem::take(&mut sc.buf);
-    let gap = spec.model.sse_gap(sc.points(), spec.min_branch, &mut buf);
-    sc.buf = buf;
-    gap.unwrap_or(f64::NAN)
-}
-
-/// The lack-of-fit statistic of the resample whose points [`fit_group`] just left in `sc`
-/// (x, y and its own weights), after moving it onto the fitted model (`r − shift`):
-/// refitted with its own weights, its residuals binned with the full-data weights.
-pub fn lof_statistic(spec: Spec, sc: &mut Scratch, null: &LofNull) -> f64 {
-    moved_responses(spec, sc, &null.shift);
-    let mut buf = std::mem::take(&mut sc.buf);
-    let sol = spec.model.solve(sc.points(), spec.min_branch, &mut buf);
-    sc.buf = buf;
-    let Some(sol) = sol else {
-        return f64::NAN;
+    let v = if let Some(null) = lof {
+        moved_into(spec, &mut sc.rl, &sc.x, &sc.y, &null.shift);
+        let moved: [&[f64]; 2] = [&sc.rn, &sc.rl];
+        spec.model
+            .fit_moved(sc.points(), &moved, spec.min_branch, &mut buf, &mut sols)
+    } else {
+        let moved: [&[f64]; 1] = [&sc.rn];
+        spec.model.fit_moved(
+            sc.points(),
+            &moved,
+            spec.min_branch,
+            &mut buf,
+            &mut sols[..1],
+        )
     };
-    // The residuals overwrite the responses: nothing reads them after this.
-    for (r, x) in sc.r.iter_mut().zip(&sc.x) {
-        *r -= sol.eval(*x);
-    }
-    null.bins.statistic(&sc.r, &null.w, &mut sc.sums)
+    sc.buf = buf;
+    let v = v?;
+    let gap = sols[0].map_or(f64::NAN, |s| s.sse_null - s.sse);
+    let lof_stat = match (lof, sols[1]) {
+        (Some(null), Some(sol)) => {
+            // The residuals overwrite the moved responses: nothing reads them after this.
+            for (r, x) in sc.rl.iter_mut().zip(&sc.x) {
+                *r -= sol.eval(*x);
+            }
+            null.bins.statistic(&sc.rl, &null.w, &mut sc.sums)
+        }
+        _ => f64::NAN,
+    };
+    Some((v, gap, lof_stat))
 }
 
 /// A group's x, weights and `r̂ − f̂` (the full-data fit's residuals): subtracting them

@@ -6,8 +6,7 @@
 use super::campaign::Campaign;
 use super::findings::{Caution, Finding, Subject};
 use super::fitting::{
-    Group, Points, Scratch, Spec, fit_group, lof_statistic, null_statistic, shape_null,
-    shape_record,
+    Group, Points, Scratch, Spec, fit_group, fit_resample, shape_null, shape_record,
 };
 use super::lack_of_fit::LofNull;
 use super::model::{Draw, Values};
@@ -354,16 +353,15 @@ fn replicate(
     shape_row: Option<&mut [f64]>,
 ) -> Option<Draw> {
     let shift = nulls.equilibrium[gi].as_deref()?;
-    let v = fit_group(g, pts, spec, s, None)?;
+    let lof = nulls.lack_of_fit[gi].as_ref();
+    let (v, null_stat, lof_stat) = fit_resample(g, pts, spec, s, shift, lof)?;
     let setup = nulls.shape.get(gi).and_then(Option::as_ref);
     let mut shape_row = shape_row;
     if let (Some(setup), Some(row)) = (setup, shape_row.as_deref_mut()) {
         shape_record(s, setup, row);
     }
-    let mut d = v.draw(null_statistic(spec, s, shift));
-    if let Some(lof) = &nulls.lack_of_fit[gi] {
-        d.lof_stat = lof_statistic(spec, s, lof);
-    }
+    let mut d = v.draw(null_stat);
+    d.lof_stat = lof_stat;
     if let (Some(setup), Some(row)) = (setup, shape_row) {
         row[shape::GRID + 1] = shape_null(spec, s, setup);
     }

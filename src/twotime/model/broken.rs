@@ -3,8 +3,9 @@
 //! its null is the line of slope −1. The slope above the break is checked by a free line
 //! through the points above it.
 
-use super::{Draw, FdModel, FitBuffers, GroupPoints, Values, minus_one_shift};
-use crate::fit::{Base, BreakSolution, broken, fit_line};
+use super::{Draw, FdModel, FitBuffers, GroupPoints, Values, minus_one_shift, search_moved};
+use crate::fit::line::slope_where;
+use crate::fit::{Base, BreakSolution, broken};
 use crate::twotime::result::Curve;
 use crate::twotime::settings::Model;
 
@@ -47,23 +48,19 @@ impl FdModel for FixedSlope {
             &mut buf.ws,
             profile,
         )?;
-        buf.x.clear();
-        buf.y.clear();
-        buf.w.clear();
-        for k in 0..pts.x.len() {
-            if pts.x[k] >= sol.q {
-                buf.x.push(pts.x[k]);
-                buf.y.push(pts.y[k]);
-                buf.w.push(pts.w[k]);
-            }
-        }
-        let fast = fit_line(&buf.x, &buf.y, Some(&buf.w)).map_or(f64::NAN, |l| l.slope);
-        Some(Values {
-            ratio: 1.0 + sol.c,
-            q: sol.q,
-            fast,
-            sol,
-        })
+        Some(values(pts, sol))
+    }
+
+    fn fit_moved(
+        &self,
+        pts: GroupPoints<'_>,
+        moved: &[&[f64]],
+        m: usize,
+        buf: &mut FitBuffers,
+        out: &mut [Option<BreakSolution>],
+    ) -> Option<Values> {
+        let sol = search_moved(pts, moved, Base::Constant, m, buf, out)?;
+        Some(values(pts, sol))
     }
 
     fn solve(&self, pts: GroupPoints<'_>, m: usize, buf: &mut FitBuffers) -> Option<BreakSolution> {
@@ -81,5 +78,17 @@ impl FdModel for FixedSlope {
             slope_above: -1.0,
             slope_below: -d.ratio,
         }
+    }
+}
+
+/// The fit's values from its broken stick: X, q, and the slope of a free line through
+/// the points above the break.
+fn values(pts: GroupPoints<'_>, sol: BreakSolution) -> Values {
+    let fast = slope_where(pts.x, pts.y, pts.w, |x| x >= sol.q).unwrap_or(f64::NAN);
+    Values {
+        ratio: 1.0 + sol.c,
+        q: sol.q,
+        fast,
+        sol,
     }
 }

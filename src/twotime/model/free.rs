@@ -2,7 +2,7 @@
 //! below, X = c − b. Its null is one straight line of free slope; the upper slope b is the
 //! thermometer's check.
 
-use super::{FdModel, FitBuffers, GroupPoints, Values};
+use super::{FdModel, FitBuffers, GroupPoints, Values, search_moved};
 use crate::fit::{Base, BreakSolution, broken, fit_line};
 use crate::twotime::settings::Model;
 
@@ -39,12 +39,18 @@ impl FdModel for FreeSlopes {
             &mut buf.ws,
             profile,
         )?;
-        Some(Values {
-            ratio: sol.c - sol.b,
-            q: sol.q,
-            fast: sol.b,
-            sol,
-        })
+        Some(values(sol))
+    }
+
+    fn fit_moved(
+        &self,
+        pts: GroupPoints<'_>,
+        moved: &[&[f64]],
+        m: usize,
+        buf: &mut FitBuffers,
+        out: &mut [Option<BreakSolution>],
+    ) -> Option<Values> {
+        search_moved(pts, moved, Base::Line, m, buf, out).map(values)
     }
 
     fn solve(&self, pts: GroupPoints<'_>, m: usize, buf: &mut FitBuffers) -> Option<BreakSolution> {
@@ -61,5 +67,15 @@ impl FdModel for FreeSlopes {
                 .collect(),
             None => vec![0.0; pts.x.len()],
         }
+    }
+}
+
+/// The fit's values from its broken stick: X = c − b, the upper slope b.
+fn values(sol: BreakSolution) -> Values {
+    Values {
+        ratio: sol.c - sol.b,
+        q: sol.q,
+        fast: sol.b,
+        sol,
     }
 }

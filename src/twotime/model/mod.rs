@@ -13,7 +13,8 @@ mod smooth;
 
 use super::result::Curve;
 use super::settings::Model;
-use crate::fit::{BreakSolution, Workspace};
+use crate::fit::broken::{MAX_RESPONSES, search, search_each};
+use crate::fit::{Base, BreakSolution, Workspace};
 
 /// The model registered for each `--model` choice.
 pub fn of(kind: Model) -> &'static dyn FdModel {
@@ -41,14 +42,8 @@ pub struct GroupPoints<'a> {
 /// Buffers a model may use while fitting, so resampled fits do not allocate.
 #[derive(Debug, Clone, Default)]
 pub struct FitBuffers {
-    /// Points sorted by x, kept between calls as the starting order.
+    /// The break search's scratch (its sort order and the x part of the last search).
     pub ws: Workspace,
-    /// Spare x, y, w for a secondary line fit.
-    pub x: Vec<f64>,
-    /// See `x`.
-    pub y: Vec<f64>,
-    /// See `x`.
-    pub w: Vec<f64>,
 }
 
 /// The values of one fit of one group.
@@ -146,14 +141,22 @@ pub trait FdModel: Sync {
         min_branch: usize,
         buf: &mut FitBuffers,
     ) -> Option<BreakSolution>;
-    /// `SSE(null) − SSE(model)` for the responses `r` (no secondary quantities).
-    fn sse_gap(
+    /// [`FdModel::fit`] of the responses `r`, and [`FdModel::solve`] with each of `moved`
+    /// in place of `r` into `out[k]` (a resample's refits after moving it onto its nulls),
+    /// in one pass where the model allows it.
+    fn fit_moved(
         &self,
         pts: GroupPoints<'_>,
+        moved: &[&[f64]],
         min_branch: usize,
         buf: &mut FitBuffers,
-    ) -> Option<f64> {
-        self.solve(pts, min_branch, buf).map(|s| s.sse_null - s.sse)
+        out: &mut [Option<BreakSolution>],
+    ) -> Option<Values> {
+        let v = self.fit(pts, min_branch, buf, None);
+        for (r, out) in moved.iter().zip(out) {
+            *out = self.solve(GroupPoints { r, ..pts }, min_branch, buf);
+        }
+        v
     }
     /// `r̂ − f̂₀` per point: subtracting it moves a resample onto the fitted null model.
     fn null_shift(&self, pts: GroupPoints<'_>) -> Vec<f64>;
@@ -167,6 +170,40 @@ pub trait FdModel: Sync {
             slope_below: -d.ratio,
         }
     }
+}
+
+/// The broken-stick search of `pts.r` and of each of `moved` (into `out`) on the points'
+/// x and weights, in one pass (the broken-stick models' [`FdModel::fit_moved`]); returns
+/// the solution for `pts.r`.
+fn search_moved(
+    pts: GroupPoints<'_>,
+    moved: &[&[f64]],
+    base: Base,
+    m: usize,
+    buf: &mut FitBuffers,
+    out: &mut [Option<BreakSolution>],
+) -> Option<BreakSolution> {
+    let k = moved.len() + 1;
+    if k > MAX_RESPONSES {
+        let sol = search(pts.x, pts.r, pts.w, base, m, &mut buf.ws, None);
+        search_each(pts.x, moved, pts.w, base, m, &mut buf.ws, None, out);
+        return sol;
+    }
+    let mut rs = [pts.r; MAX_RESPONSES];
+    rs[1..k].copy_from_slice(moved);
+    let mut sols = [None; MAX_RESPONSES];
+    search_each(
+        pts.x,
+        &rs[..k],
+        pts.w,
+        base,
+        m,
+        &mut buf.ws,
+        None,
+        &mut sols[..k],
+    );
+    out.copy_from_slice(&sols[1..k]);
+    sols[0]
 }
 
 /// `r̂ − f̂₀` when the null is the line of slope −1: `x + y` minus its weighted mean.

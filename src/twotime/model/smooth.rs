@@ -43,6 +43,16 @@ impl FdModel for BrokenBesideSmooth {
     fn solve(&self, pts: GroupPoints<'_>, m: usize, buf: &mut FitBuffers) -> Option<BreakSolution> {
         FixedSlope.solve(pts, m, buf)
     }
+    fn fit_moved(
+        &self,
+        pts: GroupPoints<'_>,
+        moved: &[&[f64]],
+        m: usize,
+        buf: &mut FitBuffers,
+        out: &mut [Option<BreakSolution>],
+    ) -> Option<Values> {
+        FixedSlope.fit_moved(pts, moved, m, buf, out)
+    }
     fn null_shift(&self, pts: GroupPoints<'_>) -> Vec<f64> {
         FixedSlope.null_shift(pts)
     }
