@@ -311,10 +311,7 @@ pub fn search(
 /// Up to [`MAX_RESPONSES`] responses share one pass through the sorted points: their
 /// running sums are independent, so the processor adds them side by side in the time one
 /// takes. Each response's sums are the same, added in the same order, as in its own
-/// search.
-///
-/// # Panics
-/// When `out` and `rs` differ in length.
+/// search. Entries of `out` beyond `rs` are set to `None`.
 #[allow(clippy::too_many_arguments)]
 pub fn search_each(
     x: &[f64],
@@ -326,7 +323,6 @@ pub fn search_each(
     profile: Option<&mut Vec<(f64, f64)>>,
     out: &mut [Option<BreakSolution>],
 ) {
-    assert_eq!(rs.len(), out.len(), "one solution per response");
     out.fill(None);
     let p = x.len();
     let m = min_branch.max(1);
