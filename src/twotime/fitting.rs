@@ -88,12 +88,6 @@ impl Scratch {
     }
 }
 
-/// The responses of the points in `sc`, moved by `shift` (`r = α x + y − shift`), into
-/// `sc.r`.
-fn moved_responses(spec: Spec, sc: &mut Scratch, shift: &[f64]) {
-    moved_into(spec, &mut sc.r, &sc.x, &sc.y, shift);
-}
-
 /// `r = α x + y − shift` per point.
 fn moved_into(spec: Spec, r: &mut Vec<f64>, x: &[f64], y: &[f64], shift: &[f64]) {
     let alpha = spec.model.c_factor();
@@ -153,23 +147,21 @@ pub fn fit_resample(
 ) -> Option<(Values, f64, f64)> {
     gather(g, pts, spec, sc);
     moved_into(spec, &mut sc.rn, &sc.x, &sc.y, shift);
+    if let Some(null) = lof {
+        moved_into(spec, &mut sc.rl, &sc.x, &sc.y, &null.shift);
+    }
+    // The lack-of-fit refit only with its null.
+    let k = 1 + usize::from(lof.is_some());
+    let moved: [&[f64]; 2] = [&sc.rn, &sc.rl];
     let mut sols = [None, None];
     let mut buf = std::mem::take(&mut sc.buf);
-    let v = if let Some(null) = lof {
-        moved_into(spec, &mut sc.rl, &sc.x, &sc.y, &null.shift);
-        let moved: [&[f64]; 2] = [&sc.rn, &sc.rl];
-        spec.model
-            .fit_moved(sc.points(), &moved, spec.min_branch, &mut buf, &mut sols)
-    } else {
-        let moved: [&[f64]; 1] = [&sc.rn];
-        spec.model.fit_moved(
-            sc.points(),
-            &moved,
-            spec.min_branch,
-            &mut buf,
-            &mut sols[..1],
-        )
-    };
+    let v = spec.model.fit_moved(
+        sc.points(),
+        &moved[..k],
+        spec.min_branch,
+        &mut buf,
+        &mut sols[..k],
+    );
     sc.buf = buf;
     let v = v?;
     let gap = sols[0].map_or(f64::NAN, |s| s.sse_null - s.sse);
@@ -242,7 +234,7 @@ pub fn shape_record(sc: &Scratch, setup: &Setup, row: &mut [f64]) {
 /// The shape statistic of the resample whose points [`fit_group`] left in `sc`, after
 /// moving it onto the fitted broken stick: both models refitted with its own weights.
 pub fn shape_null(spec: Spec, sc: &mut Scratch, setup: &Setup) -> f64 {
-    moved_responses(spec, sc, &setup.shift);
+    moved_into(spec, &mut sc.r, &sc.x, &sc.y, &setup.shift);
     let mut buf = std::mem::take(&mut sc.buf);
     let sol = spec.model.solve(sc.points(), spec.min_branch, &mut buf);
     sc.buf = buf;
