@@ -15,8 +15,10 @@ use std::borrow::Cow;
 use std::io::Read;
 use std::path::Path;
 
-/// Bytes read per block (whole lines; a longer line carries over).
-pub(crate) const BLOCK: usize = 16 << 20;
+/// Bytes read per block (whole lines; a longer line carries over). 2 MiB parse as fast
+/// as 16 MiB on the 2-core machine (W1 of benches/ at B = 100: 0.186 s against 0.199 s)
+/// and hold 28 MiB less.
+pub(crate) const BLOCK: usize = 2 << 20;
 
 /// Bytes read for the first block (the next ones double up to [`BLOCK`]).
 const FIRST_BLOCK: usize = 1 << 20;
