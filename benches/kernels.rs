@@ -52,10 +52,12 @@ fn break_search(c: &mut Criterion) {
 
 fn resampling_product(c: &mut Criterion) {
     let camp = w_shape(1000);
-    let d = fdtemp::twotime::points::data_matrix(&camp, false);
+    // The fit's data matrix: the campaign's C and χ borrowed, one moment column per point.
+    let mut d = fdtemp::twotime::points::DataMatrix::of_campaign(&camp, false);
     let n = camp.n_samples();
-    // One chunk of replicates, as the fit makes them (faer's product, 256 rows).
-    let rows = 256;
+    d.push(Array2::<f64>::from_elem((n, camp.n_points()), 0.5));
+    // One chunk of replicates, as the fit makes them (faer's product, block by block).
+    let rows = fdtemp::twotime::chunk_rows(d.ncols());
     let mut wm = Array2::<f64>::zeros((rows, n));
     let mut counts = vec![0u32; n];
     for row in 0..rows {
@@ -68,9 +70,7 @@ fn resampling_product(c: &mut Criterion) {
         "resampling product, {rows} resamples x {n} samples x {} columns",
         d.ncols()
     );
-    c.bench_function(&label, |b| {
-        b.iter(|| black_box(fdtemp::resample::product(&wm, &d)))
-    });
+    c.bench_function(&label, |b| b.iter(|| black_box(d.product(&wm))));
 }
 
 fn reading(c: &mut Criterion) {

@@ -1,5 +1,8 @@
 //! The floor of a time-domain fit: only the resampling product, B × n × P multiply-adds,
-//! done exactly as fdtemp does it (counts drawn per resample, chunks of 256, faer's product, in parallel).
+//! done as fdtemp does it (counts drawn per resample, faer's product, in parallel) but on
+//! one copied matrix in chunks of 256, its fastest shape: the fit itself multiplies the
+//! campaign's arrays and the moment columns block by block in smaller chunks to hold
+//! less memory (`fdtemp::twotime::chunk_rows`).
 //! Usage: cargo run --release --example product_floor -- FILE B
 use rayon::prelude::*;
 

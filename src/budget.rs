@@ -5,15 +5,16 @@
 use crate::error::{Error, Result};
 
 use crate::spectral::analysis::FREQ_CHUNK;
-use crate::twotime::CHUNK;
+use crate::twotime::chunk_rows;
 
 /// Memory a time-domain fit needs, in bytes, for `n` samples, a data matrix of `cols`
 /// columns over `p` points, `groups` fits, `b` resamples and `threads` workers.
 pub fn fit_bytes(n: usize, cols: usize, p: usize, groups: usize, b: usize, threads: usize) -> f64 {
     let f = |v: usize| v as f64;
-    let data = 2.0 * f(n) * f(cols) * 8.0; // the campaign and the data matrix
+    // The campaign and its moment columns, or while reading, the rows with their indices.
+    let data = 2.0 * f(n) * f(cols) * 8.0;
     let jack = 2.0 * f(n) * f(p) * 8.0 + f(n) * f(groups) * f(crate::twotime::BYTES_PER_DRAW);
-    let per_thread = f(CHUNK) * (f(n) + 2.0 * f(cols)) * 8.0 + f(groups) * f(p) * 64.0;
+    let per_thread = f(chunk_rows(cols)) * (f(n) + 2.0 * f(cols)) * 8.0 + f(groups) * f(p) * 64.0;
     let draws = f(b) * f(groups) * f(crate::twotime::BYTES_PER_DRAW);
     // Interval work: a few copies of one series of b numbers at a time.
     let series = 4.0 * f(b) * 8.0;

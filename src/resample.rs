@@ -209,19 +209,36 @@ pub fn product_into(
     d: &ndarray::Array2<f64>,
     out: &mut ndarray::Array2<f64>,
 ) {
-    let (rows, n, cols) = (w.nrows(), w.ncols(), d.ncols());
+    let (rows, cols) = (w.nrows(), d.ncols());
     if out.dim() != (rows, cols) {
         *out = ndarray::Array2::<f64>::zeros((rows, cols));
     }
-    if let (Some(ws), Some(ds), Some(os)) = (w.as_slice(), d.as_slice(), out.as_slice_mut())
-        && d.nrows() == n
-    {
+    product_columns(w, &d.view(), out, 0);
+}
+
+/// `W · D` into the columns `first..first + d.ncols()` of `out`, which has `w.nrows()`
+/// rows and at least those columns.
+///
+/// # Panics
+/// When `out` is too small or `W` and `D` do not chain (a caller's mistake).
+pub fn product_columns(
+    w: &ndarray::Array2<f64>,
+    d: &ndarray::ArrayView2<'_, f64>,
+    out: &mut ndarray::Array2<f64>,
+    first: usize,
+) {
+    let (rows, n, cols) = (w.nrows(), w.ncols(), d.ncols());
+    assert!(out.nrows() == rows && out.ncols() >= first + cols && d.nrows() == n);
+    let width = out.ncols();
+    if let (Some(ws), Some(ds), Some(os)) = (w.as_slice(), d.as_slice(), out.as_slice_mut()) {
         let lhs = faer::MatRef::from_row_major_slice(ws, rows, n);
         let rhs = faer::MatRef::from_row_major_slice(ds, n, cols);
-        let dst = faer::MatMut::from_row_major_slice_mut(os, rows, cols);
+        let dst = faer::MatMut::from_row_major_slice_mut(os, rows, width)
+            .submatrix_mut(0, first, rows, cols);
         faer::linalg::matmul::matmul(dst, faer::Accum::Replace, lhs, rhs, 1.0, faer::Par::Seq);
     } else {
-        out.assign(&w.dot(d));
+        out.slice_mut(ndarray::s![.., first..first + cols])
+            .assign(&w.dot(d));
     }
 }
 

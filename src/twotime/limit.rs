@@ -27,7 +27,7 @@
 
 use super::campaign::Campaign;
 use super::points::Parametric;
-use super::resampling::{CHUNK, Prepared};
+use super::resampling::{Prepared, chunk_rows};
 use super::result::{AgeLimit, LimitPoint};
 use super::settings::{FitSettings, Hold};
 use crate::common::Estimate;
@@ -286,7 +286,7 @@ fn golden(f: &dyn Fn(f64) -> f64, mut a: f64, mut b: f64) -> f64 {
 /// As [`Setup::new`], and [`Error::Analysis`] when the full-data curves cannot be fitted.
 pub fn age_limit(
     campaign: &Campaign,
-    prep: &Prepared,
+    prep: &Prepared<'_>,
     s: &FitSettings,
     q: Option<f64>,
 ) -> Result<AgeLimit> {
@@ -367,17 +367,18 @@ fn jackknife_t(setup: &Setup, pm: &Parametric, x_inf: f64, level: f64) -> Option
 }
 
 /// The limit fitted on every replicate, in the fit's chunks and with its draws.
-fn replicates(prep: &Prepared, setup: &Setup, s: &FitSettings) -> Vec<Option<LimitFit>> {
+fn replicates(prep: &Prepared<'_>, setup: &Setup, s: &FitSettings) -> Vec<Option<LimitFit>> {
     let (n, p) = (prep.data.nrows(), prep.tf.points);
     let b_total = s.resamples;
-    let chunks: Vec<usize> = (0..b_total.div_ceil(CHUNK)).collect();
+    let chunk = chunk_rows(prep.data.ncols());
+    let chunks: Vec<usize> = (0..b_total.div_ceil(chunk)).collect();
     chunks
         .par_iter()
         .flat_map_iter(|&c| {
-            let b0 = c * CHUNK;
-            let here = CHUNK.min(b_total - b0);
+            let b0 = c * chunk;
+            let here = chunk.min(b_total - b0);
             let wm = resample::weight_rows(s.seed, b0, here, &mut vec![0u32; n]);
-            let means = resample::product(&wm, &prep.data);
+            let means = prep.data.product(&wm);
             let (mut x, mut y) = (vec![0.0; p], vec![0.0; p]);
             (0..here)
                 .map(|r| {

@@ -44,7 +44,7 @@ pub use settings::{FitSettings, Hold, Model, Weighting};
 pub use two_time::{TwoTime, TwoTimePoint, TwoTimeSettings};
 
 pub(crate) use fitting::BYTES_PER_DRAW;
-pub(crate) use resampling::CHUNK;
+pub use resampling::chunk_rows;
 
 use crate::error::{Error, Result};
 use crate::fit::smooth::SmoothFit;
@@ -122,7 +122,7 @@ pub fn analyze(
 
 /// The estimates, the leave-one-out fits and the bootstrap of every group, assessed.
 fn fit_all(
-    prep: &Prepared,
+    prep: &Prepared<'_>,
     groups: &[Group],
     spec: Spec,
     settings: &FitSettings,
@@ -280,7 +280,7 @@ fn report(
     campaign: &Campaign,
     settings: &FitSettings,
     input: Option<String>,
-    prep: &Prepared,
+    prep: &Prepared<'_>,
     fits: Vec<GroupFit>,
     aging: Option<AgingTrend>,
     cautions: Vec<Caution>,

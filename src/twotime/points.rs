@@ -6,7 +6,7 @@
 //! the jackknife over samples, which for plain axes equals the usual `s/√n`.
 
 use crate::twotime::campaign::Campaign;
-use ndarray::{Array1, Array2, ArrayView1, ArrayView2, s};
+use ndarray::{Array1, Array2, ArrayView1, ArrayView2, CowArray, Ix2, s};
 use rayon::prelude::*;
 
 /// Which quantities go on the axes.
@@ -58,8 +58,8 @@ pub fn data_matrix(campaign: &Campaign, normalized: bool) -> Array2<f64> {
     data_matrix_with_room(campaign, normalized, 0)
 }
 
-/// [`data_matrix`] with `extra` more columns (zeros) after the raw ones, for the moment
-/// columns of [`PointVariance::fill_moments`]: one allocation, no copy.
+/// [`data_matrix`] with `extra` more columns (zeros) after the raw ones: the one-matrix
+/// shape of the product with moment columns (examples/product_floor times it).
 pub fn data_matrix_with_room(campaign: &Campaign, normalized: bool, extra: usize) -> Array2<f64> {
     let mut parts = vec![campaign.corr(), campaign.resp()];
     if normalized && let Some(eq) = campaign.corr_eq() {
@@ -81,13 +81,130 @@ pub fn data_matrix_with_room(campaign: &Campaign, normalized: bool, extra: usize
     Array2::from_shape_vec((n, width), flat).expect("n rows of the full width")
 }
 
-/// The mean of every column, summed row by row.
-fn column_means(data: ArrayView2<'_, f64>) -> Array1<f64> {
-    let mut sum = Array1::zeros(data.ncols());
-    for row in data.rows() {
-        sum += &row;
+/// The data matrix `D`, samples × columns: `[C | χ | C(t,t)]` per sample, then any
+/// moment columns, held as column blocks side by side. The raw blocks are the campaign's
+/// own arrays, borrowed rather than copied, so a fit holds its data once plus the moment
+/// columns (the copy of [`data_matrix`] doubled the peak memory of large campaigns).
+#[derive(Debug, Clone)]
+pub struct DataMatrix<'a> {
+    blocks: Vec<CowArray<'a, f64, Ix2>>,
+    rows: usize,
+    cols: usize,
+}
+
+impl<'a> DataMatrix<'a> {
+    /// `[C | χ]`, and `C(t,t)` after them on normalized axes, borrowed from the campaign
+    /// (copied only where an array is not in row-major order).
+    pub fn of_campaign(campaign: &'a Campaign, normalized: bool) -> Self {
+        let mut parts = vec![campaign.corr(), campaign.resp()];
+        if normalized && let Some(eq) = campaign.corr_eq() {
+            parts.push(eq);
+        }
+        let mut d = DataMatrix {
+            blocks: Vec::new(),
+            rows: campaign.n_samples(),
+            cols: 0,
+        };
+        for a in parts {
+            d.push(a);
+        }
+        d
     }
-    sum / data.nrows().max(1) as f64
+
+    /// One block from a matrix (tests and single-matrix callers).
+    pub fn from_array(a: ArrayView2<'a, f64>) -> Self {
+        let mut d = DataMatrix {
+            blocks: Vec::new(),
+            rows: a.nrows(),
+            cols: 0,
+        };
+        d.push(a);
+        d
+    }
+
+    /// Appends a block of columns on the right (copied into row-major order if it is not,
+    /// for the matrix product).
+    ///
+    /// # Panics
+    /// When the block's rows are not the matrix's (a caller's mistake).
+    pub fn push(&mut self, block: impl Into<CowArray<'a, f64, Ix2>>) {
+        let mut block = block.into();
+        assert_eq!(block.nrows(), self.rows, "a block has one row per sample");
+        if !block.is_standard_layout() {
+            block = CowArray::from(block.as_standard_layout().into_owned());
+        }
+        self.cols += block.ncols();
+        self.blocks.push(block);
+    }
+
+    /// Samples.
+    pub fn nrows(&self) -> usize {
+        self.rows
+    }
+
+    /// Columns of all blocks.
+    pub fn ncols(&self) -> usize {
+        self.cols
+    }
+
+    /// Block `k` (0: C, 1: χ, 2: C(t,t) on normalized axes).
+    pub fn block(&self, k: usize) -> ArrayView2<'_, f64> {
+        self.blocks[k].view()
+    }
+
+    /// Copies the first `out.len()` columns of row `i` into `out`.
+    pub fn row_into(&self, i: usize, out: &mut [f64]) {
+        let mut rest = out;
+        for b in &self.blocks {
+            if rest.is_empty() {
+                break;
+            }
+            let row = b.row(i);
+            let k = row.len().min(rest.len());
+            let (head, tail) = rest.split_at_mut(k);
+            for (o, v) in head.iter_mut().zip(row) {
+                *o = *v;
+            }
+            rest = tail;
+        }
+    }
+
+    /// The mean of every column, summed row by row (empty without rows).
+    pub fn means(&self) -> Array1<f64> {
+        if self.rows == 0 {
+            return Array1::zeros(0);
+        }
+        let mut out = Array1::zeros(self.cols);
+        let mut at = 0;
+        for b in &self.blocks {
+            let mut sum = out.slice_mut(s![at..at + b.ncols()]);
+            for row in b.rows() {
+                sum += &row;
+            }
+            at += b.ncols();
+        }
+        out / self.rows as f64
+    }
+
+    /// `W · D` into `out` (reshaped when its shape differs), block by block into its
+    /// columns, so that chunk after chunk reuses one allocation.
+    pub fn product_into(&self, w: &Array2<f64>, out: &mut Array2<f64>) {
+        if out.dim() != (w.nrows(), self.cols) {
+            *out = Array2::zeros((w.nrows(), self.cols));
+        }
+        let mut at = 0;
+        for b in &self.blocks {
+            crate::resample::product_columns(w, &b.view(), out, at);
+            at += b.ncols();
+        }
+    }
+
+    /// `W · D`.
+    pub fn product(&self, w: &Array2<f64>) -> Array2<f64> {
+        let mut out = Array2::zeros((0, 0));
+        self.product_into(w, &mut out);
+        out
+    }
 }
 
 /// Parametric points with their sample errors, and the leave-one-sample-out points.
@@ -110,15 +227,15 @@ pub struct Parametric {
 }
 
 impl Parametric {
-    /// Computes the points from the raw columns of the data matrix of [`data_matrix`]
-    /// (columns after them are not read). The leave-one-out points are kept only with
+    /// Computes the points from the raw columns of the data matrix (columns after them
+    /// are not read). The leave-one-out points are kept only with
     /// `keep_loo` (BCa intervals and the long-age limit read them); otherwise they are
     /// made a block of rows at a time for the standard errors, which come out the same.
-    pub fn new(data: ArrayView2<'_, f64>, tf: Transform, keep_loo: bool) -> Self {
+    pub fn new(data: &DataMatrix<'_>, tf: Transform, keep_loo: bool) -> Self {
         let n = data.nrows();
         let p = tf.points;
-        let data = data.slice(s![.., ..tf.blocks() * p]);
-        let means = column_means(data);
+        let raw = tf.blocks() * p;
+        let means = data.means();
         let (mut x, mut y) = (vec![0.0; p], vec![0.0; p]);
         tf.apply(means.view(), &mut x, &mut y);
         let nf = n as f64;
@@ -128,10 +245,10 @@ impl Parametric {
                 .zip(yj.par_chunks_mut(p.max(1)))
                 .enumerate()
                 .for_each_init(
-                    || means.clone(),
-                    |loo, (i, (xr, yr))| {
-                        let row = data.row(first + i);
-                        for ((l, m), v) in loo.iter_mut().zip(&means).zip(row) {
+                    || (means.clone(), vec![0.0; raw]),
+                    |(loo, row), (i, (xr, yr))| {
+                        data.row_into(first + i, row);
+                        for ((l, m), v) in loo.iter_mut().zip(&means).zip(row.iter()) {
                             *l = (m * nf - v) / (nf - 1.0);
                         }
                         tf.apply(loo.view(), xr, yr);
@@ -225,11 +342,13 @@ pub struct PointVariance {
 impl PointVariance {
     /// The variance spec for `r = (α C + β χ)/e` with the centres taken from the raw
     /// columns of `data`.
-    pub fn new(data: ArrayView2<'_, f64>, tf: Transform, alpha: f64, beta: f64) -> Self {
+    pub fn new(data: &DataMatrix<'_>, tf: Transform, alpha: f64, beta: f64) -> Self {
         let p = tf.points;
         let n = data.nrows().max(1) as f64;
         let (mut a, mut e) = (vec![0.0; p], vec![0.0; p]);
-        for row in data.rows() {
+        let mut row = vec![0.0; tf.blocks() * p];
+        for i in 0..data.nrows() {
+            data.row_into(i, &mut row);
             for j in 0..p {
                 a[j] += alpha * row[j] + beta * row[p + j];
                 e[j] += if tf.normalized { row[2 * p + j] } else { 1.0 };
@@ -251,32 +370,32 @@ impl PointVariance {
         Self::moment_columns(self.points, self.normalized)
     }
 
-    /// The moment columns that `points` points need, before a spec is made (the room
-    /// [`data_matrix_with_room`] leaves).
+    /// The moment columns that `points` points need, before a spec is made.
     pub fn moment_columns(points: usize, normalized: bool) -> usize {
         points * if normalized { 3 } else { 1 }
     }
 
-    /// Writes the moment columns of every row of `data` (made by
-    /// [`data_matrix_with_room`] with [`PointVariance::extra_columns`] of room), rows in
-    /// parallel.
-    pub fn fill_moments(&self, data: &mut Array2<f64>) {
-        let (p, off, cols) = (self.points, self.offset, data.ncols());
-        let Some(flat) = data.as_slice_mut() else {
-            return;
-        };
-        flat.par_chunks_mut(cols.max(1)).for_each(|row| {
-            let (raw, moments) = row.split_at_mut(off);
-            for j in 0..p {
-                let e = if self.normalized { raw[2 * p + j] } else { 1.0 };
-                let a = self.alpha * raw[j] + self.beta * raw[p + j] - self.centre[j] * e;
-                moments[j] = a * a;
-                if self.normalized {
-                    moments[p + j] = a * e;
-                    moments[2 * p + j] = e * e;
+    /// The moment columns of every row of the raw `data`
+    /// ([`PointVariance::extra_columns`] of them), rows in parallel.
+    pub fn moments(&self, data: &DataMatrix<'_>) -> Array2<f64> {
+        let (p, cols) = (self.points, self.extra_columns());
+        let mut flat = vec![0.0; data.nrows() * cols];
+        flat.par_chunks_mut(cols.max(1)).enumerate().for_each_init(
+            || vec![0.0; self.offset],
+            |raw, (i, moments)| {
+                data.row_into(i, raw);
+                for j in 0..p {
+                    let e = if self.normalized { raw[2 * p + j] } else { 1.0 };
+                    let a = self.alpha * raw[j] + self.beta * raw[p + j] - self.centre[j] * e;
+                    moments[j] = a * a;
+                    if self.normalized {
+                        moments[p + j] = a * e;
+                        moments[2 * p + j] = e * e;
+                    }
                 }
-            }
-        });
+            },
+        );
+        Array2::from_shape_vec((data.nrows(), cols), flat).expect("one row per sample")
     }
 
     /// The variance of every point's fitted quantity from the moments `means` (a row of
@@ -322,8 +441,8 @@ mod tests {
             normalized: true,
             points: p,
         };
-        let kept = Parametric::new(data.view(), tf, true);
-        let streamed = Parametric::new(data.view(), tf, false);
+        let kept = Parametric::new(&DataMatrix::from_array(data.view()), tf, true);
+        let streamed = Parametric::new(&DataMatrix::from_array(data.view()), tf, false);
         assert_eq!(kept.x_jack.dim(), (n, p));
         assert_eq!(streamed.x_jack.nrows(), 0);
         for (a, b) in [
@@ -339,10 +458,48 @@ mod tests {
             normalized: false,
             ..tf
         };
-        let plain = Parametric::new(data.view(), tf, false);
+        let plain = Parametric::new(&DataMatrix::from_array(data.view()), tf, false);
         let col: Vec<f64> = (0..n).map(|i| data[[i, 0]]).collect();
         let m = col.iter().sum::<f64>() / n as f64;
         let s2 = col.iter().map(|v| (v - m).powi(2)).sum::<f64>() / (n as f64 - 1.0);
         assert!((plain.x_se[0] - (s2 / n as f64).sqrt()).abs() < 1e-12);
+    }
+
+    #[test]
+    fn blocks_give_the_one_matrix_bit_for_bit_for_any_chunk_of_replicates() {
+        // 37 samples, blocks of 5, 5 and 3 columns (one of them not row-major) against the
+        // same columns as one matrix.
+        let (n, widths) = (37, [5, 5, 3]);
+        let cols: usize = widths.iter().sum();
+        let whole = Array2::from_shape_fn((n, cols), |(i, j)| {
+            (((i * 7919 + j * 104_729) % 1009) as f64 / 1009.0 - 0.4) * 3.0
+        });
+        let mut d = DataMatrix::from_array(whole.slice(s![.., ..5]));
+        d.push(whole.slice(s![.., 5..10]).to_owned());
+        d.push(whole.slice(s![.., 10..]).t().to_owned().reversed_axes());
+        assert_eq!((d.nrows(), d.ncols()), (n, cols));
+        let same = |a: &[f64], b: &[f64]| {
+            a.len() == b.len() && a.iter().zip(b).all(|(u, v)| u.to_bits() == v.to_bits())
+        };
+        let mut row = vec![0.0; cols];
+        d.row_into(11, &mut row);
+        assert!(same(&row, whole.row(11).as_slice().unwrap()));
+        let mut head = vec![0.0; 7];
+        d.row_into(3, &mut head);
+        assert!(same(&head, &whole.row(3).as_slice().unwrap()[..7]));
+        let means = whole.mean_axis(ndarray::Axis(0)).unwrap();
+        assert!(same(
+            d.means().as_slice().unwrap(),
+            means.as_slice().unwrap()
+        ));
+        // 40 replicates at once, and replicates 13..21 on their own.
+        let mut counts = vec![0u32; n];
+        let all = crate::resample::weight_rows(9, 0, 40, &mut counts);
+        let part = crate::resample::weight_rows(9, 13, 8, &mut counts);
+        let one = crate::resample::product(&all, &whole);
+        let (by_blocks, by_part) = (d.product(&all), d.product(&part));
+        assert!(same(by_blocks.as_slice().unwrap(), one.as_slice().unwrap()));
+        let rows = one.slice(s![13..21, ..]).to_owned();
+        assert!(same(by_part.as_slice().unwrap(), rows.as_slice().unwrap()));
     }
 }

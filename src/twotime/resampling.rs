@@ -10,19 +10,28 @@ use super::fitting::{
 };
 use super::lack_of_fit::LofNull;
 use super::model::{Draw, Values};
-use super::points::{Axes, Parametric, PointVariance, Transform, data_matrix_with_room};
+use super::points::{Axes, DataMatrix, Parametric, PointVariance, Transform};
 use super::settings::{FitSettings, Hold, Weighting};
 use super::shape::{self, Setup};
 use crate::common::Progress;
 use crate::error::{Error, Result};
 use crate::resample;
-use ndarray::{Array2, ArrayView1, Axis};
+use ndarray::{Array2, ArrayView1};
 use rayon::prelude::*;
 
-/// Replicates per chunk of the resampling product; fixed so results do not depend on
-/// threads. 256 rows amortize the packing of `D` (measured against 64 and 1000 on the
-/// 1000-sample campaign of benches/).
-pub(crate) const CHUNK: usize = 256;
+/// Bytes of `W · D` per chunk of replicates.
+const CHUNK_BYTES: usize = 2 << 20;
+
+/// Replicates per chunk of the resampling product for a data matrix of `cols` columns:
+/// [`CHUNK_BYTES`] of product, 16 to 256 rows, a multiple of 16 (64 for 1200 points with
+/// their moment columns). Smaller chunks keep the product's buffers well below the data
+/// matrix on large campaigns (W1 of benches/: peak 63 → 51 MiB against 256 rows, the
+/// same wall time, 5% more CPU in re-packing `D`). Results depend on neither the chunk nor
+/// the threads: replicate `b`'s draws come from `(seed, b)` and its row of `W · D` is its
+/// own.
+pub fn chunk_rows(cols: usize) -> usize {
+    (CHUNK_BYTES / (8 * cols.max(1))).clamp(16, 256) / 16 * 16
+}
 
 /// How point weights are made, the same way in the full fit and in every resample.
 #[derive(Debug, Clone)]
@@ -55,14 +64,15 @@ impl WeightRule {
 }
 
 /// The campaign prepared for fitting: parametric points, the data matrix that one row of
-/// `W · D` turns into a resample, and the rule that makes point weights.
-pub struct Prepared {
+/// `W · D` turns into a resample (the campaign's arrays borrowed, the moment columns
+/// owned), and the rule that makes point weights.
+pub struct Prepared<'a> {
     /// Means to plot coordinates.
     pub tf: Transform,
     /// The parametric points and their leave-one-out versions.
     pub pm: Parametric,
     /// `[C | χ | C(t,t)]` per sample, then the moment columns the weights need.
-    pub data: Array2<f64>,
+    pub data: DataMatrix<'a>,
     /// How weights are made.
     pub rule: WeightRule,
     /// Weights of the full-data fit.
@@ -76,12 +86,12 @@ pub struct Prepared {
 /// # Errors
 /// [`Error::Setting`] for normalized axes without `corr_eq`; [`Error::Analysis`] when
 /// the numbers overflow.
-pub fn prepare(
-    campaign: &Campaign,
+pub fn prepare<'a>(
+    campaign: &'a Campaign,
     settings: &FitSettings,
     spec: Spec,
     cautions: &mut Vec<Caution>,
-) -> Result<Prepared> {
+) -> Result<Prepared<'a>> {
     let normalized = match settings.axes {
         Axes::Auto => campaign.corr_eq().is_some(),
         Axes::Plain => false,
@@ -99,16 +109,10 @@ pub fn prepare(
         points: campaign.n_points(),
     };
     let alpha = spec.model.c_factor();
-    let extra = match settings.weights {
-        Weighting::Uniform => 0,
-        Weighting::InverseVariance => {
-            PointVariance::moment_columns(campaign.n_points(), normalized)
-        }
-    };
-    let mut data = data_matrix_with_room(campaign, normalized, extra);
+    let mut data = DataMatrix::of_campaign(campaign, normalized);
     // Only BCa intervals and the long-age limit read the leave-one-out points.
     let keep_loo = settings.interval == crate::resample::IntervalMethod::Bca || settings.limit;
-    let pm = Parametric::new(data.view(), tf, keep_loo);
+    let pm = Parametric::new(&data, tf, keep_loo);
 
     let finite = |v: &f64| v.is_finite() && (v * v * 1e6).is_finite();
     if !pm
@@ -128,9 +132,8 @@ pub fn prepare(
     let rule = match settings.weights {
         Weighting::Uniform => WeightRule::Uniform,
         Weighting::InverseVariance => {
-            let pv = PointVariance::new(data.view(), tf, alpha, kt);
-            debug_assert_eq!(pv.extra_columns(), extra);
-            pv.fill_moments(&mut data);
+            let pv = PointVariance::new(&data, tf, alpha, kt);
+            data.push(pv.moments(&data));
             WeightRule::Inverse { pv, floor: 0.0 }
         }
     };
@@ -146,10 +149,10 @@ pub fn prepare(
     Ok(prep)
 }
 
-impl Prepared {
+impl Prepared<'_> {
     /// The means of every column over all samples.
     pub fn means(&self) -> ndarray::Array1<f64> {
-        self.data.mean_axis(Axis(0)).unwrap_or_default()
+        self.data.means()
     }
 
     /// The full-data weights, and the variance floor every resample then shares.
@@ -185,7 +188,7 @@ impl Prepared {
 }
 
 /// Groups of points: all of them, then one per held time when there are several.
-pub fn make_groups(campaign: &Campaign, settings: &FitSettings, prep: &Prepared) -> Vec<Group> {
+pub fn make_groups(campaign: &Campaign, settings: &FitSettings, prep: &Prepared<'_>) -> Vec<Group> {
     let p = campaign.n_points();
     let pm = &prep.pm;
     let held_of = |j: usize| match settings.hold {
@@ -220,7 +223,7 @@ pub fn make_groups(campaign: &Campaign, settings: &FitSettings, prep: &Prepared)
 /// Leave-one-sample-out fits (BCa acceleration), weights re-estimated from the `n − 1`
 /// samples left.
 pub fn jackknife(
-    prep: &Prepared,
+    prep: &Prepared<'_>,
     groups: &[Group],
     est: &[Option<Values>],
     spec: Spec,
@@ -232,10 +235,22 @@ pub fn jackknife(
     (0..n)
         .into_par_iter()
         .map_init(
-            || (scratch.to_vec(), vec![0.0; p], vec![0.0; p], full.clone()),
-            |(sc, var, w, loo), i| {
+            || {
+                let row = vec![0.0; prep.data.ncols()];
+                (
+                    scratch.to_vec(),
+                    vec![0.0; p],
+                    vec![0.0; p],
+                    full.clone(),
+                    row,
+                )
+            },
+            |(sc, var, w, loo, row), i| {
                 let nf = n as f64;
-                loo.assign(&((&full * nf - prep.data.row(i)) / (nf - 1.0)));
+                prep.data.row_into(i, row);
+                for ((l, f), v) in loo.iter_mut().zip(&full).zip(row.iter()) {
+                    *l = (f * nf - v) / (nf - 1.0);
+                }
                 prep.rule.weights(loo.view(), n - 1, var, w);
                 let (xr, yr) = (prep.pm.x_jack.row(i), prep.pm.y_jack.row(i));
                 let pts = Points {
@@ -282,7 +297,7 @@ pub struct Replicates {
 /// fixed, so results do not depend on threads. Each resample also gets its null-moved
 /// statistics where `nulls` has the group's null.
 pub fn bootstrap(
-    prep: &Prepared,
+    prep: &Prepared<'_>,
     groups: &[Group],
     nulls: &Nulls<'_>,
     spec: Spec,
@@ -291,6 +306,7 @@ pub fn bootstrap(
     progress: &dyn Progress,
 ) -> Replicates {
     let (n, p, ng) = (prep.data.nrows(), prep.tf.points, groups.len());
+    let chunk = chunk_rows(prep.data.ncols());
     let b_total = settings.resamples;
     let mut draws: Vec<Option<Draw>> = vec![None; b_total * ng];
     let row = if nulls.shape.iter().any(Option::is_some) {
@@ -300,15 +316,15 @@ pub fn bootstrap(
     };
     let mut rows = vec![f64::NAN; b_total * ng * row];
     // A chunk of rows per chunk of draws (a dummy one each when there are no rows).
-    let mut dummy = vec![f64::NAN; draws.len().div_ceil(CHUNK * ng)];
+    let mut dummy = vec![f64::NAN; draws.len().div_ceil(chunk * ng)];
     let row_chunks: Vec<&mut [f64]> = if row > 0 {
-        rows.chunks_mut(CHUNK * ng * row).collect()
+        rows.chunks_mut(chunk * ng * row).collect()
     } else {
         dummy.chunks_mut(1).collect()
     };
     progress.start(b_total as u64);
     draws
-        .par_chunks_mut(CHUNK * ng)
+        .par_chunks_mut(chunk * ng)
         .zip(row_chunks)
         .enumerate()
         .for_each_init(
@@ -318,10 +334,10 @@ pub fn bootstrap(
                 (scratch.to_vec(), vec![0u32; n], bufs, mats)
             },
             |(sc, counts, bufs, [wm, means]), (c, (slot, rows))| {
-                let b0 = c * CHUNK;
+                let b0 = c * chunk;
                 let reps_here = slot.len() / ng;
                 resample::weight_rows_into(settings.seed, b0, reps_here, counts, wm);
-                resample::product_into(wm, &prep.data, means);
+                prep.data.product_into(wm, means);
                 for (r, reps) in slot.chunks_mut(ng).enumerate() {
                     let [x, y, var, w] = &mut bufs[..] else {
                         return;

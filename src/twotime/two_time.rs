@@ -331,13 +331,14 @@ pub fn two_time_ratio(
     };
     let full = d.mean_axis(ndarray::Axis(0)).unwrap_or_default();
     // The same replicates as the fit: replicate b draws resample::draw_counts(seed, b, n).
-    let chunks: Vec<Array2<f64>> = (0..resamples.div_ceil(crate::twotime::CHUNK))
+    let chunk = crate::twotime::chunk_rows(d.ncols());
+    let chunks: Vec<Array2<f64>> = (0..resamples.div_ceil(chunk))
         .into_par_iter()
         .map_init(
             || vec![0u32; n],
             |counts, c| {
-                let b0 = c * crate::twotime::CHUNK;
-                let here = crate::twotime::CHUNK.min(resamples - b0);
+                let b0 = c * chunk;
+                let here = chunk.min(resamples - b0);
                 resample::product(&resample::weight_rows(seed, b0, here, counts), &d)
             },
         )
