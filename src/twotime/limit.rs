@@ -26,7 +26,7 @@
 //! (`--hold tw`).
 
 use super::campaign::Campaign;
-use super::points::Parametric;
+use super::points::LeaveOut;
 use super::resampling::{Prepared, chunk_rows};
 use super::result::{AgeLimit, LimitPoint};
 use super::settings::{FitSettings, Hold};
@@ -303,7 +303,7 @@ pub fn age_limit(
         let iv = interval(v, &r, None, IntervalMethod::Percentile, level);
         Estimate::with(v, iv.as_ref())
     };
-    let x_inf = jackknife_t(&setup, pm, full.x_inf, s.level).unwrap_or_else(|| {
+    let x_inf = jackknife_t(&setup, prep, full.x_inf, s.level).unwrap_or_else(|| {
         let mut e = est(full.x_inf, ok.iter().map(|f| f.x_inf).collect(), read);
         e.note = Some(
             "a leave-one-sample-out fit failed: percentile interval at Student's width".into(),
@@ -346,12 +346,13 @@ pub fn age_limit(
 /// intervals of X∞, even at Student's width, covered 0.920–0.923 at 20 samples; these
 /// 0.933–0.937, and both about 0.95 at 40: docs/validation.md. The jackknife variance
 /// errs on the large side: Efron & Stein, Ann. Stat. 9, 586–596 (1981).)
-fn jackknife_t(setup: &Setup, pm: &Parametric, x_inf: f64, level: f64) -> Option<Estimate> {
-    let n = pm.x_jack.nrows();
+fn jackknife_t(setup: &Setup, prep: &Prepared<'_>, x_inf: f64, level: f64) -> Option<Estimate> {
+    let n = prep.data.nrows();
+    let mut lo = LeaveOut::new(prep.means(), prep.tf);
     let jack = (0..n)
         .map(|i| {
-            let (x, y) = (pm.x_jack.row(i), pm.y_jack.row(i));
-            setup.fit(x.as_slice()?, y.as_slice()?).map(|f| f.x_inf)
+            lo.at(&prep.data, prep.tf, i);
+            setup.fit(&lo.x, &lo.y).map(|f| f.x_inf)
         })
         .collect::<Option<Vec<f64>>>()?;
     let se = resample::jackknife_se(&jack);

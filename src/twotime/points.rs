@@ -207,7 +207,7 @@ impl<'a> DataMatrix<'a> {
     }
 }
 
-/// Parametric points with their sample errors, and the leave-one-sample-out points.
+/// Parametric points with their sample errors (the jackknife over samples).
 #[derive(Debug, Clone)]
 pub struct Parametric {
     /// x per grid point.
@@ -220,53 +220,75 @@ pub struct Parametric {
     pub y_se: Vec<f64>,
     /// Jackknife covariance of x and y.
     pub xy_cov: Vec<f64>,
-    /// Leave-one-out x, samples × points.
-    pub x_jack: Array2<f64>,
-    /// Leave-one-out y, samples × points.
-    pub y_jack: Array2<f64>,
+}
+
+/// The column means and the parametric points of the campaign without one sample, made
+/// from that sample's row of the data matrix, `(n·m̄ − v)/(n − 1)` per column: what every
+/// jackknife reads, one sample at a time, so no samples × points copy is kept.
+#[derive(Debug, Clone)]
+pub struct LeaveOut {
+    full: Array1<f64>,
+    row: Vec<f64>,
+    /// The column means without the sample (all columns, moment columns included).
+    pub means: Array1<f64>,
+    /// Its x per grid point.
+    pub x: Vec<f64>,
+    /// Its y per grid point.
+    pub y: Vec<f64>,
+}
+
+impl LeaveOut {
+    /// For the means `full` of all samples (one per column of the data matrix).
+    pub fn new(full: Array1<f64>, tf: Transform) -> Self {
+        LeaveOut {
+            row: vec![0.0; full.len()],
+            means: full.clone(),
+            full,
+            x: vec![0.0; tf.points],
+            y: vec![0.0; tf.points],
+        }
+    }
+
+    /// Leaves out sample `i` of `data` (its `n` rows).
+    pub fn at(&mut self, data: &DataMatrix<'_>, tf: Transform, i: usize) {
+        let nf = data.nrows() as f64;
+        data.row_into(i, &mut self.row);
+        for ((l, m), v) in self.means.iter_mut().zip(&self.full).zip(&self.row) {
+            *l = (m * nf - v) / (nf - 1.0);
+        }
+        tf.apply(self.means.view(), &mut self.x, &mut self.y);
+    }
 }
 
 impl Parametric {
     /// Computes the points from the raw columns of the data matrix (columns after them
-    /// are not read). The leave-one-out points are kept only with
-    /// `keep_loo` (BCa intervals and the long-age limit read them); otherwise they are
-    /// made a block of rows at a time for the standard errors, which come out the same.
-    pub fn new(data: &DataMatrix<'_>, tf: Transform, keep_loo: bool) -> Self {
+    /// are not read), and their jackknife errors from the leave-one-out points, made a
+    /// block of rows at a time.
+    pub fn new(data: &DataMatrix<'_>, tf: Transform) -> Self {
         let n = data.nrows();
         let p = tf.points;
-        let raw = tf.blocks() * p;
         let means = data.means();
         let (mut x, mut y) = (vec![0.0; p], vec![0.0; p]);
         tf.apply(means.view(), &mut x, &mut y);
         let nf = n as f64;
-        // Leave-one-out points of rows `first..` into row-major `xj`, `yj`, rows in parallel.
-        let fill = |first: usize, xj: &mut [f64], yj: &mut [f64]| {
-            xj.par_chunks_mut(p.max(1))
-                .zip(yj.par_chunks_mut(p.max(1)))
-                .enumerate()
-                .for_each_init(
-                    || (means.clone(), vec![0.0; raw]),
-                    |(loo, row), (i, (xr, yr))| {
-                        data.row_into(first + i, row);
-                        for ((l, m), v) in loo.iter_mut().zip(&means).zip(row.iter()) {
-                            *l = (m * nf - v) / (nf - 1.0);
-                        }
-                        tf.apply(loo.view(), xr, yr);
-                    },
-                );
-        };
-        let rows = if keep_loo { n } else { n.min(64) };
+        let rows = n.min(64);
         let (mut xj, mut yj) = (vec![0.0; rows * p], vec![0.0; rows * p]);
-        if keep_loo {
-            fill(0, &mut xj, &mut yj);
-        }
-        // Every leave-one-out row in order, block by block (one block when kept).
+        // Every leave-one-out row in order, a block of rows at a time, rows in parallel.
         let mut each_row = |f: &mut dyn FnMut(&[f64], &[f64])| {
             for first in (0..n).step_by(rows.max(1)) {
                 let here = rows.min(n - first) * p;
-                if !keep_loo {
-                    fill(first, &mut xj[..here], &mut yj[..here]);
-                }
+                xj[..here]
+                    .par_chunks_mut(p.max(1))
+                    .zip(yj[..here].par_chunks_mut(p.max(1)))
+                    .enumerate()
+                    .for_each_init(
+                        || LeaveOut::new(means.clone(), tf),
+                        |lo, (i, (xr, yr))| {
+                            lo.at(data, tf, first + i);
+                            xr.copy_from_slice(&lo.x);
+                            yr.copy_from_slice(&lo.y);
+                        },
+                    );
                 for (xr, yr) in xj[..here].chunks(p.max(1)).zip(yj[..here].chunks(p.max(1))) {
                     f(xr, yr);
                 }
@@ -291,20 +313,12 @@ impl Parametric {
             }
         });
         let scale = (nf - 1.0) / nf;
-        let x_se = sxx.iter().map(|v| (scale * v).sqrt()).collect();
-        let y_se = syy.iter().map(|v| (scale * v).sqrt()).collect();
-        let xy_cov = sxy.iter().map(|v| scale * v).collect();
-        let kept = if keep_loo { n } else { 0 };
-        xj.truncate(kept * p);
-        yj.truncate(kept * p);
         Parametric {
             x,
             y,
-            x_se,
-            y_se,
-            xy_cov,
-            x_jack: Array2::from_shape_vec((kept, p), xj).expect("rows of P"),
-            y_jack: Array2::from_shape_vec((kept, p), yj).expect("rows of P"),
+            x_se: sxx.iter().map(|v| (scale * v).sqrt()).collect(),
+            y_se: syy.iter().map(|v| (scale * v).sqrt()).collect(),
+            xy_cov: sxy.iter().map(|v| scale * v).collect(),
         }
     }
 }
@@ -429,7 +443,7 @@ mod tests {
     use super::*;
 
     #[test]
-    fn standard_errors_do_not_depend_on_keeping_the_leave_one_out_points() {
+    fn standard_errors_are_the_jackknife_of_the_leave_one_out_points() {
         // 150 samples (more than one block of 64 rows), 7 points, normalized axes.
         let (n, p) = (150, 7);
         let data = Array2::from_shape_fn((n, 3 * p), |(i, j)| {
@@ -441,24 +455,38 @@ mod tests {
             normalized: true,
             points: p,
         };
-        let kept = Parametric::new(&DataMatrix::from_array(data.view()), tf, true);
-        let streamed = Parametric::new(&DataMatrix::from_array(data.view()), tf, false);
-        assert_eq!(kept.x_jack.dim(), (n, p));
-        assert_eq!(streamed.x_jack.nrows(), 0);
-        for (a, b) in [
-            (&kept.x_se, &streamed.x_se),
-            (&kept.y_se, &streamed.y_se),
-            (&kept.xy_cov, &streamed.xy_cov),
-        ] {
-            assert!(a.iter().zip(b).all(|(u, v)| u.to_bits() == v.to_bits()));
-            assert!(a.iter().all(|v| v.is_finite() && *v != 0.0));
+        // The jackknife written out: every leave-one-out point kept, then its spread.
+        let d = DataMatrix::from_array(data.view());
+        let pm = Parametric::new(&d, tf);
+        let mut lo = LeaveOut::new(d.means(), tf);
+        let (mut xs, mut ys) = (Vec::new(), Vec::new());
+        for i in 0..n {
+            lo.at(&d, tf, i);
+            xs.push(lo.x.clone());
+            ys.push(lo.y.clone());
+        }
+        let nf = n as f64;
+        for j in 0..p {
+            let mean = |v: &[Vec<f64>]| v.iter().map(|r| r[j]).sum::<f64>() / nf;
+            let (mx, my) = (mean(&xs), mean(&ys));
+            let cov = |a: &[Vec<f64>], ma: f64, b: &[Vec<f64>], mb: f64| {
+                (nf - 1.0) / nf
+                    * a.iter()
+                        .zip(b)
+                        .map(|(u, v)| (u[j] - ma) * (v[j] - mb))
+                        .sum::<f64>()
+            };
+            let close = |u: f64, v: f64| (u - v).abs() <= 1e-12 * v.abs() && v != 0.0;
+            assert!(close(pm.x_se[j], cov(&xs, mx, &xs, mx).sqrt()));
+            assert!(close(pm.y_se[j], cov(&ys, my, &ys, my).sqrt()));
+            assert!(close(pm.xy_cov[j], cov(&xs, mx, &ys, my)));
         }
         // Plain axes: the jackknife standard error of a mean is s/√n (common practice).
         let tf = Transform {
             normalized: false,
             ..tf
         };
-        let plain = Parametric::new(&DataMatrix::from_array(data.view()), tf, false);
+        let plain = Parametric::new(&DataMatrix::from_array(data.view()), tf);
         let col: Vec<f64> = (0..n).map(|i| data[[i, 0]]).collect();
         let m = col.iter().sum::<f64>() / n as f64;
         let s2 = col.iter().map(|v| (v - m).powi(2)).sum::<f64>() / (n as f64 - 1.0);

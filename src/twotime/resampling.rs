@@ -10,7 +10,7 @@ use super::fitting::{
 };
 use super::lack_of_fit::LofNull;
 use super::model::{Draw, Values};
-use super::points::{Axes, DataMatrix, Parametric, PointVariance, Transform};
+use super::points::{Axes, DataMatrix, LeaveOut, Parametric, PointVariance, Transform};
 use super::settings::{FitSettings, Hold, Weighting};
 use super::shape::{self, Setup};
 use crate::common::Progress;
@@ -110,9 +110,7 @@ pub fn prepare<'a>(
     };
     let alpha = spec.model.c_factor();
     let mut data = DataMatrix::of_campaign(campaign, normalized);
-    // Only BCa intervals and the long-age limit read the leave-one-out points.
-    let keep_loo = settings.interval == crate::resample::IntervalMethod::Bca || settings.limit;
-    let pm = Parametric::new(&data, tf, keep_loo);
+    let pm = Parametric::new(&data, tf);
 
     let finite = |v: &f64| v.is_finite() && (v * v * 1e6).is_finite();
     if !pm
@@ -236,26 +234,15 @@ pub fn jackknife(
         .into_par_iter()
         .map_init(
             || {
-                let row = vec![0.0; prep.data.ncols()];
-                (
-                    scratch.to_vec(),
-                    vec![0.0; p],
-                    vec![0.0; p],
-                    full.clone(),
-                    row,
-                )
+                let lo = LeaveOut::new(full.clone(), prep.tf);
+                (scratch.to_vec(), vec![0.0; p], vec![0.0; p], lo)
             },
-            |(sc, var, w, loo, row), i| {
-                let nf = n as f64;
-                prep.data.row_into(i, row);
-                for ((l, f), v) in loo.iter_mut().zip(&full).zip(row.iter()) {
-                    *l = (f * nf - v) / (nf - 1.0);
-                }
-                prep.rule.weights(loo.view(), n - 1, var, w);
-                let (xr, yr) = (prep.pm.x_jack.row(i), prep.pm.y_jack.row(i));
+            |(sc, var, w, lo), i| {
+                lo.at(&prep.data, prep.tf, i);
+                prep.rule.weights(lo.means.view(), n - 1, var, w);
                 let pts = Points {
-                    x: xr.as_slice().unwrap_or(&[]),
-                    y: yr.as_slice().unwrap_or(&[]),
+                    x: &lo.x,
+                    y: &lo.y,
                     w,
                 };
                 groups
