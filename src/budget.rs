@@ -11,10 +11,13 @@ use crate::twotime::chunk_rows;
 /// columns over `p` points, `groups` fits, `b` resamples and `threads` workers.
 pub fn fit_bytes(n: usize, cols: usize, p: usize, groups: usize, b: usize, threads: usize) -> f64 {
     let f = |v: usize| v as f64;
-    // The campaign and its moment columns, or while reading, the rows with their indices.
-    let data = 2.0 * f(n) * f(cols) * 8.0;
-    let jack = 2.0 * f(n) * f(p) * 8.0 + f(n) * f(groups) * f(crate::twotime::BYTES_PER_DRAW);
-    let per_thread = f(chunk_rows(cols)) * (f(n) + 2.0 * f(cols)) * 8.0 + f(groups) * f(p) * 64.0;
+    // The data matrix: the campaign's arrays, read in place, and the moment columns.
+    let data = f(n) * f(cols) * 8.0;
+    // The leave-one-out draws (their points are made one sample at a time).
+    let jack = f(n) * f(groups) * f(crate::twotime::BYTES_PER_DRAW);
+    // A chunk's W and W·D, the fits' scratch, and the product's packing buffers (4 MiB).
+    let per_thread =
+        f(chunk_rows(cols)) * (f(n) + 2.0 * f(cols)) * 8.0 + f(groups) * f(p) * 64.0 + f(4 << 20);
     let draws = f(b) * f(groups) * f(crate::twotime::BYTES_PER_DRAW);
     // Interval work: a few copies of one series of b numbers at a time.
     let series = 4.0 * f(b) * 8.0;

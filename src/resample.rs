@@ -229,6 +229,18 @@ pub fn product_columns(
 ) {
     let (rows, n, cols) = (w.nrows(), w.ncols(), d.ncols());
     assert!(out.nrows() == rows && out.ncols() >= first + cols && d.nrows() == n);
+    if rows == 1 {
+        // faer multiplies a single row another way, whose sums can differ in the last
+        // bit from the same row inside a larger product: the row is multiplied twice over
+        // so that a replicate's means do not depend on the chunk it falls in.
+        let two = ndarray::concatenate(ndarray::Axis(0), &[w.view(), w.view()])
+            .expect("two rows of one width");
+        let mut pair = ndarray::Array2::zeros((2, cols));
+        product_columns(&two, d, &mut pair, 0);
+        out.slice_mut(ndarray::s![0, first..first + cols])
+            .assign(&pair.row(0));
+        return;
+    }
     let width = out.ncols();
     if let (Some(ws), Some(ds), Some(os)) = (w.as_slice(), d.as_slice(), out.as_slice_mut()) {
         let lhs = faer::MatRef::from_row_major_slice(ws, rows, n);
@@ -470,5 +482,30 @@ mod tests {
         assert_eq!(covering_level(500.5, &reps, None, p, 5000.0), Some(1.0));
         let centre = covering_level(500.5, &reps, None, p, 500.5).unwrap();
         assert!(centre < 0.002, "{centre}");
+    }
+
+    #[test]
+    fn a_replicate_has_the_same_row_of_the_product_in_any_chunk() {
+        // 1000 samples (faer takes another path for a one-row product at this size), 300
+        // columns: rows 0..70 at once, then in chunks of 64, 2, 3 and 1 rows.
+        let (n, cols) = (1000, 300);
+        let d = ndarray::Array2::from_shape_fn((n, cols), |(i, j)| {
+            (((i * 7919 + j * 104_729) % 1009) as f64 / 1009.0 - 0.4) * 3.0
+        });
+        let mut counts = vec![0u32; n];
+        let all = product(&weight_rows(5, 0, 70, &mut counts), &d);
+        let mut at = 0;
+        for rows in [64, 2, 3, 1] {
+            let part = product(&weight_rows(5, at, rows, &mut counts), &d);
+            for r in 0..rows {
+                let same = part
+                    .row(r)
+                    .iter()
+                    .zip(all.row(at + r))
+                    .all(|(u, v)| u.to_bits() == v.to_bits());
+                assert!(same, "row {} in a chunk of {rows}", at + r);
+            }
+            at += rows;
+        }
     }
 }

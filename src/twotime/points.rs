@@ -251,6 +251,7 @@ impl LeaveOut {
 
     /// Leaves out sample `i` of `data` (its `n` rows).
     pub fn at(&mut self, data: &DataMatrix<'_>, tf: Transform, i: usize) {
+        debug_assert_eq!(self.full.len(), data.ncols(), "the means of this matrix");
         let nf = data.nrows() as f64;
         data.row_into(i, &mut self.row);
         for ((l, m), v) in self.means.iter_mut().zip(&self.full).zip(&self.row) {
@@ -261,9 +262,10 @@ impl LeaveOut {
 }
 
 impl Parametric {
-    /// Computes the points from the raw columns of the data matrix (columns after them
-    /// are not read), and their jackknife errors from the leave-one-out points, made a
-    /// block of rows at a time.
+    /// Computes the points from the raw columns of the data matrix (before the moment
+    /// columns are added; columns after the raw ones would be carried along unused), and
+    /// their jackknife errors from the leave-one-out points, made a block of rows at a
+    /// time.
     pub fn new(data: &DataMatrix<'_>, tf: Transform) -> Self {
         let n = data.nrows();
         let p = tf.points;

@@ -23,12 +23,13 @@ use rayon::prelude::*;
 const CHUNK_BYTES: usize = 2 << 20;
 
 /// Replicates per chunk of the resampling product for a data matrix of `cols` columns:
-/// [`CHUNK_BYTES`] of product, 16 to 256 rows, a multiple of 16 (64 for 1200 points with
-/// their moment columns). Smaller chunks keep the product's buffers well below the data
+/// 2 MiB of product, 16 to 256 rows, a multiple of 16 (64 for 1200 points on plain axes
+/// with one moment column each, 32 on normalized axes). Smaller chunks keep the product's buffers well below the data
 /// matrix on large campaigns (W1 of benches/: peak 63 → 51 MiB against 256 rows, the
 /// same wall time, 5% more CPU in re-packing `D`). Results depend on neither the chunk nor
 /// the threads: replicate `b`'s draws come from `(seed, b)` and its row of `W · D` is its
-/// own.
+/// own, the same bits in any chunk (a one-row chunk is multiplied as two rows, since the
+/// product takes another path for one row: `resample::product_columns`).
 pub fn chunk_rows(cols: usize) -> usize {
     (CHUNK_BYTES / (8 * cols.max(1))).clamp(16, 256) / 16 * 16
 }
@@ -69,7 +70,7 @@ impl WeightRule {
 pub struct Prepared<'a> {
     /// Means to plot coordinates.
     pub tf: Transform,
-    /// The parametric points and their leave-one-out versions.
+    /// The parametric points and their jackknife errors.
     pub pm: Parametric,
     /// `[C | χ | C(t,t)]` per sample, then the moment columns the weights need.
     pub data: DataMatrix<'a>,
