@@ -61,24 +61,14 @@ pub fn data_matrix(campaign: &Campaign, normalized: bool) -> Array2<f64> {
 /// [`data_matrix`] with `extra` more columns (zeros) after the raw ones: the one-matrix
 /// shape of the product with moment columns (examples/product_floor times it).
 pub fn data_matrix_with_room(campaign: &Campaign, normalized: bool, extra: usize) -> Array2<f64> {
-    let mut parts = vec![campaign.corr(), campaign.resp()];
-    if normalized && let Some(eq) = campaign.corr_eq() {
-        parts.push(eq);
-    }
-    let (n, p) = (campaign.n_samples(), campaign.n_points());
-    let width = parts.len() * p + extra;
-    let mut flat = vec![0.0; n * width];
-    // Rows in parallel (the pages are first touched there too).
+    let d = DataMatrix::of_campaign(campaign, normalized);
+    let width = d.ncols() + extra;
+    let mut flat = vec![0.0; d.nrows() * width];
+    // Rows in parallel (the pages are first touched there too); the room stays zero.
     flat.par_chunks_mut(width.max(1))
         .enumerate()
-        .for_each(|(i, row)| {
-            for (b, part) in parts.iter().enumerate() {
-                for (o, v) in row[b * p..(b + 1) * p].iter_mut().zip(part.row(i)) {
-                    *o = *v;
-                }
-            }
-        });
-    Array2::from_shape_vec((n, width), flat).expect("n rows of the full width")
+        .for_each(|(i, row)| d.row_into(i, row));
+    Array2::from_shape_vec((d.nrows(), width), flat).expect("n rows of the full width")
 }
 
 /// The data matrix `D`, samples × columns: `[C | χ | C(t,t)]` per sample, then any

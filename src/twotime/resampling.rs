@@ -24,9 +24,9 @@ const CHUNK_BYTES: usize = 2 << 20;
 
 /// Replicates per chunk of the resampling product for a data matrix of `cols` columns:
 /// 2 MiB of product, 16 to 256 rows, a multiple of 16 (64 for 1200 points on plain axes
-/// with one moment column each, 32 on normalized axes). Smaller chunks keep the product's buffers well below the data
-/// matrix on large campaigns (W1 of benches/: peak 63 → 51 MiB against 256 rows, the
-/// same wall time, 5% more CPU in re-packing `D`). Results depend on neither the chunk nor
+/// with one moment column each, 32 on normalized axes). Smaller chunks keep the product's
+/// buffers well below the data matrix on large campaigns (W1 of benches/: peak 63 → 51 MiB
+/// against 256 rows, the same wall time, 5% more CPU in re-packing `D`). Results depend on neither the chunk nor
 /// the threads: replicate `b`'s draws come from `(seed, b)` and its row of `W · D` is its
 /// own, the same bits in any chunk (a one-row chunk is multiplied as two rows, since the
 /// product takes another path for one row: `resample::product_columns`).
