@@ -74,6 +74,8 @@ pub struct Workspace {
     start: Vec<usize>,
     /// The x in `order`'s order, while sorting.
     keys: Vec<f64>,
+    /// Bins of x for the counting pass of a large sort (empty for few points).
+    bins: Bins,
     /// The x part of the last search.
     xp: XPart,
     /// What each response of one pass needs per allowed interval.
@@ -89,11 +91,10 @@ struct Resp {
     /// `⟨r,u⟩`, `⟨r,v⟩` after projection.
     al: Vec<f64>,
     be: Vec<f64>,
-    /// The best candidate in the interval: its explained sum of squares as `num / den`,
-    /// and its break.
+    /// The best candidate in the interval: its explained sum of squares as `num / den`
+    /// (its break is made again for the interval chosen: [`solution`]).
     num: Vec<f64>,
     den: Vec<f64>,
-    q: Vec<f64>,
 }
 
 impl Workspace {
@@ -106,6 +107,7 @@ impl Workspace {
     pub fn sorted_by(x: &[f64]) -> Self {
         let order = order_of(x);
         Workspace {
+            bins: Bins::over(x),
             start: order.clone(),
             order,
             ..Workspace::default()
@@ -114,26 +116,122 @@ impl Workspace {
 
     /// Sorts `order` by `x`, starting from [`Workspace::start`] when it has one for this
     /// many points, from the last order otherwise. The sort is stable, so ties keep the
-    /// starting order.
+    /// starting order: the result is the stable sort of the starting order, whichever way
+    /// it is reached.
     fn sort(&mut self, x: &[f64]) {
         let p = x.len();
         if self.start.len() == p {
-            self.order.clear();
-            self.order.extend_from_slice(&self.start);
+            if self.bins.count.is_empty() {
+                self.order.clear();
+                self.order.extend_from_slice(&self.start);
+                self.keys.clear();
+                self.keys.extend(self.order.iter().map(|&i| x[i]));
+            } else {
+                self.bins
+                    .distribute(x, &self.start, &mut self.order, &mut self.keys);
+            }
         } else if self.order.len() != p {
             self.order = order_of(x);
             return;
+        } else {
+            self.keys.clear();
+            self.keys.extend(self.order.iter().map(|&i| x[i]));
         }
-        self.keys.clear();
-        self.keys.extend(self.order.iter().map(|&i| x[i]));
         insertion_sort(&mut self.order, &mut self.keys);
+    }
+}
+
+/// Equal-width bins of x for the counting pass that puts a large resample's points
+/// nearly in order before the insertion sort.
+///
+/// The curves of a joint fit cover the same range of C, and one resample moves a whole
+/// curve against the others, so its points land several places from where the full
+/// data's order put them (about 6 on the joint curve of W3 in benches/, 1200 points).
+/// The insertion sort then pays a mispredicted branch for most points. Counting the
+/// points into bins first (bins a monotone function of x, points taken in the starting
+/// order) leaves them out of order only within a bin: 0.2 shifts a point with 4096
+/// bins, and the whole sort takes 7 µs instead of 15.5 µs there. The result is the
+/// same permutation: both are the stable sort of the starting order.
+#[derive(Debug, Default, Clone)]
+struct Bins {
+    /// Lowest x of the full data.
+    lo: f64,
+    /// Bins per unit of x.
+    scale: f64,
+    /// Points per bin, then where each bin starts (one more entry than bins).
+    count: Vec<u32>,
+    /// The bin of each point, in the starting order.
+    bin: Vec<u32>,
+}
+
+/// Fewest points for which a sort counts into bins first (below this the insertion sort
+/// alone is as fast).
+const BINNED_SORT_MIN: usize = 256;
+
+impl Bins {
+    /// Bins over the range of `x`, about three per point; none for few points, or x
+    /// without a finite spread.
+    fn over(x: &[f64]) -> Self {
+        let (lo, hi) = x
+            .iter()
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), &v| {
+                (lo.min(v), hi.max(v))
+            });
+        let width = hi - lo;
+        if x.len() < BINNED_SORT_MIN || !(width > 0.0 && width.is_finite()) {
+            return Bins::default();
+        }
+        let n = (3 * x.len()).next_power_of_two();
+        Bins {
+            lo,
+            scale: (n - 1) as f64 / width,
+            count: vec![0; n + 1],
+            bin: vec![0; x.len()],
+        }
+    }
+
+    /// `order` and `keys`: the points of `start` (with their x) stably counted into bins.
+    /// x outside the full data's range goes to the end bins; the bin is non-decreasing
+    /// in x, so the insertion sort that follows only fixes the order within bins.
+    fn distribute(
+        &mut self,
+        x: &[f64],
+        start: &[usize],
+        order: &mut Vec<usize>,
+        keys: &mut Vec<f64>,
+    ) {
+        let top = (self.count.len() - 2) as f64;
+        let (lo, scale) = (self.lo, self.scale);
+        self.count.fill(0);
+        self.bin.resize(start.len(), 0);
+        for (b, &i) in self.bin.iter_mut().zip(start) {
+            // `as` saturates and maps NaN to 0, so every bin is in range.
+            *b = ((x[i] - lo) * scale).clamp(0.0, top) as u32;
+        }
+        for &b in &self.bin {
+            self.count[b as usize + 1] += 1;
+        }
+        let mut sum = 0;
+        for c in &mut self.count {
+            sum += *c;
+            *c = sum;
+        }
+        order.resize(start.len(), 0);
+        keys.resize(start.len(), 0.0);
+        for (&b, &i) in self.bin.iter().zip(start) {
+            let at = &mut self.count[b as usize];
+            order[*at as usize] = i;
+            keys[*at as usize] = x[i];
+            *at += 1;
+        }
     }
 }
 
 /// What a search needs that depends only on the points' x and weights, the base and the
 /// least branch `m`. Per allowed interval `i` (break after the first `k = m + i` sorted
-/// points): the prefix sums `Σw`, `Σw x`, `Σw x²` (centred x) and the projected
-/// `⟨u,u⟩`, `⟨u,v⟩`, `⟨v,v⟩`.
+/// points): the prefix sums `Σw`, `Σw x`, `Σw x²` (centred x), from which
+/// [`projected`] makes the projected `⟨u,u⟩`, `⟨u,v⟩`, `⟨v,v⟩` where they are
+/// used (cheaper than storing and reloading them).
 #[derive(Debug, Default, Clone)]
 struct XPart {
     /// The x, weights, base and `m` it was made from (`None`: nothing made yet).
@@ -143,18 +241,14 @@ struct XPart {
     sw: f64,
     xm: f64,
     sxx: f64,
+    /// `1 / sw`, and `1 / sxx` with [`Base::Line`] (0 otherwise): the projection's factors.
+    inv_sw: f64,
+    inv_sxx: f64,
     /// Centred x in sorted order (all points).
     dx: Vec<f64>,
-    /// `w · dx` in sorted order (all points).
-    wdx: Vec<f64>,
-    /// Weights in sorted order (all points).
-    ws: Vec<f64>,
     s0: Vec<f64>,
     s1: Vec<f64>,
     s2: Vec<f64>,
-    ga: Vec<f64>,
-    de: Vec<f64>,
-    ep: Vec<f64>,
 }
 
 impl XPart {
@@ -162,78 +256,96 @@ impl XPart {
         self.key == Some(key) && same_bits(&self.x, x) && same_bits(&self.w, w)
     }
 
-    /// Makes the x part for sorted `order`; `false` when x has no spread.
-    fn make(&mut self, x: &[f64], w: &[f64], order: &[usize], key: (Base, usize)) -> bool {
-        let (p, m) = (x.len(), key.1);
-        let line = key.0 == Base::Line;
-        self.key = None;
-        let (sw, swx) = x
-            .iter()
-            .zip(w)
-            .fold((0.0, 0.0), |(a, b), (x, w)| (a + w, b + w * x));
-        self.sw = sw;
-        self.xm = swx / sw;
-        self.sxx = x
-            .iter()
-            .zip(w)
-            .map(|(x, w)| {
-                let dx = x - self.xm;
-                w * dx * dx
-            })
-            .sum();
-        if !(self.sxx > 0.0) {
-            return false;
-        }
-        for v in [&mut self.dx, &mut self.ws, &mut self.wdx] {
-            v.resize(p, 0.0);
-        }
-        // The points in sorted order, their prefix sums, then the projection of every
-        // interval (with no dependence between intervals: vectorized).
-        let n = p + 1 - 2 * m;
-        for v in [&mut self.s0, &mut self.s1, &mut self.s2] {
-            v.resize(n, 0.0);
-        }
-        let sorted = self.dx.iter_mut().zip(&mut self.ws).zip(&mut self.wdx);
-        for (((dx, ws), wdx), &i) in sorted.zip(order) {
-            *dx = x[i] - self.xm;
-            *ws = w[i];
-            *wdx = w[i] * *dx;
-        }
-        // The first m − 1 points only add; each of the next n ends an allowed interval.
-        let mut s = [0.0f64; 3];
-        let mut sorted = self.ws.iter().zip(&self.wdx).zip(&self.dx);
-        for ((ws, wdx), dx) in sorted.by_ref().take(m - 1) {
-            s[0] += ws;
-            s[1] += wdx;
-            s[2] += wdx * dx;
-        }
-        let out = self.s0.iter_mut().zip(&mut self.s1).zip(&mut self.s2);
-        for (((ws, wdx), dx), ((s0, s1), s2)) in sorted.zip(out) {
-            s[0] += ws;
-            s[1] += wdx;
-            s[2] += wdx * dx;
-            (*s0, *s1, *s2) = (s[0], s[1], s[2]);
-        }
-        for v in [&mut self.ga, &mut self.de, &mut self.ep] {
-            v.resize(n, 0.0);
-        }
-        let (inv_sw, inv_sxx) = (1.0 / self.sw, if line { 1.0 / self.sxx } else { 0.0 });
-        let sums = self.s0.iter().zip(&self.s1).zip(&self.s2);
-        let out = self.ga.iter_mut().zip(&mut self.de).zip(&mut self.ep);
-        pulp::Arch::new().dispatch(|| {
-            for (((uu, uv), vv), ((&s_w, &s_x), &s_xx)) in out.zip(sums) {
-                *uu = s_w - s_w * s_w * inv_sw - s_x * s_x * inv_sxx;
-                *uv = s_x - s_w * s_x * inv_sw - s_x * s_xx * inv_sxx;
-                *vv = s_xx - s_x * s_x * inv_sw - s_xx * s_xx * inv_sxx;
+    /// The weighted mean and spread of x (with `FRESH`; otherwise those of the x part
+    /// made) and the centred moments of each response, in two passes whose sums run side
+    /// by side, each in its own order: the same numbers as taken one by one. `None` when
+    /// x has no spread.
+    fn centre<const K: usize, const FRESH: bool>(
+        &mut self,
+        x: &[f64],
+        w: &[f64],
+        rs: [&[f64]; K],
+    ) -> Option<[Centred; K]> {
+        let p = x.len();
+        let rs = rs.map(|r| &r[..p]);
+        let (mut sw, mut swx) = (0.0f64, 0.0f64);
+        let mut swr = [-0.0f64; K];
+        for (j, (x, w)) in x.iter().zip(w).enumerate() {
+            if FRESH {
+                sw += w;
+                swx += w * x;
             }
-        });
+            for k in 0..K {
+                swr[k] += w * rs[k][j];
+            }
+        }
+        if FRESH {
+            self.key = None;
+            self.sw = sw;
+            self.xm = swx / sw;
+        }
+        let rm = swr.map(|s| s / self.sw);
+        let mut sxx = 0.0f64;
+        let (mut sxr, mut srr) = ([0.0f64; K], [0.0f64; K]);
+        for (j, (x, w)) in x.iter().zip(w).enumerate() {
+            let dx = x - self.xm;
+            if FRESH {
+                sxx += w * dx * dx;
+            }
+            for k in 0..K {
+                let dr = rs[k][j] - rm[k];
+                sxr[k] += w * dx * dr;
+                srr[k] += w * dr * dr;
+            }
+        }
+        if FRESH {
+            self.sxx = sxx;
+            if !(sxx > 0.0) {
+                return None;
+            }
+        }
+        Some(std::array::from_fn(|k| Centred {
+            rm: rm[k],
+            sxr: sxr[k],
+            srr: srr[k],
+            slope: sxr[k] / self.sxx,
+        }))
+    }
+
+    /// Ends a new x part made by [`Workspace::sorted_pass`]: the projection's factors,
+    /// and the x, weights and key it was made from.
+    fn finish(&mut self, x: &[f64], w: &[f64], key: (Base, usize)) {
+        self.inv_sw = 1.0 / self.sw;
+        self.inv_sxx = if key.0 == Base::Line {
+            1.0 / self.sxx
+        } else {
+            0.0
+        };
         self.x.clear();
         self.x.extend_from_slice(x);
         self.w.clear();
         self.w.extend_from_slice(w);
         self.key = Some(key);
-        true
     }
+
+    /// The projected `⟨u,u⟩`, `⟨u,v⟩`, `⟨v,v⟩` of interval `i`.
+    fn projected(&self, i: usize) -> [f64; 3] {
+        let f = [self.inv_sw, self.inv_sxx];
+        projected(f, self.s0[i], self.s1[i], self.s2[i])
+    }
+}
+
+/// The projected `⟨u,u⟩`, `⟨u,v⟩`, `⟨v,v⟩` of an interval from its prefix sums, with
+/// the base regressors projected out of the indicator `u` of the first points and
+/// `v = dx·u`; `f` is [`XPart`]'s `[inv_sw, inv_sxx]`.
+#[inline(always)]
+fn projected(f: [f64; 2], s_w: f64, s_x: f64, s_xx: f64) -> [f64; 3] {
+    let [inv_sw, inv_sxx] = f;
+    [
+        s_w - s_w * s_w * inv_sw - s_x * s_x * inv_sxx,
+        s_x - s_w * s_x * inv_sw - s_x * s_xx * inv_sxx,
+        s_xx - s_x * s_x * inv_sw - s_xx * s_xx * inv_sxx,
+    ]
 }
 
 /// The two slices hold the same numbers, bit for bit.
@@ -330,22 +442,24 @@ pub fn search_each(
         return;
     }
     let key = (base, m);
+    let mut profile = profile;
+    let mut chunks = rs.chunks(MAX_RESPONSES).zip(out.chunks_mut(MAX_RESPONSES));
     if !ws.xp.matches(x, w, key) {
         ws.sort(x);
-        if !ws.xp.make(x, w, &ws.order, key) {
+        // The x part is made in the first pass, beside the first responses (none when
+        // their lengths are wrong: they are left `None`, as in any pass).
+        let made = match chunks.next() {
+            Some((rs, out)) if rs.iter().all(|r| r.len() == p) => {
+                ws.pass_any::<true>(rs, x, w, key, profile.take(), out)
+            }
+            _ => ws.pass::<0, true>([], x, w, key, None, &mut []),
+        };
+        if !made {
             return;
         }
     }
-    let line = base == Base::Line;
-    let mut profile = profile;
-    for (rs, out) in rs.chunks(MAX_RESPONSES).zip(out.chunks_mut(MAX_RESPONSES)) {
-        let prof = profile.take();
-        match *rs {
-            [a] => ws.pass([a], x, w, line, m, prof, out),
-            [a, b] => ws.pass([a, b], x, w, line, m, prof, out),
-            [a, b, c] => ws.pass([a, b, c], x, w, line, m, prof, out),
-            _ => {}
-        }
+    for (rs, out) in chunks {
+        ws.pass_any::<false>(rs, x, w, key, profile.take(), out);
     }
 }
 
@@ -359,34 +473,6 @@ struct Centred {
 }
 
 impl Centred {
-    /// The moments of each response, their sums side by side (each in its own order).
-    fn of_each<const K: usize>(xp: &XPart, x: &[f64], rs: [&[f64]; K], w: &[f64]) -> [Self; K] {
-        let p = x.len();
-        let rs = rs.map(|r| &r[..p]);
-        let mut swr = [-0.0f64; K];
-        for (j, w) in w.iter().enumerate() {
-            for k in 0..K {
-                swr[k] += w * rs[k][j];
-            }
-        }
-        let rm = swr.map(|s| s / xp.sw);
-        let (mut sxr, mut srr) = ([0.0f64; K], [0.0f64; K]);
-        for (j, (x, w)) in x.iter().zip(w).enumerate() {
-            let dx = x - xp.xm;
-            for k in 0..K {
-                let dr = rs[k][j] - rm[k];
-                sxr[k] += w * dx * dr;
-                srr[k] += w * dr * dr;
-            }
-        }
-        std::array::from_fn(|k| Centred {
-            rm: rm[k],
-            sxr: sxr[k],
-            srr: srr[k],
-            slope: sxr[k] / xp.sxx,
-        })
-    }
-
     /// SSE of the base model alone (no break).
     fn sse_null(&self, line: bool, sxx: f64) -> f64 {
         if line {
@@ -439,24 +525,51 @@ fn interval_candidates(
 }
 
 impl Workspace {
-    /// The search of up to [`MAX_RESPONSES`] responses on the points of the x part made:
-    /// their sums in one pass, then each response's candidates and best break.
-    #[allow(clippy::too_many_arguments)]
-    fn pass<const K: usize>(
+    /// [`Workspace::pass`] for 0 to [`MAX_RESPONSES`] responses (`false` for more).
+    fn pass_any<const FRESH: bool>(
+        &mut self,
+        rs: &[&[f64]],
+        x: &[f64],
+        w: &[f64],
+        key: (Base, usize),
+        profile: Option<&mut Vec<(f64, f64)>>,
+        out: &mut [Option<BreakSolution>],
+    ) -> bool {
+        match *rs {
+            [] => self.pass::<0, FRESH>([], x, w, key, profile, out),
+            [a] => self.pass::<1, FRESH>([a], x, w, key, profile, out),
+            [a, b] => self.pass::<2, FRESH>([a, b], x, w, key, profile, out),
+            [a, b, c] => self.pass::<3, FRESH>([a, b, c], x, w, key, profile, out),
+            _ => false,
+        }
+    }
+
+    /// The search of up to [`MAX_RESPONSES`] responses: their sums in one pass, then each
+    /// response's candidates and best break. With `FRESH` the x part of the sorted
+    /// points is made in the same passes (its sums are independent of the responses', so
+    /// they run side by side); without, it is the one made before. Returns `false`
+    /// (and leaves `out` alone) when a new x has no spread, or a response's length is
+    /// wrong.
+    fn pass<const K: usize, const FRESH: bool>(
         &mut self,
         rs: [&[f64]; K],
         x: &[f64],
         w: &[f64],
-        line: bool,
-        m: usize,
+        key: (Base, usize),
         profile: Option<&mut Vec<(f64, f64)>>,
         out: &mut [Option<BreakSolution>],
-    ) {
+    ) -> bool {
         if rs.iter().any(|r| r.len() != x.len()) {
-            return;
+            return false;
         }
-        let cs = Centred::of_each(&self.xp, x, rs, w);
-        self.response_parts(rs, &cs, line, m);
+        let Some(cs) = self.xp.centre::<K, FRESH>(x, w, rs) else {
+            return false;
+        };
+        let (line, m) = (key.0 == Base::Line, key.1);
+        self.sorted_pass::<K, FRESH>(x, w, rs, &cs, line, m);
+        if FRESH {
+            self.xp.finish(x, w, key);
+        }
         let tiny = 1e-12 * self.xp.sxx;
         let mut profile = profile;
         for (k, (c, out)) in cs.iter().zip(out).enumerate() {
@@ -464,46 +577,81 @@ impl Workspace {
             let sse_null = c.sse_null(line, self.xp.sxx);
             *out = self
                 .best(k, sse_null, tiny, m, profile.take())
-                .map(|i| solution(self, k, i, c, line, m));
+                .map(|i| solution(self, k, i, c, line, m, tiny));
         }
+        true
     }
 
-    /// The projected `⟨r,u⟩`, `⟨r,v⟩` of every allowed interval, for each response: one
-    /// pass of prefix sums of `w dr` and `w dx dr` over the sorted points.
-    fn response_parts<const K: usize>(
+    /// One pass through the sorted points. With `FRESH` it makes the x part's sorted
+    /// arrays (centred x, weights, `w dx`) and, per allowed interval `i` (break after the
+    /// first `m + i` sorted points), the prefix sums of `w`, `w dx`, `w dx²`; it reads
+    /// them otherwise. Beside them, for each response, the projected `⟨r,u⟩`, `⟨r,v⟩` of
+    /// every allowed interval from prefix sums of `w dr` and `w dx dr`.
+    fn sorted_pass<const K: usize, const FRESH: bool>(
         &mut self,
+        x: &[f64],
+        w: &[f64],
         rs: [&[f64]; K],
         cs: &[Centred; K],
         line: bool,
         m: usize,
     ) {
-        let xp = &self.xp;
-        let n_intervals = xp.ga.len();
-        for r in &mut self.resp[..K] {
-            r.al.resize(n_intervals, 0.0);
-            r.be.resize(n_intervals, 0.0);
-        }
-        let (mut s3, mut s4) = ([0.0f64; K], [0.0f64; K]);
-        let slope = cs.each_ref().map(|c| if line { c.slope } else { 0.0 });
-        let rm = cs.each_ref().map(|c| c.rm);
-        let mut sorted = self.order.iter().zip(&xp.ws).zip(&xp.wdx);
-        // The first m − 1 points only add; each later one ends an allowed interval.
-        for ((&i, w), wdx) in sorted.by_ref().take(m - 1) {
-            for k in 0..K {
-                let dr = rs[k][i] - rm[k];
-                s3[k] += w * dr;
-                s4[k] += wdx * dr;
+        let p = x.len();
+        let n = p + 1 - 2 * m;
+        let xp = &mut self.xp;
+        if FRESH {
+            xp.dx.resize(p, 0.0);
+            for v in [&mut xp.s0, &mut xp.s1, &mut xp.s2] {
+                v.resize(n, 0.0);
             }
         }
+        for r in &mut self.resp[..K] {
+            r.al.resize(n, 0.0);
+            r.be.resize(n, 0.0);
+        }
         let out = self.resp.each_mut();
-        let sums = xp.s1.iter().zip(&xp.s2);
-        for (j, (((&i, w), wdx), (s1, s2))) in sorted.zip(sums).enumerate() {
+        let slope = cs.each_ref().map(|c| if line { c.slope } else { 0.0 });
+        let rm = cs.each_ref().map(|c| c.rm);
+        let xm = xp.xm;
+        let (mut s, mut s3, mut s4) = ([0.0f64; 3], [0.0f64; K], [0.0f64; K]);
+        // The first m − 1 points only add; each of the next n ends an allowed interval;
+        // the last m − 1 only enter the x part's arrays.
+        for (j, &i) in self.order.iter().enumerate() {
+            let wi = w[i];
+            let wdx = if FRESH {
+                let dx = x[i] - xm;
+                let wdx = wi * dx;
+                xp.dx[j] = dx;
+                s[0] += wi;
+                s[1] += wdx;
+                s[2] += wdx * dx;
+                wdx
+            } else {
+                wi * xp.dx[j]
+            };
+            if j + 1 >= m + n {
+                if FRESH {
+                    continue;
+                }
+                break;
+            }
             for k in 0..K {
                 let dr = rs[k][i] - rm[k];
-                s3[k] += w * dr;
+                s3[k] += wi * dr;
                 s4[k] += wdx * dr;
-                out[k].al[j] = s3[k] - s1 * slope[k];
-                out[k].be[j] = s4[k] - s2 * slope[k];
+            }
+            if j + 1 >= m {
+                let at = j + 1 - m;
+                let (s1, s2) = if FRESH {
+                    (xp.s0[at], xp.s1[at], xp.s2[at]) = (s[0], s[1], s[2]);
+                    (s[1], s[2])
+                } else {
+                    (xp.s1[at], xp.s2[at])
+                };
+                for k in 0..K {
+                    out[k].al[at] = s3[k] - s1 * slope[k];
+                    out[k].be[at] = s4[k] - s2 * slope[k];
+                }
             }
         }
     }
@@ -513,29 +661,39 @@ impl Workspace {
     /// vectorizes.
     fn candidates(&mut self, k: usize, tiny: f64, m: usize) {
         let xp = &self.xp;
-        let n = xp.ga.len();
+        let n = xp.s0.len();
         let r = &mut self.resp[k];
         r.num.resize(n, 0.0);
         r.den.resize(n, 0.0);
-        r.q.resize(n, 0.0);
         let (lo, hi) = (&xp.dx[m - 1..m - 1 + n], &xp.dx[m..m + n]);
         let rows = r
             .num
             .iter_mut()
             .zip(r.den.iter_mut())
-            .zip(r.q.iter_mut())
             .zip(r.al.iter().zip(&r.be))
-            .zip(xp.ga.iter().zip(&xp.de).zip(&xp.ep))
+            .zip(xp.s0.iter().zip(&xp.s1).zip(&xp.s2))
             .zip(lo.iter().zip(hi));
-        pulp::Arch::new().dispatch(|| {
-            for (((((num, den), q), (&al, &be)), ((&ga, &de), &ep)), (&lo, &hi)) in rows {
-                let [n, d, qq] = interval_candidates(al, be, ga, de, ep, lo, hi, tiny);
-                let inner = n[0] * d[1] >= n[1] * d[0];
-                *num = if inner { n[0] } else { n[1] };
-                *den = if inner { d[0] } else { d[1] };
-                *q = if inner { qq[0] } else { qq[1] };
-            }
-        });
+        let f = [xp.inv_sw, xp.inv_sxx];
+        pulp::Arch::new().dispatch(
+            #[inline(always)]
+            || {
+                for ((((num, den), (&al, &be)), ((&s_w, &s_x), &s_xx)), (&lo, &hi)) in rows {
+                    let [ga, de, ep] = projected(f, s_w, s_x, s_xx);
+                    let [n, d, _] = interval_candidates(al, be, ga, de, ep, lo, hi, tiny);
+                    let inner = n[0] * d[1] >= n[1] * d[0];
+                    *num = if inner { n[0] } else { n[1] };
+                    *den = if inner { d[0] } else { d[1] };
+                }
+            },
+        );
+    }
+
+    /// All of interval `i`'s two candidates of response `k` (as [`interval_candidates`]).
+    fn interval(&self, k: usize, i: usize, tiny: f64, m: usize) -> [[f64; 2]; 3] {
+        let (xp, r) = (&self.xp, &self.resp[k]);
+        let [ga, de, ep] = xp.projected(i);
+        let (lo, hi) = (xp.dx[m - 1 + i], xp.dx[m + i]);
+        interval_candidates(r.al[i], r.be[i], ga, de, ep, lo, hi, tiny)
     }
 
     /// The interval with the largest explained sum of squares (the first on a tie),
@@ -559,21 +717,11 @@ impl Workspace {
             }
         }
         if let Some(prof) = profile {
-            let xp = &self.xp;
             for i in 0..r.num.len() {
-                let [n, d, q] = interval_candidates(
-                    r.al[i],
-                    r.be[i],
-                    xp.ga[i],
-                    xp.de[i],
-                    xp.ep[i],
-                    xp.dx[m - 1 + i],
-                    xp.dx[m + i],
-                    tiny,
-                );
+                let [n, d, q] = self.interval(k, i, tiny, m);
                 for j in 0..2 {
                     if n[j] >= 0.0 {
-                        prof.push((q[j] + xp.xm, (sse_null - n[j] / d[j]).max(0.0)));
+                        prof.push((q[j] + self.xp.xm, (sse_null - n[j] / d[j]).max(0.0)));
                     }
                 }
             }
@@ -584,6 +732,7 @@ impl Workspace {
 
 /// The coefficients at the optimum of interval `i` (centred coordinates), then back to
 /// the original ones.
+#[allow(clippy::too_many_arguments)]
 fn solution(
     ws: &Workspace,
     k: usize,
@@ -591,14 +740,22 @@ fn solution(
     c: &Centred,
     line: bool,
     m: usize,
+    tiny: f64,
 ) -> BreakSolution {
     let (xp, r) = (&ws.xp, &ws.resp[k]);
     let sse_null = c.sse_null(line, xp.sxx);
-    let qc = r.q[i];
+    // The break [`Workspace::candidates`] chose in the interval, made again.
+    let [n, d, q] = ws.interval(k, i, tiny, m);
+    let qc = if n[0] * d[1] >= n[1] * d[0] {
+        q[0]
+    } else {
+        q[1]
+    };
     let (s_w, s_x, s_xx) = (xp.s0[i], xp.s1[i], xp.s2[i]);
     let sum_h = qc * s_w - s_x;
     let sum_xh = qc * s_x - s_xx;
-    let (al, be, ga, de, ep) = (r.al[i], r.be[i], xp.ga[i], xp.de[i], xp.ep[i]);
+    let (al, be) = (r.al[i], r.be[i]);
+    let [ga, de, ep] = xp.projected(i);
     let den = ga * qc * qc - 2.0 * de * qc + ep;
     let coef = (al * qc - be) / den;
     let b = if line {
@@ -616,7 +773,7 @@ fn solution(
         sse_null,
         n_below: m + i,
         interval: i,
-        n_intervals: xp.ga.len(),
+        n_intervals: xp.s0.len(),
     }
 }
 
@@ -884,5 +1041,42 @@ mod tests {
             )
             .is_none()
         );
+    }
+
+    /// The sort through bins gives the stable sort of the starting order: with ties,
+    /// with x beyond the full data's range at both ends, and with the curves of a resample
+    /// moved against each other. The insertion sort alone is the reference.
+    /// Source: common practice (a stable sort is unique, so two ways must agree).
+    #[test]
+    fn a_sort_through_bins_is_the_stable_sort_of_the_starting_order() {
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(11);
+        let (curves, per) = (8, 60);
+        // Curves over the same range of x, rounded so that some points tie.
+        let full: Vec<f64> = (0..curves * per)
+            .map(|j| 1.0 - (j % per) as f64 / per as f64 + 0.01 * rng.random::<f64>())
+            .map(|v| (v * 512.0).round() / 512.0)
+            .collect();
+        let mut binned = Workspace::sorted_by(&full);
+        assert!(
+            !binned.bins.count.is_empty(),
+            "{} points are binned",
+            full.len()
+        );
+        for draw in 0..20 {
+            let shift: Vec<f64> = (0..curves)
+                .map(|_| 0.05 * (rng.random::<f64>() - 0.5))
+                .collect();
+            let x: Vec<f64> = full
+                .iter()
+                .enumerate()
+                .map(|(j, v)| v + shift[j / per] + if draw % 2 == 0 { 0.0 } else { 0.3 })
+                .map(|v| (v * 256.0).round() / 256.0)
+                .collect();
+            binned.sort(&x);
+            let mut want = binned.start.clone();
+            let mut keys: Vec<f64> = want.iter().map(|&i| x[i]).collect();
+            insertion_sort(&mut want, &mut keys);
+            assert_eq!(binned.order, want, "draw {draw}");
+        }
     }
 }
