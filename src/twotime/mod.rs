@@ -52,6 +52,7 @@ use findings::{FEW_SAMPLES, SMALL_SAMPLES};
 use fitting::{Group, Points, Scratch, Spec, fit_group, lof_null, null_shift, shape_full};
 use model::{Draw, Values};
 use points::{Axes, Parametric};
+use rayon::prelude::*;
 use resampling::Prepared;
 
 /// Runs the whole time-domain analysis.
@@ -198,8 +199,9 @@ fn fit_all(
     let n = prep.data.nrows();
     let lof_tests = lof_series(&lof, &reps, ng);
     let curves = ng.saturating_sub(1).max(1);
+    // The groups are assessed side by side (each alone: intervals, tests, shape).
     let fits = groups
-        .iter()
+        .par_iter()
         .enumerate()
         .map(|(gi, g)| {
             let series: Vec<Option<Draw>> = reps.iter().skip(gi).step_by(ng).copied().collect();
