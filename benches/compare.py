@@ -93,8 +93,8 @@ def workload(name, path, b, interval, work):
         print(f"    {label:16s} X {dx:.1e}   q {dq:.1e}")
     fl = car["floors"]
     t_floor = fl["polars_read_seconds"] + fl["numpy_product_seconds"]
-    print(f"fdtemp                   {t_fd:9.2f} s   peak RSS {rss:7.0f} MiB")
-    print(f"careful numpy            {t_car:9.2f} s   fdtemp / careful = {t_fd / t_car:.3f}")
+    print(f"fdtemp                   {t_fd:9.3f} s   peak RSS {rss:7.0f} MiB")
+    print(f"careful numpy            {t_car:9.3f} s   fdtemp / careful = {t_fd / t_car:.3f}")
     print(f"vectorized numpy         {t_vec:9.2f} s   ratio {t_vec / t_fd:7.1f}x")
     print(f"straightforward numpy    {t_st:9.0f} s   ratio {t_st / t_fd:7.0f}x   (scaled from {small_b} resamples"
           f"{' and 5 leave-one-out fits' if p['jackknife_fits'] else ''})")
