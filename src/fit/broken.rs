@@ -449,10 +449,12 @@ pub fn search_each(
     if !ws.xp.matches(x, w, key) {
         ws.sort(x);
         // The x part is made in the first pass, beside the first responses (none when
-        // their lengths are wrong: they are left `None`, as in any pass).
+        // their lengths are wrong: they are left `None`, as in any pass). The profile is
+        // the first response's, so it is used up here either way.
+        let prof = profile.take();
         let made = match chunks.next() {
             Some((rs, out)) if rs.iter().all(|r| r.len() == p) => {
-                ws.pass_any::<true>(rs, x, w, key, profile.take(), out)
+                ws.pass_any::<true>(rs, x, w, key, prof, out)
             }
             _ => ws.pass::<0, true>([], x, w, key, None, &mut []),
         };
@@ -619,7 +621,7 @@ impl Workspace {
         let xm = xp.xm;
         let (mut s, mut s3, mut s4) = ([0.0f64; 3], [0.0f64; K], [0.0f64; K]);
         // The first m − 1 points only add; each of the next n ends an allowed interval;
-        // the last m − 1 only enter the x part's arrays.
+        // the last m only enter the x part's arrays.
         for (j, &i) in self.order.iter().enumerate() {
             let (wi, wdx) = if FRESH {
                 let dx = x[i] - xm;
@@ -1079,5 +1081,42 @@ mod tests {
             insertion_sort(&mut want, &mut keys);
             assert_eq!(binned.order, want, "draw {draw}");
         }
+    }
+
+    /// The profile is the first response's: when that response cannot be searched (its
+    /// length is wrong) the profile stays empty, and the responses after the first
+    /// [`MAX_RESPONSES`] are still searched, as on their own. Source: common practice
+    /// (the documented contract of `search_each`).
+    #[test]
+    fn a_profile_is_never_taken_from_a_later_response() {
+        let p = 40;
+        let x: Vec<f64> = (0..p).map(|i| i as f64 / p as f64).collect();
+        let r: Vec<f64> = x.iter().map(|&x| 1.0 - 0.5 * (0.6 - x).max(0.0)).collect();
+        let w = vec![1.0; p];
+        let short = &r[..p - 1];
+        let rs: [&[f64]; 4] = [short, &r, &r, &r];
+        let (mut ws, mut out, mut prof) = (Workspace::default(), [None; 4], Vec::new());
+        search_each(
+            &x,
+            &rs,
+            &w,
+            Base::Constant,
+            3,
+            &mut ws,
+            Some(&mut prof),
+            &mut out,
+        );
+        assert!(prof.is_empty(), "{} profile points", prof.len());
+        assert!(out[..3].iter().all(Option::is_none));
+        let own = search(
+            &x,
+            &r,
+            &w,
+            Base::Constant,
+            3,
+            &mut Workspace::default(),
+            None,
+        );
+        assert_eq!(format!("{:?}", out[3]), format!("{own:?}"));
     }
 }
