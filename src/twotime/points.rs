@@ -41,15 +41,29 @@ impl Transform {
     /// Writes `x`, `y` for every point from the means `[C̄ | χ̄ | C̄(t,t)]`.
     pub fn apply(&self, means: ArrayView1<'_, f64>, x: &mut [f64], y: &mut [f64]) {
         let p = self.points;
-        for j in 0..p {
-            let norm = if self.normalized {
-                means[2 * p + j]
-            } else {
-                1.0
-            };
-            x[j] = means[j] / norm;
-            y[j] = self.kt * means[p + j] / norm;
+        let kt = self.kt;
+        let m = contiguous(&means);
+        let (c, chi) = (&m[..p], &m[p..2 * p]);
+        let out = x[..p].iter_mut().zip(&mut y[..p]);
+        if self.normalized {
+            for ((x, y), ((c, chi), e)) in out.zip(c.iter().zip(chi).zip(&m[2 * p..3 * p])) {
+                (*x, *y) = (c / e, kt * chi / e);
+            }
+        } else {
+            // Plain axes divide by 1, which changes no bit.
+            for ((x, y), (c, chi)) in out.zip(c.iter().zip(chi)) {
+                (*x, *y) = (*c, kt * chi);
+            }
         }
+    }
+}
+
+/// The numbers of a view as one slice: borrowed when they lie in order in memory (the
+/// rows of `W · D` and every array of means here), copied otherwise.
+fn contiguous<'a>(v: &'a ArrayView1<'_, f64>) -> std::borrow::Cow<'a, [f64]> {
+    match v.as_slice() {
+        Some(s) => std::borrow::Cow::Borrowed(s),
+        None => std::borrow::Cow::Owned(v.to_vec()),
     }
 }
 
@@ -409,23 +423,28 @@ impl PointVariance {
     pub fn apply(&self, means: ArrayView1<'_, f64>, drawn: usize, var: &mut [f64]) {
         let p = self.points;
         let dof = (drawn as f64 - 1.0).max(1.0);
-        for (j, v) in var.iter_mut().enumerate().take(p) {
-            let e = if self.normalized {
-                means[2 * p + j]
-            } else {
-                1.0
-            };
-            let r = (self.alpha * means[j] + self.beta * means[p + j]) / e;
-            let d = r - self.centre[j];
-            let maa = means[self.offset + j];
-            let s = if self.normalized {
-                let mae = means[self.offset + p + j];
-                let mee = means[self.offset + 2 * p + j];
-                maa - 2.0 * d * mae + d * d * mee
-            } else {
-                maa - d * d
-            };
-            *v = s.max(0.0) / (e * e * dof);
+        let (alpha, beta) = (self.alpha, self.beta);
+        let m = contiguous(&means);
+        let (c, chi, maa) = (&m[..p], &m[p..2 * p], &m[self.offset..self.offset + p]);
+        let raw = c.iter().zip(chi).zip(maa).zip(&self.centre);
+        let out = var.iter_mut().take(p);
+        if self.normalized {
+            let e = &m[2 * p..3 * p];
+            let (mae, mee) = (&m[self.offset + p..], &m[self.offset + 2 * p..]);
+            for ((v, (((c, chi), maa), centre)), ((e, mae), mee)) in
+                out.zip(raw).zip(e.iter().zip(mae).zip(mee))
+            {
+                let d = (alpha * c + beta * chi) / e - centre;
+                let s = maa - 2.0 * d * mae + d * d * mee;
+                *v = s.max(0.0) / (e * e * dof);
+            }
+        } else {
+            // Plain axes divide by 1 (and by 1 · 1 · dof), which changes no bit.
+            for (v, (((c, chi), maa), centre)) in out.zip(raw) {
+                let d = (alpha * c + beta * chi) - centre;
+                let s = maa - d * d;
+                *v = s.max(0.0) / dof;
+            }
         }
     }
 }
