@@ -32,6 +32,27 @@ pub struct Group {
     pub scale: f64,
     /// Indices of its points.
     pub idx: Vec<usize>,
+    /// The first index when `idx` is one run `a, a + 1, …` (every curve of a campaign
+    /// listed curve by curve, and the joint fit), so its points are copied as slices.
+    pub run: Option<usize>,
+}
+
+impl Group {
+    /// A group of these points.
+    pub fn new(held: Option<f64>, scale: f64, idx: Vec<usize>) -> Self {
+        let first = idx.first().copied().unwrap_or(0);
+        let run = idx
+            .iter()
+            .enumerate()
+            .all(|(k, &j)| j == first + k)
+            .then_some(first);
+        Group {
+            held,
+            scale,
+            idx,
+            run,
+        }
+    }
 }
 
 /// All points of one fit (the full data, a resample, a leave-one-out set).
@@ -120,6 +141,16 @@ fn gather(g: &Group, pts: Points<'_>, spec: Spec, sc: &mut Scratch) {
         v.resize(g.idx.len(), 0.0);
     }
     let alpha = spec.model.c_factor();
+    if let Some(a) = g.run {
+        let b = a + g.idx.len();
+        sc.x.copy_from_slice(&pts.x[a..b]);
+        sc.y.copy_from_slice(&pts.y[a..b]);
+        sc.w.copy_from_slice(&pts.w[a..b]);
+        for ((r, x), y) in sc.r.iter_mut().zip(&sc.x).zip(&sc.y) {
+            *r = alpha * x + y;
+        }
+        return;
+    }
     let out = sc.x.iter_mut().zip(&mut sc.y).zip(&mut sc.w).zip(&mut sc.r);
     for ((((x, y), w), r), &j) in out.zip(&g.idx) {
         (*x, *y, *w) = (pts.x[j], pts.y[j], pts.w[j]);
@@ -268,4 +299,43 @@ pub fn null_shift(g: &Group, pts: Points<'_>, spec: Spec) -> Vec<f64> {
         r: &r,
         w: &w,
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::twotime::{Model, model};
+
+    /// A run of indices is copied as slices, and gives the points the index-by-index copy
+    /// gives; other index lists are not runs. Source: common practice (two ways of one copy).
+    #[test]
+    fn a_run_of_points_is_gathered_as_the_index_list_is() {
+        assert_eq!(Group::new(None, 1.0, vec![3, 4, 5]).run, Some(3));
+        assert_eq!(Group::new(None, 1.0, vec![3, 5, 6]).run, None);
+        assert_eq!(Group::new(None, 1.0, vec![4, 3]).run, None);
+        let x: Vec<f64> = (0..9).map(|i| 0.9 - 0.1 * i as f64).collect();
+        let y: Vec<f64> = (0..9).map(|i| 0.01 * (i * i) as f64).collect();
+        let w: Vec<f64> = (0..9).map(|i| 1.0 + i as f64).collect();
+        let pts = Points {
+            x: &x,
+            y: &y,
+            w: &w,
+        };
+        let spec = Spec {
+            model: model::of(Model::Broken),
+            min_branch: 2,
+        };
+        let run = Group::new(None, 1.0, vec![2, 3, 4, 5, 6]);
+        let listed = Group {
+            run: None,
+            ..Group::new(None, 1.0, run.idx.clone())
+        };
+        let (mut a, mut b) = (Scratch::new(&x[2..7]), Scratch::new(&x[2..7]));
+        gather(&run, pts, spec, &mut a);
+        gather(&listed, pts, spec, &mut b);
+        for (u, v) in [(&a.x, &b.x), (&a.y, &b.y), (&a.w, &b.w), (&a.r, &b.r)] {
+            assert_eq!(u, v);
+        }
+        assert_eq!(a.x, x[2..7].to_vec());
+    }
 }

@@ -210,7 +210,7 @@ pub fn make_groups(campaign: &Campaign, settings: &FitSettings, prep: &Prepared<
             .iter()
             .map(|&j| prep.weights[j] * (pm.x[j].powi(2) + pm.y[j].powi(2)))
             .sum();
-        Group { held, scale, idx }
+        Group::new(held, scale, idx)
     };
     let mut groups = vec![make(None)];
     if helds.len() > 1 {
