@@ -121,20 +121,18 @@ impl Workspace {
     /// it is reached.
     fn sort(&mut self, x: &[f64]) {
         let p = x.len();
-        if self.start.len() == p {
-            if self.bins.count.is_empty() {
+        let from_start = self.start.len() == p;
+        if from_start && !self.bins.count.is_empty() {
+            self.bins
+                .distribute(x, &self.start, &mut self.order, &mut self.keys);
+        } else {
+            if from_start {
                 self.order.clear();
                 self.order.extend_from_slice(&self.start);
-                self.keys.clear();
-                self.keys.extend(self.order.iter().map(|&i| x[i]));
-            } else {
-                self.bins
-                    .distribute(x, &self.start, &mut self.order, &mut self.keys);
+            } else if self.order.len() != p {
+                self.order = order_of(x);
+                return;
             }
-        } else if self.order.len() != p {
-            self.order = order_of(x);
-            return;
-        } else {
             self.keys.clear();
             self.keys.extend(self.order.iter().map(|&i| x[i]));
         }
