@@ -13,12 +13,16 @@
 //! costs O(1), and the exact continuous optimum over every break costs one sort plus a
 //! pass: O(P log P), or O(P) when the order is already nearly right (bootstrap
 //! replicates start from the order of the full data, counted into bins of x when there
-//! are many points, and insertion-sort it).
+//! are many points, and insertion-sort it). The centring sums over all points and the
+//! scan of the intervals for the best run in eight lanes ([`super::lanes`]): the same
+//! numbers on every processor.
 //!
 //! ## Reference
 //! Hudson, D. J., "Fitting segmented curves whose join points have to be estimated",
 //! J. Amer. Statist. Assoc. 61, 1097–1129 (1966); Seber & Wild, *Nonlinear Regression*
 //! (1989), ch. 9 (two-phase regression, profile over the change point).
+
+use super::lanes::{L8, LANES};
 
 /// The part of the model that has no break.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -92,10 +96,6 @@ struct Resp {
     /// `⟨r,u⟩`, `⟨r,v⟩` after projection.
     al: Vec<f64>,
     be: Vec<f64>,
-    /// The best candidate in the interval: its explained sum of squares as `num / den`
-    /// (its break is made again for the interval chosen: [`solution`]).
-    num: Vec<f64>,
-    den: Vec<f64>,
 }
 
 impl Workspace {
@@ -271,37 +271,17 @@ impl XPart {
         rs: [&[f64]; K],
     ) -> Option<[Centred; K]> {
         let p = x.len();
-        let rs = rs.map(|r| &r[..p]);
-        let (mut sw, mut swx) = (0.0f64, 0.0f64);
-        let mut swr = [-0.0f64; K];
-        for (j, (x, w)) in x.iter().zip(w).enumerate() {
-            if FRESH {
-                sw += w;
-                swx += w * x;
-            }
-            for k in 0..K {
-                swr[k] += w * rs[k][j];
-            }
-        }
+        let (w, rs) = (&w[..p], rs.map(|r| &r[..p]));
+        let arch = pulp::Arch::new();
+        let (sw, swx, swr) = arch.dispatch(FirstSums::<K, FRESH> { x, w, rs });
         if FRESH {
             self.key = None;
             self.sw = sw;
             self.xm = swx / sw;
         }
         let rm = swr.map(|s| s / self.sw);
-        let mut sxx = 0.0f64;
-        let (mut sxr, mut srr) = ([0.0f64; K], [0.0f64; K]);
-        for (j, (x, w)) in x.iter().zip(w).enumerate() {
-            let dx = x - self.xm;
-            if FRESH {
-                sxx += w * dx * dx;
-            }
-            for k in 0..K {
-                let dr = rs[k][j] - rm[k];
-                sxr[k] += w * dx * dr;
-                srr[k] += w * dr * dr;
-            }
-        }
+        let xm = self.xm;
+        let (sxx, sxr, srr) = arch.dispatch(SecondSums::<K, FRESH> { x, w, rs, xm, rm });
         if FRESH {
             self.sxx = sxx;
             if !(sxx > 0.0) {
@@ -345,6 +325,71 @@ impl XPart {
         self.w.clear();
         self.w.extend_from_slice(w);
         self.key = Some(key);
+    }
+}
+
+/// `Σw`, `Σw x` (with `FRESH`; 0 otherwise) and each `Σw r`, in lanes ([`super::lanes`]).
+struct FirstSums<'a, const K: usize, const FRESH: bool> {
+    x: &'a [f64],
+    w: &'a [f64],
+    rs: [&'a [f64]; K],
+}
+
+impl<const K: usize, const FRESH: bool> pulp::WithSimd for FirstSums<'_, K, FRESH> {
+    type Output = (f64, f64, [f64; K]);
+
+    #[inline(always)]
+    fn with_simd<S: pulp::Simd>(self, s: S) -> Self::Output {
+        let zero = L8::splat(s, 0.0);
+        let (mut sw, mut swx, mut swr) = (zero, zero, [zero; K]);
+        // Lanes past the end hold zeros: a zero weight adds zeros.
+        for j0 in (0..self.x.len()).step_by(LANES) {
+            let w = L8::get(s, self.w, j0, 0.0);
+            if FRESH {
+                sw = sw.add(s, w);
+                swx = swx.add(s, w.mul(s, L8::get(s, self.x, j0, 0.0)));
+            }
+            for (acc, r) in swr.iter_mut().zip(self.rs) {
+                *acc = acc.add(s, w.mul(s, L8::get(s, r, j0, 0.0)));
+            }
+        }
+        (sw.fold(), swx.fold(), swr.map(L8::fold))
+    }
+}
+
+/// `Σw dx²` (with `FRESH`; 0 otherwise), each `Σw dx dr` and `Σw dr²`, with `dx = x − xm`
+/// and `dr = r − rm`, in lanes ([`super::lanes`]).
+struct SecondSums<'a, const K: usize, const FRESH: bool> {
+    x: &'a [f64],
+    w: &'a [f64],
+    rs: [&'a [f64]; K],
+    xm: f64,
+    rm: [f64; K],
+}
+
+impl<const K: usize, const FRESH: bool> pulp::WithSimd for SecondSums<'_, K, FRESH> {
+    type Output = (f64, [f64; K], [f64; K]);
+
+    #[inline(always)]
+    fn with_simd<S: pulp::Simd>(self, s: S) -> Self::Output {
+        let zero = L8::splat(s, 0.0);
+        let (mut sxx, mut sxr, mut srr) = (zero, [zero; K], [zero; K]);
+        let xm = L8::splat(s, self.xm);
+        let rm = self.rm.map(|m| L8::splat(s, m));
+        for j0 in (0..self.x.len()).step_by(LANES) {
+            let w = L8::get(s, self.w, j0, 0.0);
+            let dx = L8::get(s, self.x, j0, 0.0).sub(s, xm);
+            let wdx = w.mul(s, dx);
+            if FRESH {
+                sxx = sxx.add(s, wdx.mul(s, dx));
+            }
+            for k in 0..K {
+                let dr = L8::get(s, self.rs[k], j0, 0.0).sub(s, rm[k]);
+                sxr[k] = sxr[k].add(s, wdx.mul(s, dr));
+                srr[k] = srr[k].add(s, w.mul(s, dr).mul(s, dr));
+            }
+        }
+        (sxx.fold(), sxr.map(L8::fold), srr.map(L8::fold))
     }
 }
 
@@ -575,11 +620,13 @@ impl Workspace {
         let tiny = 1e-12 * self.xp.sxx;
         let mut profile = profile;
         for (k, (c, out)) in cs.iter().zip(out).enumerate() {
-            self.candidates(k, tiny, m);
             let sse_null = c.sse_null(line, self.xp.sxx);
+            if let Some(prof) = profile.take() {
+                self.profile(k, sse_null, tiny, m, prof);
+            }
             *out = self
-                .best(k, sse_null, tiny, m, profile.take())
-                .map(|i| solution(self, k, i, c, line, m, tiny));
+                .best(k, tiny, m)
+                .map(|best| solution(self, k, best, c, line, m, tiny));
         }
         true
     }
@@ -659,36 +706,6 @@ impl Workspace {
         }
     }
 
-    /// The best candidate of every allowed interval (the interior one wins a tie) of
-    /// response `k`, in a pass without branches, gathers or divisions that the compiler
-    /// vectorizes.
-    fn candidates(&mut self, k: usize, tiny: f64, m: usize) {
-        let xp = &self.xp;
-        let n = xp.s0.len();
-        let r = &mut self.resp[k];
-        r.num.resize(n, 0.0);
-        r.den.resize(n, 0.0);
-        let (lo, hi) = (&xp.dx[m - 1..m - 1 + n], &xp.dx[m..m + n]);
-        let rows = r
-            .num
-            .iter_mut()
-            .zip(r.den.iter_mut())
-            .zip(r.al.iter().zip(&r.be))
-            .zip(xp.ga.iter().zip(&xp.de).zip(&xp.ep))
-            .zip(lo.iter().zip(hi));
-        pulp::Arch::new().dispatch(
-            #[inline(always)]
-            || {
-                for ((((num, den), (&al, &be)), ((&ga, &de), &ep)), (&lo, &hi)) in rows {
-                    let [n, d, _] = interval_candidates(al, be, ga, de, ep, lo, hi, tiny);
-                    let inner = n[0] * d[1] >= n[1] * d[0];
-                    *num = if inner { n[0] } else { n[1] };
-                    *den = if inner { d[0] } else { d[1] };
-                }
-            },
-        );
-    }
-
     /// All of interval `i`'s two candidates of response `k` (as [`interval_candidates`]).
     fn interval(&self, k: usize, i: usize, tiny: f64, m: usize) -> [[f64; 2]; 3] {
         let (xp, r) = (&self.xp, &self.resp[k]);
@@ -697,34 +714,131 @@ impl Workspace {
         interval_candidates(r.al[i], r.be[i], ga, de, ep, lo, hi, tiny)
     }
 
-    /// The interval with the largest explained sum of squares (the first on a tie),
-    /// `None` when no interval has a candidate. Fills `profile` with every candidate's
-    /// `(q, SSE)` in increasing q.
-    fn best(
-        &self,
-        k: usize,
-        sse_null: f64,
-        tiny: f64,
-        m: usize,
-        profile: Option<&mut Vec<(f64, f64)>>,
-    ) -> Option<usize> {
-        let r = &self.resp[k];
-        let mut best: Option<usize> = None;
-        let (mut bn, mut bd) = (0.0f64, 1.0f64);
-        for (i, (&n, &d)) in r.num.iter().zip(&r.den).enumerate() {
-            if n >= 0.0 && (best.is_none() || n * bd > bn * d) {
-                (bn, bd) = (n, d);
-                best = Some(i);
+    /// The interval with the largest explained sum of squares (the first on a tie) and
+    /// that sum as `num / den`, `None` when no interval has a candidate. One pass through
+    /// the intervals in lanes ([`BestInterval`]).
+    fn best(&self, k: usize, tiny: f64, m: usize) -> Option<Best> {
+        let (xp, r) = (&self.xp, &self.resp[k]);
+        let n = xp.s0.len();
+        pulp::Arch::new().dispatch(BestInterval {
+            al: &r.al[..n],
+            be: &r.be[..n],
+            ga: &xp.ga[..n],
+            de: &xp.de[..n],
+            ep: &xp.ep[..n],
+            lo: &xp.dx[m - 1..m - 1 + n],
+            hi: &xp.dx[m..m + n],
+            tiny,
+        })
+    }
+
+    /// Every candidate's `(q, SSE)` of response `k`, in increasing q.
+    fn profile(&self, k: usize, sse_null: f64, tiny: f64, m: usize, prof: &mut Vec<(f64, f64)>) {
+        for i in 0..self.xp.s0.len() {
+            let [n, d, q] = self.interval(k, i, tiny, m);
+            for j in 0..2 {
+                if n[j] >= 0.0 {
+                    prof.push((q[j] + self.xp.xm, (sse_null - n[j] / d[j]).max(0.0)));
+                }
             }
         }
-        if let Some(prof) = profile {
-            for i in 0..r.num.len() {
-                let [n, d, q] = self.interval(k, i, tiny, m);
-                for j in 0..2 {
-                    if n[j] >= 0.0 {
-                        prof.push((q[j] + self.xp.xm, (sse_null - n[j] / d[j]).max(0.0)));
-                    }
-                }
+    }
+}
+
+/// `((α q − β)², γ q² − 2 δ q + ε)` lane by lane, as in `interval_candidates`.
+#[inline(always)]
+fn explained_at<S: pulp::Simd>(s: S, [al, be, ga, de, ep]: [L8<S>; 5], q: L8<S>) -> (L8<S>, L8<S>) {
+    let two_de = L8::splat(s, 2.0).mul(s, de);
+    let den = ga.mul(s, q).mul(s, q).sub(s, two_de.mul(s, q)).add(s, ep);
+    let num = al.mul(s, q).sub(s, be);
+    (num.mul(s, num), den)
+}
+
+/// The interval a search chose and its explained sum of squares `num / den`.
+#[derive(Clone, Copy)]
+struct Best {
+    i: usize,
+    num: f64,
+    den: f64,
+}
+
+/// Per allowed interval, the better of its two candidates (the interior one wins a tie),
+/// and the best interval: each lane keeps the first best of its intervals (interval `i`
+/// in lane `i % 8`), then the lanes' winners are compared in the order of their
+/// intervals, so the first best interval wins, as in one scan. No branch, gather or
+/// division but `q*`'s, and the same on every processor ([`super::lanes`]).
+struct BestInterval<'a> {
+    al: &'a [f64],
+    be: &'a [f64],
+    ga: &'a [f64],
+    de: &'a [f64],
+    ep: &'a [f64],
+    lo: &'a [f64],
+    hi: &'a [f64],
+    tiny: f64,
+}
+
+impl pulp::WithSimd for BestInterval<'_> {
+    type Output = Option<Best>;
+
+    #[inline(always)]
+    fn with_simd<S: pulp::Simd>(self, s: S) -> Option<Best> {
+        let (zero, one) = (L8::splat(s, 0.0), L8::splat(s, 1.0));
+        let (minus, tiny) = (L8::splat(s, -1.0), L8::splat(s, self.tiny));
+        let (mut bn, mut bd, mut bi) = (minus, one, minus);
+        let mut idx = L8::load(s, &[0.0, 1.0, 2.0, 3.0, 4.0, 5.0, 6.0, 7.0]);
+        let step = L8::splat(s, LANES as f64);
+        // Intervals past the end hold zeros: q* is NaN and both denominators 0, so
+        // neither candidate counts.
+        for j0 in (0..self.al.len()).step_by(LANES) {
+            let (al, be) = (L8::get(s, self.al, j0, 0.0), L8::get(s, self.be, j0, 0.0));
+            let (ga, de) = (L8::get(s, self.ga, j0, 0.0), L8::get(s, self.de, j0, 0.0));
+            let (ep, lo) = (L8::get(s, self.ep, j0, 0.0), L8::get(s, self.lo, j0, 0.0));
+            let hi = L8::get(s, self.hi, j0, 0.0);
+            // As `interval_candidates`, operation by operation.
+            let q_star = be
+                .mul(s, de)
+                .sub(s, al.mul(s, ep))
+                .div(s, be.mul(s, ga).sub(s, al.mul(s, de)));
+            let (n_in, d_in) = explained_at(s, [al, be, ga, de, ep], q_star);
+            let (n_up, d_up) = explained_at(s, [al, be, ga, de, ep], hi);
+            // Kept where `d_in > tiny`, `q* > lo` and `hi > q*` (all false for NaN).
+            let n_in = hi.select_gt(s, q_star, n_in, minus);
+            let n_in = q_star.select_gt(s, lo, n_in, minus);
+            let n_in = d_in.select_gt(s, tiny, n_in, minus);
+            let d_kept = hi.select_gt(s, q_star, d_in, one);
+            let d_kept = q_star.select_gt(s, lo, d_kept, one);
+            let d_in = d_in.select_gt(s, tiny, d_kept, one);
+            let (n_up, d_up) = (
+                d_up.select_gt(s, tiny, n_up, minus),
+                d_up.select_gt(s, tiny, d_up, one),
+            );
+            let (l, r) = (n_in.mul(s, d_up), n_up.mul(s, d_in));
+            let num = l.select_ge(s, r, n_in, n_up);
+            let den = l.select_ge(s, r, d_in, d_up);
+            // This lane's first best so far (its first candidate beats bn = −1).
+            let (l, r) = (num.mul(s, bd), bn.mul(s, den));
+            bn = num.select_ge(s, zero, l.select_gt(s, r, num, bn), bn);
+            bd = num.select_ge(s, zero, l.select_gt(s, r, den, bd), bd);
+            bi = num.select_ge(s, zero, l.select_gt(s, r, idx, bi), bi);
+            idx = idx.add(s, step);
+        }
+        let (bn, bd, bi) = (bn.lanes(), bd.lanes(), bi.lanes());
+        // The best of the lanes' winners, the first interval on a tie: the winner a
+        // scan in interval order keeps.
+        let mut best: Option<Best> = None;
+        for l in (0..LANES).filter(|&l| bi[l] >= 0.0) {
+            let i = bi[l] as usize;
+            let take = best.is_none_or(|b| {
+                let (new, old) = (bn[l] * b.den, b.num * bd[l]);
+                new > old || (!(old > new) && i < b.i)
+            });
+            if take {
+                best = Some(Best {
+                    i,
+                    num: bn[l],
+                    den: bd[l],
+                });
             }
         }
         best
@@ -737,13 +851,14 @@ impl Workspace {
 fn solution(
     ws: &Workspace,
     k: usize,
-    i: usize,
+    best: Best,
     c: &Centred,
     line: bool,
     m: usize,
     tiny: f64,
 ) -> BreakSolution {
     let (xp, r) = (&ws.xp, &ws.resp[k]);
+    let i = best.i;
     let sse_null = c.sse_null(line, xp.sxx);
     // The break [`Workspace::candidates`] chose in the interval, made again.
     let [n, d, q] = ws.interval(k, i, tiny, m);
@@ -770,7 +885,7 @@ fn solution(
         a: c.rm + a_c - b * xp.xm,
         b,
         c: coef,
-        sse: (sse_null - r.num[i] / r.den[i]).max(0.0),
+        sse: (sse_null - best.num / best.den).max(0.0),
         sse_null,
         n_below: m + i,
         interval: i,

@@ -7,6 +7,8 @@
 //! Draper & Smith, *Applied Regression Analysis*, 3rd ed. (1998), ch. 1 and 9 (weighted
 //! least squares); certified test values from the NIST Statistical Reference Datasets.
 
+use super::lanes::{L8, LANES};
+
 /// A fitted line and its standard statistics.
 #[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
 pub struct LineFit {
@@ -77,40 +79,71 @@ pub fn fit_line(x: &[f64], y: &[f64], w: Option<&[f64]>) -> Option<LineFit> {
     })
 }
 
-/// The slope of [`fit_line`] through the points whose x passes `keep`, without gathering
-/// them first: the same sums in the same order, so the same number, bit for bit. `None`
-/// where [`fit_line`] of those points is `None` (fewer than 3, a weight that is not
-/// positive, all x equal). Pairs beyond the shortest of `x`, `y`, `w` are not read.
+/// The slope of [`fit_line`] through the points with `x ≥ q`, without gathering them
+/// first. `None` where [`fit_line`] of those points is `None` (fewer than 3, a weight that
+/// is not positive, all x equal). Pairs beyond the shortest of `x`, `y`, `w` are not read.
+///
+/// Its sums run in eight lanes ([`super::lanes`]), so it agrees with [`fit_line`] to
+/// rounding, not bit for bit, and is the same number on every processor.
 ///
 /// # Examples
 /// ```
 /// let (x, y, w) = ([0.0, 1.0, 2.0, 3.0, 4.0], [9.0, 1.0, 3.0, 5.0, 7.0], [1.0; 5]);
-/// let b = fdtemp::fit::line::slope_where(&x, &y, &w, |x| x >= 1.0).unwrap();
+/// let b = fdtemp::fit::line::slope_above(&x, &y, &w, 1.0).unwrap();
 /// assert!((b - 2.0).abs() < 1e-12);
 /// ```
-pub fn slope_where(x: &[f64], y: &[f64], w: &[f64], keep: impl Fn(f64) -> bool) -> Option<f64> {
-    let kept = || x.iter().zip(y).zip(w).filter(|((x, _), _)| keep(**x));
-    let (mut n, mut sw, mut swx, mut swy) = (0usize, -0.0f64, -0.0f64, -0.0f64);
-    for ((&x, &y), &w) in kept() {
-        if !(w > 0.0) {
+pub fn slope_above(x: &[f64], y: &[f64], w: &[f64], q: f64) -> Option<f64> {
+    let p = x.len().min(y.len()).min(w.len());
+    let (x, y, w) = (&x[..p], &y[..p], &w[..p]);
+    pulp::Arch::new().dispatch(SlopeAbove { x, y, w, q })
+}
+
+/// [`slope_above`]'s sums.
+struct SlopeAbove<'a> {
+    x: &'a [f64],
+    y: &'a [f64],
+    w: &'a [f64],
+    q: f64,
+}
+
+impl pulp::WithSimd for SlopeAbove<'_> {
+    type Output = Option<f64>;
+
+    #[inline(always)]
+    fn with_simd<S: pulp::Simd>(self, s: S) -> Option<f64> {
+        let Self { x, y, w, q } = self;
+        let (zero, one, q) = (L8::splat(s, 0.0), L8::splat(s, 1.0), L8::splat(s, q));
+        // Lanes past the end hold x = NaN, which is never kept. A point not kept adds
+        // selected zeros, so it never reaches a sum.
+        let (mut n, mut bad, mut sw, mut swx, mut swy) = (zero, zero, zero, zero, zero);
+        for j0 in (0..x.len()).step_by(LANES) {
+            let xv = L8::get(s, x, j0, f64::NAN);
+            let (yv, wv) = (L8::get(s, y, j0, 0.0), L8::get(s, w, j0, 0.0));
+            n = n.add(s, xv.select_ge(s, q, one, zero));
+            // A kept point whose weight is not positive (NaN included).
+            let not_positive = zero.select_ge(s, wv, one, wv.select_ge(s, wv, zero, one));
+            bad = bad.add(s, xv.select_ge(s, q, not_positive, zero));
+            sw = sw.add(s, xv.select_ge(s, q, wv, zero));
+            swx = swx.add(s, xv.select_ge(s, q, wv.mul(s, xv), zero));
+            swy = swy.add(s, xv.select_ge(s, q, wv.mul(s, yv), zero));
+        }
+        if bad.fold() > 0.0 || n.fold() < 3.0 {
             return None;
         }
-        n += 1;
-        sw += w;
-        swx += w * x;
-        swy += w * y;
+        let sw = sw.fold();
+        let (xm, ym) = (L8::splat(s, swx.fold() / sw), L8::splat(s, swy.fold() / sw));
+        let (mut sxx, mut sxy) = (zero, zero);
+        for j0 in (0..x.len()).step_by(LANES) {
+            let xv = L8::get(s, x, j0, f64::NAN);
+            let (yv, wv) = (L8::get(s, y, j0, 0.0), L8::get(s, w, j0, 0.0));
+            let (dx, dy) = (xv.sub(s, xm), yv.sub(s, ym));
+            let wdx = wv.mul(s, dx);
+            sxx = sxx.add(s, xv.select_ge(s, q, wdx.mul(s, dx), zero));
+            sxy = sxy.add(s, xv.select_ge(s, q, wdx.mul(s, dy), zero));
+        }
+        let sxx = sxx.fold();
+        (sxx > 0.0).then(|| sxy.fold() / sxx)
     }
-    if n < 3 {
-        return None;
-    }
-    let (xm, ym) = (swx / sw, swy / sw);
-    let (mut sxx, mut sxy) = (0.0, 0.0);
-    for ((&x, &y), &w) in kept() {
-        let (dx, dy) = (x - xm, y - ym);
-        sxx += w * dx * dx;
-        sxy += w * dx * dy;
-    }
-    (sxx > 0.0).then(|| sxy / sxx)
 }
 
 /// The weighted least-squares curvature `c` of `y = a + b x + c x²`, from orthogonal
@@ -158,12 +191,12 @@ pub fn curvature(x: &[f64], y: &[f64], w: &[f64]) -> Option<f64> {
 
 #[cfg(test)]
 mod tests {
-    use super::{curvature, fit_line, slope_where};
+    use super::{curvature, fit_line, slope_above};
 
-    /// The slope of the kept points is fit_line's, bit for bit, and `None` where fit_line
-    /// is.
+    /// The slope of the points above is fit_line's to rounding, and `None` where fit_line
+    /// is. Source: common practice (one least-squares slope by two routes).
     #[test]
-    fn slope_where_is_fit_lines_slope_of_the_kept_points() {
+    fn slope_above_is_fit_lines_slope_of_the_points_above() {
         let x: Vec<f64> = (0..40).map(|i| (i as f64 * 0.37).sin()).collect();
         let y: Vec<f64> = x
             .iter()
@@ -173,14 +206,24 @@ mod tests {
         for q in [-2.0, -0.5, 0.0, 0.4, 0.9, 0.99, 2.0] {
             let keep: Vec<usize> = (0..40).filter(|&i| x[i] >= q).collect();
             let pick = |v: &[f64]| keep.iter().map(|&i| v[i]).collect::<Vec<f64>>();
-            let want = fit_line(&pick(&x), &pick(&y), Some(&pick(&w))).map(|l| l.slope.to_bits());
-            let got = slope_where(&x, &y, &w, |x| x >= q).map(f64::to_bits);
-            assert_eq!(got, want, "q {q}");
+            let want = fit_line(&pick(&x), &pick(&y), Some(&pick(&w))).map(|l| l.slope);
+            let got = slope_above(&x, &y, &w, q);
+            assert_eq!(got.is_some(), want.is_some(), "q {q}");
+            if let (Some(a), Some(b)) = (got, want) {
+                assert!(
+                    (a - b).abs() <= 1e-13 * b.abs().max(1.0),
+                    "q {q}: {a} vs {b}"
+                );
+            }
         }
         let mut w0 = w.clone();
         w0[3] = 0.0;
-        assert_eq!(slope_where(&x, &y, &w0, |_| true), None);
-        assert_eq!(slope_where(&[1.0; 5], &y[..5], &w[..5], |_| true), None);
+        assert_eq!(slope_above(&x, &y, &w0, -2.0), None);
+        w0[3] = f64::NAN;
+        assert_eq!(slope_above(&x, &y, &w0, -2.0), None);
+        assert_eq!(slope_above(&[1.0; 5], &y[..5], &w[..5], 0.0), None);
+        assert!(slope_above(&x[..3], &y[..3], &w[..3], -2.0).is_some());
+        assert_eq!(slope_above(&x[..2], &y[..2], &w[..2], -2.0), None);
     }
 
     /// Against the 3×3 normal equations solved by Cramer's rule (an independent route to

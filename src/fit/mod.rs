@@ -2,6 +2,7 @@
 //! and the smooth shape-constrained curve of X(C).
 
 pub mod broken;
+pub mod lanes;
 pub mod line;
 pub mod smooth;
 

@@ -4,7 +4,7 @@
 //! through the points above it.
 
 use super::{Draw, FdModel, FitBuffers, GroupPoints, Values, minus_one_shift, search_moved};
-use crate::fit::line::slope_where;
+use crate::fit::line::slope_above;
 use crate::fit::{Base, BreakSolution, broken};
 use crate::twotime::result::Curve;
 use crate::twotime::settings::Model;
@@ -84,7 +84,7 @@ impl FdModel for FixedSlope {
 /// The fit's values from its broken stick: X, q, and the slope of a free line through
 /// the points above the break.
 fn values(pts: GroupPoints<'_>, sol: BreakSolution) -> Values {
-    let fast = slope_where(pts.x, pts.y, pts.w, |x| x >= sol.q).unwrap_or(f64::NAN);
+    let fast = slope_above(pts.x, pts.y, pts.w, sol.q).unwrap_or(f64::NAN);
     Values {
         ratio: 1.0 + sol.c,
         q: sol.q,
