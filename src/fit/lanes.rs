@@ -3,139 +3,294 @@
 //! One running sum is limited by the adder's latency: each addition waits for the one
 //! before. Eight sums side by side are not. Point `j` of a loop goes into lane `j % 8`,
 //! each lane adds its points in order, and the lanes are folded in one fixed order
-//! ([`L8::fold`]). The lanes sit in one AVX-512 register, two AVX2 registers or eight
-//! scalars, whichever `pulp::Arch::dispatch` picks, and no multiply is fused into an
-//! add, so a sum is the same number on every processor.
+//! ([`L8::fold`]). The eight lanes sit in one AVX-512 register, two AVX2 registers or
+//! eight scalars ([`Wide`]), whichever [`dispatch`] finds on the processor, and no
+//! multiply is fused into an add, so a kernel gives the same numbers on every processor.
 //!
-//! Code that is not inlined into the function `pulp` compiles for the wide registers is
-//! compiled without them, and then every vector operation becomes a call: a closure given
-//! to `pulp::Arch::dispatch` that only reads what it captures (an `Fn`) is called through
-//! a shim that is not inlined, and a closure inside a kernel may not be inlined either.
-//! So the kernels here are `pulp::WithSimd` types, and their helpers
-//! `#[inline(always)]` functions, not closures.
-
-use pulp::Simd;
+//! Code that is not inlined into the function compiled for the wide registers is compiled
+//! without them, and then every vector operation becomes a call: a closure given to
+//! `pulp::Arch::dispatch` that only reads what it captures (an `Fn`) is called through a
+//! shim that is not inlined, and a closure inside a kernel may not be inlined either.
+//! So kernels are [`Kernel`] types, and their helpers `#[inline(always)]` functions.
 
 /// Lanes of a sum.
 pub const LANES: usize = 8;
 
-/// Eight lanes of `f64` in the registers of `S` (the first `8 / S::F64_LANES` used).
+/// Eight lanes of `f64` and the operations on them, in the registers of one instruction
+/// set. Every operation is the IEEE 754 one, lane by lane.
+pub trait Wide: Copy {
+    /// Eight lanes.
+    type V: Copy;
+    /// Every lane `v`.
+    fn splat(self, v: f64) -> Self::V;
+    /// The eight values of `a`.
+    fn load(self, a: &[f64; LANES]) -> Self::V;
+    /// The lanes as numbers.
+    fn store(self, v: Self::V) -> [f64; LANES];
+    /// `a + b`.
+    fn add(self, a: Self::V, b: Self::V) -> Self::V;
+    /// `a − b`.
+    fn sub(self, a: Self::V, b: Self::V) -> Self::V;
+    /// `a · b`.
+    fn mul(self, a: Self::V, b: Self::V) -> Self::V;
+    /// `a / b`.
+    fn div(self, a: Self::V, b: Self::V) -> Self::V;
+    /// `t` where `a > b`, else `f` (false where either is NaN).
+    fn select_gt(self, a: Self::V, b: Self::V, t: Self::V, f: Self::V) -> Self::V;
+    /// `t` where `a ≥ b`, else `f` (false where either is NaN).
+    fn select_ge(self, a: Self::V, b: Self::V, t: Self::V, f: Self::V) -> Self::V;
+}
+
+/// Eight scalars: the lanes on any processor.
 #[derive(Clone, Copy)]
-pub struct L8<S: Simd>([S::f64s; LANES]);
+pub struct Plain;
 
-// Index loops over the registers: a count fixed per instruction set, fully unrolled (an
-// iterator adaptor is one more thing that must be inlined; see the module's notes).
-#[allow(clippy::needless_range_loop)]
-impl<S: Simd> L8<S> {
-    /// Registers that hold the eight lanes.
-    const REGS: usize = LANES / S::F64_LANES;
+macro_rules! lane_by_lane {
+    ($a:expr, $b:expr, $op:tt) => {{
+        let (a, b) = ($a, $b);
+        [
+            a[0] $op b[0], a[1] $op b[1], a[2] $op b[2], a[3] $op b[3],
+            a[4] $op b[4], a[5] $op b[5], a[6] $op b[6], a[7] $op b[7],
+        ]
+    }};
+}
 
+impl Wide for Plain {
+    type V = [f64; LANES];
+    #[inline(always)]
+    fn splat(self, v: f64) -> Self::V {
+        [v; LANES]
+    }
+    #[inline(always)]
+    fn load(self, a: &[f64; LANES]) -> Self::V {
+        *a
+    }
+    #[inline(always)]
+    fn store(self, v: Self::V) -> [f64; LANES] {
+        v
+    }
+    #[inline(always)]
+    fn add(self, a: Self::V, b: Self::V) -> Self::V {
+        lane_by_lane!(a, b, +)
+    }
+    #[inline(always)]
+    fn sub(self, a: Self::V, b: Self::V) -> Self::V {
+        lane_by_lane!(a, b, -)
+    }
+    #[inline(always)]
+    fn mul(self, a: Self::V, b: Self::V) -> Self::V {
+        lane_by_lane!(a, b, *)
+    }
+    #[inline(always)]
+    fn div(self, a: Self::V, b: Self::V) -> Self::V {
+        lane_by_lane!(a, b, /)
+    }
+    #[inline(always)]
+    fn select_gt(self, a: Self::V, b: Self::V, t: Self::V, f: Self::V) -> Self::V {
+        std::array::from_fn(|l| if a[l] > b[l] { t[l] } else { f[l] })
+    }
+    #[inline(always)]
+    fn select_ge(self, a: Self::V, b: Self::V, t: Self::V, f: Self::V) -> Self::V {
+        std::array::from_fn(|l| if a[l] >= b[l] { t[l] } else { f[l] })
+    }
+}
+
+#[cfg(target_arch = "x86_64")]
+mod x86 {
+    use super::{LANES, Wide};
+    use pulp::x86::{V3, V4};
+    use pulp::{f64x4, f64x8};
+
+    impl Wide for V4 {
+        type V = f64x8;
+        #[inline(always)]
+        fn splat(self, v: f64) -> f64x8 {
+            self.splat_f64x8(v)
+        }
+        #[inline(always)]
+        fn load(self, a: &[f64; LANES]) -> f64x8 {
+            pulp::cast(*a)
+        }
+        #[inline(always)]
+        fn store(self, v: f64x8) -> [f64; LANES] {
+            pulp::cast(v)
+        }
+        #[inline(always)]
+        fn add(self, a: f64x8, b: f64x8) -> f64x8 {
+            self.add_f64x8(a, b)
+        }
+        #[inline(always)]
+        fn sub(self, a: f64x8, b: f64x8) -> f64x8 {
+            self.sub_f64x8(a, b)
+        }
+        #[inline(always)]
+        fn mul(self, a: f64x8, b: f64x8) -> f64x8 {
+            self.mul_f64x8(a, b)
+        }
+        #[inline(always)]
+        fn div(self, a: f64x8, b: f64x8) -> f64x8 {
+            self.div_f64x8(a, b)
+        }
+        #[inline(always)]
+        fn select_gt(self, a: f64x8, b: f64x8, t: f64x8, f: f64x8) -> f64x8 {
+            self.select_f64x8(self.cmp_gt_f64x8(a, b), t, f)
+        }
+        #[inline(always)]
+        fn select_ge(self, a: f64x8, b: f64x8, t: f64x8, f: f64x8) -> f64x8 {
+            self.select_f64x8(self.cmp_ge_f64x8(a, b), t, f)
+        }
+    }
+
+    impl Wide for V3 {
+        type V = [f64x4; 2];
+        #[inline(always)]
+        fn splat(self, v: f64) -> Self::V {
+            [self.splat_f64x4(v); 2]
+        }
+        #[inline(always)]
+        fn load(self, a: &[f64; LANES]) -> Self::V {
+            pulp::cast(*a)
+        }
+        #[inline(always)]
+        fn store(self, v: Self::V) -> [f64; LANES] {
+            pulp::cast(v)
+        }
+        #[inline(always)]
+        fn add(self, a: Self::V, b: Self::V) -> Self::V {
+            [self.add_f64x4(a[0], b[0]), self.add_f64x4(a[1], b[1])]
+        }
+        #[inline(always)]
+        fn sub(self, a: Self::V, b: Self::V) -> Self::V {
+            [self.sub_f64x4(a[0], b[0]), self.sub_f64x4(a[1], b[1])]
+        }
+        #[inline(always)]
+        fn mul(self, a: Self::V, b: Self::V) -> Self::V {
+            [self.mul_f64x4(a[0], b[0]), self.mul_f64x4(a[1], b[1])]
+        }
+        #[inline(always)]
+        fn div(self, a: Self::V, b: Self::V) -> Self::V {
+            [self.div_f64x4(a[0], b[0]), self.div_f64x4(a[1], b[1])]
+        }
+        #[inline(always)]
+        fn select_gt(self, a: Self::V, b: Self::V, t: Self::V, f: Self::V) -> Self::V {
+            [
+                self.select_f64x4(self.cmp_gt_f64x4(a[0], b[0]), t[0], f[0]),
+                self.select_f64x4(self.cmp_gt_f64x4(a[1], b[1]), t[1], f[1]),
+            ]
+        }
+        #[inline(always)]
+        fn select_ge(self, a: Self::V, b: Self::V, t: Self::V, f: Self::V) -> Self::V {
+            [
+                self.select_f64x4(self.cmp_ge_f64x4(a[0], b[0]), t[0], f[0]),
+                self.select_f64x4(self.cmp_ge_f64x4(a[1], b[1]), t[1], f[1]),
+            ]
+        }
+    }
+}
+
+/// A loop over lanes, run with the registers of any [`Wide`].
+pub trait Kernel {
+    /// What it computes.
+    type Output;
+    /// Runs it with the registers of `w`.
+    fn run<W: Wide>(self, w: W) -> Self::Output;
+}
+
+/// Runs `k` with the widest registers the processor has (AVX-512, AVX2, or eight
+/// scalars): the same numbers either way.
+#[inline(always)]
+pub fn dispatch<K: Kernel>(k: K) -> K::Output {
+    #[cfg(target_arch = "x86_64")]
+    {
+        if let Some(v4) = pulp::x86::V4::try_new() {
+            // A closure that consumes `k` is `FnOnce` only, so it is inlined into the
+            // function compiled for the wide registers.
+            return v4.vectorize(move || k.run(v4));
+        }
+        if let Some(v3) = pulp::x86::V3::try_new() {
+            return v3.vectorize(move || k.run(v3));
+        }
+    }
+    k.run(Plain)
+}
+
+/// Eight lanes in the registers of `W`, with the operations a kernel writes as methods.
+#[derive(Clone, Copy)]
+pub struct L8<W: Wide>(W::V);
+
+impl<W: Wide> L8<W> {
     /// Every lane `v`.
     #[inline(always)]
-    pub fn splat(s: S, v: f64) -> Self {
-        L8([s.splat_f64s(v); LANES])
+    pub fn splat(w: W, v: f64) -> Self {
+        L8(w.splat(v))
     }
 
     /// The eight values of `a`.
     #[inline(always)]
-    pub fn load(s: S, a: &[f64; LANES]) -> Self {
-        let (regs, _) = S::as_simd_f64s(a);
-        let mut out = [s.splat_f64s(0.0); LANES];
-        out[..Self::REGS].copy_from_slice(&regs[..Self::REGS]);
-        L8(out)
+    pub fn load(w: W, a: &[f64; LANES]) -> Self {
+        L8(w.load(a))
     }
 
     /// `v[j0..j0 + 8]`; past the end of `v`, `pad`.
     #[inline(always)]
-    pub fn get(s: S, v: &[f64], j0: usize, pad: f64) -> Self {
+    pub fn get(w: W, v: &[f64], j0: usize, pad: f64) -> Self {
         match v.get(j0..j0 + LANES).map(<&[f64; LANES]>::try_from) {
-            Some(Ok(block)) => Self::load(s, block),
+            Some(Ok(block)) => Self::load(w, block),
             _ => {
                 let mut block = [pad; LANES];
                 let rest = v.get(j0..).unwrap_or(&[]);
                 block[..rest.len()].copy_from_slice(rest);
-                Self::load(s, &block)
+                Self::load(w, &block)
             }
         }
     }
 
-    /// `self + b`, lane by lane.
+    /// `self + b`.
     #[inline(always)]
-    pub fn add(self, s: S, b: Self) -> Self {
-        let mut out = self.0;
-        for r in 0..Self::REGS {
-            out[r] = s.add_f64s(self.0[r], b.0[r]);
-        }
-        L8(out)
+    pub fn add(self, w: W, b: Self) -> Self {
+        L8(w.add(self.0, b.0))
     }
 
-    /// `self − b`, lane by lane.
+    /// `self − b`.
     #[inline(always)]
-    pub fn sub(self, s: S, b: Self) -> Self {
-        let mut out = self.0;
-        for r in 0..Self::REGS {
-            out[r] = s.sub_f64s(self.0[r], b.0[r]);
-        }
-        L8(out)
+    pub fn sub(self, w: W, b: Self) -> Self {
+        L8(w.sub(self.0, b.0))
     }
 
-    /// `self · b`, lane by lane.
+    /// `self · b`.
     #[inline(always)]
-    pub fn mul(self, s: S, b: Self) -> Self {
-        let mut out = self.0;
-        for r in 0..Self::REGS {
-            out[r] = s.mul_f64s(self.0[r], b.0[r]);
-        }
-        L8(out)
+    pub fn mul(self, w: W, b: Self) -> Self {
+        L8(w.mul(self.0, b.0))
     }
 
-    /// `self / b`, lane by lane.
+    /// `self / b`.
     #[inline(always)]
-    pub fn div(self, s: S, b: Self) -> Self {
-        let mut out = self.0;
-        for r in 0..Self::REGS {
-            out[r] = s.div_f64s(self.0[r], b.0[r]);
-        }
-        L8(out)
+    pub fn div(self, w: W, b: Self) -> Self {
+        L8(w.div(self.0, b.0))
     }
 
-    /// Lane by lane: `if_true` where `self ≥ b`, else `if_false` (false where either is
-    /// NaN).
+    /// `t` where `self > b`, else `f` (false where either is NaN).
     #[inline(always)]
-    pub fn select_ge(self, s: S, b: Self, if_true: Self, if_false: Self) -> Self {
-        let mut out = self.0;
-        for r in 0..Self::REGS {
-            let m = s.greater_than_or_equal_f64s(self.0[r], b.0[r]);
-            out[r] = s.select_f64s(m, if_true.0[r], if_false.0[r]);
-        }
-        L8(out)
+    pub fn select_gt(self, w: W, b: Self, t: Self, f: Self) -> Self {
+        L8(w.select_gt(self.0, b.0, t.0, f.0))
     }
 
-    /// Lane by lane: `if_true` where `self > b`, else `if_false` (false where either is
-    /// NaN).
+    /// `t` where `self ≥ b`, else `f` (false where either is NaN).
     #[inline(always)]
-    pub fn select_gt(self, s: S, b: Self, if_true: Self, if_false: Self) -> Self {
-        let mut out = self.0;
-        for r in 0..Self::REGS {
-            let m = s.greater_than_f64s(self.0[r], b.0[r]);
-            out[r] = s.select_f64s(m, if_true.0[r], if_false.0[r]);
-        }
-        L8(out)
+    pub fn select_ge(self, w: W, b: Self, t: Self, f: Self) -> Self {
+        L8(w.select_ge(self.0, b.0, t.0, f.0))
     }
 
     /// The lanes as numbers.
     #[inline(always)]
-    pub fn lanes(self) -> [f64; LANES] {
-        let mut out = [0.0; LANES];
-        let (regs, _) = S::as_mut_simd_f64s(&mut out);
-        regs[..Self::REGS].copy_from_slice(&self.0[..Self::REGS]);
-        out
+    pub fn lanes(self, w: W) -> [f64; LANES] {
+        w.store(self.0)
     }
 
     /// The sum of the lanes, in a fixed order.
     #[inline(always)]
-    pub fn fold(self) -> f64 {
-        let a = self.lanes();
+    pub fn fold(self, w: W) -> f64 {
+        let a = self.lanes(w);
         ((a[0] + a[4]) + (a[2] + a[6])) + ((a[1] + a[5]) + (a[3] + a[7]))
     }
 }
@@ -143,27 +298,28 @@ impl<S: Simd> L8<S> {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use pulp::WithSimd;
 
-    /// A sum in lanes, the same on every instruction set this processor has: the same
+    struct Dot<'a>(&'a [f64], &'a [f64]);
+
+    impl Kernel for Dot<'_> {
+        type Output = f64;
+        #[inline(always)]
+        fn run<W: Wide>(self, w: W) -> f64 {
+            let mut acc = L8::splat(w, 0.0);
+            for j0 in (0..self.0.len()).step_by(LANES) {
+                let (a, b) = (L8::get(w, self.0, j0, 0.0), L8::get(w, self.1, j0, 0.0));
+                acc = acc.add(w, a.mul(w, b));
+            }
+            acc.fold(w)
+        }
+    }
+
+    /// A sum in lanes is the same on every instruction set this processor has: the same
     /// lanes in the same order, folded alike. Source: common practice (IEEE 754 addition
     /// and multiplication are correctly rounded, so the same operations in the same order
     /// give the same bits).
     #[test]
     fn every_instruction_set_gives_the_same_bits() {
-        struct Dot<'a>(&'a [f64], &'a [f64]);
-        impl WithSimd for Dot<'_> {
-            type Output = f64;
-            #[inline(always)]
-            fn with_simd<S: Simd>(self, s: S) -> f64 {
-                let mut acc = L8::splat(s, 0.0);
-                for j0 in (0..self.0.len()).step_by(LANES) {
-                    let (a, b) = (L8::get(s, self.0, j0, 0.0), L8::get(s, self.1, j0, 0.0));
-                    acc = acc.add(s, a.mul(s, b));
-                }
-                acc.fold()
-            }
-        }
         let a: Vec<f64> = (0..1003).map(|i| (i as f64 * 0.731).sin() * 1e3).collect();
         let b: Vec<f64> = (0..1003).map(|i| (i as f64 * 0.117).cos()).collect();
         let mut want = [0.0; LANES];
@@ -172,20 +328,51 @@ mod tests {
         }
         let want = ((want[0] + want[4]) + (want[2] + want[6]))
             + ((want[1] + want[5]) + (want[3] + want[7]));
-        assert_eq!(
-            Dot(&a, &b).with_simd(pulp::Scalar::new()).to_bits(),
-            want.to_bits()
-        );
-        assert_eq!(
-            pulp::Arch::new().dispatch(Dot(&a, &b)).to_bits(),
-            want.to_bits()
-        );
+        let (a, b) = (a.as_slice(), b.as_slice());
+        assert_eq!(Dot(a, b).run(Plain).to_bits(), want.to_bits());
+        assert_eq!(dispatch(Dot(a, b)).to_bits(), want.to_bits());
+        #[cfg(target_arch = "x86_64")]
+        {
+            if let Some(v3) = pulp::x86::V3::try_new() {
+                let got = v3.vectorize(move || Dot(a, b).run(v3));
+                assert_eq!(got.to_bits(), want.to_bits());
+            }
+            if let Some(v4) = pulp::x86::V4::try_new() {
+                let got = v4.vectorize(move || Dot(a, b).run(v4));
+                assert_eq!(got.to_bits(), want.to_bits());
+            }
+        }
+    }
+
+    /// The selects of every instruction set agree with the scalar comparisons, NaN
+    /// included. Source: common practice (IEEE 754 ordered comparisons are false with NaN).
+    #[test]
+    fn selects_treat_nan_as_false_everywhere() {
+        struct Sel([f64; LANES], [f64; LANES]);
+        impl Kernel for Sel {
+            type Output = [[f64; LANES]; 2];
+            #[inline(always)]
+            fn run<W: Wide>(self, w: W) -> Self::Output {
+                let (a, b) = (L8::load(w, &self.0), L8::load(w, &self.1));
+                let (t, f) = (L8::splat(w, 1.0), L8::splat(w, 0.0));
+                [
+                    a.select_gt(w, b, t, f).lanes(w),
+                    a.select_ge(w, b, t, f).lanes(w),
+                ]
+            }
+        }
+        let nan = f64::NAN;
+        let a = [1.0, 2.0, nan, 3.0, -0.0, 5.0, nan, f64::INFINITY];
+        let b = [1.0, 1.0, 0.0, nan, 0.0, 6.0, nan, 1.0];
+        let bits = |v: [[f64; LANES]; 2]| v.map(|l| l.map(f64::to_bits));
+        let want = bits(Sel(a, b).run(Plain));
+        let (t, f) = (1f64.to_bits(), 0f64.to_bits());
+        assert_eq!(want[0], [f, t, f, f, f, f, f, t]);
+        assert_eq!(want[1], [t, t, f, f, t, f, f, t]);
+        assert_eq!(bits(dispatch(Sel(a, b))), want);
         #[cfg(target_arch = "x86_64")]
         if let Some(v3) = pulp::x86::V3::try_new() {
-            assert_eq!(
-                v3.vectorize(|| Dot(&a, &b).with_simd(v3)).to_bits(),
-                want.to_bits()
-            );
+            assert_eq!(bits(v3.vectorize(move || Sel(a, b).run(v3))), want);
         }
     }
 }

@@ -7,7 +7,7 @@
 //! Draper & Smith, *Applied Regression Analysis*, 3rd ed. (1998), ch. 1 and 9 (weighted
 //! least squares); certified test values from the NIST Statistical Reference Datasets.
 
-use super::lanes::{L8, LANES};
+use super::lanes::{Kernel, L8, LANES, Wide, dispatch};
 
 /// A fitted line and its standard statistics.
 #[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
@@ -95,7 +95,7 @@ pub fn fit_line(x: &[f64], y: &[f64], w: Option<&[f64]>) -> Option<LineFit> {
 pub fn slope_above(x: &[f64], y: &[f64], w: &[f64], q: f64) -> Option<f64> {
     let p = x.len().min(y.len()).min(w.len());
     let (x, y, w) = (&x[..p], &y[..p], &w[..p]);
-    pulp::Arch::new().dispatch(SlopeAbove { x, y, w, q })
+    dispatch(SlopeAbove { x, y, w, q })
 }
 
 /// [`slope_above`]'s sums.
@@ -106,11 +106,11 @@ struct SlopeAbove<'a> {
     q: f64,
 }
 
-impl pulp::WithSimd for SlopeAbove<'_> {
+impl Kernel for SlopeAbove<'_> {
     type Output = Option<f64>;
 
     #[inline(always)]
-    fn with_simd<S: pulp::Simd>(self, s: S) -> Option<f64> {
+    fn run<S: Wide>(self, s: S) -> Option<f64> {
         let Self { x, y, w, q } = self;
         let (zero, one, q) = (L8::splat(s, 0.0), L8::splat(s, 1.0), L8::splat(s, q));
         // Lanes past the end hold x = NaN, which is never kept. A point not kept adds
@@ -127,11 +127,14 @@ impl pulp::WithSimd for SlopeAbove<'_> {
             swx = swx.add(s, xv.select_ge(s, q, wv.mul(s, xv), zero));
             swy = swy.add(s, xv.select_ge(s, q, wv.mul(s, yv), zero));
         }
-        if bad.fold() > 0.0 || n.fold() < 3.0 {
+        if bad.fold(s) > 0.0 || n.fold(s) < 3.0 {
             return None;
         }
-        let sw = sw.fold();
-        let (xm, ym) = (L8::splat(s, swx.fold() / sw), L8::splat(s, swy.fold() / sw));
+        let sw = sw.fold(s);
+        let (xm, ym) = (
+            L8::splat(s, swx.fold(s) / sw),
+            L8::splat(s, swy.fold(s) / sw),
+        );
         let (mut sxx, mut sxy) = (zero, zero);
         for j0 in (0..x.len()).step_by(LANES) {
             let xv = L8::get(s, x, j0, f64::NAN);
@@ -141,8 +144,8 @@ impl pulp::WithSimd for SlopeAbove<'_> {
             sxx = sxx.add(s, xv.select_ge(s, q, wdx.mul(s, dx), zero));
             sxy = sxy.add(s, xv.select_ge(s, q, wdx.mul(s, dy), zero));
         }
-        let sxx = sxx.fold();
-        (sxx > 0.0).then(|| sxy.fold() / sxx)
+        let sxx = sxx.fold(s);
+        (sxx > 0.0).then(|| sxy.fold(s) / sxx)
     }
 }
 
