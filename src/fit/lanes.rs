@@ -35,6 +35,8 @@ pub trait Wide: Copy {
     fn mul(self, a: Self::V, b: Self::V) -> Self::V;
     /// `a / b`.
     fn div(self, a: Self::V, b: Self::V) -> Self::V;
+    /// `a · b + c` rounded once (a fused multiply-add; only for [`exceeds`]).
+    fn mul_add(self, a: Self::V, b: Self::V, c: Self::V) -> Self::V;
     /// `t` where `a > b`, else `f` (false where either is NaN).
     fn select_gt(self, a: Self::V, b: Self::V, t: Self::V, f: Self::V) -> Self::V;
     /// `t` where `a ≥ b`, else `f` (false where either is NaN).
@@ -86,6 +88,10 @@ impl Wide for Plain {
         lane_by_lane!(a, b, /)
     }
     #[inline(always)]
+    fn mul_add(self, a: Self::V, b: Self::V, c: Self::V) -> Self::V {
+        std::array::from_fn(|l| a[l].mul_add(b[l], c[l]))
+    }
+    #[inline(always)]
     fn select_gt(self, a: Self::V, b: Self::V, t: Self::V, f: Self::V) -> Self::V {
         std::array::from_fn(|l| if a[l] > b[l] { t[l] } else { f[l] })
     }
@@ -132,6 +138,10 @@ mod x86 {
             self.div_f64x8(a, b)
         }
         #[inline(always)]
+        fn mul_add(self, a: f64x8, b: f64x8, c: f64x8) -> f64x8 {
+            self.mul_add_f64x8(a, b, c)
+        }
+        #[inline(always)]
         fn select_gt(self, a: f64x8, b: f64x8, t: f64x8, f: f64x8) -> f64x8 {
             self.select_f64x8(self.cmp_gt_f64x8(a, b), t, f)
         }
@@ -170,6 +180,13 @@ mod x86 {
         #[inline(always)]
         fn div(self, a: Self::V, b: Self::V) -> Self::V {
             [self.div_f64x4(a[0], b[0]), self.div_f64x4(a[1], b[1])]
+        }
+        #[inline(always)]
+        fn mul_add(self, a: Self::V, b: Self::V, c: Self::V) -> Self::V {
+            [
+                self.mul_add_f64x4(a[0], b[0], c[0]),
+                self.mul_add_f64x4(a[1], b[1], c[1]),
+            ]
         }
         #[inline(always)]
         fn select_gt(self, a: Self::V, b: Self::V, t: Self::V, f: Self::V) -> Self::V {
@@ -269,6 +286,24 @@ impl<W: Wide> L8<W> {
         L8(w.div(self.0, b.0))
     }
 
+    /// The sign of `a·d − b·c` without rounding's errors, lane by lane: Kahan's 2 × 2
+    /// determinant with a fused multiply-add, whose relative error is at most two units in
+    /// the last place, so its sign is the exact one, and it is zero exactly when the
+    /// determinant is (finite values without underflow).
+    ///
+    /// Reference: C.-P. Jeannerod, N. Louvet, J.-M. Muller, "Further analysis of Kahan's
+    /// algorithm for the accurate computation of 2 × 2 determinants", Math. Comp. 82,
+    /// 2245–2264 (2013).
+    #[inline(always)]
+    pub fn det(w: W, a: Self, d: Self, b: Self, c: Self) -> Self {
+        let bc = b.mul(w, c);
+        let zero = L8::splat(w, 0.0);
+        // e = bc − b·c exactly; f = a·d − bc rounded once.
+        let e = L8(w.mul_add(zero.sub(w, b).0, c.0, bc.0));
+        let f = L8(w.mul_add(a.0, d.0, zero.sub(w, bc).0));
+        f.add(w, e)
+    }
+
     /// `t` where `self > b`, else `f` (false where either is NaN).
     #[inline(always)]
     pub fn select_gt(self, w: W, b: Self, t: Self, f: Self) -> Self {
@@ -293,6 +328,17 @@ impl<W: Wide> L8<W> {
         let a = self.lanes(w);
         ((a[0] + a[4]) + (a[2] + a[6])) + ((a[1] + a[5]) + (a[3] + a[7]))
     }
+}
+
+/// Whether `n1 / d1 > n2 / d2` exactly, for `d1, d2 > 0` ([`L8::det`] on one lane): a
+/// comparison of fractions that is transitive, so the first largest of a list is the same
+/// however the list is split.
+#[inline(always)]
+pub fn exceeds(n1: f64, d1: f64, n2: f64, d2: f64) -> bool {
+    let bc = n2 * d1;
+    let e = (-n2).mul_add(d1, bc);
+    let f = n1.mul_add(d2, -bc);
+    f + e > 0.0
 }
 
 #[cfg(test)]
@@ -342,6 +388,21 @@ mod tests {
                 assert_eq!(got.to_bits(), want.to_bits());
             }
         }
+    }
+
+    /// The exact comparison of fractions decides near-ties that the rounded
+    /// cross-multiplication gets wrong, and agrees with it elsewhere. Source: common
+    /// practice (exact rational comparison of the same binary64 inputs).
+    #[test]
+    fn fractions_compare_exactly() {
+        // 1/3 and 0.333…3/1 as binary64: n1·d2 and n2·d1 round to the same number.
+        let (n1, d1) = (1.0, 3.0);
+        let n2 = 1.0 / 3.0;
+        assert!(exceeds(n1, d1, n2, 1.0));
+        assert!(!exceeds(n2, 1.0, n1, d1));
+        assert!(!(n1 * 1.0 > n2 * d1), "the rounded comparison sees a tie");
+        assert!(!exceeds(2.0, 4.0, 1.0, 2.0) && !exceeds(1.0, 2.0, 2.0, 4.0));
+        assert!(exceeds(3.0, 4.0, 1.0, 2.0) && !exceeds(1.0, 2.0, 3.0, 4.0));
     }
 
     /// The selects of every instruction set agree with the scalar comparisons, NaN

@@ -46,6 +46,11 @@ pub fn fit_line(x: &[f64], y: &[f64], w: Option<&[f64]>) -> Option<LineFit> {
     if n < 3 || y.len() != n || w.is_some_and(|w| w.len() != n || w.iter().any(|&v| !(v > 0.0))) {
         return None;
     }
+    // All x equal: no slope, whatever the rounding of the weighted mean leaves in Sxx.
+    #[allow(clippy::float_cmp)] // exact equality is meant
+    if x.iter().all(|&v| v == x[0]) {
+        return None;
+    }
     let wt = |i: usize| w.map_or(1.0, |w| w[i]);
     let sw: f64 = (0..n).map(wt).sum();
     let xm = (0..n).map(|i| wt(i) * x[i]).sum::<f64>() / sw;
@@ -115,7 +120,12 @@ impl Kernel for SlopeAbove<'_> {
         let (zero, one, q) = (L8::splat(s, 0.0), L8::splat(s, 1.0), L8::splat(s, q));
         // Lanes past the end hold x = NaN, which is never kept. A point not kept adds
         // selected zeros, so it never reaches a sum.
+        // The first kept x: a kept x that differs from it means the kept x are not all
+        // equal (tested directly: Sxx's rounding can leave it above zero when they are).
+        let &first = x.iter().find(|&&v| v >= self.q)?;
+        let x0 = L8::splat(s, first);
         let (mut n, mut bad, mut sw, mut swx, mut swy) = (zero, zero, zero, zero, zero);
+        let mut spread = zero;
         for j0 in (0..x.len()).step_by(LANES) {
             let xv = L8::get(s, x, j0, f64::NAN);
             let (yv, wv) = (L8::get(s, y, j0, 0.0), L8::get(s, w, j0, 0.0));
@@ -123,11 +133,13 @@ impl Kernel for SlopeAbove<'_> {
             // A kept point whose weight is not positive (NaN included).
             let not_positive = zero.select_ge(s, wv, one, wv.select_ge(s, wv, zero, one));
             bad = bad.add(s, xv.select_ge(s, q, not_positive, zero));
+            let differs = xv.select_gt(s, x0, one, x0.select_gt(s, xv, one, zero));
+            spread = spread.add(s, xv.select_ge(s, q, differs, zero));
             sw = sw.add(s, xv.select_ge(s, q, wv, zero));
             swx = swx.add(s, xv.select_ge(s, q, wv.mul(s, xv), zero));
             swy = swy.add(s, xv.select_ge(s, q, wv.mul(s, yv), zero));
         }
-        if bad.fold(s) > 0.0 || n.fold(s) < 3.0 {
+        if bad.fold(s) > 0.0 || n.fold(s) < 3.0 || spread.fold(s) == 0.0 {
             return None;
         }
         let sw = sw.fold(s);
@@ -227,6 +239,19 @@ mod tests {
         assert_eq!(slope_above(&[1.0; 5], &y[..5], &w[..5], 0.0), None);
         assert!(slope_above(&x[..3], &y[..3], &w[..3], -2.0).is_some());
         assert_eq!(slope_above(&x[..2], &y[..2], &w[..2], -2.0), None);
+        // Equal x above q: no slope, however the weighted mean rounds (a review's cases).
+        let ys = [0.0, 1.0, 2.0, 3.0];
+        assert_eq!(
+            slope_above(&[0.1; 3], &ys[..3], &[0.32, 0.38, 0.81], 0.0),
+            None
+        );
+        assert_eq!(
+            slope_above(&[0.1; 4], &ys, &[1.05, 0.23, 0.44, 0.58], 0.0),
+            None
+        );
+        assert!(fit_line(&[0.1; 3], &ys[..3], Some(&[0.32, 0.38, 0.81])).is_none());
+        assert!(slope_above(&[0.0, 0.1, 0.1, 0.1], &ys, &[1.0; 4], 0.05).is_none());
+        assert!(slope_above(&[0.2, 0.1, 0.1, 0.1], &ys, &[1.0; 4], 0.05).is_some());
     }
 
     /// Against the 3×3 normal equations solved by Cramer's rule (an independent route to
