@@ -5,7 +5,9 @@
 //! each lane adds its points in order, and the lanes are folded in one fixed order
 //! ([`L8::fold`]). The eight lanes sit in one AVX-512 register, two AVX2 registers or
 //! eight scalars ([`Wide`]), whichever [`dispatch`] finds on the processor, and no
-//! multiply is fused into an add, so a kernel gives the same numbers on every processor.
+//! multiply is fused into an add (but in [`L8::det`] and [`exceeds`], where the fused
+//! multiply-add is what makes a comparison exact, and every instruction set fuses it), so
+//! a kernel gives the same numbers on every processor.
 //!
 //! Code that is not inlined into the function compiled for the wide registers is compiled
 //! without them, and then every vector operation becomes a call: a closure given to
