@@ -869,7 +869,7 @@ fn solution(
     let (xp, r) = (&ws.xp, &ws.resp[k]);
     let i = best.i;
     let sse_null = c.sse_null(line, xp.sxx);
-    // The break [`Workspace::candidates`] chose in the interval, made again.
+    // The break [`BestInterval`] chose in the interval (the interior one on a tie), made again.
     let [n, d, q] = ws.interval(k, i, tiny, m);
     let qc = if n[0] * d[1] >= n[1] * d[0] {
         q[0]
