@@ -1205,6 +1205,21 @@ mod tests {
         }
     }
 
+    /// The scan over these columns (`al, be, ga, de, ep, lo, hi`).
+    fn best_interval<'a>(c: [&'a [f64]; 7], tiny: f64) -> BestInterval<'a> {
+        let [al, be, ga, de, ep, lo, hi] = c;
+        BestInterval {
+            al,
+            be,
+            ga,
+            de,
+            ep,
+            lo,
+            hi,
+            tiny,
+        }
+    }
+
     /// Three intervals whose explained sums of squares tie under the rounded
     /// cross-multiplication (0 against 1) while 8 is larger than 0 and ties with 1: the
     /// lanes and one scan both take the exactly largest, the same on every instruction
@@ -1223,16 +1238,7 @@ mod tests {
             (be[i], ep[i]) = (f64::from_bits(b), f64::from_bits(e));
         }
         let (lo, hi) = (vec![-1.0; n], vec![1.0; n]);
-        let op = || BestInterval {
-            al: &al,
-            be: &be,
-            ga: &ga,
-            de: &de,
-            ep: &ep,
-            lo: &lo,
-            hi: &hi,
-            tiny: 0.0,
-        };
+        let op = || best_interval([&al, &be, &ga, &de, &ep, &lo, &hi], 0.0);
         // Upper candidates only (q* = 0/0): b² / e at each; exact order by rationals.
         let value = |i: usize| (be[i] * be[i], ep[i]);
         let mut want = 0;
@@ -1293,16 +1299,7 @@ mod tests {
             }
             let scan = |w: Option<Best>| w.map(|b| (b.i, b.num.to_bits(), b.den.to_bits()));
             let want = want.map(|i| (i, bn.to_bits(), bd.to_bits()));
-            let op = || BestInterval {
-                al: &al,
-                be: &be,
-                ga: &ga,
-                de: &de,
-                ep: &ep,
-                lo: &lo,
-                hi: &hi,
-                tiny,
-            };
+            let op = || best_interval([&al, &be, &ga, &de, &ep, &lo, &hi], tiny);
             assert_eq!(
                 scan(op().run(super::super::lanes::Plain)),
                 want,
