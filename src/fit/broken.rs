@@ -785,69 +785,131 @@ struct BestInterval<'a> {
     tiny: f64,
 }
 
+impl BestInterval<'_> {
+    /// The seven columns of intervals `j0..j0 + 8`: `v[j0..j0 + 8]` of whole blocks
+    /// (`PAD` false), zeros past the end otherwise.
+    #[inline(always)]
+    fn block<S: Wide, const PAD: bool>(&self, s: S, j0: usize) -> [L8<S>; 7] {
+        let cols = [self.al, self.be, self.ga, self.de, self.ep, self.lo, self.hi];
+        let mut v = [L8::splat(s, 0.0); 7];
+        for (v, c) in v.iter_mut().zip(cols) {
+            *v = if PAD { L8::get(s, c, j0, 0.0) } else { L8::at(s, c, j0) };
+        }
+        v
+    }
+
+    /// Per interval of a block, the better of its two candidates as `(num, den)`, `-1 / 1`
+    /// where it has none (the interior one on a tie).
+    #[inline(always)]
+    fn better<S: Wide>(&self, s: S, [al, be, ga, de, ep, lo, hi]: [L8<S>; 7]) -> (L8<S>, L8<S>) {
+        let (one, minus) = (L8::splat(s, 1.0), L8::splat(s, -1.0));
+        let tiny = L8::splat(s, self.tiny);
+        // As `interval_candidates`, operation by operation.
+        let q_star = be
+            .mul(s, de)
+            .sub(s, al.mul(s, ep))
+            .div(s, be.mul(s, ga).sub(s, al.mul(s, de)));
+        let (n_in, d_in) = explained_at(s, [al, be, ga, de, ep], q_star);
+        let (n_up, d_up) = explained_at(s, [al, be, ga, de, ep], hi);
+        // Kept where `d_in > tiny`, `q* > lo` and `hi > q*` (all false for NaN).
+        let n_in = hi.select_gt(s, q_star, n_in, minus);
+        let n_in = q_star.select_gt(s, lo, n_in, minus);
+        let n_in = d_in.select_gt(s, tiny, n_in, minus);
+        let d_kept = hi.select_gt(s, q_star, d_in, one);
+        let d_kept = q_star.select_gt(s, lo, d_kept, one);
+        let d_in = d_in.select_gt(s, tiny, d_kept, one);
+        let (n_up, d_up) = (
+            d_up.select_gt(s, tiny, n_up, minus),
+            d_up.select_gt(s, tiny, d_up, one),
+        );
+        let (l, r) = (n_in.mul(s, d_up), n_up.mul(s, d_in));
+        (
+            l.select_ge(s, r, n_in, n_up),
+            l.select_ge(s, r, d_in, d_up),
+        )
+    }
+}
+
+/// Each lane's first best interval so far: its explained sum `n / d` and its index.
+#[derive(Clone, Copy)]
+struct Leaders<S: Wide> {
+    n: L8<S>,
+    d: L8<S>,
+    i: L8<S>,
+}
+
+impl<S: Wide> Leaders<S> {
+    /// None yet: `-1 / 1`, which any candidate beats.
+    #[inline(always)]
+    fn new(s: S) -> Self {
+        let minus = L8::splat(s, -1.0);
+        Leaders {
+            n: minus,
+            d: L8::splat(s, 1.0),
+            i: minus,
+        }
+    }
+
+    /// The candidates `num / den` of intervals `idx` where they beat the lane's leader,
+    /// by the exact sign of `num·d − n·den`: a transitive comparison, so the lanes and
+    /// their merge find the first best interval one scan would.
+    #[inline(always)]
+    fn take(self, s: S, num: L8<S>, den: L8<S>, idx: L8<S>) -> Self {
+        let zero = L8::splat(s, 0.0);
+        let det = L8::det(s, num, self.d, self.n, den);
+        Leaders {
+            n: num.select_ge(s, zero, det.select_gt(s, zero, num, self.n), self.n),
+            d: num.select_ge(s, zero, det.select_gt(s, zero, den, self.d), self.d),
+            i: num.select_ge(s, zero, det.select_gt(s, zero, idx, self.i), self.i),
+        }
+    }
+}
+
 impl Kernel for BestInterval<'_> {
     type Output = Option<Best>;
 
     #[inline(always)]
     fn run<S: Wide>(self, s: S) -> Option<Best> {
-        let (zero, one) = (L8::splat(s, 0.0), L8::splat(s, 1.0));
-        let (minus, tiny) = (L8::splat(s, -1.0), L8::splat(s, self.tiny));
-        let (mut bn, mut bd, mut bi) = (minus, one, minus);
+        // Two sets of leaders, for the even and the odd blocks of eight intervals: a
+        // set's choice waits on its last one, and two such chains run side by side.
+        let mut sets = [Leaders::new(s); 2];
         let mut idx = L8::load(s, &[0.0, 1.0, 2.0, 3.0, 4.0, 5.0, 6.0, 7.0]);
         let step = L8::splat(s, LANES as f64);
-        // Intervals past the end hold zeros: q* is NaN and both denominators 0, so
-        // neither candidate counts.
-        for j0 in (0..self.al.len()).step_by(LANES) {
-            let (al, be) = (L8::get(s, self.al, j0, 0.0), L8::get(s, self.be, j0, 0.0));
-            let (ga, de) = (L8::get(s, self.ga, j0, 0.0), L8::get(s, self.de, j0, 0.0));
-            let (ep, lo) = (L8::get(s, self.ep, j0, 0.0), L8::get(s, self.lo, j0, 0.0));
-            let hi = L8::get(s, self.hi, j0, 0.0);
-            // As `interval_candidates`, operation by operation.
-            let q_star = be
-                .mul(s, de)
-                .sub(s, al.mul(s, ep))
-                .div(s, be.mul(s, ga).sub(s, al.mul(s, de)));
-            let (n_in, d_in) = explained_at(s, [al, be, ga, de, ep], q_star);
-            let (n_up, d_up) = explained_at(s, [al, be, ga, de, ep], hi);
-            // Kept where `d_in > tiny`, `q* > lo` and `hi > q*` (all false for NaN).
-            let n_in = hi.select_gt(s, q_star, n_in, minus);
-            let n_in = q_star.select_gt(s, lo, n_in, minus);
-            let n_in = d_in.select_gt(s, tiny, n_in, minus);
-            let d_kept = hi.select_gt(s, q_star, d_in, one);
-            let d_kept = q_star.select_gt(s, lo, d_kept, one);
-            let d_in = d_in.select_gt(s, tiny, d_kept, one);
-            let (n_up, d_up) = (
-                d_up.select_gt(s, tiny, n_up, minus),
-                d_up.select_gt(s, tiny, d_up, one),
-            );
-            let (l, r) = (n_in.mul(s, d_up), n_up.mul(s, d_in));
-            let num = l.select_ge(s, r, n_in, n_up);
-            let den = l.select_ge(s, r, d_in, d_up);
-            // This lane's first best so far (its first candidate beats bn = −1), by the
-            // exact sign of num·bd − bn·den: a transitive comparison, so the lanes and
-            // their merge find the first best interval one scan would.
-            let det = L8::det(s, num, bd, bn, den);
-            bn = num.select_ge(s, zero, det.select_gt(s, zero, num, bn), bn);
-            bd = num.select_ge(s, zero, det.select_gt(s, zero, den, bd), bd);
-            bi = num.select_ge(s, zero, det.select_gt(s, zero, idx, bi), bi);
+        let n = self.al.len();
+        let whole = n - n % (2 * LANES);
+        for j0 in (0..whole).step_by(2 * LANES) {
+            let (n0, d0) = self.better(s, self.block::<S, false>(s, j0));
+            let (n1, d1) = self.better(s, self.block::<S, false>(s, j0 + LANES));
+            sets[0] = sets[0].take(s, n0, d0, idx);
+            idx = idx.add(s, step);
+            sets[1] = sets[1].take(s, n1, d1, idx);
             idx = idx.add(s, step);
         }
-        let (bn, bd, bi) = (bn.lanes(s), bd.lanes(s), bi.lanes(s));
-        // The best of the lanes' winners, the first interval on a tie: the winner a
+        // Intervals past the end hold zeros: q* is NaN and both denominators 0, so
+        // neither candidate counts.
+        for (b, j0) in (whole..n).step_by(LANES).enumerate() {
+            let (nb, db) = self.better(s, self.block::<S, true>(s, j0));
+            sets[b % 2] = sets[b % 2].take(s, nb, db, idx);
+            idx = idx.add(s, step);
+        }
+        // The best of the lanes' leaders, the first interval on a tie: the winner a
         // scan in interval order keeps.
         let mut best: Option<Best> = None;
-        for l in (0..LANES).filter(|&l| bi[l] >= 0.0) {
-            let i = bi[l] as usize;
-            let take = best.is_none_or(|b| {
-                exceeds(bn[l], bd[l], b.num, b.den)
-                    || (!exceeds(b.num, b.den, bn[l], bd[l]) && i < b.i)
-            });
-            if take {
-                best = Some(Best {
-                    i,
-                    num: bn[l],
-                    den: bd[l],
+        for set in sets {
+            let (bn, bd, bi) = (set.n.lanes(s), set.d.lanes(s), set.i.lanes(s));
+            for l in (0..LANES).filter(|&l| bi[l] >= 0.0) {
+                let i = bi[l] as usize;
+                let take = best.is_none_or(|b| {
+                    exceeds(bn[l], bd[l], b.num, b.den)
+                        || (!exceeds(b.num, b.den, bn[l], bd[l]) && i < b.i)
                 });
+                if take {
+                    best = Some(Best {
+                        i,
+                        num: bn[l],
+                        den: bd[l],
+                    });
+                }
             }
         }
         best

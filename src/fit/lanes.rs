@@ -224,10 +224,16 @@ pub fn dispatch<K: Kernel>(k: K) -> K::Output {
         if let Some(v4) = pulp::x86::V4::try_new() {
             // A closure that consumes `k` is `FnOnce` only, so it is inlined into the
             // function compiled for the wide registers.
-            return v4.vectorize(move || k.run(v4));
+            return v4.vectorize(
+                #[inline(always)]
+                move || k.run(v4),
+            );
         }
         if let Some(v3) = pulp::x86::V3::try_new() {
-            return v3.vectorize(move || k.run(v3));
+            return v3.vectorize(
+                #[inline(always)]
+                move || k.run(v3),
+            );
         }
     }
     k.run(Plain)
@@ -248,6 +254,17 @@ impl<W: Wide> L8<W> {
     #[inline(always)]
     pub fn load(w: W, a: &[f64; LANES]) -> Self {
         L8(w.load(a))
+    }
+
+    /// `v[j0..j0 + 8]`, all inside `v` (a loop's whole blocks: one load, with no
+    /// branch to a padded copy that would keep the lanes in memory).
+    ///
+    /// # Panics
+    /// When `v` ends before `j0 + 8`.
+    #[inline(always)]
+    pub fn at(w: W, v: &[f64], j0: usize) -> Self {
+        let block: &[f64; LANES] = v[j0..j0 + LANES].try_into().expect("eight values");
+        Self::load(w, block)
     }
 
     /// `v[j0..j0 + 8]`; past the end of `v`, `pad`.
