@@ -85,6 +85,11 @@ pub struct Workspace {
     xp: XPart,
     /// What each response of one pass needs per allowed interval.
     resp: [Resp; MAX_RESPONSES],
+    /// The sorted order handed to the next sort ([`Workspace::give_order`]); empty when
+    /// none was.
+    given: Vec<usize>,
+    /// `order` was made by the last sort and not taken yet ([`Workspace::take_order`]).
+    fresh: bool,
 }
 
 /// The most responses [`search_each`] takes through the sorted points in one pass.
@@ -121,6 +126,24 @@ impl Workspace {
     /// it is reached.
     fn sort(&mut self, x: &[f64]) {
         let p = x.len();
+        self.fresh = true;
+        if self.given.len() == p {
+            // An order made elsewhere: taken as it is when it sorts x, which is all the
+            // check costs (one pass, no shifts).
+            std::mem::swap(&mut self.order, &mut self.given);
+            self.given.clear();
+            debug_assert!(
+                is_permutation(&self.order),
+                "a given order holds every point once"
+            );
+            self.keys.clear();
+            self.keys.extend(self.order.iter().map(|&i| x[i]));
+            if !self.keys.is_sorted() {
+                insertion_sort(&mut self.order, &mut self.keys);
+            }
+            return;
+        }
+        self.given.clear();
         let from_start = self.start.len() == p;
         if from_start && !self.bins.count.is_empty() {
             self.bins
@@ -137,6 +160,30 @@ impl Workspace {
             self.keys.extend(self.order.iter().map(|&i| x[i]));
         }
         insertion_sort(&mut self.order, &mut self.keys);
+    }
+}
+
+impl Workspace {
+    /// The points of the last search in increasing x, when that search sorted them and
+    /// the order was not taken since (`None` when it reused the x part or stopped before
+    /// sorting): the stable sort of the workspace's start order.
+    pub(crate) fn take_order(&mut self) -> Option<&[usize]> {
+        std::mem::take(&mut self.fresh).then_some(self.order.as_slice())
+    }
+
+    /// The order the next search of new x takes as its sort, filled by the caller (or
+    /// left empty for none): the indices of all the points, in increasing x.
+    ///
+    /// Made for a subset of a larger set of points whose sort is known: walking through
+    /// the larger set's sorted order and keeping the subset's points gives the subset's
+    /// sort in one pass, with no comparisons. When the larger set's start order, kept to
+    /// the subset, is this workspace's start order (the groups of a joint fit, all started
+    /// from the full data's order), the result is the very permutation this workspace's
+    /// own sort would make: both are the stable sort of the same start order. The search
+    /// checks that the order sorts its x (one pass) and sorts it further if not.
+    pub(crate) fn give_order(&mut self) -> &mut Vec<usize> {
+        self.given.clear();
+        &mut self.given
     }
 }
 
@@ -400,6 +447,14 @@ fn same_bits(a: &[f64], b: &[f64]) -> bool {
             .zip(b)
             .fold(0u64, |acc, (u, v)| acc | (u.to_bits() ^ v.to_bits()))
             == 0
+}
+
+/// `order` holds each of `0..order.len()` once.
+fn is_permutation(order: &[usize]) -> bool {
+    let mut seen = vec![false; order.len()];
+    order
+        .iter()
+        .all(|&i| i < seen.len() && !std::mem::replace(&mut seen[i], true))
 }
 
 /// The indices of `x` in increasing x.
@@ -790,10 +845,16 @@ impl BestInterval<'_> {
     /// (`PAD` false), zeros past the end otherwise.
     #[inline(always)]
     fn block<S: Wide, const PAD: bool>(&self, s: S, j0: usize) -> [L8<S>; 7] {
-        let cols = [self.al, self.be, self.ga, self.de, self.ep, self.lo, self.hi];
+        let cols = [
+            self.al, self.be, self.ga, self.de, self.ep, self.lo, self.hi,
+        ];
         let mut v = [L8::splat(s, 0.0); 7];
         for (v, c) in v.iter_mut().zip(cols) {
-            *v = if PAD { L8::get(s, c, j0, 0.0) } else { L8::at(s, c, j0) };
+            *v = if PAD {
+                L8::get(s, c, j0, 0.0)
+            } else {
+                L8::at(s, c, j0)
+            };
         }
         v
     }
@@ -823,10 +884,7 @@ impl BestInterval<'_> {
             d_up.select_gt(s, tiny, d_up, one),
         );
         let (l, r) = (n_in.mul(s, d_up), n_up.mul(s, d_in));
-        (
-            l.select_ge(s, r, n_in, n_up),
-            l.select_ge(s, r, d_in, d_up),
-        )
+        (l.select_ge(s, r, n_in, n_up), l.select_ge(s, r, d_in, d_up))
     }
 }
 

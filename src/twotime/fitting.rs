@@ -109,6 +109,83 @@ impl Scratch {
     }
 }
 
+/// Where each point of the first group (all points of a joint fit) is in the other groups
+/// (the curves), for [`share_order`].
+#[derive(Debug, Clone)]
+pub struct Members {
+    /// Per point of the first group: its group (counted from 0 after the first) and its
+    /// index in that group.
+    of: Vec<(u32, u32)>,
+    /// Where each other group's points start in the list of all of them (one more entry:
+    /// the end).
+    starts: Vec<usize>,
+}
+
+impl Members {
+    /// The members, when every other group's points are among the first group's and each
+    /// of the first group's points is in exactly one other group (the curves of a joint
+    /// fit); `None` otherwise.
+    pub fn of(groups: &[Group]) -> Option<Self> {
+        let (first, rest) = groups.split_first()?;
+        let top = first.idx.iter().max().map_or(0, |&m| m + 1);
+        let mut at = vec![u32::MAX; top];
+        for (k, &j) in first.idx.iter().enumerate() {
+            at[j] = u32::try_from(k).ok()?;
+        }
+        let mut of = vec![(u32::MAX, u32::MAX); first.idx.len()];
+        let mut starts = vec![0];
+        for (g, group) in rest.iter().enumerate() {
+            for (l, &j) in group.idx.iter().enumerate() {
+                let slot = of.get_mut(*at.get(j)? as usize)?;
+                if slot.0 != u32::MAX {
+                    return None;
+                }
+                *slot = (u32::try_from(g).ok()?, u32::try_from(l).ok()?);
+            }
+            starts.push(starts[g] + group.idx.len());
+        }
+        (!rest.is_empty() && of.iter().all(|m| m.0 != u32::MAX)).then_some(Members { of, starts })
+    }
+}
+
+/// Hands the sort of the first group's last resample on to the other groups: walking
+/// through the first group's points in increasing x and keeping each group's gives each
+/// group its own sort in one pass (both start from the full data's order, so it is the
+/// very permutation the group's own sort would make), and their searches skip the sort.
+/// On W3 of benches/ the 12 curves' sorts took 2.5 µs of a resample's 82 µs. Groups get
+/// nothing when the first group's search did not sort this resample. `flat` and
+/// `cursor` are scratch.
+pub fn share_order(
+    sc: &mut [Scratch],
+    members: &Members,
+    flat: &mut Vec<usize>,
+    cursor: &mut Vec<usize>,
+) {
+    let Some((first, rest)) = sc.split_first_mut() else {
+        return;
+    };
+    for s in rest.iter_mut() {
+        s.buf.ws.give_order();
+    }
+    let Some(order) = first.buf.ws.take_order() else {
+        return;
+    };
+    if order.len() != members.of.len() || rest.len() + 1 != members.starts.len() {
+        return;
+    }
+    flat.resize(order.len(), 0);
+    cursor.clear();
+    cursor.extend_from_slice(&members.starts[..rest.len()]);
+    for &k in order {
+        let (g, l) = members.of[k];
+        flat[cursor[g as usize]] = l as usize;
+        cursor[g as usize] += 1;
+    }
+    for (s, w) in rest.iter_mut().zip(members.starts.windows(2)) {
+        s.buf.ws.give_order().extend_from_slice(&flat[w[0]..w[1]]);
+    }
+}
+
 /// `r = α x + y − shift` per point.
 fn moved_into(spec: Spec, r: &mut Vec<f64>, x: &[f64], y: &[f64], shift: &[f64]) {
     let alpha = spec.model.c_factor();

@@ -6,7 +6,8 @@
 use super::campaign::Campaign;
 use super::findings::{Caution, Finding, Subject};
 use super::fitting::{
-    Group, Points, Scratch, Spec, fit_group, fit_resample, shape_null, shape_record,
+    Group, Members, Points, Scratch, Spec, fit_group, fit_resample, shape_null, shape_record,
+    share_order,
 };
 use super::lack_of_fit::LofNull;
 use super::model::{Draw, Values};
@@ -295,6 +296,8 @@ pub fn bootstrap(
 ) -> Replicates {
     let (n, p, ng) = (prep.data.nrows(), prep.tf.points, groups.len());
     let chunk = chunk_rows(prep.data.ncols());
+    // The joint fit's sort serves the curves' searches.
+    let members = Members::of(groups);
     let b_total = settings.resamples;
     let mut draws: Vec<Option<Draw>> = vec![None; b_total * ng];
     let row = if nulls.shape.iter().any(Option::is_some) {
@@ -319,9 +322,10 @@ pub fn bootstrap(
             || {
                 let bufs = vec![vec![0.0; p]; 4];
                 let mats = [Array2::zeros((0, 0)), Array2::zeros((0, 0))];
-                (scratch.to_vec(), vec![0u32; n], bufs, mats)
+                let shared = (Vec::new(), Vec::new());
+                (scratch.to_vec(), vec![0u32; n], bufs, mats, shared)
             },
-            |(sc, counts, bufs, [wm, means]), (c, (slot, rows))| {
+            |(sc, counts, bufs, [wm, means], (flat, cursor)), (c, (slot, rows))| {
                 let b0 = c * chunk;
                 let reps_here = slot.len() / ng;
                 resample::weight_rows_into(settings.seed, b0, reps_here, counts, wm);
@@ -333,10 +337,15 @@ pub fn bootstrap(
                     prep.tf.apply(means.row(r), x, y);
                     prep.rule.weights(means.row(r), n, var, w);
                     let pts = Points { x, y, w };
-                    for (gi, (g, s)) in groups.iter().zip(sc.iter_mut()).enumerate() {
+                    for (gi, g) in groups.iter().enumerate() {
+                        if gi == 1
+                            && let Some(members) = &members
+                        {
+                            share_order(sc, members, flat, cursor);
+                        }
                         let shape_row = (row > 0)
                             .then(|| &mut rows[(r * ng + gi) * row..(r * ng + gi + 1) * row]);
-                        reps[gi] = replicate(g, pts, spec, s, nulls, gi, shape_row);
+                        reps[gi] = replicate(g, pts, spec, &mut sc[gi], nulls, gi, shape_row);
                     }
                 }
                 progress.advance(reps_here as u64);
