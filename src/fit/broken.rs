@@ -260,11 +260,7 @@ impl Bins {
         for &b in &self.bin {
             self.count[b as usize + 1] += 1;
         }
-        let mut sum = 0;
-        for c in &mut self.count {
-            sum += *c;
-            *c = sum;
-        }
+        running_count(&mut self.count);
         order.resize(start.len(), 0);
         keys.resize(start.len(), 0.0);
         for (&b, &i) in self.bin.iter().zip(start) {
@@ -273,6 +269,39 @@ impl Bins {
             keys[*at as usize] = x[i];
             *at += 1;
         }
+    }
+}
+
+/// `count` replaced by its running sum. Four quarters are summed side by side (each add
+/// waits on the one before it in its quarter only), then each quarter after the first
+/// gets the total of those before it: integer adds, so the same counts as one running sum,
+/// in about half the time for the 4,096 bins of W3's joint curve (benches/).
+fn running_count(count: &mut [u32]) {
+    let q = count.len() / 4;
+    let (a, rest) = count.split_at_mut(q);
+    let (b, rest) = rest.split_at_mut(q);
+    let (c, d) = rest.split_at_mut(q);
+    let mut sums = [0u32; 4];
+    for (((a, b), c), d) in a
+        .iter_mut()
+        .zip(b.iter_mut())
+        .zip(c.iter_mut())
+        .zip(d.iter_mut())
+    {
+        (sums[0], sums[1], sums[2], sums[3]) =
+            (sums[0] + *a, sums[1] + *b, sums[2] + *c, sums[3] + *d);
+        (*a, *b, *c, *d) = (sums[0], sums[1], sums[2], sums[3]);
+    }
+    // The last quarter's tail (its length is not a multiple of four).
+    let mut tail = sums[3];
+    for v in d.iter_mut().skip(q) {
+        tail += *v;
+        *v = tail;
+    }
+    let mut offset = 0;
+    for (part, sum) in [b, c, d].into_iter().zip([sums[0], sums[1], sums[2]]) {
+        offset += sum;
+        part.iter_mut().for_each(|v| *v += offset);
     }
 }
 
@@ -442,7 +471,9 @@ impl<const K: usize, const FRESH: bool> Kernel for SecondSums<'_, K, FRESH> {
 
 /// The two slices hold the same numbers, bit for bit.
 fn same_bits(a: &[f64], b: &[f64]) -> bool {
+    // The first numbers first: a resample's new x differs there already.
     a.len() == b.len()
+        && a.first().map(|v| v.to_bits()) == b.first().map(|v| v.to_bits())
         && a.iter()
             .zip(b)
             .fold(0u64, |acc, (u, v)| acc | (u.to_bits() ^ v.to_bits()))
@@ -1292,6 +1323,27 @@ mod tests {
     /// with x beyond the full data's range at both ends, and with the curves of a resample
     /// moved against each other. The insertion sort alone is the reference.
     /// Source: common practice (a stable sort is unique, so two ways must agree).
+    /// The running count in four quarters is the one running sum, for every length
+    /// (none, fewer than four, not a multiple of four). Source: common practice (integer
+    /// addition is associative).
+    #[test]
+    fn a_running_count_in_quarters_is_the_running_sum() {
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(3);
+        for len in [0, 1, 3, 4, 5, 8, 17, 4097] {
+            let count: Vec<u32> = (0..len).map(|_| rng.random_range(0..4)).collect();
+            let want: Vec<u32> = count
+                .iter()
+                .scan(0, |s, &c| {
+                    *s += c;
+                    Some(*s)
+                })
+                .collect();
+            let mut got = count.clone();
+            running_count(&mut got);
+            assert_eq!(got, want, "{len} bins");
+        }
+    }
+
     #[test]
     fn a_sort_through_bins_is_the_stable_sort_of_the_starting_order() {
         let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(11);
