@@ -251,10 +251,13 @@ fn parse_in_blocks<R: Read + Send>(
     let per_block = (4 * rayon::current_num_threads()).max(block.div_ceil(MAX_LINE / 2));
     let mut head: Option<(Header, Columns)> = None;
     let mut rows = Rows::default();
-    // One buffer of values per part, kept from block to block.
-    let mut pool: Vec<Vec<Vals>> = Vec::new();
-    // One block: its lines split and parsed on all threads, then numbered in file order
-    // (while the next block is read).
+    // One buffer of values per part, kept from block to block: the block being parsed
+    // fills `pool` while the block before it, parsed into `ready`, is numbered.
+    let (mut pool, mut ready): (Vec<Vec<Vals>>, Vec<Vec<Vals>>) = (Vec::new(), Vec::new());
+    // The last block's runs per part (or its first error) and its length, not yet numbered.
+    let mut pending: (Vec<Result<OwnedRuns>>, usize) = (Vec::new(), 0);
+    // One block: its lines split and parsed on all threads while the block before it is
+    // numbered in file order (and the next block is read).
     let mut step = |parts: Vec<Part<'_>>| -> Result<()> {
         // Lines to pass over in each part: those up to and including the header.
         let mut skip = vec![0; parts.len()];
@@ -265,34 +268,43 @@ fn parse_in_blocks<R: Read + Send>(
             return Ok(());
         };
         pool.resize_with(parts.len(), Vec::new);
-        let runs: Vec<Result<Runs>> = parts
-            .par_iter()
-            .zip(&skip)
-            .zip(pool.par_iter_mut())
-            .map(|((part, &skip), vals)| {
-                let only = how.observable.as_deref();
-                parse_part(part, skip, header, cols, (names, only), d, vals)
-            })
-            .collect();
-        for (runs, vals) in runs.into_iter().zip(&pool) {
-            let mut at = 0;
-            for (name, count) in runs? {
-                let s = rows.sample_of(&name, file)?;
-                rows.push_run(s, &vals[at..at + count], cols.corr_eq.is_some(), file)?;
-                at += count;
-            }
-        }
-        if let Some(size) = size.take() {
-            let bytes: usize = parts.iter().map(Part::len).sum();
-            rows.reserve_for(size, bytes);
-        }
+        let with_eq = cols.corr_eq.is_some();
+        let (numbered, parsed) = rayon::join(
+            || {
+                number(
+                    &mut rows,
+                    std::mem::take(&mut pending),
+                    &ready,
+                    with_eq,
+                    &mut size,
+                    file,
+                )
+            },
+            || {
+                parts
+                    .par_iter()
+                    .zip(&skip)
+                    .zip(pool.par_iter_mut())
+                    .map(|((part, &skip), vals)| {
+                        let only = how.observable.as_deref();
+                        parse_part(part, skip, header, cols, (names, only), d, vals).map(owned_runs)
+                    })
+                    .collect::<Vec<_>>()
+            },
+        );
+        // The block before comes first in the file, and so do its errors.
+        numbered?;
+        pending = (parsed, parts.iter().map(Part::len).sum());
+        std::mem::swap(&mut pool, &mut ready);
         Ok(())
     };
     while let Some(done) = blocks.next(per_block, &mut step)? {
         done?;
     }
+    let with_eq = head.as_ref().is_some_and(|h| h.1.corr_eq.is_some());
+    number(&mut rows, pending, &ready, with_eq, &mut size, file)?;
     // The text and the parsed values are done with before the arrays are made.
-    drop(pool);
+    drop((pool, ready));
     drop(blocks);
     if head.is_none() {
         return Err(Error::input(
@@ -305,7 +317,6 @@ fn parse_in_blocks<R: Read + Send>(
             ),
         ));
     }
-    let with_eq = head.as_ref().is_some_and(|h| h.1.corr_eq.is_some());
     if let Some(only) = &how.observable {
         if rows.line.is_empty() {
             return Err(Error::input(
@@ -525,6 +536,39 @@ struct Vals {
 
 /// Runs of rows of one sample: its name and the number of rows.
 type Runs<'a> = Vec<(Cow<'a, str>, usize)>;
+
+/// [`Runs`] that outlive the text of their block (a few names a part).
+type OwnedRuns = Vec<(String, usize)>;
+
+fn owned_runs(runs: Runs<'_>) -> OwnedRuns {
+    runs.into_iter().map(|(n, c)| (n.into_owned(), c)).collect()
+}
+
+/// Numbers the samples and points of a parsed block (its runs per part, or the first
+/// error of a part, and its length in bytes) into `rows`, part by part in file order;
+/// the first block sizes the row store for a file of `size` bytes.
+fn number(
+    rows: &mut Rows,
+    (runs, bytes): (Vec<Result<OwnedRuns>>, usize),
+    vals: &[Vec<Vals>],
+    with_eq: bool,
+    size: &mut Option<u64>,
+    file: &Path,
+) -> Result<()> {
+    let any = !runs.is_empty();
+    for (runs, vals) in runs.into_iter().zip(vals) {
+        let mut at = 0;
+        for (name, count) in runs? {
+            let s = rows.sample_of(&name, file)?;
+            rows.push_run(s, &vals[at..at + count], with_eq, file)?;
+            at += count;
+        }
+    }
+    if any && let Some(size) = size.take() {
+        rows.reserve_for(size, bytes);
+    }
+    Ok(())
+}
 
 /// The data rows of one part, their values in `vals` and their samples as runs of one
 /// name with their lengths, or the first error among them.
