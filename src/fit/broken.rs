@@ -90,6 +90,8 @@ pub struct Workspace {
     given: Vec<usize>,
     /// `order` was made by the last sort and not taken yet ([`Workspace::take_order`]).
     fresh: bool,
+    /// Searches keep no copy of their x and weights ([`Workspace::forget_x_parts`]).
+    forget: bool,
 }
 
 /// The most responses [`search_each`] takes through the sorted points in one pass.
@@ -184,6 +186,14 @@ impl Workspace {
     pub(crate) fn give_order(&mut self) -> &mut Vec<usize> {
         self.given.clear();
         &mut self.given
+    }
+
+    /// From now on, a search keeps no copy of its x and weights, so a later search on
+    /// the same points makes its x part again instead of reusing it: for callers that
+    /// never search the same points twice (the bootstrap's fits without the smooth
+    /// model), the copies and their comparison are saved.
+    pub(crate) fn forget_x_parts(&mut self) {
+        self.forget = true;
     }
 }
 
@@ -373,11 +383,11 @@ impl XPart {
     }
 
     /// Ends a new x part made by [`Workspace::sorted_pass`]: the projection of every
-    /// interval (with no dependence between intervals: vectorized), and the x, weights
-    /// and key it was made from. (Stored, with the sorted weights, a search that reuses
-    /// the x part costs 7.3 µs on the joint curve of W3, against 8.3 µs with both made
-    /// again where used; a search on new x costs the same either way.)
-    fn finish(&mut self, x: &[f64], w: &[f64], key: (Base, usize)) {
+    /// interval (with no dependence between intervals: vectorized), and, with `keep`, the
+    /// x, weights and key it was made from. (Stored, with the sorted weights, a search
+    /// that reuses the x part costs 7.3 µs on the joint curve of W3, against 8.3 µs with
+    /// both made again where used; a search on new x costs the same either way.)
+    fn finish(&mut self, x: &[f64], w: &[f64], key: (Base, usize), keep: bool) {
         let n = self.s0.len();
         for v in [&mut self.ga, &mut self.de, &mut self.ep] {
             v.resize(n, 0.0);
@@ -396,11 +406,14 @@ impl XPart {
                 }
             },
         );
-        self.x.clear();
-        self.x.extend_from_slice(x);
-        self.w.clear();
-        self.w.extend_from_slice(w);
-        self.key = Some(key);
+        // Without `keep`, no later search reuses this x part (its key is never matched).
+        self.key = keep.then_some(key);
+        if keep {
+            self.x.clear();
+            self.x.extend_from_slice(x);
+            self.w.clear();
+            self.w.extend_from_slice(w);
+        }
     }
 }
 
@@ -701,7 +714,7 @@ impl Workspace {
         let (line, m) = (key.0 == Base::Line, key.1);
         self.sorted_pass::<K, FRESH>(x, w, rs, &cs, line, m);
         if FRESH {
-            self.xp.finish(x, w, key);
+            self.xp.finish(x, w, key, !self.forget);
         }
         let tiny = 1e-12 * self.xp.sxx;
         let mut profile = profile;

@@ -99,14 +99,29 @@ impl Scratch {
         }
     }
 
-    fn points(&self) -> GroupPoints<'_> {
-        GroupPoints {
-            x: &self.x,
-            y: &self.y,
-            r: &self.r,
-            w: &self.w,
-        }
+    /// Its searches keep no copy of their x and weights for a later search on the same
+    /// points (none comes: the fits of a resample without the smooth model's shape test).
+    pub fn without_reuse(&mut self) {
+        self.buf.ws.forget_x_parts();
     }
+}
+
+/// The group's x, y and weights: slices of `pts` for a run of points, the copies
+/// [`gather`] made otherwise.
+fn xyw<'a>(g: &Group, pts: Points<'a>, copies: [&'a [f64]; 3]) -> [&'a [f64]; 3] {
+    match g.run {
+        Some(a) => {
+            let b = a + g.idx.len();
+            [&pts.x[a..b], &pts.y[a..b], &pts.w[a..b]]
+        }
+        None => copies,
+    }
+}
+
+/// The group's points with the responses in `sc` ([`gather`]).
+fn group_points<'a>(g: &Group, pts: Points<'a>, sc: &'a Scratch) -> GroupPoints<'a> {
+    let [x, y, w] = xyw(g, pts, [&sc.x, &sc.y, &sc.w]);
+    GroupPoints { x, y, r: &sc.r, w }
 }
 
 /// Where each point of the first group (all points of a joint fit) is in the other groups
@@ -207,26 +222,26 @@ pub fn fit_group(
     let mut buf = std::mem::take(&mut sc.buf);
     let v = spec
         .model
-        .fit(sc.points(), spec.min_branch, &mut buf, profile);
+        .fit(group_points(g, pts, sc), spec.min_branch, &mut buf, profile);
     sc.buf = buf;
     v
 }
 
-/// The group's points, weights and responses `r = α x + y` into `sc`.
+/// The group's responses `r = α x + y` into `sc`, and for a group that is not a run of
+/// points, its points and weights (a run's are read from `pts` where used, [`xyw`]: on
+/// W3 of benches/ the copies took 1% of the CPU).
 fn gather(g: &Group, pts: Points<'_>, spec: Spec, sc: &mut Scratch) {
-    for v in [&mut sc.x, &mut sc.y, &mut sc.r, &mut sc.w] {
-        v.resize(g.idx.len(), 0.0);
-    }
     let alpha = spec.model.c_factor();
+    sc.r.resize(g.idx.len(), 0.0);
     if let Some(a) = g.run {
         let b = a + g.idx.len();
-        sc.x.copy_from_slice(&pts.x[a..b]);
-        sc.y.copy_from_slice(&pts.y[a..b]);
-        sc.w.copy_from_slice(&pts.w[a..b]);
-        for ((r, x), y) in sc.r.iter_mut().zip(&sc.x).zip(&sc.y) {
+        for ((r, x), y) in sc.r.iter_mut().zip(&pts.x[a..b]).zip(&pts.y[a..b]) {
             *r = alpha * x + y;
         }
         return;
+    }
+    for v in [&mut sc.x, &mut sc.y, &mut sc.w] {
+        v.resize(g.idx.len(), 0.0);
     }
     let out = sc.x.iter_mut().zip(&mut sc.y).zip(&mut sc.w).zip(&mut sc.r);
     for ((((x, y), w), r), &j) in out.zip(&g.idx) {
@@ -254,9 +269,10 @@ pub fn fit_resample(
     lof: Option<&LofNull>,
 ) -> Option<(Values, f64, f64)> {
     gather(g, pts, spec, sc);
-    moved_into(spec, &mut sc.rn, &sc.x, &sc.y, shift);
+    let [x, y, _] = xyw(g, pts, [&sc.x, &sc.y, &sc.w]);
+    moved_into(spec, &mut sc.rn, x, y, shift);
     if let Some(null) = lof {
-        moved_into(spec, &mut sc.rl, &sc.x, &sc.y, &null.shift);
+        moved_into(spec, &mut sc.rl, x, y, &null.shift);
     }
     // The lack-of-fit refit only with its null.
     let k = 1 + usize::from(lof.is_some());
@@ -264,7 +280,7 @@ pub fn fit_resample(
     let mut sols = [None, None];
     let mut buf = std::mem::take(&mut sc.buf);
     let v = spec.model.fit_moved(
-        sc.points(),
+        group_points(g, pts, sc),
         &moved[..k],
         spec.min_branch,
         &mut buf,
@@ -276,7 +292,8 @@ pub fn fit_resample(
     let lof_stat = match (lof, sols[1]) {
         (Some(null), Some(sol)) => {
             // The residuals overwrite the moved responses: nothing reads them after this.
-            for (r, x) in sc.rl.iter_mut().zip(&sc.x) {
+            let [x, ..] = xyw(g, pts, [&sc.x, &sc.y, &sc.w]);
+            for (r, x) in sc.rl.iter_mut().zip(x) {
                 *r -= sol.eval(*x);
             }
             null.bins.statistic(&sc.rl, &null.w, &mut sc.sums)
@@ -331,22 +348,27 @@ pub fn shape_full(
 /// X on the grid, where X leaves 1 and the X of the points above where the full-data curve
 /// leaves 1, for the resample whose points [`fit_group`] just left in `sc` (call before
 /// [`null_statistic`], which overwrites the responses).
-pub fn shape_record(sc: &Scratch, setup: &Setup, row: &mut [f64]) {
-    if let Some(f) = setup.fit(&sc.x, &sc.r, &sc.w) {
+pub fn shape_record(g: &Group, pts: Points<'_>, sc: &Scratch, setup: &Setup, row: &mut [f64]) {
+    let [x, _, w] = xyw(g, pts, [&sc.x, &sc.y, &sc.w]);
+    if let Some(f) = setup.fit(x, &sc.r, w) {
         setup.record(&f, row);
     }
-    row[super::shape::GRID + 2] = setup.ratio_above(&sc.x, &sc.r, &sc.w);
-    row[super::shape::GRID + 3] = setup.drift_below(&sc.x, &sc.r, &sc.w);
+    row[super::shape::GRID + 2] = setup.ratio_above(x, &sc.r, w);
+    row[super::shape::GRID + 3] = setup.drift_below(x, &sc.r, w);
 }
 
 /// The shape statistic of the resample whose points [`fit_group`] left in `sc`, after
 /// moving it onto the fitted broken stick: both models refitted with its own weights.
-pub fn shape_null(spec: Spec, sc: &mut Scratch, setup: &Setup) -> f64 {
-    moved_into(spec, &mut sc.r, &sc.x, &sc.y, &setup.shift);
+pub fn shape_null(g: &Group, pts: Points<'_>, spec: Spec, sc: &mut Scratch, setup: &Setup) -> f64 {
+    let [x, y, _] = xyw(g, pts, [&sc.x, &sc.y, &sc.w]);
+    moved_into(spec, &mut sc.r, x, y, &setup.shift);
     let mut buf = std::mem::take(&mut sc.buf);
-    let sol = spec.model.solve(sc.points(), spec.min_branch, &mut buf);
+    let sol = spec
+        .model
+        .solve(group_points(g, pts, sc), spec.min_branch, &mut buf);
     sc.buf = buf;
-    match (sol, setup.fit(&sc.x, &sc.r, &sc.w)) {
+    let [x, _, w] = xyw(g, pts, [&sc.x, &sc.y, &sc.w]);
+    match (sol, setup.fit(x, &sc.r, w)) {
         (Some(b), Some(f)) => b.sse - f.sse,
         _ => f64::NAN,
     }

@@ -323,7 +323,12 @@ pub fn bootstrap(
                 let bufs = vec![vec![0.0; p]; 4];
                 let mats = [Array2::zeros((0, 0)), Array2::zeros((0, 0))];
                 let shared = (Vec::new(), Vec::new());
-                (scratch.to_vec(), vec![0u32; n], bufs, mats, shared)
+                let mut sc = scratch.to_vec();
+                if row == 0 {
+                    // No shape test: no search of a resample is made twice on its points.
+                    sc.iter_mut().for_each(Scratch::without_reuse);
+                }
+                (sc, vec![0u32; n], bufs, mats, shared)
             },
             |(sc, counts, bufs, [wm, means], (flat, cursor)), (c, (slot, rows))| {
                 let b0 = c * chunk;
@@ -371,12 +376,12 @@ fn replicate(
     let setup = nulls.shape.get(gi).and_then(Option::as_ref);
     let mut shape_row = shape_row;
     if let (Some(setup), Some(row)) = (setup, shape_row.as_deref_mut()) {
-        shape_record(s, setup, row);
+        shape_record(g, pts, s, setup, row);
     }
     let mut d = v.draw(null_stat);
     d.lof_stat = lof_stat;
     if let (Some(setup), Some(row)) = (setup, shape_row) {
-        row[shape::GRID + 1] = shape_null(spec, s, setup);
+        row[shape::GRID + 1] = shape_null(g, pts, spec, s, setup);
     }
     Some(d)
 }
