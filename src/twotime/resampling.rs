@@ -232,14 +232,20 @@ pub fn jackknife(
     let n = prep.data.nrows();
     let p = prep.tf.points;
     let full = prep.means();
+    // The joint fit's sort serves the curves' searches, as in the bootstrap.
+    let members = Members::of(groups);
     (0..n)
         .into_par_iter()
         .map_init(
             || {
                 let lo = LeaveOut::new(full.clone(), prep.tf);
-                (scratch.to_vec(), vec![0.0; p], vec![0.0; p], lo)
+                let mut sc = scratch.to_vec();
+                // One search a group: none reuses an x part.
+                sc.iter_mut().for_each(Scratch::without_reuse);
+                let shared = (Vec::new(), Vec::new());
+                (sc, vec![0.0; p], vec![0.0; p], lo, shared)
             },
-            |(sc, var, w, lo), i| {
+            |(sc, var, w, lo, (flat, cursor)), i| {
                 lo.at(&prep.data, prep.tf, i);
                 prep.rule.weights(lo.means.view(), n - 1, var, w);
                 let pts = Points {
@@ -247,12 +253,15 @@ pub fn jackknife(
                     y: &lo.y,
                     w,
                 };
-                groups
-                    .iter()
-                    .zip(sc.iter_mut())
-                    .zip(est)
-                    .map(|((g, s), e)| {
-                        e.and_then(|_| fit_group(g, pts, spec, s, None))
+                (0..groups.len())
+                    .map(|gi| {
+                        if gi == 1
+                            && let Some(members) = &members
+                        {
+                            share_order(sc, members, flat, cursor);
+                        }
+                        est[gi]
+                            .and_then(|_| fit_group(&groups[gi], pts, spec, &mut sc[gi], None))
                             .map(|v| v.draw(f64::NAN))
                     })
                     .collect()
