@@ -195,6 +195,12 @@ impl Workspace {
     pub(crate) fn forget_x_parts(&mut self) {
         self.forget = true;
     }
+
+    /// The length of the order handed to the next sort (0 for none).
+    #[cfg(test)]
+    pub(crate) fn given_len(&self) -> usize {
+        self.given.len()
+    }
 }
 
 /// Equal-width bins of x for the counting pass that puts a large resample's points
