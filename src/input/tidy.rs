@@ -298,8 +298,18 @@ fn parse_in_blocks<R: Read + Send>(
         std::mem::swap(&mut pool, &mut ready);
         Ok(())
     };
-    while let Some(done) = blocks.next(per_block, &mut step)? {
-        done?;
+    loop {
+        match blocks.next(per_block, &mut step) {
+            Ok(Some(done)) => done?,
+            Ok(None) => break,
+            Err(e) => {
+                // Reading or cutting the next block failed: the block parsed before it
+                // comes first in the file, and so do its errors.
+                let with_eq = head.as_ref().is_some_and(|h| h.1.corr_eq.is_some());
+                number(&mut rows, pending, &ready, with_eq, &mut size, file)?;
+                return Err(e);
+            }
+        }
     }
     let with_eq = head.as_ref().is_some_and(|h| h.1.corr_eq.is_some());
     number(&mut rows, pending, &ready, with_eq, &mut size, file)?;
@@ -1096,6 +1106,44 @@ mod tests {
                 let e = read(text, block).unwrap_err();
                 assert!(e.contains(at), "block {block}: {e}");
             }
+        }
+    }
+
+    /// A bad row is reported before a failure further on, whichever block each falls in:
+    /// a line too long in a later block, or a read that fails after the bad row. Source:
+    /// common practice (the first error in the file).
+    #[test]
+    fn an_error_is_reported_before_a_later_blocks_failure() {
+        struct Failing<'a>(&'a [u8]);
+        impl Read for Failing<'_> {
+            fn read(&mut self, b: &mut [u8]) -> std::io::Result<usize> {
+                if self.0.is_empty() {
+                    return Err(std::io::Error::other("the disk went away"));
+                }
+                let k = self.0.len().min(b.len()).min(16);
+                b[..k].copy_from_slice(&self.0[..k]);
+                self.0 = &self.0[k..];
+                Ok(k)
+            }
+        }
+        let mut text = String::from("sample,tw,t,corr,resp\na,1,2,0.9,0.1\nb,1,2,x,0.2\n");
+        for i in 0..40 {
+            text.push_str(&format!("a,1,{},0.5,0.5\n", i + 3));
+        }
+        let long = format!("{text}{}\n", "y".repeat(MAX_LINE + 10));
+        for block in [24, 64, 256, lines::BLOCK] {
+            let e = read(&long, block).unwrap_err();
+            assert!(e.contains("t.csv:3:4"), "block {block}: {e}");
+        }
+        // (A read that fails inside the first block fails before any row is read.)
+        let how = CampaignRead::default();
+        for block in [24, 64, 256] {
+            let failing = Failing(text.as_bytes());
+            let e = parse_in_blocks(failing, Path::new("t.csv"), &how, block, None)
+                .map(|_| ())
+                .unwrap_err()
+                .to_string();
+            assert!(e.contains("t.csv:3:4"), "block {block}: {e}");
         }
     }
 
