@@ -1338,10 +1338,6 @@ mod tests {
         );
     }
 
-    /// The sort through bins gives the stable sort of the starting order: with ties,
-    /// with x beyond the full data's range at both ends, and with the curves of a resample
-    /// moved against each other. The insertion sort alone is the reference.
-    /// Source: common practice (a stable sort is unique, so two ways must agree).
     /// The running count in four quarters is the one running sum, for every length
     /// (none, fewer than four, not a multiple of four). Source: common practice (integer
     /// addition is associative).
@@ -1363,6 +1359,10 @@ mod tests {
         }
     }
 
+    /// The sort through bins gives the stable sort of the starting order: with ties,
+    /// with x beyond the full data's range at both ends, and with the curves of a resample
+    /// moved against each other. The insertion sort alone is the reference.
+    /// Source: common practice (a stable sort is unique, so two ways must agree).
     #[test]
     fn a_sort_through_bins_is_the_stable_sort_of_the_starting_order() {
         let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(11);

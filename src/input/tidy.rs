@@ -298,21 +298,18 @@ fn parse_in_blocks<R: Read + Send>(
         std::mem::swap(&mut pool, &mut ready);
         Ok(())
     };
-    loop {
+    // The end of the file, or a failure to read or cut the next block.
+    let end = loop {
         match blocks.next(per_block, &mut step) {
             Ok(Some(done)) => done?,
-            Ok(None) => break,
-            Err(e) => {
-                // Reading or cutting the next block failed: the block parsed before it
-                // comes first in the file, and so do its errors.
-                let with_eq = head.as_ref().is_some_and(|h| h.1.corr_eq.is_some());
-                number(&mut rows, pending, &ready, with_eq, &mut size, file)?;
-                return Err(e);
-            }
+            Ok(None) => break Ok(()),
+            Err(e) => break Err(e),
         }
-    }
+    };
+    // The last block parsed comes before that failure in the file, and so do its errors.
     let with_eq = head.as_ref().is_some_and(|h| h.1.corr_eq.is_some());
     number(&mut rows, pending, &ready, with_eq, &mut size, file)?;
+    end?;
     // The text and the parsed values are done with before the arrays are made.
     drop((pool, ready));
     drop(blocks);

@@ -292,7 +292,6 @@ pub fn fit_resample(
     let lof_stat = match (lof, sols[1]) {
         (Some(null), Some(sol)) => {
             // The residuals overwrite the moved responses: nothing reads them after this.
-            let [x, ..] = xyw(g, pts, [&sc.x, &sc.y, &sc.w]);
             for (r, x) in sc.rl.iter_mut().zip(x) {
                 *r -= sol.eval(*x);
             }
@@ -360,14 +359,13 @@ pub fn shape_record(g: &Group, pts: Points<'_>, sc: &Scratch, setup: &Setup, row
 /// The shape statistic of the resample whose points [`fit_group`] left in `sc`, after
 /// moving it onto the fitted broken stick: both models refitted with its own weights.
 pub fn shape_null(g: &Group, pts: Points<'_>, spec: Spec, sc: &mut Scratch, setup: &Setup) -> f64 {
-    let [x, y, _] = xyw(g, pts, [&sc.x, &sc.y, &sc.w]);
+    let [x, y, w] = xyw(g, pts, [&sc.x, &sc.y, &sc.w]);
     moved_into(spec, &mut sc.r, x, y, &setup.shift);
     let mut buf = std::mem::take(&mut sc.buf);
     let sol = spec
         .model
         .solve(group_points(g, pts, sc), spec.min_branch, &mut buf);
     sc.buf = buf;
-    let [x, _, w] = xyw(g, pts, [&sc.x, &sc.y, &sc.w]);
     match (sol, setup.fit(x, &sc.r, w)) {
         (Some(b), Some(f)) => b.sse - f.sse,
         _ => f64::NAN,
